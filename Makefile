@@ -1,0 +1,50 @@
+# procmetrics: the two README commands are `make demo` and `make test`.
+PYTHON ?= python3
+VENV   := .venv
+BIN    := $(VENV)/bin
+DEMO_REPO  := sample_repos/build/aurora-fw
+DEMO_OUT   := reports/demo
+DEMO_STORE := $(DEMO_OUT)/procmetrics.sqlite
+
+.PHONY: demo test setup setup-test system-test-deps bench clean
+
+$(BIN)/python:
+	$(PYTHON) -m venv $(VENV)
+	$(BIN)/python -m pip install --quiet --upgrade pip
+
+$(VENV)/.installed: $(BIN)/python pyproject.toml
+	$(BIN)/python -m pip install --quiet -e .
+	touch $@
+
+$(VENV)/.installed-test: $(VENV)/.installed
+	$(BIN)/python -m pip install --quiet -e '.[test]'
+	touch $@
+
+setup: $(VENV)/.installed
+
+setup-test: $(VENV)/.installed-test system-test-deps
+
+# Debian packages the tests use: chromium (report rendering) and postgresql (team store).
+system-test-deps:
+	@sh .ci/system-deps
+
+$(DEMO_REPO)/HEAD $(DEMO_REPO)/.git/HEAD: $(VENV)/.installed sample_repos/generate.py
+	$(BIN)/python sample_repos/generate.py --out $(DEMO_REPO)
+
+demo: $(VENV)/.installed
+	$(BIN)/python sample_repos/generate.py --out $(DEMO_REPO)
+	@mkdir -p $(DEMO_OUT)
+	$(BIN)/procmetrics mine $(DEMO_REPO) --store $(DEMO_STORE)
+	$(BIN)/procmetrics report --store $(DEMO_STORE) --out $(DEMO_OUT) \
+		--policy-date "$$($(BIN)/python sample_repos/generate.py --print-change-date)" \
+		--claims sample_repos/demo_claims.toml
+	@echo "report written to $(DEMO_OUT)/report.html"
+
+test: setup-test
+	$(BIN)/python -m pytest -q -p no:cacheprovider
+
+bench: $(VENV)/.installed-test
+	$(BIN)/python bench/run.py
+
+clean:
+	rm -rf $(VENV) sample_repos/build reports/demo

@@ -1,0 +1,5 @@
+import sys
+
+from procmetrics.cli import main
+
+sys.exit(main())

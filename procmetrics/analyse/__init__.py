@@ -1,0 +1,1 @@
+"""Pure analyses over tidy DataFrames; each returns a small frozen result."""

@@ -1,0 +1,137 @@
+"""The small, frozen result types every analysis returns.
+
+An auditor needs, for every figure: what was estimated, on how many
+observations, by which method, with which interval, what the diagnostics said
+and which caveats apply. These types carry exactly that; ``to_dict()`` gives a
+JSON-ready, deterministic dictionary (sorted keys are the report's job).
+
+Caveat codes are a closed vocabulary (:data:`CAVEAT_CODES`) so the report can
+flag them automatically and tests can look for them.
+"""
+from __future__ import annotations
+
+import math
+import warnings
+from dataclasses import dataclass, field, fields, is_dataclass
+from typing import Any, Literal
+
+import numpy as np
+import pandas as pd
+
+from procmetrics.errors import ProcmetricsWarning
+
+Verdict = Literal["pass", "warn", "fail", "n/a"]
+Severity = Literal["info", "warn", "fail"]
+
+CAVEAT_CODES: dict[str, str] = {
+    "too_few_observations": "too few observations for the method",
+    "diagnostic_failed": "a model diagnostic failed",
+    "extrapolation": "a value lies outside the observed range",
+    "truncation_bias": "lifetimes are right-truncated at the end of the history",
+    "heuristic_classification": "classification by a heuristic, not by an explicit link",
+    "shallow_history": "the clone is shallow: history and fix targets are cut",
+    "rewritten_history": "the history was rewritten between mining runs",
+    "unresolved_fix_references": "many fix references could not be resolved",
+    "multiple_comparisons": "many comparisons; see the correction applied",
+    "tuning_sensitive": "the result moves with a tuning choice",
+    "negligible_effect": "statistically significant but negligible in size",
+    "absence_of_evidence": "no evidence of a change is not evidence of no change",
+    "tag_adoption_rising": "use of the Fixes: trailer is still rising in the window",
+    "clock_skew": "some dates are inconsistent (clock skew, rebases)",
+    "not_identifiable": "the quantity cannot be identified from this data",
+    "model_refused": "the model was not fitted or its prediction was refused",
+}
+
+
+@dataclass(frozen=True)
+class Diagnostic:
+    """One model check: its value, the threshold used and the verdict."""
+
+    name: str
+    value: float | None
+    threshold: str
+    verdict: Verdict
+    method: str
+    note: str = ""
+
+    def to_dict(self) -> dict[str, Any]:
+        return _plain(self)
+
+
+@dataclass(frozen=True)
+class Caveat:
+    """A limitation of a result, in plain words, with a code from CAVEAT_CODES."""
+
+    code: str
+    message: str
+    severity: Severity = "warn"
+
+    def __post_init__(self) -> None:
+        if self.code not in CAVEAT_CODES:
+            raise ValueError(f"unknown caveat code {self.code!r}")
+
+    def to_dict(self) -> dict[str, Any]:
+        return _plain(self)
+
+
+@dataclass(frozen=True)
+class Estimate:
+    """A point estimate with its interval, level, method and sample size."""
+
+    name: str
+    value: float | None
+    low: float | None
+    high: float | None
+    level: float
+    method: str
+    n: int
+    unit: str = ""
+    extrapolated: bool = False
+
+    def to_dict(self) -> dict[str, Any]:
+        return _plain(self)
+
+
+def caveat(code: str, message: str, severity: Severity = "warn", *,
+           emit: bool = False) -> Caveat:
+    """Build a caveat; with ``emit`` also raise it as a :class:`ProcmetricsWarning`."""
+    cv = Caveat(code, message, severity)
+    if emit:
+        warnings.warn(message, ProcmetricsWarning, stacklevel=2)
+    return cv
+
+
+def _plain(obj: Any) -> Any:
+    """Convert dataclasses, numpy and pandas values into JSON-ready Python values."""
+    if is_dataclass(obj) and not isinstance(obj, type):
+        return {f.name: _plain(getattr(obj, f.name)) for f in fields(obj)
+                if f.metadata.get("json", True)}
+    if isinstance(obj, pd.DataFrame):
+        return [
+            {str(k): _plain(v) for k, v in row.items()}
+            for row in obj.to_dict(orient="records")
+        ]
+    if isinstance(obj, pd.Series):
+        return [_plain(v) for v in obj.tolist()]
+    if isinstance(obj, dict):
+        return {str(k): _plain(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [_plain(v) for v in obj]
+    if isinstance(obj, (pd.Timestamp,)):
+        return None if pd.isna(obj) else obj.isoformat()
+    if isinstance(obj, (np.bool_, bool)):
+        return bool(obj)
+    if isinstance(obj, (np.integer,)):
+        return int(obj)
+    if isinstance(obj, (float, np.floating)):
+        x = float(obj)
+        return None if math.isnan(x) or math.isinf(x) else x
+    if obj is pd.NA or obj is pd.NaT:
+        return None
+    return obj
+
+
+to_plain = _plain
+
+__all__ = ["Diagnostic", "Caveat", "Estimate", "caveat", "to_plain", "CAVEAT_CODES",
+           "Verdict", "Severity", "field"]

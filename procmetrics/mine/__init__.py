@@ -1,0 +1,1 @@
+"""Mining: the only package that runs git."""

@@ -1,0 +1,1 @@
+"""Figures from results; the only package that imports matplotlib."""

@@ -1,0 +1,1 @@
+"""Reports (HTML, PDF, JSON, CSV, manifest) from results and figures."""

@@ -1,0 +1,25 @@
+"""Schema migrations: one function per version step, applied in order."""
+from __future__ import annotations
+
+from typing import Callable
+
+from sqlalchemy import update
+from sqlalchemy.engine import Connection, Engine
+
+from procmetrics.errors import SchemaError
+from procmetrics.store import schema
+
+# MIGRATIONS[n] upgrades a store from schema n to n + 1.
+MIGRATIONS: dict[int, Callable[[Connection], None]] = {}
+
+
+def migrate(engine: Engine, found: int) -> None:
+    """Upgrade a store from schema ``found`` to :data:`schema.SCHEMA_VERSION`."""
+    with engine.begin() as conn:
+        for version in range(found, schema.SCHEMA_VERSION):
+            step = MIGRATIONS.get(version)
+            if step is None:
+                raise SchemaError(f"no migration from schema {version} to {version + 1}")
+            step(conn)
+        conn.execute(update(schema.meta).where(schema.meta.c.key == "schema_version")
+                     .values(value=str(schema.SCHEMA_VERSION)))

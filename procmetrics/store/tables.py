@@ -1,0 +1,257 @@
+"""Tidy tables read from the store: one observation a row, fixed columns.
+
+Every reader takes an engine and an optional repository name (``None`` = every
+repository in the store) and returns a :class:`pandas.DataFrame` whose columns
+are listed in :data:`COLUMNS` (and in the README's data-model section).
+Dates are timezone-aware UTC ``Timestamp``; the original offset is kept in a
+``*_offset_min`` column.
+"""
+from __future__ import annotations
+
+from typing import Callable
+
+import pandas as pd
+from sqlalchemy import and_, case, func, select
+from sqlalchemy.engine import Engine
+from sqlalchemy.sql import Select
+
+from procmetrics.errors import StoreError
+from procmetrics.store import schema as s
+
+COLUMNS: dict[str, list[str]] = {
+    "commits": [
+        "repo", "hash", "author_name", "author_email", "committer_name", "committer_email",
+        "author_date", "author_offset_min", "committer_date", "committer_offset_min",
+        "subject", "n_parents", "is_merge", "stable_request", "n_files", "lines_added",
+        "lines_deleted", "n_fix_refs", "n_resolved_fixes", "is_revert",
+    ],
+    "commit_subsystems": ["repo", "hash", "subsystem"],
+    "file_changes": ["repo", "hash", "path", "old_path", "change_type", "lines_added",
+                     "lines_deleted", "is_binary"],
+    "trailers": ["repo", "hash", "position", "key", "raw_key", "value", "person_name",
+                 "person_email"],
+    "fix_links": [
+        "repo", "fix_hash", "position", "ref_hash", "status", "introducer_hash",
+        "cited_subject", "subject_match", "in_trailer_block", "raw_text",
+        "fix_author_date", "fix_committer_date", "intro_author_date", "intro_committer_date",
+    ],
+    "reverts": ["repo", "hash", "ref_hash", "status", "reverted_hash"],
+    "unparsed_references": ["repo", "hash", "kind", "raw_text"],
+    "tags": ["repo", "name", "commit_hash", "tag_date", "tag_offset_min", "is_annotated"],
+    "mining_runs": ["repo", "run_id", "status", "started", "ended", "ref", "head_hash",
+                    "base_hash", "is_shallow", "options_json", "versions_json", "n_commits",
+                    "n_file_changes", "n_trailers", "n_fix_refs", "message"],
+    "repositories": ["repo", "path", "remote_url", "tip_hash", "tip_ref", "is_shallow",
+                     "mapping_kind", "mapping_source"],
+}
+
+_DATE_COLUMNS = {"author_date", "committer_date", "fix_author_date", "fix_committer_date",
+                 "intro_author_date", "intro_committer_date", "tag_date", "started", "ended"}
+_BOOL_COLUMNS = {"is_merge", "stable_request", "is_revert", "is_binary", "subject_match",
+                 "in_trailer_block", "is_annotated", "is_shallow"}
+
+
+def _repo_filter(stmt: Select, repo: str | None) -> Select:
+    return stmt.where(s.repository.c.name == repo) if repo is not None else stmt
+
+
+def _read(engine: Engine, stmt: Select, name: str) -> pd.DataFrame:
+    with engine.connect() as conn:
+        # one read transaction: a concurrent miner never shows half a batch
+        df = pd.read_sql(stmt, conn)
+    cols = COLUMNS[name]
+    df = df.reindex(columns=cols)
+    for c in cols:
+        if c in _DATE_COLUMNS:
+            df[c] = pd.to_datetime(df[c], unit="s", utc=True)
+        elif c in _BOOL_COLUMNS:
+            df[c] = df[c].astype("boolean")
+    return df
+
+
+def commits(engine: Engine, repo: str | None = None) -> pd.DataFrame:
+    """One row per commit (merges included and flagged by ``is_merge``)."""
+    a, c = s.person.alias("a"), s.person.alias("c")
+    fc = (select(s.file_change.c.commit_id,
+                 func.count().label("n_files"),
+                 func.sum(s.file_change.c.lines_added).label("lines_added"),
+                 func.sum(s.file_change.c.lines_deleted).label("lines_deleted"))
+          .group_by(s.file_change.c.commit_id).subquery())
+    fx = (select(s.fix_link.c.commit_id,
+                 func.count().label("n_fix_refs"),
+                 func.sum(case((s.fix_link.c.status == "resolved", 1), else_=0))
+                 .label("n_resolved_fixes"))
+          .group_by(s.fix_link.c.commit_id).subquery())
+    rv = (select(s.revert_link.c.commit_id, func.count().label("n_reverts"))
+          .group_by(s.revert_link.c.commit_id).subquery())
+    g = s.commit
+    stmt = (
+        select(
+            s.repository.c.name.label("repo"), g.c.hash,
+            a.c.name.label("author_name"), a.c.email.label("author_email"),
+            c.c.name.label("committer_name"), c.c.email.label("committer_email"),
+            g.c.author_time.label("author_date"), g.c.author_offset_min,
+            g.c.committer_time.label("committer_date"), g.c.committer_offset_min,
+            g.c.subject, g.c.n_parents, g.c.is_merge, g.c.stable_request,
+            func.coalesce(fc.c.n_files, 0).label("n_files"),
+            fc.c.lines_added, fc.c.lines_deleted,
+            func.coalesce(fx.c.n_fix_refs, 0).label("n_fix_refs"),
+            func.coalesce(fx.c.n_resolved_fixes, 0).label("n_resolved_fixes"),
+            (func.coalesce(rv.c.n_reverts, 0) > 0).label("is_revert"),
+        )
+        .select_from(g)
+        .join(s.repository, s.repository.c.repo_id == g.c.repo_id)
+        .join(a, a.c.person_id == g.c.author_id)
+        .join(c, c.c.person_id == g.c.committer_id)
+        .outerjoin(fc, fc.c.commit_id == g.c.commit_id)
+        .outerjoin(fx, fx.c.commit_id == g.c.commit_id)
+        .outerjoin(rv, rv.c.commit_id == g.c.commit_id)
+        .order_by(s.repository.c.name, g.c.committer_time, g.c.hash)
+    )
+    df = _read(engine, _repo_filter(stmt, repo), "commits")
+    for col in ("n_files", "n_fix_refs", "n_resolved_fixes", "n_parents"):
+        df[col] = df[col].astype("int64")
+    for col in ("lines_added", "lines_deleted"):
+        df[col] = df[col].astype("Int64")
+    return df
+
+
+def commit_subsystems(engine: Engine, repo: str | None = None) -> pd.DataFrame:
+    """One row per (commit, subsystem) the commit touched."""
+    g, fc, ps, sub = s.commit, s.file_change, s.path_subsystem, s.subsystem
+    stmt = (
+        select(s.repository.c.name.label("repo"), g.c.hash, sub.c.name.label("subsystem"))
+        .distinct()
+        .select_from(g)
+        .join(s.repository, s.repository.c.repo_id == g.c.repo_id)
+        .join(fc, fc.c.commit_id == g.c.commit_id)
+        .join(ps, and_(ps.c.repo_id == g.c.repo_id, ps.c.path == fc.c.path))
+        .join(sub, sub.c.subsystem_id == ps.c.subsystem_id)
+        .order_by(s.repository.c.name, g.c.hash, sub.c.name)
+    )
+    return _read(engine, _repo_filter(stmt, repo), "commit_subsystems")
+
+
+def file_changes(engine: Engine, repo: str | None = None) -> pd.DataFrame:
+    """One row per (commit, touched path)."""
+    g, fc = s.commit, s.file_change
+    stmt = (
+        select(s.repository.c.name.label("repo"), g.c.hash, fc.c.path, fc.c.old_path,
+               fc.c.change_type, fc.c.lines_added, fc.c.lines_deleted, fc.c.is_binary)
+        .select_from(fc).join(g, g.c.commit_id == fc.c.commit_id)
+        .join(s.repository, s.repository.c.repo_id == g.c.repo_id)
+        .order_by(s.repository.c.name, g.c.hash, fc.c.path)
+    )
+    df = _read(engine, _repo_filter(stmt, repo), "file_changes")
+    for col in ("lines_added", "lines_deleted"):
+        df[col] = df[col].astype("Int64")
+    return df
+
+
+def trailers(engine: Engine, repo: str | None = None) -> pd.DataFrame:
+    """One row per trailer line of a commit's final trailer block."""
+    g, t, p = s.commit, s.trailer, s.person
+    stmt = (
+        select(s.repository.c.name.label("repo"), g.c.hash, t.c.position, t.c.key,
+               t.c.raw_key, t.c.value, p.c.name.label("person_name"),
+               p.c.email.label("person_email"))
+        .select_from(t).join(g, g.c.commit_id == t.c.commit_id)
+        .join(s.repository, s.repository.c.repo_id == g.c.repo_id)
+        .outerjoin(p, p.c.person_id == t.c.person_id)
+        .order_by(s.repository.c.name, g.c.hash, t.c.position)
+    )
+    return _read(engine, _repo_filter(stmt, repo), "trailers")
+
+
+def fix_links(engine: Engine, repo: str | None = None) -> pd.DataFrame:
+    """One row per fix reference (resolved or not) with both commits' dates."""
+    g, fl = s.commit, s.fix_link
+    intro = s.commit.alias("intro")
+    stmt = (
+        select(s.repository.c.name.label("repo"), g.c.hash.label("fix_hash"), fl.c.position,
+               fl.c.ref_hash, fl.c.status, fl.c.introducer_hash, fl.c.cited_subject,
+               fl.c.subject_match, fl.c.in_trailer_block, fl.c.raw_text,
+               g.c.author_time.label("fix_author_date"),
+               g.c.committer_time.label("fix_committer_date"),
+               intro.c.author_time.label("intro_author_date"),
+               intro.c.committer_time.label("intro_committer_date"))
+        .select_from(fl).join(g, g.c.commit_id == fl.c.commit_id)
+        .join(s.repository, s.repository.c.repo_id == g.c.repo_id)
+        .outerjoin(intro, and_(intro.c.repo_id == g.c.repo_id,
+                               intro.c.hash == fl.c.introducer_hash))
+        .order_by(s.repository.c.name, g.c.committer_time, g.c.hash, fl.c.position)
+    )
+    return _read(engine, _repo_filter(stmt, repo), "fix_links")
+
+
+def reverts(engine: Engine, repo: str | None = None) -> pd.DataFrame:
+    g, r = s.commit, s.revert_link
+    stmt = (
+        select(s.repository.c.name.label("repo"), g.c.hash, r.c.ref_hash, r.c.status,
+               r.c.reverted_hash)
+        .select_from(r).join(g, g.c.commit_id == r.c.commit_id)
+        .join(s.repository, s.repository.c.repo_id == g.c.repo_id)
+        .order_by(s.repository.c.name, g.c.hash)
+    )
+    return _read(engine, _repo_filter(stmt, repo), "reverts")
+
+
+def unparsed_references(engine: Engine, repo: str | None = None) -> pd.DataFrame:
+    g, u = s.commit, s.unparsed_reference
+    stmt = (
+        select(s.repository.c.name.label("repo"), g.c.hash, u.c.kind, u.c.raw_text)
+        .select_from(u).join(g, g.c.commit_id == u.c.commit_id)
+        .join(s.repository, s.repository.c.repo_id == g.c.repo_id)
+        .order_by(s.repository.c.name, g.c.hash)
+    )
+    return _read(engine, _repo_filter(stmt, repo), "unparsed_references")
+
+
+def tags(engine: Engine, repo: str | None = None) -> pd.DataFrame:
+    t = s.tag
+    stmt = (
+        select(s.repository.c.name.label("repo"), t.c.name, t.c.commit_hash,
+               t.c.tag_time.label("tag_date"), t.c.tag_offset_min, t.c.is_annotated)
+        .select_from(t).join(s.repository, s.repository.c.repo_id == t.c.repo_id)
+        .order_by(s.repository.c.name, t.c.tag_time, t.c.name)
+    )
+    return _read(engine, _repo_filter(stmt, repo), "tags")
+
+
+def mining_runs(engine: Engine, repo: str | None = None) -> pd.DataFrame:
+    m = s.mining_run
+    stmt = (
+        select(s.repository.c.name.label("repo"), m.c.run_id, m.c.status,
+               m.c.started_utc.label("started"), m.c.ended_utc.label("ended"), m.c.ref,
+               m.c.head_hash, m.c.base_hash, m.c.is_shallow, m.c.options_json,
+               m.c.versions_json, m.c.n_commits, m.c.n_file_changes, m.c.n_trailers,
+               m.c.n_fix_refs, m.c.message)
+        .select_from(m).join(s.repository, s.repository.c.repo_id == m.c.repo_id)
+        .order_by(s.repository.c.name, m.c.run_id)
+    )
+    return _read(engine, _repo_filter(stmt, repo), "mining_runs")
+
+
+def repositories(engine: Engine, repo: str | None = None) -> pd.DataFrame:
+    r = s.repository
+    stmt = select(r.c.name.label("repo"), r.c.path, r.c.remote_url, r.c.tip_hash,
+                  r.c.tip_ref, r.c.is_shallow, r.c.mapping_kind,
+                  r.c.mapping_source).order_by(r.c.name)
+    return _read(engine, _repo_filter(stmt, repo), "repositories")
+
+
+READERS: dict[str, Callable[..., pd.DataFrame]] = {
+    "commits": commits, "commit_subsystems": commit_subsystems,
+    "file_changes": file_changes, "trailers": trailers, "fix_links": fix_links,
+    "reverts": reverts, "unparsed_references": unparsed_references, "tags": tags,
+    "mining_runs": mining_runs, "repositories": repositories,
+}
+
+
+def read_table(engine: Engine, name: str, repo: str | None = None) -> pd.DataFrame:
+    """Read one tidy table by name (see :data:`COLUMNS`)."""
+    try:
+        reader = READERS[name]
+    except KeyError:
+        raise StoreError(f"unknown table {name!r}; known: {', '.join(sorted(READERS))}") from None
+    return reader(engine, repo)
