@@ -40,7 +40,10 @@ demo: $(VENV)/.installed
 		--claims sample_repos/demo_claims.toml
 	@echo "report written to $(DEMO_OUT)/report.html"
 
+# Starts a throw-away PostgreSQL server (.ci/pg) for the `postgres` tests; stopped even on failure.
 test: setup-test
+	@pgdir=$$(mktemp -d) && trap 'sh .ci/pg stop "$$pgdir"' EXIT INT TERM && \
+	PROCMETRICS_TEST_PG_URL=$$(sh .ci/pg start "$$pgdir") && export PROCMETRICS_TEST_PG_URL && \
 	$(BIN)/python -m pytest -q -p no:cacheprovider
 
 bench: $(VENV)/.installed-test
