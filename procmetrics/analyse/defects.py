@@ -1,0 +1,290 @@
+"""One row per defect: the commit that introduced it and the commit that fixed it.
+
+A *defect* here is a resolved fix link: a fixing commit citing (``Fixes: <sha>``)
+the commit that introduced the problem. The rules, fixed and documented:
+
+* A fix naming several introducers gives several defects (one per distinct
+  introducer).
+* An introducer cited by several fixes is *one* defect whose lifetime ends at
+  the FIRST fix (earliest fix date on the chosen basis, ties broken by hash);
+  the later fixes are kept as ``follow_up_fixes`` and counted in ``n_fixes``.
+* Links with status other than ``resolved`` (``unresolved``, ``ambiguous``,
+  ``self``) give no defect; they are counted on the result.
+* Negative lifetimes (fix dated before its introducer: clock skew, rebases,
+  late-applied patches) are kept, flagged ``negative=True``, counted and
+  carried with a ``clock_skew`` caveat. Estimators exclude them from
+  estimation and report how many they excluded; nothing is clipped.
+
+Columns of :attr:`DefectTable.defects` (:data:`DEFECT_COLUMNS`):
+
+``repo``, ``introducer_hash``, ``fix_hash`` (first fix), ``n_fixes`` (distinct
+fixing commits), ``follow_up_fixes`` (space-separated hashes of later fixes),
+``basis`` (``committer`` | ``author`` | ``releases``), ``intro_date``,
+``fix_date`` (UTC, on the basis clock; committer clock for ``releases``),
+``lifetime_days`` (float days between them), ``lifetime`` (in basis units:
+days, or releases shipped), ``window`` (the truncation window in basis units:
+the longest lifetime that could have been observed, ``end - intro_date`` in
+days or the number of release tags containing the introducer), ``negative``,
+``subsystem`` (the introducer's only subsystem, ``(multiple)`` or ``(none)``),
+``subsystems`` (``;``-joined), ``period``, ``reviewed_introducer`` (boolean,
+NA when trailers were not given), ``intro_lines`` (lines added + deleted, NA
+when not mined), ``intro_files``.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any, Literal, Sequence
+
+import numpy as np
+import pandas as pd
+
+from procmetrics.analyse.result import Caveat, caveat, to_plain
+from procmetrics.errors import InsufficientData
+
+Basis = Literal["committer", "author", "releases"]
+
+DEFECT_COLUMNS: list[str] = [
+    "repo", "introducer_hash", "fix_hash", "n_fixes", "follow_up_fixes", "basis",
+    "intro_date", "fix_date", "lifetime_days", "lifetime", "window", "negative",
+    "subsystem", "subsystems", "period", "reviewed_introducer", "intro_lines", "intro_files",
+]
+
+REVIEW_KEYS: tuple[str, ...] = ("reviewed-by", "acked-by")
+"""Trailer keys (compared case-insensitively) that count as review of a change."""
+
+MULTIPLE = "(multiple)"
+NONE = "(none)"
+
+
+@dataclass(frozen=True)
+class DefectTable:
+    """The defect table with the counts an auditor needs to judge it.
+
+    Attributes
+    ----------
+    defects : DataFrame with :data:`DEFECT_COLUMNS`, one row per defect.
+    basis : clock the lifetimes are measured on.
+    unit : ``"days"`` or ``"releases"``.
+    end_date : the end of the observed history (``tau``), UTC.
+    link_counts : number of fix links per status (``resolved``, ``unresolved``...).
+    n_missing_dates : resolved links whose introducer or fix has no date (dropped).
+    n_negative : defects with a negative lifetime (kept, flagged).
+    n_follow_up_fixes : fix links beyond the first for an already-fixed introducer.
+    population : plain-words description of what the rows represent.
+    """
+
+    defects: pd.DataFrame
+    basis: str
+    unit: str
+    end_date: pd.Timestamp
+    link_counts: dict[str, int]
+    n_missing_dates: int
+    n_negative: int
+    n_follow_up_fixes: int
+    population: str
+    caveats: tuple[Caveat, ...] = field(default_factory=tuple)
+
+    def to_dict(self) -> dict[str, Any]:
+        return to_plain(self)
+
+
+def _periods(dates: pd.Series, cuts: Sequence[Any] | None, freq: str) -> pd.Series:
+    if not cuts:
+        return dates.dt.tz_convert("UTC").dt.to_period(freq).astype(str)
+    cut_ts = sorted(pd.Timestamp(c).tz_convert("UTC") if pd.Timestamp(c).tzinfo
+                    else pd.Timestamp(c).tz_localize("UTC") for c in cuts)
+    if len(cut_ts) == 1:
+        labels = ["before", "after"]
+    else:
+        edges = [f"{c:%Y-%m-%d}" for c in cut_ts]
+        labels = ([f"<{edges[0]}"] + [f"{a}..{b}" for a, b in zip(edges, edges[1:])]
+                  + [f">={edges[-1]}"])
+    idx = np.searchsorted(np.array([c.value for c in cut_ts]),
+                          dates.dt.tz_convert("UTC").astype("int64").to_numpy(), side="right")
+    return pd.Series([labels[i] for i in idx], index=dates.index, dtype=object)
+
+
+def _release_counts(defects: pd.DataFrame, containment: pd.DataFrame) -> tuple[np.ndarray, np.ndarray]:
+    """Releases shipped between introducer and fix, and the window in releases."""
+    need = {"tag", "commit_hash", "contains"}
+    if not need.issubset(containment.columns):
+        raise InsufficientData(f"tag containment table needs columns {sorted(need)}")
+    cont = containment[containment["contains"].astype(bool)]
+    tags_of = cont.groupby("commit_hash")["tag"].agg(lambda s: frozenset(s)).to_dict()
+    empty: frozenset[str] = frozenset()
+    shipped, window = [], []
+    for intro, fix in zip(defects["introducer_hash"], defects["fix_hash"]):
+        ti, tf = tags_of.get(intro, empty), tags_of.get(fix, empty)
+        shipped.append(len(ti - tf))
+        window.append(len(ti))
+    return np.asarray(shipped, float), np.asarray(window, float)
+
+
+def build_defects(
+    fix_links: pd.DataFrame,
+    *,
+    basis: Basis = "committer",
+    commits: pd.DataFrame | None = None,
+    commit_subsystems: pd.DataFrame | None = None,
+    trailers: pd.DataFrame | None = None,
+    tag_containment: pd.DataFrame | None = None,
+    end_date: Any = None,
+    period_cuts: Sequence[Any] | None = None,
+    period_freq: str = "Y",
+    review_keys: Sequence[str] = REVIEW_KEYS,
+) -> DefectTable:
+    """Build the one-row-per-defect table from the tidy ``fix_links`` table.
+
+    Parameters
+    ----------
+    fix_links : tidy ``fix_links`` table (see ``procmetrics.store.tables``).
+    basis : ``"committer"`` (default) or ``"author"`` dates, or ``"releases"``:
+        the number of release tags whose commit contains the introducer but not
+        the fix (needs ``tag_containment``).
+    commits : tidy ``commits`` table; gives the end of history (latest date on
+        the basis clock) and the introducer's size. Optional.
+    commit_subsystems : tidy ``commit_subsystems`` table (introducer's subsystems).
+    trailers : tidy ``trailers`` table (was the introducer reviewed?).
+    tag_containment : DataFrame ``tag, commit_hash, contains`` (``contains`` is
+        True when the tag's commit has ``commit_hash`` as an ancestor); computed
+        on the mining side by ``procmetrics.mine.ancestry.tag_containment``.
+    end_date : end of the observed history; default: latest commit date on
+        the basis clock (``commits``), else the latest fix date.
+    period_cuts : dates splitting introductions into periods (one date gives
+        ``before``/``after``); default: calendar periods of ``period_freq``.
+    review_keys : trailer keys that count as review (case-insensitive).
+
+    Returns
+    -------
+    DefectTable
+
+    References
+    ----------
+    Śliwerski, Zimmermann & Zeller (2005), "When do changes induce fixes?"
+    (the introducer/fix pairing this table records, here from explicit links).
+    """
+    if basis not in ("committer", "author", "releases"):
+        raise ValueError(f"unknown basis {basis!r}")
+    if basis == "releases" and tag_containment is None:
+        raise InsufficientData("basis 'releases' needs a tag containment table "
+                               "(procmetrics.mine.ancestry.tag_containment)")
+    clock = "author" if basis == "author" else "committer"
+    status = fix_links["status"].fillna("unknown").astype(str)
+    link_counts = {str(k): int(v) for k, v in status.value_counts().sort_index().items()}
+    links = fix_links[status.eq("resolved") & fix_links["introducer_hash"].notna()].copy()
+    links["_intro"] = pd.to_datetime(links[f"intro_{clock}_date"], utc=True)
+    links["_fix"] = pd.to_datetime(links[f"fix_{clock}_date"], utc=True)
+    missing = links["_intro"].isna() | links["_fix"].isna()
+    n_missing = int(missing.sum())
+    links = links[~missing]
+    # one row per (repo, introducer, fixing commit): duplicate citations collapse
+    links = links.drop_duplicates(["repo", "introducer_hash", "fix_hash"])
+    links = links.sort_values(["repo", "introducer_hash", "_fix", "fix_hash"], kind="mergesort")
+    grp = links.groupby(["repo", "introducer_hash"], sort=False)
+    first = grp.head(1).copy()
+    n_fixes = grp["fix_hash"].transform("size")
+    first["n_fixes"] = n_fixes.loc[first.index].astype("int64")
+    follow = grp["fix_hash"].agg(lambda s: " ".join(s.iloc[1:]))
+    first["follow_up_fixes"] = [follow.loc[(r, h)] for r, h in
+                                zip(first["repo"], first["introducer_hash"])]
+    n_follow = int(len(links) - len(first))
+
+    if end_date is not None:
+        tau = pd.Timestamp(end_date)
+        tau = tau.tz_localize("UTC") if tau.tzinfo is None else tau.tz_convert("UTC")
+    elif commits is not None and len(commits):
+        tau = pd.to_datetime(commits[f"{clock}_date"], utc=True).max()
+    elif len(first):
+        tau = first["_fix"].max()
+    else:
+        tau = pd.NaT
+
+    d = pd.DataFrame({
+        "repo": first["repo"].astype(str).to_numpy(),
+        "introducer_hash": first["introducer_hash"].astype(str).to_numpy(),
+        "fix_hash": first["fix_hash"].astype(str).to_numpy(),
+        "n_fixes": first["n_fixes"].to_numpy(),
+        "follow_up_fixes": first["follow_up_fixes"].to_numpy(),
+        "basis": basis,
+        "intro_date": first["_intro"].to_numpy(),
+        "fix_date": first["_fix"].to_numpy(),
+    })
+    d["intro_date"] = pd.to_datetime(d["intro_date"], utc=True)
+    d["fix_date"] = pd.to_datetime(d["fix_date"], utc=True)
+    d["lifetime_days"] = (d["fix_date"] - d["intro_date"]).dt.total_seconds() / 86400.0
+    if basis == "releases":
+        shipped, window = _release_counts(d, tag_containment)  # type: ignore[arg-type]
+        d["lifetime"], d["window"] = shipped, window
+        # ancestry, not clocks, decides here: a skewed clock does not make it negative
+        d["negative"] = np.zeros(len(d), dtype=bool)
+    else:
+        d["lifetime"] = d["lifetime_days"]
+        d["window"] = (tau - d["intro_date"]).dt.total_seconds() / 86400.0
+        d["negative"] = d["lifetime"] < 0
+
+    subs = pd.Series(dtype=object)
+    if commit_subsystems is not None and len(commit_subsystems):
+        subs = (commit_subsystems.dropna(subset=["subsystem"])
+                .groupby(["repo", "hash"])["subsystem"]
+                .agg(lambda s: ";".join(sorted(set(map(str, s))))))
+    keys = list(zip(d["repo"], d["introducer_hash"]))
+    d["subsystems"] = [subs.get(k, "") if len(subs) else "" for k in keys]
+    d["subsystem"] = [NONE if not s else (MULTIPLE if ";" in s else s) for s in d["subsystems"]]
+    d["period"] = _periods(d["intro_date"], period_cuts, period_freq) if len(d) else []
+
+    if trailers is not None:
+        rk = {k.lower() for k in review_keys}
+        rev = trailers[trailers["key"].astype(str).str.lower().isin(rk)]
+        reviewed = set(zip(rev["repo"], rev["hash"]))
+        d["reviewed_introducer"] = pd.array([k in reviewed for k in keys], dtype="boolean")
+    else:
+        d["reviewed_introducer"] = pd.array([pd.NA] * len(d), dtype="boolean")
+    if commits is not None and len(commits):
+        c = commits.set_index(["repo", "hash"])
+        la = c["lines_added"].astype("Float64") + c["lines_deleted"].astype("Float64")
+        d["intro_lines"] = pd.array([la.get(k, pd.NA) for k in keys], dtype="Float64").round().astype("Int64")
+        d["intro_files"] = pd.array([c["n_files"].get(k, pd.NA) for k in keys], dtype="Int64")
+    else:
+        d["intro_lines"] = pd.array([pd.NA] * len(d), dtype="Int64")
+        d["intro_files"] = pd.array([pd.NA] * len(d), dtype="Int64")
+    d = d[DEFECT_COLUMNS].sort_values(["repo", "intro_date", "introducer_hash"],
+                                      kind="mergesort").reset_index(drop=True)
+
+    cav: list[Caveat] = []
+    n_neg = int(d["negative"].sum())
+    n_skew = int((d["lifetime_days"] < 0).sum())
+    if basis == "releases" and n_skew:
+        cav.append(caveat("clock_skew", f"{n_skew} defect(s) have a fix dated before the "
+                          "introducer on the committer clock; release counts use ancestry "
+                          "and keep them"))
+    if n_neg:
+        cav.append(caveat("clock_skew", f"{n_neg} defect(s) have a fix dated before the "
+                          f"introducer on the {clock} clock; they are kept and flagged "
+                          "(negative=True) and excluded from lifetime estimation"))
+    n_unres = sum(v for k, v in link_counts.items() if k not in ("resolved", "self"))
+    n_all = sum(v for k, v in link_counts.items() if k != "self")
+    if n_all and n_unres / n_all > 0.1:
+        cav.append(caveat("unresolved_fix_references",
+                          f"{n_unres} of {n_all} fix references did not resolve to one "
+                          "commit of this history and give no defect"))
+    if n_missing:
+        cav.append(caveat("too_few_observations", f"{n_missing} resolved link(s) lack a "
+                          "date for the introducer or the fix and were dropped", "info"))
+    cav.append(caveat("truncation_bias", "only defects fixed (with a link) before the end "
+                      "of the history appear: long lifetimes of recent defects are missing",
+                      "info"))
+    cav.append(caveat("not_identifiable", "defects never found or fixed without a Fixes: "
+                      "link are absent; their number cannot be estimated from this data",
+                      "info"))
+    unit = "releases" if basis == "releases" else "days"
+    population = ("defects whose fixing commit cites the introducing commit with a resolved "
+                  f"Fixes: link, fixed before {tau:%Y-%m-%d}; lifetime = {unit} from introducer "
+                  "to first fix" if pd.notna(tau) else "no defects")
+    return DefectTable(d, basis, unit, tau, link_counts, n_missing, n_neg, n_follow,
+                       population, tuple(cav))
+
+
+def lifetimes_for_estimation(defects: pd.DataFrame) -> tuple[pd.DataFrame, int]:
+    """Rows usable by the estimators (non-negative lifetime) and the number excluded."""
+    ok = ~defects["negative"].astype(bool) & defects["lifetime"].notna()
+    return defects[ok], int((~ok).sum())
