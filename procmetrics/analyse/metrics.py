@@ -1,0 +1,344 @@
+"""Process-health metrics per period and subsystem, as one tidy table.
+
+Input: the tidy ``commits`` and ``trailers`` tables (and optionally
+``commit_subsystems`` and ``tags``) from :mod:`procmetrics.store.tables`.
+Output: :class:`PeriodMetrics` whose ``table`` has one row per
+(period, subsystem, metric) with the columns in :data:`METRIC_COLUMNS`.
+
+Definitions (non-merge commits unless ``include_merges``; a commit touching
+several subsystems counts in each, and every commit counts in ``"(all)"``):
+
+==========================  ====================================================
+``commits``                 number of commits (count; exact Poisson interval)
+``active_authors``          distinct author e-mails, case-insensitive (count)
+``review_coverage``         share with >= 1 review-type trailer (``review_keys``)
+``independent_review``      share with a review trailer whose e-mail differs
+                            (case-insensitively) from the author's
+``unreviewed_self_commits`` share with author e-mail == committer e-mail and no
+                            review trailer
+``fix_ratio``               share with a resolved ``Fixes:`` link
+                            (``n_resolved_fixes > 0``)
+``fix_ratio_heuristic``     share whose subject matches a keyword (optional;
+                            caveat ``heuristic_classification``)
+``revert_ratio``            share that revert another commit
+``stable_request_share``    among commits with any ``Fixes:`` reference, share
+                            that request a stable backport
+``fixes_tag_adoption``      share with any ``Fixes:`` reference, resolved or not
+``churn_lines``             lines added + deleted (total; no interval: lines are
+                            not independent events)
+``churn_median``            median lines added + deleted per commit
+                            (order-statistic interval)
+==========================  ====================================================
+
+Proportions carry Wilson intervals, counts exact Poisson intervals.
+"""
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from procmetrics.analyse import intervals as iv
+from procmetrics.analyse.periods import assign_periods, period_midpoints, years_since
+from procmetrics.analyse.result import Caveat, caveat, to_plain
+from procmetrics.errors import InsufficientData
+
+ALL = "(all)"
+METRIC_COLUMNS: list[str] = ["period", "period_start", "period_end", "subsystem", "metric",
+                             "numerator", "denominator", "value", "ci_low", "ci_high",
+                             "ci_method", "n"]
+DEFAULT_REVIEW_KEYS: tuple[str, ...] = ("Reviewed-by", "Acked-by", "Tested-by")
+DEFAULT_FIX_KEYWORDS: tuple[str, ...] = ("fix", "bug", "crash", "leak", "regression",
+                                         "overflow", "race")
+
+#: metric name -> kind ("proportion", "count", "total", "median")
+METRICS: dict[str, str] = {
+    "commits": "count", "active_authors": "count",
+    "review_coverage": "proportion", "independent_review": "proportion",
+    "unreviewed_self_commits": "proportion", "fix_ratio": "proportion",
+    "fix_ratio_heuristic": "proportion", "revert_ratio": "proportion",
+    "stable_request_share": "proportion", "fixes_tag_adoption": "proportion",
+    "churn_lines": "total", "churn_median": "median",
+}
+_EMAIL = re.compile(r"<([^<>\s]+@[^<>\s]+)>")
+
+
+@dataclass(frozen=True)
+class MetricConfig:
+    """Options for :func:`compute_period_metrics` (frozen; pass explicitly)."""
+
+    period: str = "month"
+    review_keys: tuple[str, ...] = DEFAULT_REVIEW_KEYS
+    include_merges: bool = False
+    date_column: str = "committer_date"
+    heuristic_keywords: tuple[str, ...] | None = None
+    subsystems: tuple[str, ...] | None = None
+    metrics: tuple[str, ...] | None = None
+    alpha: float = 0.05
+    adoption_window_share: float = 0.5
+
+    def to_dict(self) -> dict[str, Any]:
+        return to_plain(self)
+
+
+@dataclass(frozen=True)
+class PeriodMetrics:
+    """The tidy per-period metric table plus what an auditor needs about it."""
+
+    table: pd.DataFrame
+    config: MetricConfig
+    n_commits: int
+    n_merges_excluded: int
+    periods: pd.DataFrame
+    caveats: tuple[Caveat, ...] = field(default=())
+
+    def to_dict(self) -> dict[str, Any]:
+        return to_plain(self)
+
+    def series(self, metric: str, subsystem: str = ALL) -> pd.DataFrame:
+        """Rows of one metric for one subsystem, in time order."""
+        t = self.table
+        return t[(t["metric"] == metric) & (t["subsystem"] == subsystem)].reset_index(drop=True)
+
+
+def _lower(s: pd.Series) -> pd.Series:
+    return s.astype("string").str.strip().str.casefold()
+
+
+def commit_flags(commits: pd.DataFrame, trailers: pd.DataFrame,
+                 config: MetricConfig = MetricConfig()) -> pd.DataFrame:
+    """One row per commit with the boolean flags the metrics count.
+
+    Columns: ``hash``, ``date``, ``author``, ``reviewed``, ``independent``,
+    ``unreviewed_self``, ``fix``, ``fix_ref``, ``fix_heuristic``, ``revert``,
+    ``stable_request``, ``churn`` (float, NaN when line counts were not mined),
+    ``n_reviewers`` (distinct review-trailer e-mails).
+    """
+    c = commits.copy()
+    if not config.include_merges:
+        c = c[~c["is_merge"].eq(True).to_numpy(dtype=bool)]
+    c = c.drop_duplicates(subset=["repo", "hash"])
+    keys = {k.casefold() for k in config.review_keys}
+    t = trailers[["repo", "hash", "key", "value", "person_email"]].copy()
+    t = t[_lower(t["key"]).isin(keys).fillna(False).to_numpy()]
+    email = _lower(t["person_email"])
+    fallback = _lower(t["value"].astype("string").str.extract(_EMAIL, expand=False))
+    t["email"] = email.fillna(fallback)
+    author = c[["repo", "hash", "author_email"]].assign(author=_lower(c["author_email"]))
+    t = t.merge(author[["repo", "hash", "author"]], on=["repo", "hash"], how="inner")
+    t["indep"] = (t["email"].notna() & (t["email"] != t["author"])).fillna(False)
+    g = t.groupby(["repo", "hash"])
+    per = pd.DataFrame({"reviewed": g.size() > 0, "independent": g["indep"].any(),
+                        "n_reviewers": g["email"].nunique()}).reset_index()
+    c = c.merge(per, on=["repo", "hash"], how="left")
+    out = pd.DataFrame({"repo": c["repo"], "hash": c["hash"],
+                        "date": pd.to_datetime(c[config.date_column], utc=True)})
+    out["author"] = _lower(c["author_email"]).to_numpy()
+    out["reviewed"] = c["reviewed"].eq(True).to_numpy(dtype=bool)
+    out["independent"] = c["independent"].eq(True).to_numpy(dtype=bool)
+    out["n_reviewers"] = c["n_reviewers"].fillna(0).astype(int).to_numpy()
+    self_commit = (_lower(c["author_email"]) == _lower(c["committer_email"])).fillna(False)
+    out["unreviewed_self"] = self_commit.to_numpy(dtype=bool) & ~out["reviewed"].to_numpy()
+    out["fix"] = (c["n_resolved_fixes"].fillna(0) > 0).to_numpy()
+    out["fix_ref"] = (c["n_fix_refs"].fillna(0) > 0).to_numpy()
+    out["revert"] = c["is_revert"].eq(True).to_numpy(dtype=bool)
+    out["stable_request"] = c["stable_request"].eq(True).to_numpy(dtype=bool)
+    if config.heuristic_keywords:
+        pat = r"\b(?:" + "|".join(re.escape(k) for k in config.heuristic_keywords) + r")"
+        out["fix_heuristic"] = c["subject"].astype("string").str.contains(
+            pat, case=False, regex=True).fillna(False).to_numpy(dtype=bool)
+    else:
+        out["fix_heuristic"] = False
+    churn = (pd.to_numeric(c["lines_added"], errors="coerce").astype(float)
+             + pd.to_numeric(c["lines_deleted"], errors="coerce").astype(float))
+    out["churn"] = churn.to_numpy()
+    return out.reset_index(drop=True)
+
+
+def _expand_subsystems(flags: pd.DataFrame, commit_subsystems: pd.DataFrame | None,
+                       wanted: tuple[str, ...] | None) -> pd.DataFrame:
+    parts = [flags.assign(subsystem=ALL)]
+    if commit_subsystems is not None and len(commit_subsystems):
+        cs = commit_subsystems[["repo", "hash", "subsystem"]].drop_duplicates()
+        if wanted is not None:
+            cs = cs[cs["subsystem"].isin(wanted)]
+        parts.append(flags.merge(cs, on=["repo", "hash"], how="inner"))
+    return pd.concat(parts, ignore_index=True)
+
+
+def _rows(agg: pd.DataFrame, metric: str, num: str | None, den: str | None,
+          alpha: float) -> pd.DataFrame:
+    kind = METRICS[metric]
+    out = agg[["period", "period_start", "period_end", "subsystem"]].copy()
+    out["metric"] = metric
+    n = agg["n"].to_numpy(dtype=float)
+    if kind == "proportion":
+        x = agg[num].to_numpy(dtype=float)
+        d = agg[den].to_numpy(dtype=float)
+        out["numerator"], out["denominator"] = x, d
+        with np.errstate(invalid="ignore", divide="ignore"):
+            out["value"] = np.where(d > 0, x / np.where(d > 0, d, 1), np.nan)
+        out["ci_low"], out["ci_high"] = iv.wilson(x, d, alpha)
+        out["ci_method"] = iv.WILSON
+        out["n"] = d
+    elif kind == "count":
+        x = agg[num].to_numpy(dtype=float)
+        out["numerator"], out["denominator"], out["value"] = x, np.nan, x
+        out["ci_low"], out["ci_high"] = iv.poisson_exact(x, alpha)
+        out["ci_method"] = iv.POISSON_EXACT
+        out["n"] = n
+    elif kind == "total":
+        x = agg["churn_sum"].to_numpy(dtype=float)
+        m = agg["churn_n"].to_numpy(dtype=float)
+        out["numerator"], out["denominator"] = x, m
+        out["value"] = np.where(m > 0, x, np.nan)
+        out["ci_low"] = out["ci_high"] = np.nan
+        out["ci_method"] = "none (lines are not independent events)"
+        out["n"] = m
+    else:  # median
+        out["numerator"], out["denominator"] = np.nan, agg["churn_n"].to_numpy(dtype=float)
+        out["value"] = agg["churn_med"].to_numpy(dtype=float)
+        out["ci_low"] = agg["churn_lo"].to_numpy(dtype=float)
+        out["ci_high"] = agg["churn_hi"].to_numpy(dtype=float)
+        out["ci_method"] = iv.ORDER_STATISTIC
+        out["n"] = agg["churn_n"].to_numpy(dtype=float)
+    out["n"] = out["n"].astype("int64")
+    return out
+
+
+_SPEC: dict[str, tuple[str | None, str | None]] = {
+    "commits": ("n", None), "active_authors": ("authors", None),
+    "review_coverage": ("reviewed", "n"), "independent_review": ("independent", "n"),
+    "unreviewed_self_commits": ("unreviewed_self", "n"), "fix_ratio": ("fix", "n"),
+    "fix_ratio_heuristic": ("fix_heuristic", "n"), "revert_ratio": ("revert", "n"),
+    "stable_request_share": ("stable_fix", "fix_ref"),
+    "fixes_tag_adoption": ("fix_ref", "n"), "churn_lines": (None, None),
+    "churn_median": (None, None),
+}
+
+
+def _churn_stats(x: pd.Series, alpha: float) -> pd.Series:
+    v = x.dropna().to_numpy(dtype=float)
+    med, lo, hi = iv.median_ci(v, alpha) if len(v) else (np.nan, np.nan, np.nan)
+    return pd.Series({"churn_sum": v.sum() if len(v) else 0.0, "churn_n": len(v),
+                      "churn_med": med, "churn_lo": lo, "churn_hi": hi})
+
+
+def compute_period_metrics(commits: pd.DataFrame, trailers: pd.DataFrame, *,
+                           commit_subsystems: pd.DataFrame | None = None,
+                           tags: pd.DataFrame | None = None,
+                           config: MetricConfig = MetricConfig()) -> PeriodMetrics:
+    """Compute every process metric per period and subsystem.
+
+    Parameters
+    ----------
+    commits, trailers : tidy tables (columns as in ``store.tables.COLUMNS``).
+    commit_subsystems : optional tidy table; without it only ``"(all)"`` is given.
+    tags : tidy ``tags`` table, needed for ``config.period == "release"``.
+    config : :class:`MetricConfig`.
+
+    Returns
+    -------
+    PeriodMetrics
+        ``table`` with :data:`METRIC_COLUMNS`, sorted by subsystem, metric and
+        period start; every period in the observed range appears (proportions
+        with a zero denominator have ``value`` NaN).
+
+    Raises
+    ------
+    InsufficientData
+        When no commit is left after excluding merges.
+
+    References
+    ----------
+    Wilson (1927) score interval; Garwood (1936) exact Poisson interval;
+    Conover (1999) order-statistic interval for the median.
+    """
+    flags = commit_flags(commits, trailers, config)
+    n_merges = int(commits["is_merge"].eq(True).sum()) \
+        if not config.include_merges else 0
+    flags = flags[flags["date"].notna()]
+    if flags.empty:
+        raise InsufficientData("no (non-merge) commits with a date to measure")
+    labels, frame = assign_periods(flags["date"], config.period, tags)
+    flags = flags.assign(period=labels.to_numpy())
+    long = _expand_subsystems(flags, commit_subsystems, config.subsystems)
+    long["stable_fix"] = long["stable_request"] & long["fix_ref"]
+    g = long.groupby(["subsystem", "period"], sort=False)
+    sums = g[["reviewed", "independent", "unreviewed_self", "fix", "fix_ref",
+              "fix_heuristic", "revert", "stable_fix"]].sum()
+    sums["n"] = g.size()
+    sums["authors"] = g["author"].nunique()
+    churn = g["churn"].apply(lambda x: _churn_stats(x, config.alpha)).unstack()
+    agg = sums.join(churn).reset_index()
+    subsystems = sorted(long["subsystem"].unique(), key=lambda s: (s != ALL, s))
+    grid = pd.MultiIndex.from_product([subsystems, frame["period"]],
+                                      names=["subsystem", "period"]).to_frame(index=False)
+    agg = grid.merge(agg, on=["subsystem", "period"], how="left").merge(frame, on="period")
+    agg = agg.fillna({c: 0 for c in agg.columns
+                      if c not in ("churn_med", "churn_lo", "churn_hi", "period_start",
+                                   "period_end", "subsystem", "period")})
+    wanted = [m for m in METRICS if config.metrics is None or m in config.metrics]
+    if not config.heuristic_keywords:
+        wanted = [m for m in wanted if m != "fix_ratio_heuristic"]
+    if flags["churn"].isna().all():
+        wanted = [m for m in wanted if not m.startswith("churn")]
+    table = pd.concat([_rows(agg, m, *_SPEC[m], config.alpha) for m in wanted],
+                      ignore_index=True)
+    order = {s: i for i, s in enumerate(subsystems)}
+    table = table.assign(_s=table["subsystem"].map(order), _m=table["metric"].map(
+        {m: i for i, m in enumerate(METRICS)}))
+    table = table.sort_values(["_s", "_m", "period_start"], kind="mergesort")
+    table = table.drop(columns=["_s", "_m"]).reset_index(drop=True)[METRIC_COLUMNS]
+    cavs: list[Caveat] = []
+    if "fix_ratio_heuristic" in wanted:
+        cavs.append(caveat("heuristic_classification",
+                           "fix_ratio_heuristic classifies commits by subject keywords "
+                           f"({', '.join(config.heuristic_keywords or ())}), not by an "
+                           "explicit Fixes: link"))
+    adoption = fixes_adoption_rising(table, window_share=config.adoption_window_share)
+    if adoption is not None:
+        cavs.append(adoption)
+    return PeriodMetrics(table=table, config=config, n_commits=len(flags),
+                         n_merges_excluded=n_merges, periods=frame, caveats=tuple(cavs))
+
+
+def fixes_adoption_rising(table: pd.DataFrame, *, window_share: float = 0.5,
+                          alpha: float = 0.05, min_periods: int = 4) -> Caveat | None:
+    """Caveat ``tag_adoption_rising`` when Fixes: use still rises late in the window.
+
+    Fits a binomial GLM (logit, quasi-binomial scale when overdispersed) of
+    ``fixes_tag_adoption`` for ``"(all)"`` on time over the last ``window_share``
+    of the periods; warns when the lower end of the slope's interval is > 0.
+    Returns ``None`` when there is no rise or too few periods to judge.
+
+    References
+    ----------
+    McCullagh, P. & Nelder, J. A. (1989). Generalized Linear Models, 2nd ed.
+    (quasi-likelihood scale from Pearson's X2).
+    """
+    from procmetrics.analyse.glmfit import fit_model  # local: glmfit is heavier
+
+    s = table[(table["metric"] == "fixes_tag_adoption") & (table["subsystem"] == ALL)
+              & (table["denominator"] > 0)].sort_values("period_start")
+    if len(s) < 2 * min_periods:
+        return None
+    s = s.iloc[int(len(s) * (1 - window_share)):]
+    if s["numerator"].sum() == 0 or (s["numerator"] == s["denominator"]).all():
+        return None
+    t = years_since(period_midpoints(s), s["period_start"].iloc[0])
+    X = np.column_stack([np.ones(len(t)), t - t.mean()])
+    fit = fit_model(s["numerator"].to_numpy(float), X, kind="proportion",
+                    trials=s["denominator"].to_numpy(float), names=["const", "time"],
+                    alpha=alpha, hac="never")
+    row = fit.params.set_index("term").loc["time"]
+    if row["ci_low"] > 0:
+        return caveat("tag_adoption_rising",
+                      f"use of Fixes: references still rises over the last {len(s)} periods "
+                      f"(logit slope {row['estimate']:.2f}/year, {100 * (1 - alpha):.0f}% "
+                      f"interval {row['ci_low']:.2f} to {row['ci_high']:.2f}); fix ratios "
+                      "mix adoption of the trailer with real change")
+    return None
