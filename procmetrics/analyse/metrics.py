@@ -104,6 +104,12 @@ class PeriodMetrics:
         return t[(t["metric"] == metric) & (t["subsystem"] == subsystem)].reset_index(drop=True)
 
 
+def _true(s: pd.Series) -> np.ndarray:
+    """Boolean array with missing values read as False (any dtype)."""
+    obj = s.astype(object)
+    return np.asarray(obj.where(s.notna(), False), dtype=bool)
+
+
 def _lower(s: pd.Series) -> pd.Series:
     return s.astype("string").str.strip().str.casefold()
 
@@ -119,7 +125,7 @@ def commit_flags(commits: pd.DataFrame, trailers: pd.DataFrame,
     """
     c = commits.copy()
     if not config.include_merges:
-        c = c[~c["is_merge"].eq(True).to_numpy(dtype=bool)]
+        c = c[~_true(c["is_merge"])]
     c = c.drop_duplicates(subset=["repo", "hash"])
     keys = {k.casefold() for k in config.review_keys}
     t = trailers[["repo", "hash", "key", "value", "person_email"]].copy()
@@ -137,15 +143,15 @@ def commit_flags(commits: pd.DataFrame, trailers: pd.DataFrame,
     out = pd.DataFrame({"repo": c["repo"], "hash": c["hash"],
                         "date": pd.to_datetime(c[config.date_column], utc=True)})
     out["author"] = _lower(c["author_email"]).to_numpy()
-    out["reviewed"] = c["reviewed"].eq(True).to_numpy(dtype=bool)
-    out["independent"] = c["independent"].eq(True).to_numpy(dtype=bool)
+    out["reviewed"] = _true(c["reviewed"])
+    out["independent"] = _true(c["independent"])
     out["n_reviewers"] = c["n_reviewers"].fillna(0).astype(int).to_numpy()
     self_commit = (_lower(c["author_email"]) == _lower(c["committer_email"])).fillna(False)
     out["unreviewed_self"] = self_commit.to_numpy(dtype=bool) & ~out["reviewed"].to_numpy()
     out["fix"] = (c["n_resolved_fixes"].fillna(0) > 0).to_numpy()
     out["fix_ref"] = (c["n_fix_refs"].fillna(0) > 0).to_numpy()
-    out["revert"] = c["is_revert"].eq(True).to_numpy(dtype=bool)
-    out["stable_request"] = c["stable_request"].eq(True).to_numpy(dtype=bool)
+    out["revert"] = _true(c["is_revert"])
+    out["stable_request"] = _true(c["stable_request"])
     if config.heuristic_keywords:
         pat = r"\b(?:" + "|".join(re.escape(k) for k in config.heuristic_keywords) + r")"
         out["fix_heuristic"] = c["subject"].astype("string").str.contains(
@@ -258,7 +264,7 @@ def compute_period_metrics(commits: pd.DataFrame, trailers: pd.DataFrame, *,
     Conover (1999) order-statistic interval for the median.
     """
     flags = commit_flags(commits, trailers, config)
-    n_merges = int(commits["is_merge"].eq(True).sum()) \
+    n_merges = int(_true(commits["is_merge"]).sum()) \
         if not config.include_merges else 0
     flags = flags[flags["date"].notna()]
     if flags.empty:
