@@ -1,0 +1,421 @@
+"""The claim kinds: their parameters, their method and their evaluator.
+
+Every kind names the method of the analysis layer it uses; the decision rule
+is :func:`procmetrics.analyse.claims.decide` (interval entirely on the claimed
+side). Share metrics are the proportion metrics of
+:mod:`procmetrics.analyse.metrics` (``review_coverage``, ``fix_ratio``, ...).
+
+References
+----------
+McCullagh & Nelder (1989) (binomial GLM, quasi-binomial scale); Newey & West
+(1987) (HAC errors); Lynden-Bell (1971) (right-truncated lifetimes); Cox (1972)
+(hazard ratio); Crow (1974), MIL-HDBK-189C (power-law NHPP); Cox & Lewis
+(1966) (Laplace test); Littlewood & Strigini (1993) (limits of evidence for
+residual-defect claims).
+"""
+from __future__ import annotations
+
+from typing import Any, Mapping
+
+import numpy as np
+import pandas as pd
+
+from procmetrics.analyse import claims as cl
+from procmetrics.analyse.claims import (
+    NOT_SUPPORTABLE, Claim, ClaimContext, ClaimVerdict, KindSpec, Param, Undecidable,
+)
+from procmetrics.analyse.result import Caveat, Estimate, caveat
+from procmetrics.errors import InsufficientData
+
+SHARE_METRICS = ("review_coverage", "independent_review", "unreviewed_self_commits",
+                 "fix_ratio", "revert_ratio", "stable_request_share", "fixes_tag_adoption")
+_FIX_METRICS = ("fix_ratio", "stable_request_share", "fixes_tag_adoption")
+
+GLM_METHOD = ("binomial GLM (logit) on per-period counts, quasi-binomial when "
+              "overdispersed, HAC errors when autocorrelated")
+
+_SUB = Param("text", help="only commits touching this subsystem")
+_AFTER = Param("date", help="only data on or after this date ('policy' or YYYY-MM-DD)")
+_BEFORE = Param("date", help="only data before this date")
+_METRIC = Param("metric", True, help="a share metric: " + ", ".join(SHARE_METRICS))
+
+SPECS: dict[str, KindSpec] = {
+    "rose_after": KindSpec("the share is higher after the date than before",
+                           {"metric": _METRIC, "date": Param("date", True), "subsystem": _SUB},
+                           "odds ratio after/before from a " + GLM_METHOD),
+    "fell_after": KindSpec("the share is lower after the date than before",
+                           {"metric": _METRIC, "date": Param("date", True), "subsystem": _SUB},
+                           "odds ratio after/before from a " + GLM_METHOD),
+    "review_coverage_rose": KindSpec(
+        "review coverage is higher after the date than before",
+        {"date": Param("date", True), "subsystem": _SUB},
+        "odds ratio after/before from a " + GLM_METHOD),
+    "at_least": KindSpec("the share in the window is at least the threshold",
+                         {"metric": _METRIC, "threshold": Param("share", True),
+                          "after": _AFTER, "before": _BEFORE, "subsystem": _SUB},
+                         "pooled share from an intercept-only " + GLM_METHOD),
+    "at_most": KindSpec("the share in the window is at most the threshold",
+                        {"metric": _METRIC, "threshold": Param("share", True),
+                         "after": _AFTER, "before": _BEFORE, "subsystem": _SUB},
+                        "pooled share from an intercept-only " + GLM_METHOD),
+    "declining": KindSpec("the share falls over time in the window",
+                          {"metric": _METRIC, "after": _AFTER, "before": _BEFORE,
+                           "subsystem": _SUB}, "time trend (procmetrics.analyse.trend)"),
+    "rising": KindSpec("the share rises over time in the window",
+                       {"metric": _METRIC, "after": _AFTER, "before": _BEFORE,
+                        "subsystem": _SUB}, "time trend (procmetrics.analyse.trend)"),
+    "fix_ratio_declining": KindSpec(
+        "the share of commits that fix an earlier commit falls over time",
+        {"after": _AFTER, "before": _BEFORE, "subsystem": _SUB},
+        "time trend (procmetrics.analyse.trend)"),
+    "median_lifetime_below": KindSpec(
+        "half of the defects are fixed within the threshold",
+        {"threshold_days": Param("days", True), "after": _AFTER, "before": _BEFORE,
+         "subsystem": _SUB},
+        "median of the truncation-aware (Lynden-Bell) lifetime distribution, "
+        "percentile bootstrap interval"),
+    "lifetimes_shorter_after": KindSpec(
+        "defects introduced after the date are fixed sooner than those before",
+        {"date": Param("date", True), "horizon_days": Param("days"), "subsystem": _SUB},
+        "Cox hazard ratio of fixing (after/before) within a common follow-up horizon"),
+    "fix_rate_declining": KindSpec(
+        "the rate at which defects are fixed falls over time (reliability growth)",
+        {"after": _AFTER, "before": _BEFORE},
+        "power-law (Crow-AMSAA) NHPP shape beta with profile interval; Laplace and "
+        "MIL-HDBK-189 trend tests"),
+    "residual_defects_below": KindSpec(
+        "fewer than N defects remain", {"threshold": Param("count", True)},
+        "none: not supportable from commit data"),
+    "no_defects_remain": KindSpec("no defects remain", {},
+                                  "none: not supportable from commit data"),
+}
+
+
+# ------------------------------------------------------------------ helpers
+def _window(ctx: ClaimContext, p: Mapping[str, Any]) -> tuple[pd.Timestamp | None,
+                                                               pd.Timestamp | None]:
+    after = cl.resolve_date(p["after"], ctx, "after") if "after" in p else None
+    before = cl.resolve_date(p["before"], ctx, "before") if "before" in p else None
+    if after is not None and before is not None and after >= before:
+        raise Undecidable("the window is empty: 'after' is not earlier than 'before'")
+    return after, before
+
+
+def _commits(ctx: ClaimContext, subsystem: str | None) -> pd.DataFrame:
+    c = ctx.commits
+    if subsystem:
+        cs = ctx.commit_subsystems
+        if cs is None or not (cs["subsystem"] == subsystem).any():
+            raise Undecidable(f"no commit touches the subsystem {subsystem!r}")
+        c = c[c["hash"].isin(cs.loc[cs["subsystem"] == subsystem, "hash"])]
+    return c
+
+
+def _flag_column(metric: str) -> tuple[str, str | None]:
+    """(numerator flag, denominator flag or None = all commits) in commit_flags."""
+    return {"review_coverage": ("reviewed", None), "independent_review": ("independent", None),
+            "unreviewed_self_commits": ("unreviewed_self", None), "fix_ratio": ("fix", None),
+            "revert_ratio": ("revert", None), "stable_request_share": ("stable_request", "fix_ref"),
+            "fixes_tag_adoption": ("fix_ref", None)}[metric]
+
+
+def _flags(ctx: ClaimContext, metric: str, subsystem: str | None) -> pd.DataFrame:
+    from procmetrics.analyse.metrics import MetricConfig, commit_flags
+
+    f = commit_flags(_commits(ctx, subsystem), ctx.trailers, MetricConfig(period=ctx.period))
+    num, den = _flag_column(metric)
+    if den is not None:
+        f = f[f[den]]
+    f = f[f["date"].notna()]
+    return f.assign(hit=f[num].astype(bool))
+
+
+def _adoption_caveat(ctx: ClaimContext, metric: str) -> list[Caveat]:
+    if metric not in _FIX_METRICS or metric == "fixes_tag_adoption":
+        return []
+    from procmetrics.analyse.metrics import MetricConfig, compute_period_metrics
+
+    pm = compute_period_metrics(ctx.commits, ctx.trailers, tags=ctx.tags, config=MetricConfig(
+        period=ctx.period, metrics=("fixes_tag_adoption",)))
+    return [c for c in pm.caveats if c.code == "tag_adoption_rising"]
+
+
+def _per_period(f: pd.DataFrame, ctx: ClaimContext, split: pd.Timestamp | None = None
+                ) -> pd.DataFrame:
+    """Successes and trials per period (and side of ``split``), in time order."""
+    from procmetrics.analyse.periods import assign_periods
+
+    labels, frame = assign_periods(f["date"], ctx.period, ctx.tags)
+    d = f.assign(period=labels.to_numpy(),
+                 after=(f["date"] >= split).to_numpy() if split is not None else False)
+    g = d.groupby(["period", "after"], sort=False)
+    out = pd.DataFrame({"x": g["hit"].sum(), "n": g.size(), "t": g["date"].min()}).reset_index()
+    return out.sort_values(["t", "after"]).reset_index(drop=True)
+
+
+def _glm(y: np.ndarray, X: np.ndarray, trials: np.ndarray, names: list[str], level: float):
+    from procmetrics.analyse.glmfit import fit_model
+
+    try:
+        return fit_model(y, X, kind="proportion", trials=trials, names=names,
+                         alpha=1 - level, hac="auto")
+    except InsufficientData as exc:
+        raise Undecidable(f"the model cannot be fitted: {exc}") from exc
+
+
+def _pct(x: float) -> str:
+    return f"{100 * x:.1f}%"
+
+
+# --------------------------------------------------------------- evaluators
+def eval_shift(claim: Claim, ctx: ClaimContext, direction: str) -> ClaimVerdict:
+    p = claim.params
+    metric = p.get("metric", "review_coverage")
+    date = cl.resolve_date(p["date"], ctx, "date")
+    f = _flags(ctx, metric, p.get("subsystem"))
+    before, after = f[f["date"] < date], f[f["date"] >= date]
+    method = SPECS[claim.kind].method
+    for side, part in (("before", before), ("after", after)):
+        if len(part) < ctx.min_n:
+            raise Undecidable(f"only {len(part)} commits {side} {date:%Y-%m-%d} "
+                              f"(at least {ctx.min_n} are needed)")
+    rows = _per_period(f, ctx, date)
+    if rows["after"].sum() < 2 or (~rows["after"]).sum() < 2:
+        raise Undecidable(f"fewer than two {ctx.period}s on one side of {date:%Y-%m-%d}")
+    X = np.column_stack([np.ones(len(rows)), rows["after"].astype(float)])
+    fit = _glm(rows["x"].to_numpy(float), X, rows["n"].to_numpy(float),
+               ["const", "after"], claim.level)
+    r = fit.params.set_index("term").loc["after"]
+    est = Estimate("odds ratio after/before", float(np.exp(r["estimate"])),
+                   float(np.exp(r["ci_low"])), float(np.exp(r["ci_high"])), claim.level,
+                   f"{fit.model}; {fit.cov_type} SE", int(len(f)))
+    sb, sa = before["hit"].mean(), after["hit"].mean()
+    extra = [f"{metric.replace('_', ' ')}: {_pct(sb)} of {len(before):,} commits before "
+             f"{date:%Y-%m-%d}, {_pct(sa)} of {len(after):,} after"]
+    cav = list(fit.caveats) + _adoption_caveat(ctx, metric)
+    blocking = [c for c in cav if c.code == "tag_adoption_rising"]
+    if blocking:
+        return ClaimVerdict(claim, cl.UNDECIDABLE, tuple(c.message for c in blocking) +
+                            tuple(extra), method, n=int(len(f)), estimate=est,
+                            caveats=tuple(cav))
+    return cl.decide(claim, est, side="above" if direction == "up" else "below",
+                     threshold=1.0, what="odds ratio after/before", method=method,
+                     n=int(len(f)), test={"name": "Wald z (after term)",
+                                          "p_value": float(r["p_value"])},
+                     diagnostics=fit.diagnostics, caveats=cav, extra=extra)
+
+
+def eval_level(claim: Claim, ctx: ClaimContext, side: str) -> ClaimVerdict:
+    p = claim.params
+    metric = p["metric"]
+    after, before = _window(ctx, p)
+    f = _flags(ctx, metric, p.get("subsystem"))
+    if after is not None:
+        f = f[f["date"] >= after]
+    if before is not None:
+        f = f[f["date"] < before]
+    if len(f) < ctx.min_n:
+        raise Undecidable(f"only {len(f)} commits in the window (at least {ctx.min_n} needed)")
+    rows = _per_period(f, ctx)
+    fit = _glm(rows["x"].to_numpy(float), np.ones((len(rows), 1)), rows["n"].to_numpy(float),
+               ["const"], claim.level)
+    r = fit.params.set_index("term").loc["const"]
+    inv = lambda e: float(1 / (1 + np.exp(-e)))  # noqa: E731
+    est = Estimate(f"share ({metric})", inv(r["estimate"]), inv(r["ci_low"]),
+                   inv(r["ci_high"]), claim.level, f"{fit.model}; {fit.cov_type} SE",
+                   int(len(f)))
+    cav = list(fit.caveats) + _adoption_caveat(ctx, metric)
+    return cl.decide(claim, est, side=side, threshold=float(p["threshold"]),
+                     what=f"share of {metric.replace('_', ' ')}", method=SPECS[claim.kind].method,
+                     n=int(len(f)), diagnostics=fit.diagnostics, caveats=cav, fmt=_pct,
+                     extra=[f"{int(rows['x'].sum()):,} of {len(f):,} commits over "
+                            f"{len(rows)} {ctx.period}s"])
+
+
+def eval_trend(claim: Claim, ctx: ClaimContext, side: str) -> ClaimVerdict:
+    from procmetrics.analyse.metrics import ALL, MetricConfig, compute_period_metrics
+    from procmetrics.analyse.trend import fit_trend
+
+    p = claim.params
+    metric = p.get("metric", "fix_ratio")
+    after, before = _window(ctx, p)
+    sub = p.get("subsystem")
+    c = _commits(ctx, sub)
+    if after is not None:
+        c = c[c["committer_date"] >= after]
+    if before is not None:
+        c = c[c["committer_date"] < before]
+    if len(c) < ctx.min_n:
+        raise Undecidable(f"only {len(c)} commits in the window (at least {ctx.min_n} needed)")
+    pm = compute_period_metrics(c, ctx.trailers, tags=ctx.tags,
+                                config=MetricConfig(period=ctx.period, metrics=(metric,)))
+    try:
+        tr = fit_trend(pm.table, metric, ALL, alpha=1 - claim.level)
+    except InsufficientData as exc:
+        raise Undecidable(f"no trend can be fitted: {exc}") from exc
+    cav = list(tr.caveats) + _adoption_caveat(ctx, metric)
+    blocking = [cv for cv in cav if cv.code == "tag_adoption_rising"]
+    est = tr.ratio_per_year or tr.slope
+    what = ("odds ratio per year" if tr.ratio_per_year is not None else "slope per year")
+    thr = 1.0 if tr.ratio_per_year is not None else 0.0
+    if blocking:
+        return ClaimVerdict(claim, cl.UNDECIDABLE, tuple(cv.message for cv in blocking),
+                            SPECS[claim.kind].method, n=tr.n, estimate=est,
+                            diagnostics=tr.diagnostics, caveats=tuple(cav))
+    return cl.decide(claim, est, side=side, threshold=thr, what=f"{what} of "
+                     f"{metric.replace('_', ' ')}", method=f"{tr.model} over {tr.n_periods} "
+                     f"{ctx.period}s", n=tr.n, diagnostics=tr.diagnostics, caveats=cav)
+
+
+def _defects(ctx: ClaimContext, cuts: list[pd.Timestamp] | None = None):
+    from procmetrics.analyse.defects import build_defects
+
+    share = cl.unresolved_share(ctx.fix_links)
+    if share is not None and share > ctx.unresolved_limit:
+        raise Undecidable(f"{share:.0%} of fix references are unresolved or ambiguous, above "
+                          f"the {ctx.unresolved_limit:.0%} limit: the defects seen may not "
+                          "represent the defects fixed")
+    return build_defects(ctx.fix_links, commits=ctx.commits,
+                         commit_subsystems=ctx.commit_subsystems, trailers=ctx.trailers,
+                         period_cuts=cuts)
+
+
+def eval_median_lifetime(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
+    from procmetrics.analyse.defects import lifetimes_for_estimation
+    from procmetrics.analyse.lifetimes import quantile_estimates
+
+    p = claim.params
+    after, before = _window(ctx, p)
+    table = _defects(ctx)
+    d, n_neg = lifetimes_for_estimation(table.defects)
+    if after is not None:
+        d = d[d["intro_date"] >= after]
+    if before is not None:
+        d = d[d["intro_date"] < before]
+    if p.get("subsystem"):
+        d = d[d["subsystems"].str.split(";").apply(lambda s: p["subsystem"] in s)]
+    if len(d) < ctx.min_n:
+        raise Undecidable(f"only {len(d)} defects with a resolved fix link in the window "
+                          f"(at least {ctx.min_n} needed)")
+    rng = np.random.default_rng(ctx.seed)
+    (q50,) = quantile_estimates(d["lifetime"].to_numpy(float), d["window"].to_numpy(float),
+                                quantiles=(0.5,), level=claim.level, rng=rng)
+    est = Estimate("median lifetime", q50.value, q50.low, q50.high, q50.level, q50.method,
+                   q50.n, "days")
+    extra = ["this is the median among defects found and fixed with a Fixes: link, "
+             "corrected for right truncation; defects never found are not covered"]
+    if n_neg:
+        extra.append(f"{n_neg} defect(s) with a fix dated before the introducer were excluded")
+    return cl.decide(claim, est, side="below", threshold=float(p["threshold_days"]),
+                     what="median defect lifetime", method=SPECS[claim.kind].method,
+                     n=q50.n, fmt=lambda x: f"{x:.0f} days", extra=extra)
+
+
+def eval_lifetimes_shorter(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
+    from procmetrics.analyse.cox import fit_cox
+    from procmetrics.analyse.lifetime_analysis import restrict_to_horizon
+
+    p = claim.params
+    date = cl.resolve_date(p["date"], ctx, "date")
+    table = _defects(ctx)
+    end = table.end_date
+    if pd.isna(end) or date >= end:
+        raise Undecidable(f"the history ends before {date:%Y-%m-%d}")
+    horizon = float(p.get("horizon_days") or min(365.0, (end - date).days / 2))
+    cohort = restrict_to_horizon(table.defects, horizon)
+    d = cohort.defects
+    if p.get("subsystem"):
+        d = d[d["subsystems"].str.split(";").apply(lambda s: p["subsystem"] in s)]
+    d = d.assign(after=(d["intro_date"] >= date).astype(float))
+    n_b, n_a = int((d["after"] == 0).sum()), int((d["after"] == 1).sum())
+    if min(n_a, n_b) < ctx.min_n:
+        raise Undecidable(f"within a common follow-up of {horizon:.0f} days there are {n_b} "
+                          f"defects introduced before and {n_a} after {date:%Y-%m-%d} "
+                          f"(at least {ctx.min_n} each are needed)")
+    try:
+        res = fit_cox(d[["lifetime", "after"]].assign(event=True), "lifetime", "event",
+                      level=claim.level, fallback=False)
+    except InsufficientData as exc:
+        raise Undecidable(str(exc)) from exc
+    row = res.summary.set_index("term").loc["after"]
+    est = Estimate("hazard ratio of fixing, after/before", float(row["hazard_ratio"]),
+                   float(row["hr_low"]), float(row["hr_high"]), claim.level, res.method,
+                   res.n)
+    med = d.groupby("after")["lifetime"].median()
+    extra = [f"common follow-up horizon {horizon:.0f} days: median lifetime "
+             f"{med.get(0.0, float('nan')):.0f} days before, {med.get(1.0, float('nan')):.0f} "
+             "after (defects fixed within the horizon); a hazard ratio above 1 means "
+             "faster fixing after the date"]
+    return cl.decide(claim, est, side="above", threshold=1.0, what="hazard ratio of fixing "
+                     "(after/before)", method=SPECS[claim.kind].method, n=res.n,
+                     test={"name": "Wald z (Cox)", "p_value": float(row["p"])},
+                     diagnostics=res.diagnostics, caveats=res.caveats, extra=extra)
+
+
+def eval_fix_rate(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
+    from procmetrics.analyse.nhpp import fit_power_law
+    from procmetrics.analyse.trendtests import trend_tests
+
+    after, before = _window(ctx, claim.params)
+    c = ctx.commits[~ctx.commits["is_merge"].fillna(False).astype(bool)]
+    start = after if after is not None else c["committer_date"].min()
+    end = before if before is not None else c["committer_date"].max()
+    fixes = c.loc[(c["n_resolved_fixes"] > 0) & (c["committer_date"] > start)
+                  & (c["committer_date"] <= end), "committer_date"]
+    if len(fixes) < ctx.min_n:
+        raise Undecidable(f"only {len(fixes)} fixing commits in the window "
+                          f"(at least {ctx.min_n} needed)")
+    t = np.sort(((fixes - start).dt.total_seconds() / 86400.0).to_numpy(float))
+    T = float((end - start).total_seconds() / 86400.0)
+    fit = fit_power_law(t, T, level=claim.level)
+    beta = next(e for e in fit.params if e.name == "beta")
+    tests = trend_tests(t, T, alpha=1 - claim.level)
+    cav = _adoption_caveat(ctx, "fix_ratio")
+    if cav:
+        return ClaimVerdict(claim, cl.UNDECIDABLE, tuple(cv.message for cv in cav),
+                            SPECS[claim.kind].method, n=len(t), estimate=beta,
+                            caveats=tuple(cav))
+    extra = [tests.message, "a falling fix rate is consistent with fewer defects, but "
+             "equally with less testing, less use or a smaller team"]
+    return cl.decide(claim, beta, side="below", threshold=1.0, what="power-law shape beta",
+                     method=SPECS[claim.kind].method, n=len(t),
+                     test={"name": "Laplace test (growth, one-sided)",
+                           "p_value": float(tests.laplace.p_growth)}, extra=extra)
+
+
+def eval_not_supportable(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
+    what = ("that fewer than {} defects remain".format(claim.params["threshold"])
+            if claim.kind == "residual_defects_below" else "that no defects remain")
+    reasons = (
+        f"A commit history records the defects that were found and fixed; it holds no "
+        f"trace of those still hidden, so it cannot show {what}.",
+        "Models that project a falling fix rate to a number of remaining defects "
+        "(reliability growth) rest on assumptions this data cannot check: constant "
+        "testing effort and use, every defect fixed with a link, no new code; their "
+        "projection is an extrapolation.",
+        "A falling rate of fixes is equally consistent with less testing, less use or a "
+        "smaller team.",
+        "Evidence of this kind must come from elsewhere (verification and validation "
+        "records, field data, the safety case) and be judged by the assessor.",
+    )
+    cav = (caveat("not_identifiable", "the number of undiscovered defects cannot be "
+                  "identified from fix records", "fail"),)
+    return ClaimVerdict(claim, NOT_SUPPORTABLE, reasons, SPECS[claim.kind].method,
+                        caveats=cav)
+
+
+EVALUATORS = {
+    "rose_after": lambda c, x: eval_shift(c, x, "up"),
+    "fell_after": lambda c, x: eval_shift(c, x, "down"),
+    "review_coverage_rose": lambda c, x: eval_shift(c, x, "up"),
+    "at_least": lambda c, x: eval_level(c, x, "above"),
+    "at_most": lambda c, x: eval_level(c, x, "below"),
+    "declining": lambda c, x: eval_trend(c, x, "below"),
+    "rising": lambda c, x: eval_trend(c, x, "above"),
+    "fix_ratio_declining": lambda c, x: eval_trend(c, x, "below"),
+    "median_lifetime_below": eval_median_lifetime,
+    "lifetimes_shorter_after": eval_lifetimes_shorter,
+    "fix_rate_declining": eval_fix_rate,
+    "residual_defects_below": eval_not_supportable,
+    "no_defects_remain": eval_not_supportable,
+}

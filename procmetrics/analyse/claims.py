@@ -1,0 +1,277 @@
+"""Claims about a development process, checked against mined data.
+
+A claim is a sentence an organisation wants to put before an assessor ("review
+coverage rose after the policy change", "defects are fixed within 60 days").
+Each claim kind maps to one method of the analysis layer and one decision
+rule, and ends in one of four verdicts:
+
+``supported``
+    the interval at the claim's level lies entirely on the claimed side of
+    the threshold, and the method's preconditions hold;
+``not_supported``
+    the method applies, but the interval does not lie on the claimed side:
+    either it points the other way, or it straddles the threshold (no
+    evidence for the claim; which is not evidence against it);
+``undecidable``
+    this data cannot answer: too few observations, a failed diagnostic, a
+    confounded measure (Fixes: adoption still rising), a shallow or
+    rewritten history, too many unresolved fix references, a quantity the
+    estimator cannot identify;
+``not_supportable``
+    no amount of commit data can support this kind of claim (for example
+    "fewer than N defects remain": a history records defects that were found
+    and fixed, never the ones still hidden).
+
+The evaluation is pure: tidy DataFrames in, :class:`ClaimVerdict` out.
+
+References
+----------
+Altman, D. G. & Bland, J. M. (1995). Absence of evidence is not evidence of
+absence. BMJ 311:485 (the wording of ``not_supported``).
+Littlewood, B. & Strigini, L. (1993). Validation of ultrahigh dependability for
+software-based systems. CACM 36(11):69-80 (why residual-defect claims cannot be
+supported by failure/fix histories).
+"""
+from __future__ import annotations
+
+import datetime as _dt
+from dataclasses import dataclass, field
+from typing import Any, Callable, Mapping, Sequence
+
+import pandas as pd
+
+from procmetrics.analyse.result import Caveat, Diagnostic, Estimate, to_plain
+
+SUPPORTED = "supported"
+NOT_SUPPORTED = "not_supported"
+UNDECIDABLE = "undecidable"
+NOT_SUPPORTABLE = "not_supportable"
+VERDICTS: tuple[str, ...] = (SUPPORTED, NOT_SUPPORTED, UNDECIDABLE, NOT_SUPPORTABLE)
+VERDICT_LABELS: dict[str, str] = {
+    SUPPORTED: "supported",
+    NOT_SUPPORTED: "not supported",
+    UNDECIDABLE: "undecidable with this data",
+    NOT_SUPPORTABLE: "not supportable by this kind of evidence",
+}
+#: the policy date given on the command line, usable as a date value
+POLICY = "policy"
+
+
+@dataclass(frozen=True)
+class Param:
+    """One parameter of a claim kind: its type and whether it is required."""
+
+    type: str            # "date" | "share" | "days" | "count" | "text" | "number"
+    required: bool = False
+    help: str = ""
+
+
+@dataclass(frozen=True)
+class KindSpec:
+    summary: str
+    params: Mapping[str, Param]
+    method: str
+
+
+@dataclass(frozen=True)
+class Claim:
+    """One claim as read from a claims file (``params`` already type-checked)."""
+
+    id: str
+    text: str
+    kind: str
+    params: Mapping[str, Any] = field(default_factory=dict)
+    level: float = 0.95
+    line: int | None = None
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"id": self.id, "text": self.text, "kind": self.kind,
+                "params": {k: _param_plain(v) for k, v in sorted(self.params.items())},
+                "level": self.level}
+
+
+def _param_plain(v: Any) -> Any:
+    if isinstance(v, (_dt.date, _dt.datetime, pd.Timestamp)):
+        return pd.Timestamp(v).strftime("%Y-%m-%d")
+    return v
+
+
+@dataclass(frozen=True)
+class ClaimContext:
+    """The data and the settings a claim is judged with."""
+
+    commits: pd.DataFrame
+    trailers: pd.DataFrame
+    fix_links: pd.DataFrame
+    commit_subsystems: pd.DataFrame | None = None
+    tags: pd.DataFrame | None = None
+    policy_date: pd.Timestamp | None = None
+    is_shallow: bool = False
+    rewritten: bool = False
+    unresolved_limit: float = 0.10
+    min_n: int = 20
+    period: str = "quarter"
+    seed: int = 20240601
+
+
+@dataclass(frozen=True)
+class ClaimVerdict:
+    """The verdict on one claim with the evidence behind it."""
+
+    claim: Claim
+    verdict: str
+    reasons: tuple[str, ...]
+    method: str
+    n: int | None = None
+    estimate: Estimate | None = None
+    test: Mapping[str, Any] | None = None
+    diagnostics: tuple[Diagnostic, ...] = ()
+    caveats: tuple[Caveat, ...] = ()
+
+    @property
+    def label(self) -> str:
+        return VERDICT_LABELS[self.verdict]
+
+    def to_dict(self) -> dict[str, Any]:
+        c = self.claim.to_dict()
+        return {
+            "id": c["id"], "text": c["text"], "kind": c["kind"], "params": c["params"],
+            "verdict": self.verdict, "verdict_label": self.label,
+            "reasons": list(self.reasons),
+            "evidence": {
+                "n": self.n, "method": self.method,
+                "estimate": None if self.estimate is None else self.estimate.to_dict(),
+                "test": None if self.test is None else to_plain(dict(self.test)),
+                "diagnostics": [d.to_dict() for d in self.diagnostics],
+                "caveats": [cv.to_dict() for cv in self.caveats],
+            },
+        }
+
+
+class Undecidable(Exception):
+    """Raised inside an evaluator when a precondition fails (carries the reason)."""
+
+
+Evaluator = Callable[[Claim, ClaimContext], ClaimVerdict]
+
+#: caveat codes that make a claim undecidable when the evaluator meets them
+BLOCKING = {"diagnostic_failed", "model_refused", "not_identifiable", "too_few_observations",
+            "shallow_history", "rewritten_history"}
+
+
+def decide(claim: Claim, est: Estimate, *, side: str, threshold: float, what: str,
+           method: str, n: int | None, test: Mapping[str, Any] | None = None,
+           diagnostics: Sequence[Diagnostic] = (), caveats: Sequence[Caveat] = (),
+           fmt: Callable[[float], str] = lambda x: f"{x:.3g}",
+           extra: Sequence[str] = ()) -> ClaimVerdict:
+    """Apply the interval rule: supported when the whole interval is on ``side`` of ``threshold``.
+
+    ``side`` is ``"above"`` or ``"below"``; ``what`` names the quantity in words.
+    Blocking caveats (see :data:`BLOCKING`, severity warn or fail) and failed
+    diagnostics make the verdict ``undecidable``.
+    """
+    level = f"{est.level:.0%}"
+    blocking = [c for c in caveats if c.code in BLOCKING and c.severity != "info"]
+    failed = [d for d in diagnostics if d.verdict == "fail"]
+    common = dict(method=method, n=n, estimate=est, test=test,
+                  diagnostics=tuple(diagnostics), caveats=tuple(caveats))
+    if blocking or failed:
+        reasons = [f"{c.message}" for c in blocking]
+        reasons += [f"diagnostic {d.name} failed ({d.method}; threshold {d.threshold})"
+                    for d in failed]
+        return ClaimVerdict(claim, UNDECIDABLE, tuple(reasons + list(extra)), **common)
+    if est.value is None or est.low is None or est.high is None:
+        return ClaimVerdict(claim, UNDECIDABLE, (
+            f"the {what} or its interval cannot be estimated from this data",
+            *extra), **common)
+    interval = f"{fmt(est.low)} to {fmt(est.high)}"
+    if side == "above":
+        ok, against = est.low > threshold, est.high <= threshold
+        rel, opp = "above", "at or below"
+    else:
+        ok, against = est.high < threshold, est.low >= threshold
+        rel, opp = "below", "at or above"
+    if ok:
+        reason = (f"the {what} is {fmt(est.value)} with a {level} interval of {interval}, "
+                  f"entirely {rel} {fmt(threshold)}")
+        return ClaimVerdict(claim, SUPPORTED, (reason, *extra), **common)
+    if against:
+        reason = (f"the data point the other way: the {what} is {fmt(est.value)} with a "
+                  f"{level} interval of {interval}, entirely {opp} {fmt(threshold)}")
+    else:
+        reason = (f"the {what} is {fmt(est.value)} but its {level} interval ({interval}) "
+                  f"includes {fmt(threshold)}: the data give no evidence for the claim; "
+                  "this is not evidence against it, and more data may decide it")
+    return ClaimVerdict(claim, NOT_SUPPORTED, (reason, *extra), **common)
+
+
+def undecidable(claim: Claim, method: str, reason: str, *, n: int | None = None,
+                caveats: Sequence[Caveat] = ()) -> ClaimVerdict:
+    return ClaimVerdict(claim, UNDECIDABLE, (reason,), method, n=n, caveats=tuple(caveats))
+
+
+def resolve_date(value: Any, ctx: ClaimContext, key: str) -> pd.Timestamp:
+    """A claim date: ``"policy"`` (the --policy-date) or a date; UTC midnight."""
+    if value == POLICY:
+        if ctx.policy_date is None:
+            raise Undecidable(f"'{key} = \"policy\"' needs a policy date (--policy-date)")
+        return ctx.policy_date
+    ts = pd.Timestamp(value)
+    return ts.tz_localize("UTC") if ts.tzinfo is None else ts.tz_convert("UTC")
+
+
+def history_blockers(ctx: ClaimContext) -> list[str]:
+    out = []
+    if ctx.is_shallow:
+        out.append("the clone is shallow: commits before the cut are missing, so periods, "
+                   "fix targets and lifetimes near the cut are incomplete")
+    if ctx.rewritten:
+        out.append("the history was rewritten between mining runs; the store may mix "
+                   "commits that no longer exist with their replacements")
+    return out
+
+
+def unresolved_share(fix_links: pd.DataFrame) -> float | None:
+    st = fix_links["status"].astype(str)
+    st = st[st != "self"]
+    return None if st.empty else float((st != "resolved").mean())
+
+
+def evaluate_claim(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
+    """Judge one claim (see the module docstring for the verdicts)."""
+    from procmetrics.analyse.claim_kinds import EVALUATORS, SPECS
+
+    spec = SPECS[claim.kind]
+    if claim.kind in NOT_SUPPORTABLE_KINDS:
+        return EVALUATORS[claim.kind](claim, ctx)
+    blockers = history_blockers(ctx)
+    if blockers:
+        return ClaimVerdict(claim, UNDECIDABLE, tuple(blockers), spec.method)
+    try:
+        return EVALUATORS[claim.kind](claim, ctx)
+    except Undecidable as exc:
+        return undecidable(claim, spec.method, str(exc))
+
+
+def evaluate_claims(claims: Sequence[Claim], ctx: ClaimContext) -> list[ClaimVerdict]:
+    return [evaluate_claim(c, ctx) for c in claims]
+
+
+def exit_code(verdicts: Sequence[ClaimVerdict]) -> int:
+    """Exit status for a pipeline gate.
+
+    0 when every claim is supported; otherwise ``8 + bits`` with bit 1 for any
+    ``not_supported``, bit 2 for any ``undecidable`` and bit 4 for any
+    ``not_supportable`` (9 to 15; distinct from the error codes 1-7).
+    """
+    kinds = {v.verdict for v in verdicts}
+    bits = (1 if NOT_SUPPORTED in kinds else 0) | (2 if UNDECIDABLE in kinds else 0) | \
+        (4 if NOT_SUPPORTABLE in kinds else 0)
+    return 0 if bits == 0 else 8 + bits
+
+
+NOT_SUPPORTABLE_KINDS = ("residual_defects_below", "no_defects_remain")
+
+__all__ = ["Claim", "ClaimContext", "ClaimVerdict", "KindSpec", "Param", "VERDICTS",
+           "VERDICT_LABELS", "SUPPORTED", "NOT_SUPPORTED", "UNDECIDABLE", "NOT_SUPPORTABLE",
+           "evaluate_claim", "evaluate_claims", "exit_code", "decide"]

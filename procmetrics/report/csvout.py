@@ -1,0 +1,77 @@
+"""Tidy CSV tables behind every figure and table, written deterministically.
+
+One file per figure or table in ``tables/``, named from the figure's own key
+(never from repository text): ``fig03-review-coverage.csv``. Floats use 10
+significant digits, dates ISO 8601 UTC, missing values are empty, lines end
+with ``\\n``.
+"""
+from __future__ import annotations
+
+import csv
+import io
+import math
+import re
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from procmetrics.report.model import Report
+
+_KEY = re.compile(r"^[a-z0-9][a-z0-9-]*$")
+
+
+def _cell(v: Any) -> str:
+    if v is None or v is pd.NA or v is pd.NaT:
+        return ""
+    if isinstance(v, pd.Timestamp):
+        return "" if pd.isna(v) else v.isoformat()
+    if isinstance(v, (bool, np.bool_)):
+        return "true" if v else "false"
+    if isinstance(v, (int, np.integer)):
+        return str(int(v))
+    if isinstance(v, (float, np.floating)):
+        x = float(v)
+        if math.isnan(x):
+            return ""
+        if math.isinf(x):
+            return "inf" if x > 0 else "-inf"
+        return format(x, ".10g")
+    return str(v)
+
+
+def frame_to_csv(df: pd.DataFrame) -> str:
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\n", quoting=csv.QUOTE_MINIMAL)
+    w.writerow([str(c) for c in df.columns])
+    for row in df.astype(object).itertuples(index=False):
+        w.writerow([_cell(v) for v in row])
+    return buf.getvalue()
+
+
+def csv_names(report: Report) -> dict[str, str]:
+    """Output name (relative to the report folder) for every figure and table."""
+    names: dict[str, str] = {}
+    for fig in report.figures.values():
+        if not _KEY.match(fig.key):
+            raise ValueError(f"figure key {fig.key!r} is not a safe file name")
+        names[fig.key] = f"tables/fig{fig.number:02d}-{fig.key}.csv"
+    for tab in report.tables.values():
+        if not _KEY.match(tab.key):
+            raise ValueError(f"table key {tab.key!r} is not a safe file name")
+        names[tab.key] = f"tables/tab{tab.number:02d}-{tab.key}.csv"
+    return names
+
+
+def write_csvs(report: Report, out: Path) -> dict[str, str]:
+    """Write every figure's and table's data; return key -> relative file name."""
+    names = csv_names(report)
+    (out / "tables").mkdir(parents=True, exist_ok=True)
+    for fig in report.figures.values():
+        (out / names[fig.key]).write_text(frame_to_csv(fig.data), encoding="utf-8",
+                                          newline="")
+    for tab in report.tables.values():
+        df = tab.data.reindex(columns=[k for k, _ in tab.columns])
+        (out / names[tab.key]).write_text(frame_to_csv(df), encoding="utf-8", newline="")
+    return names

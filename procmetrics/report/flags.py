@@ -1,0 +1,168 @@
+"""Automatic flags: every figure the data cannot carry is marked, without being asked.
+
+Three sources:
+
+* the result itself: its caveats (codes from ``CAVEAT_CODES``), failed
+  diagnostics and extrapolated estimates (:func:`from_result`);
+* checks of the mined data that apply to whole families of figures: shallow
+  or rewritten history, unresolved fix references above a stated share,
+  rising trailer adoption, clock skew (:func:`store_flags`);
+* rules of the report: too few observations for the method, many tests
+  without a correction, a significant but negligible effect, and a
+  non-significant comparison that must not be read as "no change"
+  (:func:`rule_flags`).
+"""
+from __future__ import annotations
+
+from dataclasses import fields, is_dataclass
+from typing import Any, Iterable, Iterator, Sequence
+
+from procmetrics.analyse.result import CAVEAT_CODES, Caveat, Diagnostic, Estimate
+from procmetrics.report.model import Flag
+
+#: figures built on fix links (defects); store-level defect flags attach to these
+DEFECT_KINDS = ("defects", "lifetimes", "growth", "fix_ratio")
+#: figures built on trailers; adoption flags attach to these
+TRAILER_KINDS = ("review", "fix_ratio", "defects", "lifetimes", "growth")
+#: share of commits with inconsistent dates above which dated figures are flagged
+CLOCK_SKEW_LIMIT = 0.01
+
+
+def _walk(obj: Any, depth: int = 0) -> Iterator[Any]:
+    """Yield every Caveat, Diagnostic and Estimate inside a result (dataclasses, lists, dicts)."""
+    if depth > 6 or obj is None or isinstance(obj, (str, bytes, int, float)):
+        return
+    if isinstance(obj, (Caveat, Diagnostic, Estimate)):
+        yield obj
+        return
+    if is_dataclass(obj) and not isinstance(obj, type):
+        for f in fields(obj):
+            yield from _walk(getattr(obj, f.name, None), depth + 1)
+    elif isinstance(obj, dict):
+        for v in obj.values():
+            yield from _walk(v, depth + 1)
+    elif isinstance(obj, (list, tuple)):
+        for v in obj:
+            yield from _walk(v, depth + 1)
+
+
+def from_result(result: Any, target: str) -> list[Flag]:
+    """Flags recorded on an analysis result (caveats, failed diagnostics, extrapolation)."""
+    out: list[Flag] = []
+    for item in _walk(result):
+        if isinstance(item, Caveat):
+            out.append(Flag(item.code, item.severity, target, item.message, "result"))
+        elif isinstance(item, Diagnostic) and item.verdict == "fail":
+            value = "n/a" if item.value is None else f"{item.value:.4g}"
+            out.append(Flag("diagnostic_failed", "warn", target,
+                            f"{item.name} failed ({item.method}: value {value}, "
+                            f"threshold {item.threshold}){'; ' + item.note if item.note else ''}",
+                            "result"))
+        elif isinstance(item, Estimate) and item.extrapolated:
+            out.append(Flag("extrapolation", "warn", target,
+                            f"{item.name} is extrapolated beyond the observed data", "result"))
+    return dedupe(out)
+
+
+def dedupe(flags: Iterable[Flag]) -> list[Flag]:
+    seen: set[tuple[str, str, str]] = set()
+    out = []
+    for f in flags:
+        k = (f.code, f.target, f.message)
+        if k not in seen:
+            seen.add(k)
+            out.append(f)
+    return out
+
+
+def store_flags(quality: dict[str, Any], *, unresolved_limit: float,
+                adoption_rising: bool | None = None) -> dict[str, list[Flag]]:
+    """Store-level flags, keyed by the figure kinds they apply to (``"all"`` = every figure).
+
+    Returns ``{kind: [Flag, ...]}`` with ``target`` left as the kind; the caller
+    re-targets them to each figure of that kind with :func:`retarget`.
+    """
+    out: dict[str, list[Flag]] = {"all": [], "defects": [], "trailers": []}
+    hist = quality["history"]
+    if hist["is_shallow"]:
+        out["all"].append(Flag(
+            "shallow_history", "fail", "all",
+            "the clone is shallow: commits before the cut are missing, so early periods, "
+            "fix targets and lifetimes are incomplete", "store"))
+    for text in hist["rewritten"]:
+        out["all"].append(Flag(
+            "rewritten_history", "fail", "all",
+            f"the history was rewritten between mining runs ({text}); figures may mix "
+            "commits that no longer exist with their replacements", "store"))
+    fx = quality["fix_references"]
+    share = fx["share_not_resolved"]
+    if share is not None and share > unresolved_limit:
+        out["defects"].append(Flag(
+            "unresolved_fix_references", "warn", "defects",
+            f"{share:.0%} of fix references ({fx['n_unresolved']} unresolved, "
+            f"{fx['n_ambiguous']} ambiguous of {fx['n_references']}) name no single commit "
+            f"of this history, above the {unresolved_limit:.0%} limit; defect figures rest "
+            "on the resolved rest", "store"))
+    if adoption_rising:
+        out["trailers"].append(Flag(
+            "tag_adoption_rising", "warn", "trailers",
+            "use of the Fixes: trailer is still rising in the window, so a change in "
+            "fix counts or shares mixes a change of practice with a change of quality",
+            "store"))
+    clock = quality["clock"]
+    n = clock["n_commits"]
+    bad = clock["n_author_after_committer"] + clock["n_fix_before_introducer"]
+    if n and bad / n > CLOCK_SKEW_LIMIT:
+        out["all"].append(Flag(
+            "clock_skew", "warn", "all",
+            f"{bad} commits or fix links have inconsistent dates (author after committer, "
+            f"or fix before its introducer), more than {CLOCK_SKEW_LIMIT:.0%} of {n}", "store"))
+    return out
+
+
+def retarget(flags: Sequence[Flag], target: str) -> list[Flag]:
+    return [Flag(f.code, f.severity, target, f.message, f.source) for f in flags]
+
+
+def rule_flags(target: str, *, n: int | None, min_n: int | None, method: str = "",
+               p_value: float | None = None, alpha: float = 0.05,
+               effect_negligible: bool | None = None, n_tests: int = 1,
+               corrected: bool = False, lifetime: bool = False,
+               truncation_checked: bool = False) -> list[Flag]:
+    """The report's own rules for one figure.
+
+    ``effect_negligible`` is the analysis' own judgement (its interval lies
+    within the negligible band); ``corrected`` says whether a multiplicity
+    correction was applied to ``n_tests`` tests of one family.
+    """
+    out: list[Flag] = []
+    if n is not None and min_n is not None and n < min_n:
+        out.append(Flag("too_few_observations", "warn", target,
+                        f"n = {n} is below {min_n}, the minimum this report uses for "
+                        f"{method or 'this method'}", "report"))
+    if n_tests > 1 and not corrected:
+        out.append(Flag("multiple_comparisons", "warn", target,
+                        f"{n_tests} tests in this family and no correction for "
+                        "multiplicity; some small p-values are expected by chance", "report"))
+    if p_value is not None:
+        if p_value < alpha and effect_negligible:
+            out.append(Flag("negligible_effect", "warn", target,
+                            f"p = {p_value:.3g} < {alpha} but the effect is negligible in size; "
+                            "significance here says little about practical importance",
+                            "report"))
+        if p_value >= alpha:
+            out.append(Flag("absence_of_evidence", "info", target,
+                            f"p = {p_value:.3g} ≥ {alpha}: no evidence of a change was found; "
+                            "this is not evidence that nothing changed (read the interval)",
+                            "report"))
+    if lifetime and not truncation_checked:
+        out.append(Flag("truncation_bias", "warn", target,
+                        "only defects already fixed are seen, and long-lived ones introduced "
+                        "late cannot have been fixed yet: lifetime summaries are biased low",
+                        "report"))
+    return out
+
+
+def describe(code: str) -> str:
+    """The plain-words meaning of a flag code."""
+    return CAVEAT_CODES.get(code, code)

@@ -1,0 +1,136 @@
+"""Self-contained HTML: every image a ``data:`` URI, no script, a strict CSP.
+
+Repository text (subjects, names, subsystem names) is untrusted: the template
+engine escapes every value (``autoescape=True``); only our own stylesheet is
+inserted verbatim, and its SHA-256 is what the Content-Security-Policy allows.
+"""
+from __future__ import annotations
+
+import base64
+import hashlib
+import math
+import struct
+from importlib import resources
+from typing import Any
+
+import jinja2
+from markupsafe import Markup
+import numpy as np
+import pandas as pd
+
+from procmetrics import __version__
+from procmetrics.report.flags import describe
+from procmetrics.report.model import Report, Table
+
+#: rendering resolution of the PNG figures (dots per CSS inch)
+PNG_DPI = 150
+
+
+def stylesheet() -> str:
+    return resources.files("procmetrics.report").joinpath("report.css").read_text("utf-8")
+
+
+def csp_for(css: str) -> str:
+    digest = base64.b64encode(hashlib.sha256(css.encode("utf-8")).digest()).decode()
+    return ("default-src 'none'; img-src data:; "
+            f"style-src 'sha256-{digest}'; base-uri 'none'; form-action 'none'")
+
+
+def png_size(png: bytes) -> tuple[int, int]:
+    """Width and height from a PNG's IHDR chunk."""
+    if png[:8] != b"\x89PNG\r\n\x1a\n":
+        raise ValueError("not a PNG image")
+    w, h = struct.unpack(">II", png[16:24])
+    return int(w), int(h)
+
+
+def data_uri(png: bytes) -> str:
+    return "data:image/png;base64," + base64.b64encode(png).decode("ascii")
+
+
+def fmt_value(key: str, v: Any) -> str:
+    """Table cell text: integers with separators, shares as percent, p-values bounded."""
+    if v is None or v is pd.NA or v is pd.NaT:
+        return "–"
+    if isinstance(v, pd.Timestamp):
+        return "–" if pd.isna(v) else v.strftime("%Y-%m-%d")
+    if isinstance(v, (bool, np.bool_)):
+        return "yes" if v else "no"
+    if isinstance(v, (int, np.integer)):
+        return f"{int(v):,}"
+    if isinstance(v, (float, np.floating)):
+        x = float(v)
+        if math.isnan(x):
+            return "–"
+        if math.isinf(x):
+            return "∞" if x > 0 else "−∞"
+        if key.startswith("p_") or key == "p" or key.endswith("_p"):
+            return "< 0.001" if x < 0.001 else f"{x:.3f}"
+        if key.startswith("share") or key.endswith("_share") or key.startswith("pct"):
+            return f"{100 * x:.1f}"
+        if x.is_integer() and abs(x) < 1e15:
+            return f"{int(x):,}"
+        if abs(x) >= 100:
+            return f"{x:,.0f}"
+        if abs(x) >= 1:
+            return f"{x:.2f}"
+        return f"{x:.3g}"
+    return str(v)
+
+
+def _numeric(table: Table) -> dict[str, bool]:
+    out = {}
+    for k, _ in table.columns:
+        col = table.data[k] if k in table.data.columns else pd.Series(dtype=object)
+        out[k] = bool(len(col)) and bool(pd.api.types.is_numeric_dtype(col)) and \
+            not pd.api.types.is_bool_dtype(col)
+    return out
+
+
+def evidence_line(claim: dict[str, Any]) -> str:
+    ev = claim.get("evidence") or {}
+    parts = []
+    if ev.get("n") is not None:
+        parts.append(f"n = {ev['n']:,}")
+    est = ev.get("estimate")
+    if est and est.get("value") is not None:
+        unit = f" {est['unit']}" if est.get("unit") else ""
+        text = f"{est['name']} = {est['value']:.3g}{unit}"
+        if est.get("low") is not None and est.get("high") is not None:
+            text += (f", {est['level']:.0%} interval {est['low']:.3g} to "
+                     f"{est['high']:.3g}{unit}")
+        parts.append(text)
+    test = ev.get("test")
+    if test and test.get("p_value") is not None:
+        p = test["p_value"]
+        parts.append(f"{test.get('name', 'test')}: p {'< 0.001' if p < 0.001 else f'= {p:.3f}'}")
+    if ev.get("method"):
+        parts.append(f"method: {ev['method']}")
+    diags = [d for d in ev.get("diagnostics", []) if d.get("verdict") == "fail"]
+    if diags:
+        parts.append("failed diagnostics: " + ", ".join(d["name"] for d in diags))
+    return "; ".join(parts) if parts else "none"
+
+
+def render_html(report: Report, *, csv_names: dict[str, str], prepared: str) -> str:
+    """The whole document as one HTML string."""
+    env = jinja2.Environment(
+        loader=jinja2.PackageLoader("procmetrics.report", "templates"),
+        autoescape=True, undefined=jinja2.StrictUndefined,
+        trim_blocks=False, lstrip_blocks=False)
+    css = stylesheet()
+    images, widths = {}, {}
+    for key, fig in report.figures.items():
+        if fig.png:
+            images[key] = data_uri(fig.png)
+            widths[key] = round(png_size(fig.png)[0] * 96 / PNG_DPI)
+    rows = {k: [{c: fmt_value(c, v) for c, v in r.items()}
+                for r in t.data.reindex(columns=[c for c, _ in t.columns])
+                .astype(object).to_dict(orient="records")]
+            for k, t in report.tables.items()}
+    numeric = {k: _numeric(t) for k, t in report.tables.items()}
+    return env.get_template("report.html.j2").render(
+        report=report, scope=report.scope, csp=csp_for(css), css=Markup(css),
+        version=__version__, prepared=prepared, images=images, widths=widths,
+        csv_names=csv_names, rows=rows, numeric=numeric, describe=describe,
+        evidence_line=evidence_line)

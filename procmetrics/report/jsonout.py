@@ -1,0 +1,103 @@
+"""The report's figures as deterministic JSON (validated against ``schema.json``).
+
+Same store and options give byte-identical output: keys sorted, floats rounded
+to 10 significant digits (then written by Python's shortest round-trip
+``repr``), NaN/inf written as ``null``, dates ISO 8601 in UTC, and no run
+time or local path (those belong to the manifest).
+"""
+from __future__ import annotations
+
+import json
+import math
+from importlib import resources
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from procmetrics.analyse.result import to_plain
+from procmetrics.report.model import Report
+
+FORMAT = "procmetrics-report/1"
+SIGNIFICANT_DIGITS = 10
+
+
+def canonical(value: Any) -> Any:
+    """JSON-ready value with floats rounded to :data:`SIGNIFICANT_DIGITS`."""
+    value = to_plain(value)
+    if isinstance(value, dict):
+        return {str(k): canonical(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [canonical(v) for v in value]
+    if isinstance(value, (float, np.floating)):
+        x = float(value)
+        if math.isnan(x) or math.isinf(x):
+            return None
+        r = float(f"{x:.{SIGNIFICANT_DIGITS}g}")
+        return 0.0 if r == 0 else r
+    if isinstance(value, pd.Timestamp):
+        return None if pd.isna(value) else value.isoformat()
+    if isinstance(value, (np.integer,)):
+        return int(value)
+    if isinstance(value, (np.bool_,)):
+        return bool(value)
+    return value
+
+
+def dumps(obj: Any) -> str:
+    """Deterministic JSON text (sorted keys, two-space indent, trailing newline)."""
+    return json.dumps(canonical(obj), sort_keys=True, indent=2, ensure_ascii=False,
+                      allow_nan=False) + "\n"
+
+
+def frame_records(df: pd.DataFrame) -> list[dict[str, Any]]:
+    return canonical(df.reset_index(drop=True))
+
+
+def report_dict(report: Report, csv_names: dict[str, str]) -> dict[str, Any]:
+    """The JSON document: every figure and table with its numbers, flags and claims."""
+    figures = []
+    section_of = {b.ref: s.key for s in report.sections for b in s.blocks if b.ref}
+    for fig in report.figures.values():
+        figures.append({
+            "number": fig.number, "key": fig.key, "section": section_of.get(fig.key, ""),
+            "title": fig.title, "caption": fig.caption_line(), "n": fig.n,
+            "method": fig.method, "interval": fig.interval,
+            "csv": csv_names.get(fig.key), "values": fig.values,
+            "flags": [f.to_dict() for f in fig.flags],
+        })
+    tables = []
+    for tab in report.tables.values():
+        tables.append({
+            "number": tab.number, "key": tab.key, "section": section_of.get(tab.key, ""),
+            "title": tab.title, "note": tab.note,
+            "columns": [{"key": k, "heading": h} for k, h in tab.columns],
+            "rows": frame_records(tab.data.reindex(columns=[k for k, _ in tab.columns])),
+            "csv": csv_names.get(tab.key), "flags": [f.to_dict() for f in tab.flags],
+        })
+    return {
+        "format": FORMAT,
+        "title": report.title,
+        "scope": report.scope,
+        "options": report.options.to_dict(),
+        "store_checksum": report.store_checksum,
+        "sections": [{"number": s.number, "key": s.key, "title": s.title}
+                     for s in report.sections],
+        "figures": figures,
+        "tables": tables,
+        "flags": [f.to_dict() for f in report.all_flags()],
+        "claims": report.claims,
+        "provenance": report.provenance,
+    }
+
+
+def schema() -> dict[str, Any]:
+    """The JSON Schema shipped with the package."""
+    text = resources.files("procmetrics.report").joinpath("schema.json").read_text("utf-8")
+    return json.loads(text)
+
+
+def write_json(report: Report, path: Path, csv_names: dict[str, str]) -> Path:
+    path.write_text(dumps(report_dict(report, csv_names)), encoding="utf-8", newline="\n")
+    return path

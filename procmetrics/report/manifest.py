@@ -1,0 +1,92 @@
+"""The provenance manifest: what was analysed, how, with what, and what came out.
+
+``manifest.json`` records the repository (path, ref, HEAD, shallow), the
+mining runs and their options, the tool and dependency versions, the store
+(URL with any password hidden, dialect, schema version, checksum of the tidy
+tables), the options of this report, SHA-256 of every output file and the
+date the report was made. It is the one output that carries a run date; it
+is what ``procmetrics rerun`` reads.
+"""
+from __future__ import annotations
+
+import hashlib
+import json
+import platform
+from importlib import metadata
+from pathlib import Path
+from typing import Any
+
+from procmetrics import __version__
+from procmetrics.errors import ConfigError
+from procmetrics.report.model import ReportOptions
+
+MANIFEST_FORMAT = "procmetrics-manifest/1"
+DEPENDENCIES = ("numpy", "pandas", "scipy", "statsmodels", "matplotlib", "sqlalchemy",
+                "ruptures", "lifelines", "jinja2", "jsonschema", "pyarrow")
+
+
+def versions() -> dict[str, str]:
+    out = {"procmetrics": __version__, "python": platform.python_version()}
+    for name in DEPENDENCIES:
+        try:
+            out[name] = metadata.version(name)
+        except metadata.PackageNotFoundError:
+            out[name] = "not installed"
+    return out
+
+
+def sha256_file(path: Path) -> str:
+    h = hashlib.sha256()
+    with open(path, "rb") as fh:
+        for chunk in iter(lambda: fh.read(1 << 16), b""):
+            h.update(chunk)
+    return h.hexdigest()
+
+
+def output_checksums(out: Path) -> dict[str, str]:
+    """SHA-256 of every file in the report folder except the manifest itself."""
+    files = sorted(p for p in out.rglob("*") if p.is_file() and p.name != "manifest.json")
+    return {p.relative_to(out).as_posix(): sha256_file(p) for p in files}
+
+
+def build_manifest(*, out: Path, options: ReportOptions, store_url: str, dialect: str,
+                   schema_version: int, store_checksum: str, repository: dict[str, Any],
+                   mining_runs: list[dict[str, Any]], pdf: dict[str, Any], prepared: str,
+                   claims: dict[str, Any] | None) -> dict[str, Any]:
+    return {
+        "format": MANIFEST_FORMAT,
+        "prepared_utc": prepared,
+        "repository": repository,
+        "mining_runs": mining_runs,
+        "store": {"url": store_url, "dialect": dialect, "schema_version": schema_version,
+                  "checksum_sha256": store_checksum,
+                  "checksum_method": "SHA-256 over a sorted, canonical dump of the tidy "
+                                     "tables except mining_runs and repositories"},
+        "report_options": {**options.to_dict(), "pdf_engine": options.pdf_engine},
+        "claims_file": claims,
+        "pdf": pdf,
+        "versions": versions(),
+        "outputs": output_checksums(out),
+    }
+
+
+def write_manifest(manifest: dict[str, Any], out: Path) -> Path:
+    path = out / "manifest.json"
+    path.write_text(json.dumps(manifest, indent=2, sort_keys=True, ensure_ascii=False) + "\n",
+                    encoding="utf-8", newline="\n")
+    return path
+
+
+def read_manifest(path: Path) -> dict[str, Any]:
+    try:
+        text = Path(path).read_text(encoding="utf-8")
+    except OSError as exc:
+        raise ConfigError(f"cannot read manifest: {exc.strerror or exc}", path=str(path)) from exc
+    try:
+        data = json.loads(text)
+    except json.JSONDecodeError as exc:
+        raise ConfigError(f"not valid JSON: {exc.msg}", path=str(path), line=exc.lineno) from exc
+    if not isinstance(data, dict) or data.get("format") != MANIFEST_FORMAT:
+        raise ConfigError(f"not a procmetrics manifest (format {MANIFEST_FORMAT} expected)",
+                          path=str(path), key="format")
+    return data
