@@ -200,7 +200,7 @@ def lifetime_design(defects: pd.DataFrame,
     out = pd.DataFrame({"lifetime": d["lifetime"].astype(float), "event": True}, index=d.index)
     for cov in covariates:
         if cov in ("subsystem", "period"):
-            ref = d[cov].value_counts().idxmax()
+            ref = d[cov].value_counts().sort_index().idxmax()   # ties: first by name
             for lv in sorted(set(d[cov]) - {ref}):
                 out[f"{cov}[{lv}]"] = (d[cov] == lv).astype(float)
         elif cov == "reviewed_introducer":

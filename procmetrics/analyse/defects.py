@@ -90,7 +90,7 @@ class DefectTable:
 
 def _periods(dates: pd.Series, cuts: Sequence[Any] | None, freq: str) -> pd.Series:
     if not cuts:
-        return dates.dt.tz_convert("UTC").dt.to_period(freq).astype(str)
+        return dates.dt.tz_convert("UTC").dt.tz_localize(None).dt.to_period(freq).astype(str)
     cut_ts = sorted(pd.Timestamp(c).tz_convert("UTC") if pd.Timestamp(c).tzinfo
                     else pd.Timestamp(c).tz_localize("UTC") for c in cuts)
     if len(cut_ts) == 1:
