@@ -1,0 +1,223 @@
+"""Run git read-only in a controlled environment (the only place git is started).
+
+Every call is an argv list (never a shell). The environment drops inherited
+``GIT_*`` variables and sets ``GIT_CONFIG_NOSYSTEM=1``,
+``GIT_CONFIG_GLOBAL=/dev/null`` (so neither system nor user configuration can
+change results or start programs), no pager, no terminal prompts, no optional
+locks, no lazy fetches in partial clones and no replace refs. Command-line
+``-c`` settings then pin what the repository's own config could change
+(fsmonitor, external diff, textconv, signature display, diff algorithm,
+rename limit, output encoding, hooks path) and mark the repository a
+``safe.directory`` for this call only; the user's configuration is never
+edited and nothing is written to the mined repository.
+"""
+from __future__ import annotations
+
+import os
+import re
+import shutil
+import subprocess
+import tempfile
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Iterable, Iterator, Sequence
+
+from procmetrics.errors import GitFailed, GitUnavailable, NotARepository, UnknownRef
+
+MIN_GIT_VERSION = (2, 32)   # GIT_CONFIG_GLOBAL appeared in 2.32
+CHUNK = 1 << 20
+
+_PINNED_CONFIG = (
+    "core.fsmonitor=false", "core.hooksPath=/dev/null", "core.attributesFile=/dev/null",
+    "core.pager=cat", "diff.external=", "diff.algorithm=myers", "diff.renameLimit=1000",
+    "diff.relative=false", "log.showSignature=false", "i18n.logOutputEncoding=UTF-8",
+    "color.ui=false", "protocol.allow=never", "gc.auto=0", "maintenance.auto=false",
+)
+
+
+def git_environment(base: dict[str, str] | None = None) -> dict[str, str]:
+    """The environment git runs in (inherited ``GIT_*`` variables removed)."""
+    env = {k: v for k, v in (os.environ if base is None else base).items()
+           if not k.startswith("GIT_") or k == "GIT_EXEC_PATH"}
+    env.update({
+        "GIT_CONFIG_NOSYSTEM": "1", "GIT_CONFIG_GLOBAL": "/dev/null",
+        "GIT_ATTR_NOSYSTEM": "1", "GIT_TERMINAL_PROMPT": "0", "GIT_PAGER": "cat",
+        "PAGER": "cat", "GIT_OPTIONAL_LOCKS": "0", "GIT_NO_LAZY_FETCH": "1",
+        "GIT_NO_REPLACE_OBJECTS": "1", "LC_ALL": "C", "LANGUAGE": "C",
+    })
+    return env
+
+
+def git_version() -> tuple[int, ...]:
+    """Installed git's version; :class:`GitUnavailable` when missing or too old."""
+    exe = shutil.which("git")
+    if exe is None:
+        raise GitUnavailable("git is not installed or not on PATH")
+    try:
+        out = subprocess.run([exe, "--version"], capture_output=True, env=git_environment(),
+                             check=True, timeout=60).stdout.decode("ascii", "replace")
+    except (OSError, subprocess.SubprocessError) as exc:
+        raise GitUnavailable(f"cannot run git: {exc}") from exc
+    m = re.search(r"(\d+)\.(\d+)(?:\.(\d+))?", out)
+    if not m:
+        raise GitUnavailable(f"cannot read git's version from {out.strip()!r}")
+    version = tuple(int(x) for x in m.groups() if x is not None)
+    if version[:2] < MIN_GIT_VERSION:
+        raise GitUnavailable(
+            f"git {'.'.join(map(str, version))} is too old; procmetrics needs git "
+            f">= {'.'.join(map(str, MIN_GIT_VERSION))}")
+    return version
+
+
+@dataclass(frozen=True)
+class GitRepo:
+    """A repository opened read-only. Use :meth:`open`."""
+
+    path: Path          # top level of the work tree, or the git directory when bare
+    git_dir: Path
+    is_bare: bool
+    version: tuple[int, ...]
+
+    # -- construction -------------------------------------------------------------------
+    @classmethod
+    def open(cls, path: str | os.PathLike[str]) -> "GitRepo":
+        """Open ``path`` (the top of a work tree, or a bare/git directory)."""
+        version = git_version()
+        given = Path(path).expanduser()
+        if not given.is_dir():
+            raise NotARepository(f"{given}: no such folder")
+        given = given.resolve()
+        probe = cls(given, given, False, version)
+        # never discover a repository above the folder the user named
+        env = {"GIT_CEILING_DIRECTORIES": str(given.parent)}
+        proc = probe._run(["rev-parse", "--is-bare-repository", "--absolute-git-dir"],
+                          check=False, extra_env=env)
+        if proc.returncode != 0:
+            err = proc.stderr.decode("utf-8", "replace").strip()
+            if "dubious ownership" in err:
+                raise NotARepository(f"{given}: git refuses to read it ({err.splitlines()[0]})")
+            raise NotARepository(f"{given} is not a git repository")
+        lines = proc.stdout.decode("utf-8", "surrogateescape").splitlines()
+        is_bare = lines[0].strip() == "true"
+        git_dir = Path(lines[1])
+        top = given
+        if not is_bare:
+            proc = probe._run(["rev-parse", "--show-toplevel"], check=False, extra_env=env)
+            if proc.returncode == 0:
+                top = Path(proc.stdout.decode("utf-8", "surrogateescape").strip())
+                if top != given:
+                    raise NotARepository(
+                        f"{given} is inside the repository at {top}; pass its top-level folder")
+            else:   # e.g. the .git folder of a work tree: read it like a bare repository
+                is_bare = True
+        return cls(top, git_dir, is_bare, version)
+
+    # -- running ------------------------------------------------------------------------
+    def argv(self, args: Sequence[str]) -> list[str]:
+        cmd = ["git", "--no-pager", "--no-replace-objects", "-C", str(self.path),
+               "-c", f"safe.directory={self.path}", "-c", f"safe.directory={self.git_dir}"]
+        for item in _PINNED_CONFIG:
+            cmd += ["-c", item]
+        return cmd + list(args)
+
+    def _run(self, args: Sequence[str], *, check: bool = True, input: bytes | None = None,
+             extra_env: dict[str, str] | None = None) -> subprocess.CompletedProcess[bytes]:
+        env = git_environment()
+        if extra_env:
+            env.update(extra_env)
+        try:
+            proc = subprocess.run(self.argv(args), capture_output=True, input=input, env=env,
+                                  stdin=None if input is not None else subprocess.DEVNULL)
+        except OSError as exc:
+            raise GitUnavailable(f"cannot run git: {exc}") from exc
+        if check and proc.returncode != 0:
+            raise GitFailed(_failure(args, proc.returncode, proc.stderr))
+        return proc
+
+    def text(self, *args: str) -> str:
+        """Run git and return its stdout decoded (UTF-8, undecodable bytes replaced)."""
+        return self._run(args).stdout.decode("utf-8", "replace")
+
+    def stream(self, args: Sequence[str]) -> Iterator[bytes]:
+        """Yield git's stdout in chunks while git still runs (bounded memory).
+
+        stderr goes to a temporary file so a chatty git can never block on a full
+        pipe; a non-zero exit raises :class:`GitFailed` after the last chunk. When
+        the consumer stops early, git is terminated.
+        """
+        with tempfile.TemporaryFile() as err:
+            try:
+                proc = subprocess.Popen(self.argv(args), stdout=subprocess.PIPE, stderr=err,
+                                        stdin=subprocess.DEVNULL, env=git_environment())
+            except OSError as exc:
+                raise GitUnavailable(f"cannot run git: {exc}") from exc
+            assert proc.stdout is not None
+            finished = False
+            try:
+                while True:
+                    chunk = proc.stdout.read1(CHUNK) if hasattr(proc.stdout, "read1") \
+                        else proc.stdout.read(CHUNK)
+                    if not chunk:
+                        break
+                    yield chunk
+                finished = True
+            finally:
+                if not finished and proc.poll() is None:
+                    proc.kill()
+                proc.stdout.close()
+                code = proc.wait()
+            if code != 0:
+                err.seek(0)
+                raise GitFailed(_failure(args, code, err.read()))
+
+    def batch(self, args: Sequence[str], lines: Iterable[str]) -> list[str]:
+        """Feed ``lines`` to a ``--batch``/``--stdin`` git command; return its output lines."""
+        data = "".join(line + "\n" for line in lines).encode("utf-8")
+        out = self._run(args, input=data).stdout.decode("utf-8", "replace")
+        return out.splitlines()
+
+    # -- questions ----------------------------------------------------------------------
+    def resolve_commit(self, ref: str) -> str:
+        """Full hash of the commit ``ref`` names (:class:`UnknownRef` if none)."""
+        proc = self._run(["rev-parse", "--verify", "--quiet", "--end-of-options",
+                          f"{ref}^{{commit}}"], check=False)
+        if proc.returncode == 0:
+            return proc.stdout.decode("ascii").strip()
+        if ref == "HEAD" and not self.has_commits():
+            raise UnknownRef(f"{self.path}: the repository has no commits yet (empty repository)")
+        raise UnknownRef(f"{self.path}: {ref!r} does not name a commit")
+
+    def has_commits(self) -> bool:
+        out = self._run(["rev-list", "--all", "--max-count=1"], check=False).stdout
+        return bool(out.strip())
+
+    def is_shallow(self) -> bool:
+        return self.text("rev-parse", "--is-shallow-repository").strip() == "true"
+
+    def is_ancestor(self, old: str, new: str) -> bool:
+        """True when ``old`` is an ancestor of (or equal to) ``new``; False also when
+        ``old`` no longer exists in the repository."""
+        proc = self._run(["merge-base", "--is-ancestor", old, new], check=False)
+        if proc.returncode in (0, 1):
+            return proc.returncode == 0
+        return False
+
+    def config_value(self, key: str) -> str | None:
+        proc = self._run(["config", "--get", key], check=False)
+        return proc.stdout.decode("utf-8", "replace").strip() if proc.returncode == 0 else None
+
+    def blob_at(self, commit: str, path: str) -> tuple[str, bytes] | None:
+        """``(blob hash, bytes)`` of ``path`` in ``commit``, or None when absent."""
+        proc = self._run(["rev-parse", "--verify", "--quiet", f"{commit}:{path}"], check=False)
+        if proc.returncode != 0:
+            return None
+        blob = proc.stdout.decode("ascii").strip()
+        if self.text("cat-file", "-t", blob).strip() != "blob":
+            return None
+        return blob, self._run(["cat-file", "blob", blob]).stdout
+
+
+def _failure(args: Sequence[str], code: int, stderr: bytes) -> str:
+    msg = stderr.decode("utf-8", "replace").strip().splitlines()
+    detail = msg[-1] if msg else "no message"
+    return f"git {args[0] if args else ''} failed (exit {code}): {detail}"

@@ -1,0 +1,268 @@
+"""``mine_repository``: read a git history into the store (library entry point).
+
+One run: open the repository read-only, decide the range (everything, or
+``stored_tip..new_tip`` when the stored tip is an ancestor of the new one),
+stream ``git log`` through the parser into batches (one transaction each),
+then resolve fix/revert references, store tags, map new paths to subsystems
+and finally mark the run complete and move the stored tip (see
+:mod:`procmetrics.store.writer` for why an interrupted run is harmless).
+"""
+from __future__ import annotations
+
+import json
+import os
+import platform
+import sys
+import time
+import warnings
+from importlib import metadata
+from urllib.parse import urlsplit, urlunsplit
+
+from sqlalchemy.engine import Engine
+
+from procmetrics import __version__
+from procmetrics.errors import ConfigError, DataQualityWarning, HistoryRewritten
+from procmetrics.mine.git import GitRepo
+from procmetrics.mine.logstream import LogCommit, date_filter_args, log_args, parse_log
+from procmetrics.mine.options import CONTENT_OPTIONS, MineOptions, MiningSummary
+from procmetrics.mine.references import scan_message
+from procmetrics.mine.resolve import RESOLVED, SELF, classify, find_candidates, subject_match
+from procmetrics.mine.subsystems import (
+    PathMapper, maintainers_mapper, prefix_mapper, rules_mapper,
+)
+from procmetrics.mine.tags import read_tags
+from procmetrics.mine.trailers import parse_trailers, split_person
+from procmetrics.store import open_store
+from procmetrics.store.writer import CommitRow, FileRow, FixRow, StoreWriter, TrailerRow
+
+MAINTAINERS_FILE = "MAINTAINERS"
+_PERSON_KEYS = {"Cc", "To", "From"}
+
+
+def mine_repository(path: str | os.PathLike[str], store: str | os.PathLike[str] | Engine |
+                    None = None, options: MineOptions | None = None) -> MiningSummary:
+    """Mine the history of the git repository at ``path`` into ``store``.
+
+    Raises :class:`~procmetrics.errors.NotARepository`, ``UnknownRef``,
+    ``GitUnavailable``, ``GitFailed``, ``HistoryRewritten``, ``ConfigError`` or
+    ``StoreError``; warns :class:`~procmetrics.errors.DataQualityWarning` for
+    shallow clones.
+    """
+    opts = options or MineOptions()
+    started = time.monotonic()
+    git = GitRepo.open(path)
+    tip = git.resolve_commit(opts.ref)
+    shallow = git.is_shallow()
+    if shallow:
+        warnings.warn(f"{git.path} is a shallow clone: history before the shallow boundary "
+                      "is missing, so counts, fix links and lifetimes are incomplete",
+                      DataQualityWarning, stacklevel=2)
+    mapper = build_mapper(git, tip, opts)
+    engine = store if isinstance(store, Engine) else open_store(store)
+    writer = StoreWriter(engine)
+    name = opts.repo_name or default_repo_name(git)
+    repo_id = writer.ensure_repository(name, str(git.path))
+    writer.ensure_indexes()
+    cleaned = writer.cleanup_incomplete(repo_id)
+    base = _decide_base(git, writer, repo_id, tip, opts)
+    run_id = writer.start_run(repo_id, ref=opts.ref, head_hash=tip, base_hash=base,
+                              is_shallow=shallow, options_json=opts.to_json(),
+                              versions_json=json.dumps(versions(git), sort_keys=True))
+    try:
+        counts = _load(git, writer, repo_id, run_id, tip, base, opts)
+        resolve_links(git, writer, repo_id, run_id, tip)
+        writer.replace_tags(repo_id, read_tags(git))
+        _map_paths(writer, repo_id, mapper)
+        writer.complete_run(run_id, repo_id, tip_hash=tip, tip_ref=opts.ref, path=str(git.path),
+                            remote_url=redact_url(git.config_value("remote.origin.url")),
+                            is_shallow=shallow, mapping_kind=mapper.kind,
+                            mapping_source=mapper.source, counts=counts,
+                            message="shallow clone" if shallow else None)
+    except BaseException as exc:
+        try:
+            writer.fail_run(run_id, f"{exc.__class__.__name__}: {exc}")
+        except Exception:  # noqa: BLE001 - the store may be what failed; keep the first error
+            pass
+        raise
+    t = writer.totals(repo_id)
+    return MiningSummary(
+        repo=name, run_id=run_id, head_hash=tip, base_hash=base, incremental=base is not None,
+        new_commits=counts["n_commits"], commits=t["commits"], merges=t["merges"],
+        file_changes=t["file_changes"], trailers=t["trailers"], fix_status=t["fix_status"],
+        reverts=t["reverts"], unparsed=t["unparsed"], tags=t["tags"], is_shallow=shallow,
+        mapping_kind=mapper.kind, mapping_source=mapper.source,
+        seconds=round(time.monotonic() - started, 3), cleaned_runs=tuple(cleaned))
+
+
+def _decide_base(git: GitRepo, writer: StoreWriter, repo_id: int, tip: str,
+                 opts: MineOptions) -> str | None:
+    old_tip, old_json = writer.repository_state(repo_id)
+    if old_tip is None:
+        return None
+    if old_json is not None:
+        old = json.loads(old_json)
+        new = json.loads(opts.to_json())
+        diff = [k for k in CONTENT_OPTIONS if old.get(k) != new.get(k)]
+        if diff:
+            if opts.rewrite_policy == "remine":
+                writer.delete_repository_data(repo_id, f"re-mined with other {', '.join(diff)}")
+                return None
+            raise ConfigError(
+                f"the store holds this repository mined with other {', '.join(diff)} "
+                f"({', '.join(f'{k}={old.get(k)!r}' for k in diff)}); adding to it would mix "
+                "data; use the same options, another --repo-name, or --rewrite-policy remine")
+    if old_tip == tip or git.is_ancestor(old_tip, tip):
+        return old_tip
+    if opts.rewrite_policy == "remine":
+        writer.delete_repository_data(repo_id, f"history rewritten: {old_tip} is not an "
+                                               f"ancestor of {tip}")
+        return None
+    raise HistoryRewritten(
+        f"the stored tip {old_tip[:12]} is not an ancestor of {opts.ref} ({tip[:12]}): the "
+        "history was rewritten (force-push, rebase) or an older ref was given; "
+        "use --rewrite-policy remine to delete this repository's rows and mine it again")
+
+
+def commit_row(c: LogCommit) -> CommitRow:
+    """Turn one parsed ``git log`` commit into the rows the store wants."""
+    block = parse_trailers(c.message)
+    refs = scan_message(c.message, block)
+    trailers = [TrailerRow(t.key, t.raw_key, t.value,
+                           split_person(t.value) if (t.key.endswith("-by")
+                                                     or t.key in _PERSON_KEYS) else None)
+                for t in block.trailers]
+    return CommitRow(
+        c.hash, c.parents, (c.author_name, c.author_email),
+        (c.committer_name, c.committer_email), c.author_time, c.author_offset_min,
+        c.committer_time, c.committer_offset_min, c.subject, c.message, refs.stable_request,
+        c.message_was_utf8, [FileRow(f.path, f.old_path, f.change_type, f.lines_added,
+                                     f.lines_deleted, f.is_binary) for f in c.files],
+        trailers, [FixRow(*f) for f in refs.fixes], refs.reverts, refs.unparsed)
+
+
+def _load(git: GitRepo, writer: StoreWriter, repo_id: int, run_id: int, tip: str,
+          base: str | None, opts: MineOptions) -> dict[str, int]:
+    counts = {"n_commits": 0, "n_file_changes": 0, "n_trailers": 0, "n_fix_refs": 0}
+    if base == tip:
+        return counts
+    since, until = opts.since_epoch(), opts.until_epoch()
+    show = sys.stderr.isatty() if opts.progress is None else opts.progress
+    total = None
+    if show:
+        rng = [tip] + (["^" + base] if base else [])
+        total = int(git.text("rev-list", "--count", *date_filter_args(since, until), *rng,
+                             "--").strip() or 0)
+    bulk = base is None and writer.drop_indexes_if_empty()
+    from tqdm import tqdm
+    bar = tqdm(total=total, unit="commit", file=sys.stderr, disable=not show,
+               desc="mining", dynamic_ncols=True)
+    try:
+        batch: list[CommitRow] = []
+        args = log_args(tip, base, line_counts=opts.line_counts, merge_files=opts.merge_files,
+                        since=since, until=until)
+        for c in parse_log(git.stream(args)):
+            batch.append(commit_row(c))
+            if len(batch) >= opts.batch_size:
+                _add(counts, writer.write_batch(repo_id, run_id, batch))
+                bar.update(len(batch))
+                batch = []
+        _add(counts, writer.write_batch(repo_id, run_id, batch))
+        bar.update(len(batch))
+    finally:
+        bar.close()
+        if bulk:
+            writer.ensure_indexes()
+    return counts
+
+
+def _add(total: dict[str, int], part: dict[str, int]) -> None:
+    for k, v in part.items():
+        total[k] += v
+
+
+def resolve_links(git: GitRepo, writer: StoreWriter, repo_id: int, run_id: int,
+                  tip: str) -> int:
+    """(Re-)resolve the references whose outcome this run may have changed."""
+    full_len = len(tip)
+    links = writer.links_to_check(repo_id, run_id, full_len)
+    if not links:
+        return 0
+    heads: dict[str, list[str]] = {}
+    if any(not ln.is_new for ln in links):
+        for h in writer.run_hashes(repo_id, run_id):
+            heads.setdefault(h[:7], []).append(h)
+    todo = [ln for ln in links
+            if ln.is_new or ln.status not in (RESOLVED, SELF) or not ln.target_stored
+            or any(h.startswith(ln.ref_hash) for h in heads.get(ln.ref_hash[:7], ()))]
+    if not todo:
+        return 0
+    cands = find_candidates(git, tip, {ln.ref_hash for ln in todo},
+                            lambda refs: writer.stored_matches(repo_id, refs, full_len))
+    outcome = [(ln, *classify(cands[ln.ref_hash], ln.citing_hash)) for ln in todo]
+    wanted = sorted({tg for ln, st, tg in outcome
+                     if ln.kind == "fix" and ln.cited_subject is not None and tg})
+    subjects = writer.stored_subjects(repo_id, wanted) if wanted else {}
+    missing = [h for h in wanted if h not in subjects]
+    if missing:
+        for line in git.batch(["log", "--no-walk=unsorted", "--stdin", "--format=%H %s"],
+                              missing):
+            h, _, subj = line.partition(" ")
+            subjects[h] = subj
+    updates = [(ln, st, tg, subject_match(ln.cited_subject, subjects.get(tg)) if tg else None)
+               for ln, st, tg in outcome]
+    writer.update_links(updates)
+    return len(updates)
+
+
+def build_mapper(git: GitRepo, tip: str, opts: MineOptions) -> PathMapper:
+    """Rules file, else the tip's MAINTAINERS file, else path prefixes."""
+    if opts.subsystem_rules:
+        return rules_mapper(opts.subsystem_rules)
+    if opts.use_maintainers:
+        found = git.blob_at(tip, MAINTAINERS_FILE)
+        if found is not None:
+            blob, data = found
+            return maintainers_mapper(data.decode("utf-8", "replace"),
+                                      f"{MAINTAINERS_FILE}@{blob}")
+    return prefix_mapper(opts.prefix_depth)
+
+
+def _map_paths(writer: StoreWriter, repo_id: int, mapper: PathMapper) -> None:
+    if writer.mapping_of(repo_id) != (mapper.kind, mapper.source):
+        writer.clear_mapping(repo_id)
+    paths = writer.unmapped_paths(repo_id)
+    if paths:
+        writer.add_path_subsystems(repo_id, [(p, mapper.map(p)) for p in paths])
+
+
+def default_repo_name(git: GitRepo) -> str:
+    p = git.path
+    if p.name == ".git":
+        p = p.parent
+    return p.name[:-4] if p.name.endswith(".git") and len(p.name) > 4 else p.name
+
+
+def redact_url(url: str | None) -> str | None:
+    """Hide a password/token in a remote URL before it is stored."""
+    if not url or "://" not in url:
+        return url
+    parts = urlsplit(url)
+    if parts.password is None and not (parts.username and parts.scheme.startswith("http")):
+        return url
+    host = parts.hostname or ""
+    if parts.port:
+        host += f":{parts.port}"
+    return urlunsplit(parts._replace(netloc=f"***@{host}"))
+
+
+def versions(git: GitRepo) -> dict[str, str]:
+    out = {"procmetrics": __version__, "git": ".".join(map(str, git.version)),
+           "python": platform.python_version()}
+    for pkg in ("sqlalchemy", "pandas"):
+        try:
+            out[pkg] = metadata.version(pkg)
+        except metadata.PackageNotFoundError:
+            out[pkg] = "not installed"
+    return out
+
+

@@ -1,0 +1,119 @@
+"""Resolve cited commit hashes (``Fixes:``, ``This reverts commit``).
+
+A reference resolves against the commits reachable from the repository's
+branches, tags and remote-tracking branches (pull-request refs such as
+``*/pull/*`` and ``*/pr/*`` excluded) plus the mined tip:
+
+* ``resolved``  - exactly one such commit has the cited hash as prefix;
+* ``self``      - that one commit is the citing commit itself;
+* ``ambiguous`` - two or more such commits share the cited prefix;
+* ``unresolved``- none does (amended before merge, another project's history...).
+
+Stored hashes answer most references (an indexed range query per prefix).
+References the store cannot settle - unknown hashes, and short prefixes that
+might also match a commit outside the mined range - go to ONE
+``git cat-file --batch-check`` process; only when that finds a commit outside
+the store (or an ambiguous prefix) is the reachable history streamed once with
+``git rev-list`` to decide reachability and count prefix matches.
+"""
+from __future__ import annotations
+
+import bisect
+from typing import Callable, Iterable, Sequence
+
+from procmetrics.mine.git import GitRepo
+
+RESOLVED, UNRESOLVED, AMBIGUOUS, SELF = "resolved", "unresolved", "ambiguous", "self"
+EXCLUDED_REF_GLOBS = ("*/pull/*", "*/pr/*", "pull/*", "pr/*")
+
+
+def prefix_matches(sorted_hashes: Sequence[str], prefix: str, limit: int = 2) -> list[str]:
+    """Up to ``limit`` hashes of ``sorted_hashes`` starting with ``prefix`` (bisect)."""
+    i = bisect.bisect_left(sorted_hashes, prefix)
+    out = []
+    while i < len(sorted_hashes) and sorted_hashes[i].startswith(prefix) and len(out) < limit:
+        out.append(sorted_hashes[i])
+        i += 1
+    return out
+
+
+def classify(matches: Sequence[str], citing_hash: str) -> tuple[str, str | None]:
+    """Status and full target hash of a reference given every commit matching it."""
+    unique = sorted(set(matches))
+    if not unique:
+        return UNRESOLVED, None
+    if len(unique) > 1:
+        return AMBIGUOUS, None
+    target = unique[0]
+    return (SELF if target == citing_hash else RESOLVED), target
+
+
+def normalise_subject(text: str) -> str:
+    return " ".join(text.split()).strip("\"'\u201c\u201d ").rstrip(".").casefold()
+
+
+def subject_match(cited: str | None, actual: str | None) -> bool | None:
+    """Cited subject equals the target's (whitespace/case/quotes/final period ignored;
+    a cited subject ending in '...' matches as a prefix). None when either is missing."""
+    if cited is None or actual is None:
+        return None
+    c, a = normalise_subject(cited), normalise_subject(actual)
+    for ell in ("...", "\u2026"):
+        if c.endswith(ell):
+            stem = c[: -len(ell)].rstrip()
+            return bool(stem) and a.startswith(stem)
+    return c == a
+
+
+def reachable_args(tip: str) -> list[str]:
+    args = ["rev-list"]
+    for opt in ("--branches", "--tags", "--remotes"):
+        args += [f"--exclude={g}" for g in EXCLUDED_REF_GLOBS] + [opt]
+    return args + [tip, "--"]
+
+
+def find_candidates(git: GitRepo, tip: str, refs: Iterable[str],
+                    stored: Callable[[list[str]], dict[str, list[str]]]) -> dict[str, list[str]]:
+    """Every reachable commit (up to two) matching each reference.
+
+    ``stored(refs)`` returns the stored hashes matching each reference.
+    """
+    refs = sorted(set(refs))
+    found: dict[str, list[str]] = {r: list(v) for r, v in stored(refs).items()}
+    for r in refs:
+        found.setdefault(r, [])
+    full_len = len(tip)
+    ask = [r for r in refs if len(r) < full_len or not found[r]]
+    if not ask:
+        return found
+    lines = git.batch(["cat-file", "--batch-check"], (f"{r}^{{commit}}" for r in ask))
+    need_walk: set[str] = set()
+    for r, line in zip(ask, lines):
+        parts = line.split()
+        if len(parts) >= 2 and parts[-1] == "missing":
+            continue
+        if len(parts) >= 2 and parts[1] == "commit" and len(parts[0]) == full_len:
+            if parts[0] not in found[r]:
+                need_walk.add(r)        # a commit outside the store: reachable?
+        else:
+            need_walk.add(r)            # ambiguous (or unexpected): count reachable matches
+    if need_walk:
+        by_head: dict[str, list[str]] = {}
+        for r in need_walk:
+            by_head.setdefault(r[:4], []).append(r)
+        for h in _stream_lines(git, reachable_args(tip)):
+            for r in by_head.get(h[:4], ()):
+                if h.startswith(r) and h not in found[r]:
+                    found[r].append(h)
+    return found
+
+
+def _stream_lines(git: GitRepo, args: list[str]) -> Iterable[str]:
+    rest = b""
+    for chunk in git.stream(args):
+        lines = (rest + chunk).split(b"\n")
+        rest = lines.pop()
+        for line in lines:
+            yield line.decode("ascii", "replace")
+    if rest:
+        yield rest.decode("ascii", "replace")

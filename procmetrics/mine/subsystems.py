@@ -1,0 +1,225 @@
+"""Map touched paths to subsystems.
+
+Three sources, first applicable wins:
+
+(b) ``--subsystem-rules FILE`` (TOML)::
+
+        [subsystems]
+        networking = ["net/", "drivers/net/**", "include/net/*.h"]
+        docs = "Documentation/"
+
+(a) a kernel-style ``MAINTAINERS`` file at the top of the mined tip (read from
+    git objects, so bare repositories work): sections start with a title line
+    followed by ``F:`` patterns, ``X:`` exclusions and ``N:`` regular
+    expressions on the path;
+(c) otherwise the first ``prefix_depth`` directories of the path (files at the
+    top level -> ``(top-level)``).
+
+Pattern language (MAINTAINERS and rules alike): ``*`` and ``?`` match within
+one path component, ``**`` any number of components (rules only), a trailing
+``/`` matches everything below that folder, a pattern without wildcards
+matches that file or everything below that folder.
+
+Specificity: a pattern's specificity is the number of leading path characters
+it fixes literally (everything before its first wildcard; the whole pattern
+when it has none); for an ``N:`` regex it is the offset where its leftmost
+match on the path ends. A path goes to the subsystem(s) whose matching
+pattern has the highest specificity; ties keep every tied subsystem. A
+section whose ``X:`` pattern matches the path does not apply to it. A path
+no rule or section matches goes to ``(unmapped)``.
+"""
+from __future__ import annotations
+
+import hashlib
+import re
+import tomllib
+import warnings
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Iterable
+
+from procmetrics.errors import ConfigError, DataQualityWarning
+
+UNMAPPED = "(unmapped)"
+TOP_LEVEL = "(top-level)"
+_GLOB_CHARS = "*?["
+
+
+@dataclass(frozen=True)
+class Pattern:
+    text: str
+    regex: re.Pattern[str]
+    specificity: int
+    bucket: str          # literal folder prefix ("" or ending in "/")
+
+
+def compile_glob(text: str, *, allow_globstar: bool = False) -> Pattern:
+    """Compile one path pattern (see module docstring)."""
+    text = text.strip().lstrip("/")
+    cut = min((text.find(c) for c in _GLOB_CHARS if c in text), default=-1)
+    literal = text if cut < 0 else text[:cut]
+    bucket = literal[: literal.rfind("/") + 1]
+    out, i = [], 0
+    body = text[:-1] if text.endswith("/") else text
+    while i < len(body):
+        c = body[i]
+        if body.startswith("**/", i) and allow_globstar:
+            out.append("(?:.*/)?")
+            i += 3
+            continue
+        if body.startswith("**", i) and allow_globstar:
+            out.append(".*")
+            i += 2
+            continue
+        out.append("[^/]*" if c == "*" else "[^/]" if c == "?" else re.escape(c))
+        i += 1
+    core = "".join(out)
+    tail = "/.*" if text.endswith("/") else "(?:/.*)?"
+    return Pattern(text, re.compile(core + tail + r"\Z", re.S), len(literal), bucket)
+
+
+def _buckets(path: str) -> list[str]:
+    out = [""]
+    i = path.find("/")
+    while i >= 0:
+        out.append(path[: i + 1])
+        i = path.find("/", i + 1)
+    return out
+
+
+@dataclass
+class PathMapper:
+    """Map paths to subsystems. ``kind`` and ``source`` go to the repository row."""
+
+    kind: str
+    source: str
+    depth: int = 1
+    titles: list[str] = field(default_factory=list)
+    by_bucket: dict[str, list[tuple[Pattern, int]]] = field(default_factory=dict)
+    excludes: dict[int, list[Pattern]] = field(default_factory=dict)
+    regexes: list[tuple[re.Pattern[str], int]] = field(default_factory=list)
+    any_regex: re.Pattern[str] | None = None
+
+    def add(self, title: str, patterns: Iterable[Pattern], excludes: Iterable[Pattern] = (),
+            regexes: Iterable[re.Pattern[str]] = ()) -> None:
+        idx = len(self.titles)
+        self.titles.append(title)
+        for p in patterns:
+            self.by_bucket.setdefault(p.bucket, []).append((p, idx))
+        ex = list(excludes)
+        if ex:
+            self.excludes[idx] = ex
+        self.regexes.extend((r, idx) for r in regexes)
+
+    def finish(self) -> "PathMapper":
+        if self.regexes:
+            self.any_regex = re.compile("|".join(f"(?:{r.pattern})" for r, _ in self.regexes))
+        return self
+
+    def map(self, path: str) -> list[str]:
+        if self.kind == "path-prefix":
+            parts = path.split("/")[:-1][: self.depth]
+            return ["/".join(parts) if parts else TOP_LEVEL]
+        best, chosen = -1, set()
+        hits: list[tuple[int, int]] = []
+        for b in _buckets(path):
+            for pat, idx in self.by_bucket.get(b, ()):
+                if pat.regex.match(path):
+                    hits.append((pat.specificity, idx))
+        if self.any_regex is not None and self.any_regex.search(path):
+            for rx, idx in self.regexes:
+                m = rx.search(path)
+                if m:
+                    hits.append((m.end(), idx))
+        for spec, idx in hits:
+            if any(x.regex.match(path) for x in self.excludes.get(idx, ())):
+                continue
+            if spec > best:
+                best, chosen = spec, {idx}
+            elif spec == best:
+                chosen.add(idx)
+        if not chosen:
+            return [UNMAPPED]
+        return sorted({self.titles[i] for i in chosen})
+
+
+def prefix_mapper(depth: int = 1) -> PathMapper:
+    if depth < 1:
+        raise ConfigError(f"prefix depth must be at least 1, got {depth}")
+    return PathMapper("path-prefix", f"depth={depth}", depth=depth)
+
+
+_ENTRY = re.compile(r"^([A-Z]):\s*(.*?)\s*$")
+
+
+def maintainers_mapper(text: str, source: str) -> PathMapper:
+    """Parse a kernel-style maintainers file (sections of title + ``F:``/``X:``/``N:``)."""
+    mapper = PathMapper("maintainers", source)
+    title: str | None = None
+    pats: list[Pattern] = []
+    excl: list[Pattern] = []
+    rxs: list[re.Pattern[str]] = []
+    bad: list[str] = []
+
+    def flush() -> None:
+        if title is not None and (pats or rxs):
+            mapper.add(title, pats, excl, rxs)
+
+    for line in text.splitlines():
+        if not line.strip():
+            flush()
+            title, pats, excl, rxs = None, [], [], []
+            continue
+        m = _ENTRY.match(line)
+        if m and title is not None:
+            kind, value = m.groups()
+            if kind == "F" and value:
+                pats.append(compile_glob(value))
+            elif kind == "X" and value:
+                excl.append(compile_glob(value))
+            elif kind == "N" and value:
+                try:
+                    rxs.append(re.compile(value))
+                except re.error:
+                    bad.append(value)
+        elif not line[0].isspace() and title is None and not m:
+            title = line.strip()
+    flush()
+    if bad:
+        warnings.warn(f"{source}: {len(bad)} N: pattern(s) are not valid Python regular "
+                      f"expressions and were skipped (first: {bad[0]!r})",
+                      DataQualityWarning, stacklevel=2)
+    return mapper.finish()
+
+
+def rules_mapper(path: str | Path) -> PathMapper:
+    """Read a TOML rules file (``[subsystems] name = [globs]``)."""
+    p = Path(path)
+    try:
+        raw = p.read_bytes()
+    except OSError as exc:
+        raise ConfigError(f"cannot read subsystem rules: {exc.strerror}", path=str(p)) from exc
+    try:
+        data = tomllib.loads(raw.decode("utf-8"))
+    except (UnicodeDecodeError, tomllib.TOMLDecodeError) as exc:
+        line = re.search(r"line (\d+)", str(exc))
+        raise ConfigError(f"not valid TOML: {exc}", path=str(p),
+                          line=int(line.group(1)) if line else None) from exc
+    unknown = sorted(set(data) - {"subsystems"})
+    if unknown:
+        raise ConfigError("unknown table; only [subsystems] is allowed", path=str(p),
+                          key=unknown[0])
+    subs = data.get("subsystems")
+    if not isinstance(subs, dict) or not subs:
+        raise ConfigError("needs a non-empty [subsystems] table", path=str(p), key="subsystems")
+    digest = hashlib.sha256(raw).hexdigest()[:16]
+    mapper = PathMapper("rules", f"{p.resolve()} sha256:{digest}")
+    for name, globs in subs.items():
+        if isinstance(globs, str):
+            globs = [globs]
+        if not isinstance(globs, list) or not globs or \
+                not all(isinstance(g, str) and g.strip() for g in globs):
+            raise ConfigError("value must be a glob or a non-empty list of globs",
+                              path=str(p), key=f"subsystems.{name}")
+        mapper.add(name, [compile_glob(g, allow_globstar=True) for g in globs])
+    return mapper.finish()
