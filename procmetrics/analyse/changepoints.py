@@ -117,6 +117,8 @@ class ChangePointResult:
     penalty_path: pd.DataFrame
     config: ChangePointConfig
     stated_false_positive_rate: float
+    period_labels: tuple[str, ...] = field(default=())
+    period_dates: tuple[pd.Timestamp | None, ...] = field(default=())
     caveats: tuple[Caveat, ...] = field(default=())
 
     def to_dict(self) -> dict[str, Any]:
@@ -333,7 +335,7 @@ def detect_changes(y: np.ndarray, *, kind: str, trials: np.ndarray | None = None
         penalty=float(pen), sigma_hat=float(sigma), n_periods=n, n=n_units,
         changes=tuple(changes), segments=segments, penalty_path=penalty_path,
         config=config, stated_false_positive_rate=STATED_FALSE_POSITIVE_RATE,
-        caveats=tuple(cavs))
+        period_labels=tuple(labels), period_dates=tuple(dates), caveats=tuple(cavs))
 
 
 def _caveats(changes, penalty_path, band, n, config) -> list[Caveat]:
