@@ -35,7 +35,7 @@ C = COMPANY_DOMAIN
 PEOPLE: tuple[Person, ...] = (
     Person("ines", "Ines Vardakis", f"ines.vardakis@{C}", "+0100", ("hal", "boot", "docs")),
     Person("tobiah", "Tobiah Wrenfield", f"tobiah@{C}", "-0500", ("can", "hal")),
-    Person("kaito", "Kaito Brennholt", f"k.brennholt@{C}", "+0900", ("adc", "sensors"),
+    Person("kaito", "Kaito Brennholt", f"k.brennholt@{C}", "+0900", ("adc", "sensors", "calib"),
            new_email="kaito@brennholt.example.net", email_switch=dt.date(2021, 4, 1)),
     Person("ylva", "Ylva Þórsnes-Kärrberg", "ylva.thorsnes@example.org", "+0100",
            ("sched", "sync")),
@@ -123,9 +123,9 @@ SUBSYSTEMS: tuple[Subsystem, ...] = (
               ("desmond",), 0.7, 1.0,
               ("brownout handler", "sleep entry", "wake-up source", "supply monitor")),
     Subsystem("sensors", "SENSORS", "sensors", "sensors",
-              ("sensors/encoder.c", "sensors/hall.c", "sensors/temp.c", "sensors/imu_calib.c"),
+              ("sensors/encoder.c", "sensors/hall.c", "sensors/temp.c", "sensors/imu_fusion.c"),
               ("lio", "kaito"), 1.0, 1.0,
-              ("encoder index", "hall sensor table", "temperature filter", "IMU calibration")),
+              ("encoder index", "hall sensor table", "temperature filter", "IMU alignment")),
     Subsystem("motor", "MOTOR CONTROL", "motor", "motor",
               ("motor/foc.c", "motor/svpwm.c", "motor/observer.c", "motor/current_loop.c"),
               ("ruben",), 1.2, 1.2,
@@ -135,10 +135,15 @@ SUBSYSTEMS: tuple[Subsystem, ...] = (
               ("fenna", "auden"), 0.8, 0.0,
               ("porting guide", "CAN chapter", "build instructions", "release notes")),
     Subsystem("tools", "BUILD AND TOOLS", "tools", "tools",
-              ("tools/flash.py", "tools/logview.py", "tools/calib/gen_calib.py",
-               "tools/calib/adc_gain_table.bin", "Makefile", "cmake/toolchain.cmake"),
+              ("tools/flash.py", "tools/logview.py", "tools/release.py", "Makefile",
+               "cmake/toolchain.cmake"),
               ("auden",), 0.7, 0.5,
-              ("flash script", "log viewer", "calibration generator", "toolchain file", "Makefile")),
+              ("flash script", "log viewer", "release script", "toolchain file", "Makefile")),
+    Subsystem("calib", "CALIBRATION DATA", "calib", "tools/calib",
+              ("tools/calib/gen_calib.py", "tools/calib/adc_gain_table.bin",
+               "sensors/imu_calib.c"),
+              ("kaito",), 0.3, 0.8,
+              ("ADC gain table", "IMU calibration", "offset trim", "calibration generator")),
 )
 SUB = {s.key: s for s in SUBSYSTEMS}
 ROOT_FILES = ("README.md", ".gitignore")
@@ -210,19 +215,18 @@ def maintainers_text(with_mqtt: bool, switched: bool) -> str:
         "docs": ("docs/",),
         "tools": ("tools/", "cmake/", "Makefile"),
     }
+    extra_n = {"calib": ("calib",)}
     sections: list[tuple[str, str]] = []
     for s in SUBSYSTEMS:
         if s.key == "mqtt" and not with_mqtt:
             continue
         lines = [s.title, *(who(m) for m in s.maintainers), f"L:\t{LIST_ADDRESS}",
                  "S:\tOdd Fixes" if s.key == "vendor" else "S:\tMaintained"]
-        lines += [f"F:\t{f}" for f in extra_f[s.key]]
+        lines += [f"F:\t{f}" for f in extra_f.get(s.key, ())]
+        lines += [f"N:\t{n}" for n in extra_n.get(s.key, ())]
         if s.key == "hal":
             lines.append("X:\thal/vendor/")
         sections.append((s.title, "\n".join(lines)))
-    sections.append(("CALIBRATION DATA", "\n".join(
-        ["CALIBRATION DATA", who("kaito"), f"L:\t{LIST_ADDRESS}", "S:\tMaintained",
-         "N:\tcalib"])))
     sections.sort()
     rest = "\n".join(["THE REST", who("ines"), f"L:\t{LIST_ADDRESS}", "S:\tMaintained",
                       "F:\t*", "F:\t*/"])

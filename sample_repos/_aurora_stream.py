@@ -83,13 +83,17 @@ class Content:
                          else f"# rev {self.counter}")
         return tuple(lines)
 
-    def fresh_name(self, sub: str, directory: str | None = None) -> str:
+    def fresh_name(self, sub: str, like: str | None = None) -> str:
+        """A new file name in the subsystem's home, or beside ``like`` with its suffix."""
         s = SUB[sub]
         self.counter += 1
         stem = self.rnd.pick(s.nouns).lower().replace(" ", "_").replace("-", "_")
-        ext = {"docs": "md", "tools": "py", "vendor": "h"}.get(sub) or \
+        if like is not None:
+            directory, ext = posixpath.dirname(like), posixpath.splitext(like)[1][1:]
+            return f"{directory}/{stem}_{self.counter}.{ext or 'txt'}"
+        ext = {"docs": "md", "tools": "py", "vendor": "h", "calib": "py"}.get(sub) or \
             ("h" if self.rnd.chance(0.2) else "c")
-        return f"{directory or s.home}/{stem}_{self.counter}.{ext}"
+        return f"{s.home}/{stem}_{self.counter}.{ext}"
 
 
 def encode(content) -> bytes:
@@ -176,14 +180,15 @@ class Stream:
     def ordinary_ops(self, e, tree: dict) -> list[tuple]:
         r, c, ops = self.rnd, self.content, []
         files = self.files_of(tree, e.sub)
-        movable = [p for p in files if not is_binary(p) and not p.startswith(PROTECTED_PREFIXES)]
+        movable = [p for p in files if not is_binary(p) and not p.startswith(PROTECTED_PREFIXES)
+                   and posixpath.dirname(p) == SUB[e.sub].home]   # keeps MAINTAINERS mapping
         x = r.u()
         if x < 0.06 or not files:
             path = c.fresh_name(e.sub)
             self.put(tree, ops, path, c.new_text(path, e.sub), e.sub)
         elif x < 0.075 and len(movable) > 2:
             old = r.pick(movable)
-            new = c.fresh_name(e.sub, posixpath.dirname(old))
+            new = c.fresh_name(e.sub, like=old)
             self.owner[new] = e.sub
             ops.append(("R", old, new))
             tree[new] = tree.pop(old)
