@@ -29,6 +29,7 @@ from typing import Iterable, NamedTuple, Sequence
 
 from sqlalchemy import and_, bindparam, delete, exists, func, insert, or_, select, update
 from sqlalchemy.engine import Connection, Engine
+from sqlalchemy.schema import CreateIndex, DropIndex
 
 from procmetrics.store import schema as s
 
@@ -196,18 +197,30 @@ class StoreWriter:
                          .values(tip_hash=None, mapping_kind=None, mapping_source=None))
 
     # -- indexes ------------------------------------------------------------------------
+    @staticmethod
+    def _write_lock(conn: Connection) -> None:
+        """Serialise with other miners writing to the same store (other repositories).
+
+        A no-op update of one row: SQLite takes its write lock (waiting up to the
+        busy timeout), PostgreSQL a row lock, both held until the transaction ends.
+        """
+        conn.execute(update(s.meta).where(s.meta.c.key == "schema_version")
+                     .values(value=s.meta.c.value))
+
     def ensure_indexes(self) -> None:
         with self.engine.begin() as conn:
+            self._write_lock(conn)
             for ix in s.INDEXES:
-                ix.create(conn, checkfirst=True)
+                conn.execute(CreateIndex(ix, if_not_exists=True))
 
     def drop_indexes_if_empty(self) -> bool:
         """Drop the analysis indexes when the store holds no commit yet (fast first load)."""
         with self.engine.begin() as conn:
+            self._write_lock(conn)
             if conn.execute(select(s.commit.c.commit_id).limit(1)).first() is not None:
                 return False
             for ix in s.INDEXES:
-                ix.drop(conn, checkfirst=True)
+                conn.execute(DropIndex(ix, if_exists=True))
         return True
 
     # -- bulk rows ----------------------------------------------------------------------
@@ -217,6 +230,11 @@ class StoreWriter:
             self._persons = {(n, e): i for i, n, e in
                              conn.execute(select(p.c.person_id, p.c.name, p.c.email))}
         missing = sorted({x for x in people if x not in self._persons})
+        if missing:     # another miner may have added them: refresh under the write lock
+            p = s.person
+            self._persons = {(n, e): i for i, n, e in
+                             conn.execute(select(p.c.person_id, p.c.name, p.c.email))}
+            missing = sorted({x for x in people if x not in self._persons})
         if missing:
             p = s.person
             rows = conn.execute(
@@ -237,6 +255,7 @@ class StoreWriter:
         people += [t.person for r in rows for t in r.trailers if t.person]
         try:
             with self.engine.begin() as conn:
+                self._write_lock(conn)      # before max(commit_id): ids stay unique
                 ids = self._person_ids(conn, people)
                 next_id = (conn.execute(select(func.max(s.commit.c.commit_id))).scalar() or 0) + 1
                 commits, parents, files, trailers, fixes, reverts, unparsed = \
