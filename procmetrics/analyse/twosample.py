@@ -1,0 +1,333 @@
+"""Compare two samples as distributions (and two proportions), with effect sizes.
+
+Per-commit or per-defect quantities before and after a date are compared as
+whole distributions, never by mean +- sd: Mann-Whitney U, two-sample
+Kolmogorov-Smirnov and the k-sample Anderson-Darling test with a permutation
+p-value; the Hodges-Lehmann shift with its distribution-free (Moses) interval;
+Cliff's delta with a bootstrap interval; the difference of medians with a
+bootstrap interval (or, for small samples, a conservative interval from the
+two order-statistic intervals). Two proportions: difference with Newcombe's
+hybrid score interval, Fisher's exact test and Pearson's chi-square.
+
+Sign convention: every effect is ``b - a`` (e.g. after minus before).
+
+Caveats: ``too_few_observations`` when a side has fewer than
+:data:`MIN_PER_SIDE` values; ``absence_of_evidence`` when no test rejects;
+``negligible_effect`` when a test rejects but ``|delta| < 0.147``.
+
+References
+----------
+Hollander, M., Wolfe, D. A. & Chicken, E. (2014). Nonparametric Statistical
+Methods, 3rd ed., sec. 4.2-4.3 (Hodges-Lehmann estimator, Moses interval).
+Cliff, N. (1993). Dominance statistics. Psychological Bulletin 114:494-509.
+Romano, J., Kromrey, J. D., Coraggio, J. & Skowronek, J. (2006). Appropriate
+statistics for ordinal level data. Annual meeting of the Florida Association
+of Institutional Research (|delta| thresholds 0.147, 0.33, 0.474).
+Scholz, F. W. & Stephens, M. A. (1987). K-sample Anderson-Darling tests. JASA
+82:918-924.
+Newcombe, R. G. (1998). Interval estimation for the difference between
+independent proportions. Statistics in Medicine 17:873-890 (method 10).
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+from scipy import stats
+
+from procmetrics.analyse import intervals as iv
+from procmetrics.analyse.result import Caveat, Estimate, caveat, to_plain
+from procmetrics.errors import InsufficientData
+
+MIN_PER_SIDE = 10
+NEGLIGIBLE, SMALL, MEDIUM = 0.147, 0.33, 0.474
+_EXACT_MAX_CELLS = 10_000
+_MATERIALISE_MAX = 4_000_000
+
+
+@dataclass(frozen=True)
+class HypothesisTest:
+    """One test: statistic, p-value and how it was computed."""
+
+    name: str
+    statistic: float
+    p_value: float
+    method: str
+    note: str = ""
+
+    def to_dict(self) -> dict[str, Any]:
+        return to_plain(self)
+
+
+@dataclass(frozen=True)
+class DistributionComparison:
+    """Two samples compared as distributions (effects are ``b - a``)."""
+
+    quantity: str
+    label_a: str
+    label_b: str
+    n_a: int
+    n_b: int
+    median_a: Estimate
+    median_b: Estimate
+    median_difference: Estimate
+    hodges_lehmann: Estimate
+    cliffs_delta: Estimate
+    magnitude: str
+    tests: tuple[HypothesisTest, ...]
+    caveats: tuple[Caveat, ...] = field(default=())
+
+    def to_dict(self) -> dict[str, Any]:
+        return to_plain(self)
+
+
+@dataclass(frozen=True)
+class ProportionComparison:
+    """Two proportions compared (difference is ``p_b - p_a``)."""
+
+    quantity: str
+    label_a: str
+    label_b: str
+    p_a: Estimate
+    p_b: Estimate
+    difference: Estimate
+    tests: tuple[HypothesisTest, ...]
+    caveats: tuple[Caveat, ...] = field(default=())
+
+    def to_dict(self) -> dict[str, Any]:
+        return to_plain(self)
+
+
+def mwu_null_cdf(m: int, n: int) -> np.ndarray:
+    """Exact null distribution of the Mann-Whitney U (no ties): ``P(U <= u)``, u=0..mn.
+
+    Counts arrangements with the recursion f(m, n, u) = f(m-1, n, u-n) + f(m, n-1, u)
+    (Mann & Whitney 1947).
+    """
+    # f[j] holds counts for the current (i, j) over u; build row by row
+    prev = [np.ones(1)]  # i = 0: for each j, U = 0 only
+    for j in range(1, n + 1):
+        prev.append(np.ones(1))
+    for i in range(1, m + 1):
+        cur = [np.ones(1)]  # j = 0
+        for j in range(1, n + 1):
+            a = prev[j]                 # f(i-1, j, u - j): shifted by j
+            b = cur[j - 1]              # f(i, j-1, u)
+            out = np.zeros(i * j + 1)
+            out[j:j + len(a)] += a
+            out[:len(b)] += b
+            cur.append(out)
+        prev = cur
+    f = prev[n]
+    return np.cumsum(f) / f.sum()
+
+
+def _moses_k(m: int, n: int, alpha: float) -> int:
+    """Largest k with P(U <= k - 1) <= alpha/2 (exact for small samples, normal otherwise)."""
+    if m * n <= _EXACT_MAX_CELLS:
+        cdf = mwu_null_cdf(m, n)
+        ok = np.flatnonzero(cdf <= alpha / 2)
+        return int(ok[-1]) + 1 if len(ok) else 0
+    z = stats.norm.ppf(1 - alpha / 2)
+    return int(np.floor(m * n / 2 - z * np.sqrt(m * n * (m + n + 1) / 12.0)))
+
+
+def _kth_difference(a: np.ndarray, b: np.ndarray, k: int) -> float:
+    """k-th smallest (1-based) of all differences b_j - a_i without materialising them."""
+    a = np.sort(a)
+    lo, hi = float(b.min() - a.max()), float(b.max() - a.min())
+    for _ in range(200):
+        mid = (lo + hi) / 2
+        cnt = int((len(a) - np.searchsorted(a, b - mid, side="left")).sum())
+        if cnt >= k:
+            hi = mid
+        else:
+            lo = mid
+        if hi - lo <= 1e-12 * max(1.0, abs(hi)):
+            break
+    return hi
+
+
+def hodges_lehmann(a: np.ndarray, b: np.ndarray, alpha: float = 0.05
+                   ) -> tuple[float, float | None, float | None]:
+    """Hodges-Lehmann shift ``median(b_j - a_i)`` with the Moses interval."""
+    a, b = np.asarray(a, float), np.asarray(b, float)
+    m, n = len(a), len(b)
+    N = m * n
+    k = _moses_k(m, n, alpha)
+    if N <= _MATERIALISE_MAX:
+        d = np.sort(np.subtract.outer(b, a).ravel())
+        est = float(np.median(d))
+        lo = float(d[k - 1]) if k >= 1 else None
+        hi = float(d[N - k]) if k >= 1 else None
+        return est, lo, hi
+    mid = (N + 1) / 2
+    est = (_kth_difference(a, b, int(np.floor(mid))) + _kth_difference(a, b, int(np.ceil(mid)))) / 2
+    if k < 1:
+        return est, None, None
+    return est, _kth_difference(a, b, k), _kth_difference(a, b, N - k + 1)
+
+
+def cliffs_delta(a: np.ndarray, b: np.ndarray) -> float:
+    """``P(B > A) - P(B < A)`` from the Mann-Whitney U of b (ties count half)."""
+    a, b = np.asarray(a, float), np.asarray(b, float)
+    ranks = stats.rankdata(np.concatenate([a, b]))
+    u_b = ranks[len(a):].sum() - len(b) * (len(b) + 1) / 2
+    return float(2 * u_b / (len(a) * len(b)) - 1)
+
+
+def magnitude(delta: float) -> str:
+    """Romano et al. (2006) label for |Cliff's delta|."""
+    d = abs(delta)
+    return ("negligible" if d < NEGLIGIBLE else "small" if d < SMALL
+            else "medium" if d < MEDIUM else "large")
+
+
+def compare_distributions(a, b, *, quantity: str = "value", label_a: str = "before",
+                          label_b: str = "after", alpha: float = 0.05,
+                          n_resamples: int = 999, n_boot: int = 1000,
+                          rng: np.random.Generator) -> DistributionComparison:
+    """Compare two samples as distributions (see the module docstring).
+
+    Parameters
+    ----------
+    a, b : the two samples (NaN dropped).
+    alpha : 1 - interval level and test level.
+    n_resamples : permutations for the Anderson-Darling p-value.
+    n_boot : bootstrap replicates for Cliff's delta and the median difference.
+    rng : numpy Generator (all resampling draws from it).
+
+    Raises
+    ------
+    InsufficientData
+        When a side has fewer than 2 values.
+
+    References
+    ----------
+    Hollander, Wolfe & Chicken (2014); Cliff (1993); Romano et al. (2006);
+    Scholz & Stephens (1987).
+    """
+    a = np.asarray(a, dtype=float)
+    b = np.asarray(b, dtype=float)
+    a, b = a[np.isfinite(a)], b[np.isfinite(b)]
+    m, n = len(a), len(b)
+    if m < 2 or n < 2:
+        raise InsufficientData(f"{quantity}: {m} values {label_a} and {n} {label_b}; need >= 2 each")
+    level = 1 - alpha
+    mw = stats.mannwhitneyu(b, a, alternative="two-sided")
+    ks = stats.ks_2samp(a, b)
+    ad = stats.anderson_ksamp([a, b], variant="midrank", method=stats.PermutationMethod(
+        n_resamples=n_resamples, rng=rng))
+    tests = (
+        HypothesisTest("mann_whitney_u", float(mw.statistic), float(mw.pvalue),
+                       "Mann-Whitney U (scipy, two-sided; U of b)"),
+        HypothesisTest("kolmogorov_smirnov", float(ks.statistic), float(ks.pvalue),
+                       "two-sample Kolmogorov-Smirnov (scipy)"),
+        HypothesisTest("anderson_darling", float(ad.statistic), float(ad.pvalue),
+                       f"k-sample Anderson-Darling, permutation p ({n_resamples} resamples)"),
+    )
+    ma, la, ha = iv.median_ci(a, alpha)
+    mb, lb, hb = iv.median_ci(b, alpha)
+    med_a = Estimate("median", ma, _n(la), _n(ha), level, iv.ORDER_STATISTIC, m)
+    med_b = Estimate("median", mb, _n(lb), _n(hb), level, iv.ORDER_STATISTIC, n)
+    if min(m, n) >= 20:
+        bs = np.array([np.median(rng.choice(b, n)) - np.median(rng.choice(a, m))
+                       for _ in range(n_boot)])
+        dlo, dhi = np.quantile(bs, [alpha / 2, 1 - alpha / 2])
+        mdiff = Estimate("median_difference", mb - ma, float(dlo), float(dhi), level,
+                         f"bootstrap percentile ({n_boot} replicates)", m + n)
+    else:
+        lev = np.sqrt(level)  # both order-statistic intervals cover jointly with >= level
+        _, la2, ha2 = iv.median_ci(a, 1 - lev)
+        _, lb2, hb2 = iv.median_ci(b, 1 - lev)
+        mdiff = Estimate("median_difference", mb - ma, _n(lb2 - ha2), _n(hb2 - la2), level,
+                         "conservative: difference of order-statistic intervals at "
+                         f"level {lev:.4f} each (small sample)", m + n)
+    hl, hlo, hhi = hodges_lehmann(a, b, alpha)
+    hle = Estimate("hodges_lehmann_shift", hl, hlo, hhi, level,
+                   "Hodges-Lehmann with Moses distribution-free interval", m + n)
+    delta = cliffs_delta(a, b)
+    boot = np.array([cliffs_delta(rng.choice(a, m), rng.choice(b, n)) for _ in range(n_boot)])
+    clo, chi = np.quantile(boot, [alpha / 2, 1 - alpha / 2])
+    cd = Estimate("cliffs_delta", delta, float(clo), float(chi), level,
+                  f"Cliff's delta, bootstrap percentile ({n_boot} replicates)", m + n)
+    mag = magnitude(delta)
+    cavs = _caveats(quantity, m, n, label_a, label_b, tests, delta, mag, alpha)
+    return DistributionComparison(quantity, label_a, label_b, m, n, med_a, med_b, mdiff, hle,
+                                  cd, mag, tests, tuple(cavs))
+
+
+def _n(x) -> float | None:
+    return None if x is None or not np.isfinite(x) else float(x)
+
+
+def _caveats(quantity, m, n, label_a, label_b, tests, delta, mag, alpha) -> list[Caveat]:
+    cavs = []
+    if min(m, n) < MIN_PER_SIDE:
+        cavs.append(caveat("too_few_observations",
+                           f"{quantity}: n={m} {label_a}, n={n} {label_b} "
+                           f"(< {MIN_PER_SIDE} on a side)"))
+    significant = any(t.p_value < alpha for t in tests)
+    if not significant:
+        cavs.append(caveat("absence_of_evidence",
+                           f"{quantity}: no test rejects at {alpha}; this is no evidence of a "
+                           "change, not evidence that nothing changed", "info"))
+    elif mag == "negligible":
+        cavs.append(caveat("negligible_effect",
+                           f"{quantity}: statistically significant but |Cliff's delta| = "
+                           f"{abs(delta):.3f} < {NEGLIGIBLE} (negligible)", "info"))
+    return cavs
+
+
+def newcombe_interval(x_a: int, n_a: int, x_b: int, n_b: int, alpha: float = 0.05
+                      ) -> tuple[float, float, float]:
+    """Difference ``x_b/n_b - x_a/n_a`` with Newcombe's hybrid score interval (method 10)."""
+    pa, pb = x_a / n_a, x_b / n_b
+    (la,), (ua,) = iv.wilson(np.array([x_a]), np.array([n_a]), alpha)
+    (lb,), (ub,) = iv.wilson(np.array([x_b]), np.array([n_b]), alpha)
+    d = pb - pa
+    lo = d - np.sqrt((pb - lb) ** 2 + (ua - pa) ** 2)
+    hi = d + np.sqrt((ub - pb) ** 2 + (pa - la) ** 2)
+    return float(d), float(lo), float(hi)
+
+
+def compare_proportions(x_a: int, n_a: int, x_b: int, n_b: int, *, quantity: str = "share",
+                        label_a: str = "before", label_b: str = "after",
+                        alpha: float = 0.05) -> ProportionComparison:
+    """Compare two proportions: Newcombe interval, Fisher exact and Pearson chi-square.
+
+    References
+    ----------
+    Newcombe (1998) method 10; Fisher's exact test (scipy); Pearson chi-square
+    without continuity correction (scipy ``chi2_contingency(correction=False)``).
+    """
+    if n_a < 1 or n_b < 1:
+        raise InsufficientData(f"{quantity}: n={n_a} {label_a}, n={n_b} {label_b}")
+    level = 1 - alpha
+    (la,), (ua,) = iv.wilson(np.array([x_a]), np.array([n_a]), alpha)
+    (lb,), (ub,) = iv.wilson(np.array([x_b]), np.array([n_b]), alpha)
+    pa = Estimate("proportion", x_a / n_a, float(la), float(ua), level, iv.WILSON, n_a)
+    pb = Estimate("proportion", x_b / n_b, float(lb), float(ub), level, iv.WILSON, n_b)
+    d, lo, hi = newcombe_interval(x_a, n_a, x_b, n_b, alpha)
+    diff = Estimate("difference", d, lo, hi, level, "Newcombe hybrid score (method 10)",
+                    n_a + n_b)
+    table = np.array([[x_a, n_a - x_a], [x_b, n_b - x_b]])
+    _, p_f = stats.fisher_exact(table)
+    tests = [HypothesisTest("fisher_exact", float("nan"), float(p_f),
+                            "Fisher's exact test (scipy, two-sided)")]
+    cavs: list[Caveat] = []
+    if (table.sum(axis=0) > 0).all():
+        chi2, p_c, _, expected = stats.chi2_contingency(table, correction=False)
+        note = "" if expected.min() >= 5 else "an expected count < 5: rely on Fisher's test"
+        tests.append(HypothesisTest("chi_square", float(chi2), float(p_c),
+                                    "Pearson chi-square, no continuity correction", note))
+    if min(n_a, n_b) < MIN_PER_SIDE:
+        cavs.append(caveat("too_few_observations",
+                           f"{quantity}: n={n_a} {label_a}, n={n_b} {label_b}"))
+    if all(t.p_value >= alpha for t in tests):
+        cavs.append(caveat("absence_of_evidence",
+                           f"{quantity}: no test rejects at {alpha}; no evidence of a change, "
+                           "not evidence that nothing changed", "info"))
+    return ProportionComparison(quantity, label_a, label_b, pa, pb, diff, tuple(tests),
+                                tuple(cavs))
