@@ -173,9 +173,13 @@ def select_fix_times(defects: pd.DataFrame, *, end: Any, origin: Any = None,
             cav.append(caveat("heuristic_classification", "without tag ancestry, an "
                               "introducer dated before the tag is taken as shipped in it"))
         d = d[shipped]
+        early = d["fix_date"] <= origin_ts
+        n_before = int(early.sum())
+        d = d[~early]
         scope += f"{'' if scope == 'whole history' else ','} fixes of release {after_tag} " \
                  "after its tag"
         scope = scope.replace("whole history", "").strip(", ")
+        scope += f" ({n_before} shipped defect(s) fixed before the tag left out)"
     d = d[~d["negative"].astype(bool)]
     ev = (d.groupby("fix_hash").agg(fix_date=("fix_date", "min"),
                                     n_defects=("introducer_hash", "size")).reset_index())

@@ -130,7 +130,9 @@ def kaplan_meier(durations: Any, observed: Any = None, *, level: float = 0.95,
     })
     cut = _cut(tab["time"].to_numpy(), tab["at_risk"].to_numpy(), min_at_risk)
     tab["shown"] = True if cut is None else tab["time"] < cut
-    tab["greenwood_se"] = np.concatenate([[0.0] * pad, s_hat * np.sqrt(gw)])
+    with np.errstate(invalid="ignore"):
+        se_s = np.where(s_hat > 0, s_hat * np.sqrt(gw), np.nan)   # undefined once S = 0
+    tab["greenwood_se"] = np.concatenate([[0.0] * pad, se_s])
     return SurvivalCurve("kaplan_meier", tab, int(len(t)), int(e.sum()), level,
                          "Greenwood variance, log(-log) transformed", cut, min_at_risk,
                          "the observed lifetimes, taken at face value")

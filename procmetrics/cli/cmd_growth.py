@@ -1,0 +1,87 @@
+"""``procmetrics growth``: trend tests and (if earned) reliability-growth models of fix times."""
+from __future__ import annotations
+
+import argparse
+from pathlib import Path
+
+import numpy as np
+
+from procmetrics.cli import add_store_argument
+from procmetrics.cli.cmd_lifetimes import containment, load_tables, write_json
+
+
+def register(sub: argparse._SubParsersAction) -> None:
+    p = sub.add_parser("growth", help="trend tests and reliability-growth models of fixes",
+                       description="Laplace and MIL-HDBK-189 trend tests on fix times; "
+                       "Goel-Okumoto and power-law NHPP models only where a trend test shows "
+                       "a falling fix rate, with fit checks and guarded predictions.")
+    add_store_argument(p)
+    p.add_argument("--repo", help="repository name in the store (needed when it holds several)")
+    p.add_argument("--subsystem", metavar="NAME", help="only defects introduced in this subsystem")
+    p.add_argument("--after-tag", metavar="TAG", help="only defects shipped in release TAG, "
+                   "fixed after the tag (time counted from the tag)")
+    p.add_argument("--require", choices=["own", "both", "either"], default="own",
+                   help="trend evidence needed before a model is fitted (default: each "
+                   "model's own test)")
+    p.add_argument("--ahead", type=float, default=90.0, metavar="DAYS",
+                   help="prediction window in days (default 90)")
+    p.add_argument("--boot", type=int, default=200, metavar="B", help="bootstrap refits")
+    p.add_argument("--seed", type=int, default=20240603, help="random seed (bootstrap)")
+    p.add_argument("--out", metavar="DIR", help="write JSON, CSV and figures here")
+    p.set_defaults(func=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    from procmetrics.analyse.defects import build_defects
+    from procmetrics.analyse.growth import analyse_growth, select_fix_times
+
+    tables, name = load_tables(args.store, args.repo)
+    table = build_defects(tables["fix_links"], commits=tables["commits"],
+                          commit_subsystems=tables["commit_subsystems"])
+    cont = None
+    if args.after_tag:
+        d = table.defects
+        cont = containment(tables, list(d["introducer_hash"]), [args.after_tag])
+    ft = select_fix_times(table.defects, end=table.end_date,
+                          origin=tables["commits"]["committer_date"].min(),
+                          subsystem=args.subsystem, after_tag=args.after_tag,
+                          tags=tables["tags"], tag_containment=cont)
+    res = analyse_growth(ft, require=args.require, ahead=args.ahead, n_boot=args.boot,
+                         rng=np.random.default_rng(args.seed))
+    print(f"{name}: {res.n} fix events ({res.scope}), {res.origin:%Y-%m-%d} .. "
+          f"{res.end_date:%Y-%m-%d}")
+    if res.trend is not None:
+        for t in (res.trend.laplace, res.trend.power_law):
+            print(f"  trend {t.name:<10} statistic={t.statistic:.3f} p_growth={t.p_growth:.3g} "
+                  f"-> {t.direction}")
+    for m in res.models:
+        if not m.fitted:
+            print(f"  {m.model}: refused ({m.refused_reason})")
+            continue
+        ps = ", ".join(f"{p.name}={p.value:.4g} [{_n(p.low)}, {_n(p.high)}]" for p in m.fit.params)
+        print(f"  {m.model}: {ps}")
+        for pr in m.predictions:
+            if pr.estimate is None:
+                print(f"    {pr.name}: refused ({pr.refused_reason})")
+            else:
+                e = pr.estimate
+                print(f"    {pr.name}: {e.value:.3g} [{_n(e.low)}, {_n(e.high)}] (extrapolated)")
+    for cv in res.caveats:
+        print(f"  caveat [{cv.code}] {cv.message}")
+    if args.out:
+        from procmetrics.plot.growth import plot_growth, plot_u_plot
+
+        out = Path(args.out)
+        out.mkdir(parents=True, exist_ok=True)
+        write_json(out / "growth.json", res.to_dict())
+        res.curve.to_csv(out / "growth_curve.csv", index=False)
+        res.events.to_csv(out / "growth_events.csv", index=False,
+                          date_format="%Y-%m-%dT%H:%M:%SZ")
+        plot_growth(res).figure.savefig(out / "growth.png", dpi=120, bbox_inches="tight")
+        if any(m.fitted for m in res.models):
+            plot_u_plot(res).figure.savefig(out / "u_plot.png", dpi=120, bbox_inches="tight")
+    return 0
+
+
+def _n(x: float | None) -> str:
+    return "unbounded" if x is None else f"{x:.4g}"

@@ -1,0 +1,61 @@
+"""Reliability-growth figures: observed cumulative fixes with fitted curves, u-plot.
+
+Figures are built on :class:`matplotlib.figure.Figure` (no pyplot, no global
+backend state); save them with ``ax.figure.savefig(path)``.
+"""
+from __future__ import annotations
+
+from typing import Any
+
+from matplotlib.figure import Figure
+import numpy as np
+from matplotlib.axes import Axes
+
+
+def plot_growth(result: Any, *, ax: Axes | None = None) -> Axes:
+    """Observed cumulative fixes (steps) and each fitted model with its band.
+
+    The part of a fitted curve beyond the end of the history is dashed
+    (extrapolation). Refused models are named in the title.
+    ``result`` is a :class:`procmetrics.analyse.growth.GrowthResult`.
+    """
+    ax = ax if ax is not None else Figure(figsize=(6.4, 4.0)).subplots()
+    c = result.curve
+    obs = c[c["model"] == "observed"]
+    ax.step(obs["time"], obs["observed"], where="post", color="black",
+            label=f"observed fixes (n={result.n})")
+    for name, tab in c[c["model"] != "observed"].groupby("model", sort=True):
+        inside, beyond = tab[~tab["extrapolated"]], tab[tab["extrapolated"]]
+        line = ax.plot(inside["time"], inside["fitted"], label=name.replace("_", "-"))[0]
+        if len(beyond):
+            ax.plot(np.r_[inside["time"].iloc[-1:], beyond["time"]],
+                    np.r_[inside["fitted"].iloc[-1:], beyond["fitted"]],
+                    color=line.get_color(), ls="--")
+        ax.fill_between(tab["time"], tab["low"], tab["high"], color=line.get_color(),
+                        alpha=0.15, lw=0)
+    end = (result.end_date - result.origin).total_seconds() / 86400
+    ax.axvline(end, color="gray", ls=":", lw=0.8)
+    refused = [m.model for m in result.models if not m.fitted]
+    ax.set_title("Cumulative fixes" + (f" (refused: {', '.join(refused)})" if refused else ""))
+    ax.set_xlabel(f"days since {result.origin:%Y-%m-%d}")
+    ax.set_ylabel("cumulative fixing commits")
+    ax.legend(fontsize="small")
+    return ax
+
+
+def plot_u_plot(result: Any, *, ax: Axes | None = None) -> Axes:
+    """Littlewood's u-plot: ECDF of prequential u-values against the diagonal."""
+    ax = ax if ax is not None else Figure(figsize=(4.0, 4.0)).subplots()
+    ax.plot([0, 1], [0, 1], color="gray", lw=0.8)
+    for m in result.models:
+        if not m.fitted or not m.u_values:
+            continue
+        u = np.sort(np.asarray(m.u_values))
+        y = np.arange(1, len(u) + 1) / len(u)
+        ax.step(np.r_[0, u, 1], np.r_[0, y, 1], where="post",
+                label=f"{m.model.replace('_', '-')} (n={len(u)})")
+    ax.set_xlabel("u")
+    ax.set_ylabel("empirical distribution of u")
+    ax.set_title("u-plot (prequential one-step predictions)")
+    ax.legend(fontsize="small")
+    return ax
