@@ -15,6 +15,7 @@ residual-defect claims).
 """
 from __future__ import annotations
 
+from dataclasses import dataclass
 from typing import Any, Mapping
 
 import numpy as np
@@ -158,7 +159,7 @@ def _glm(y: np.ndarray, X: np.ndarray, trials: np.ndarray, names: list[str], lev
 
     try:
         return fit_model(y, X, kind="proportion", trials=trials, names=names,
-                         alpha=1 - level, hac="auto")
+                         alpha=round(1 - level, 10), hac="auto")
     except InsufficientData as exc:
         raise Undecidable(f"the model cannot be fitted: {exc}") from exc
 
@@ -168,13 +169,47 @@ def _pct(x: float) -> str:
 
 
 # --------------------------------------------------------------- evaluators
-def eval_shift(claim: Claim, ctx: ClaimContext, direction: str) -> ClaimVerdict:
-    p = claim.params
-    metric = p.get("metric", "review_coverage")
-    date = cl.resolve_date(p["date"], ctx, "date")
-    f = _flags(ctx, metric, p.get("subsystem"))
+@dataclass(frozen=True)
+class ShareShift:
+    """A share before and after a date: counts, the step model and its odds ratio.
+
+    ``rows`` has one row per (period, side) with columns ``period``, ``after``,
+    ``x`` (commits counted), ``n`` (commits) and ``t`` (first commit date).
+    """
+
+    metric: str
+    date: pd.Timestamp
+    n_before: int
+    x_before: int
+    n_after: int
+    x_after: int
+    odds_ratio: Estimate
+    p_value: float
+    rows: pd.DataFrame
+    fit: Any
+
+    @property
+    def diagnostics(self) -> tuple:
+        return self.fit.diagnostics
+
+    @property
+    def caveats(self) -> tuple:
+        return self.fit.caveats
+
+
+def share_shift(ctx: ClaimContext, metric: str, date: pd.Timestamp, *,
+                subsystem: str | None = None, level: float = 0.95) -> ShareShift:
+    """Step model of a share at ``date``: logit(share) = a + b * after, per-period counts.
+
+    Raises :class:`Undecidable` when a side has fewer than ``ctx.min_n`` commits
+    or fewer than two periods.
+
+    References
+    ----------
+    McCullagh & Nelder (1989), ch. 4 (binomial GLM; quasi-likelihood scale).
+    """
+    f = _flags(ctx, metric, subsystem)
     before, after = f[f["date"] < date], f[f["date"] >= date]
-    method = SPECS[claim.kind].method
     for side, part in (("before", before), ("after", after)):
         if len(part) < ctx.min_n:
             raise Undecidable(f"only {len(part)} commits {side} {date:%Y-%m-%d} "
@@ -184,25 +219,31 @@ def eval_shift(claim: Claim, ctx: ClaimContext, direction: str) -> ClaimVerdict:
         raise Undecidable(f"fewer than two {ctx.period}s on one side of {date:%Y-%m-%d}")
     X = np.column_stack([np.ones(len(rows)), rows["after"].astype(float)])
     fit = _glm(rows["x"].to_numpy(float), X, rows["n"].to_numpy(float),
-               ["const", "after"], claim.level)
+               ["const", "after"], level)
     r = fit.params.set_index("term").loc["after"]
     est = Estimate("odds ratio after/before", float(np.exp(r["estimate"])),
-                   float(np.exp(r["ci_low"])), float(np.exp(r["ci_high"])), claim.level,
+                   float(np.exp(r["ci_low"])), float(np.exp(r["ci_high"])), level,
                    f"{fit.model}; {fit.cov_type} SE", int(len(f)))
-    sb, sa = before["hit"].mean(), after["hit"].mean()
-    extra = [f"{metric.replace('_', ' ')}: {_pct(sb)} of {len(before):,} commits before "
-             f"{date:%Y-%m-%d}, {_pct(sa)} of {len(after):,} after"]
-    cav = list(fit.caveats) + _adoption_caveat(ctx, metric)
-    blocking = [c for c in cav if c.code == "tag_adoption_rising"]
-    if blocking:
-        return ClaimVerdict(claim, cl.UNDECIDABLE, tuple(c.message for c in blocking) +
-                            tuple(extra), method, n=int(len(f)), estimate=est,
-                            caveats=tuple(cav))
-    return cl.decide(claim, est, side="above" if direction == "up" else "below",
-                     threshold=1.0, what="odds ratio after/before", method=method,
-                     n=int(len(f)), test={"name": "Wald z (after term)",
-                                          "p_value": float(r["p_value"])},
-                     diagnostics=fit.diagnostics, caveats=cav, extra=extra)
+    return ShareShift(metric, date, int(len(before)), int(before["hit"].sum()),
+                      int(len(after)), int(after["hit"].sum()), est, float(r["p_value"]),
+                      rows, fit)
+
+
+def eval_shift(claim: Claim, ctx: ClaimContext, direction: str) -> ClaimVerdict:
+    p = claim.params
+    metric = p.get("metric", "review_coverage")
+    date = cl.resolve_date(p["date"], ctx, "date")
+    sh = share_shift(ctx, metric, date, subsystem=p.get("subsystem"), level=claim.level)
+    method = SPECS[claim.kind].method
+    n = sh.n_before + sh.n_after
+    extra = [f"{metric.replace('_', ' ')}: {_pct(sh.x_before / sh.n_before)} of "
+             f"{sh.n_before:,} commits before {date:%Y-%m-%d}, "
+             f"{_pct(sh.x_after / sh.n_after)} of {sh.n_after:,} after"]
+    cav = list(sh.caveats) + _adoption_caveat(ctx, metric)
+    return cl.decide(claim, sh.odds_ratio, side="above" if direction == "up" else "below",
+                     threshold=1.0, what="odds ratio after/before", method=method, n=n,
+                     test={"name": "Wald z (after term)", "p_value": sh.p_value},
+                     diagnostics=sh.diagnostics, caveats=cav, extra=extra)
 
 
 def eval_level(claim: Claim, ctx: ClaimContext, side: str) -> ClaimVerdict:
@@ -250,18 +291,13 @@ def eval_trend(claim: Claim, ctx: ClaimContext, side: str) -> ClaimVerdict:
     pm = compute_period_metrics(c, ctx.trailers, tags=ctx.tags,
                                 config=MetricConfig(period=ctx.period, metrics=(metric,)))
     try:
-        tr = fit_trend(pm.table, metric, ALL, alpha=1 - claim.level)
+        tr = fit_trend(pm.table, metric, ALL, alpha=round(1 - claim.level, 10))
     except InsufficientData as exc:
         raise Undecidable(f"no trend can be fitted: {exc}") from exc
     cav = list(tr.caveats) + _adoption_caveat(ctx, metric)
-    blocking = [cv for cv in cav if cv.code == "tag_adoption_rising"]
     est = tr.ratio_per_year or tr.slope
     what = ("odds ratio per year" if tr.ratio_per_year is not None else "slope per year")
     thr = 1.0 if tr.ratio_per_year is not None else 0.0
-    if blocking:
-        return ClaimVerdict(claim, cl.UNDECIDABLE, tuple(cv.message for cv in blocking),
-                            SPECS[claim.kind].method, n=tr.n, estimate=est,
-                            diagnostics=tr.diagnostics, caveats=tuple(cav))
     return cl.decide(claim, est, side=side, threshold=thr, what=f"{what} of "
                      f"{metric.replace('_', ' ')}", method=f"{tr.model} over {tr.n_periods} "
                      f"{ctx.period}s", n=tr.n, diagnostics=tr.diagnostics, caveats=cav)
@@ -338,6 +374,16 @@ def eval_lifetimes_shorter(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
     except InsufficientData as exc:
         raise Undecidable(str(exc)) from exc
     row = res.summary.set_index("term").loc["after"]
+    cav = list(res.caveats)
+    if not res.ph_holds:
+        from procmetrics.analyse.survival_tests import logrank
+
+        lr = logrank(d["lifetime"], d["after"])
+        cav.append(caveat("diagnostic_failed", "the hazards before and after are not "
+                          "proportional (Schoenfeld test), so one hazard ratio cannot say "
+                          "whether lifetimes are shorter; the log-rank test gives p = "
+                          f"{lr.p_value:.3g} for any difference between the distributions",
+                          "fail"))
     est = Estimate("hazard ratio of fixing, after/before", float(row["hazard_ratio"]),
                    float(row["hr_low"]), float(row["hr_high"]), claim.level, res.method,
                    res.n)
@@ -349,7 +395,7 @@ def eval_lifetimes_shorter(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
     return cl.decide(claim, est, side="above", threshold=1.0, what="hazard ratio of fixing "
                      "(after/before)", method=SPECS[claim.kind].method, n=res.n,
                      test={"name": "Wald z (Cox)", "p_value": float(row["p"])},
-                     diagnostics=res.diagnostics, caveats=res.caveats, extra=extra)
+                     diagnostics=res.diagnostics, caveats=cav, extra=extra)
 
 
 def eval_fix_rate(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
@@ -369,18 +415,14 @@ def eval_fix_rate(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
     T = float((end - start).total_seconds() / 86400.0)
     fit = fit_power_law(t, T, level=claim.level)
     beta = next(e for e in fit.params if e.name == "beta")
-    tests = trend_tests(t, T, alpha=1 - claim.level)
+    tests = trend_tests(t, T, alpha=round(1 - claim.level, 10))
     cav = _adoption_caveat(ctx, "fix_ratio")
-    if cav:
-        return ClaimVerdict(claim, cl.UNDECIDABLE, tuple(cv.message for cv in cav),
-                            SPECS[claim.kind].method, n=len(t), estimate=beta,
-                            caveats=tuple(cav))
     extra = [tests.message, "a falling fix rate is consistent with fewer defects, but "
              "equally with less testing, less use or a smaller team"]
     return cl.decide(claim, beta, side="below", threshold=1.0, what="power-law shape beta",
                      method=SPECS[claim.kind].method, n=len(t),
                      test={"name": "Laplace test (growth, one-sided)",
-                           "p_value": float(tests.laplace.p_growth)}, extra=extra)
+                           "p_value": float(tests.laplace.p_growth)}, caveats=cav, extra=extra)
 
 
 def eval_not_supportable(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:

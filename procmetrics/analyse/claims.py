@@ -154,9 +154,16 @@ class Undecidable(Exception):
 
 Evaluator = Callable[[Claim, ClaimContext], ClaimVerdict]
 
-#: caveat codes that make a claim undecidable when the evaluator meets them
-BLOCKING = {"diagnostic_failed", "model_refused", "not_identifiable", "too_few_observations",
-            "shallow_history", "rewritten_history"}
+#: caveat codes that make a claim undecidable (at severity warn or fail)
+BLOCKING = {"model_refused", "not_identifiable", "too_few_observations",
+            "shallow_history", "rewritten_history", "tag_adoption_rising"}
+
+
+def blocking_caveats(caveats: Sequence[Caveat]) -> list[Caveat]:
+    """Caveats that stop a verdict: :data:`BLOCKING` codes at warn or fail, and
+    diagnostics that failed without a remedy (``diagnostic_failed`` at fail)."""
+    return [c for c in caveats if (c.code in BLOCKING and c.severity != "info")
+            or (c.code == "diagnostic_failed" and c.severity == "fail")]
 
 
 def decide(claim: Claim, est: Estimate, *, side: str, threshold: float, what: str,
@@ -167,19 +174,21 @@ def decide(claim: Claim, est: Estimate, *, side: str, threshold: float, what: st
     """Apply the interval rule: supported when the whole interval is on ``side`` of ``threshold``.
 
     ``side`` is ``"above"`` or ``"below"``; ``what`` names the quantity in words.
-    Blocking caveats (see :data:`BLOCKING`, severity warn or fail) and failed
-    diagnostics make the verdict ``undecidable``.
+    Blocking caveats (:func:`blocking_caveats`) make the verdict ``undecidable``;
+    other warnings are added to the reasons. ``diagnostics`` are reported as
+    evidence only: a model that remedied a failed check (robust errors, a
+    quasi-likelihood scale) says so in its caveats.
     """
     level = f"{est.level:.0%}"
-    blocking = [c for c in caveats if c.code in BLOCKING and c.severity != "info"]
-    failed = [d for d in diagnostics if d.verdict == "fail"]
+    blocking = blocking_caveats(caveats)
+    cautions = [f"caution: {c.message}" for c in caveats
+                if c.severity == "warn" and c not in blocking]
+    extra = list(extra) + cautions
     common = dict(method=method, n=n, estimate=est, test=test,
                   diagnostics=tuple(diagnostics), caveats=tuple(caveats))
-    if blocking or failed:
-        reasons = [f"{c.message}" for c in blocking]
-        reasons += [f"diagnostic {d.name} failed ({d.method}; threshold {d.threshold})"
-                    for d in failed]
-        return ClaimVerdict(claim, UNDECIDABLE, tuple(reasons + list(extra)), **common)
+    if blocking:
+        reasons = [c.message for c in blocking]
+        return ClaimVerdict(claim, UNDECIDABLE, tuple(reasons + extra), **common)
     if est.value is None or est.low is None or est.high is None:
         return ClaimVerdict(claim, UNDECIDABLE, (
             f"the {what} or its interval cannot be estimated from this data",

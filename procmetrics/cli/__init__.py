@@ -16,7 +16,7 @@ from procmetrics import __version__
 from procmetrics.errors import ProcmetricsError
 
 # Order is the order shown in --help.
-COMMANDS: list[str] = ["mine", "export"]
+COMMANDS: list[str] = ["mine", "export", "report", "check", "lifetimes", "growth"]
 
 
 def build_parser() -> argparse.ArgumentParser:

@@ -53,10 +53,12 @@ def from_result(result: Any, target: str) -> list[Flag]:
         if isinstance(item, Caveat):
             out.append(Flag(item.code, item.severity, target, item.message, "result"))
         elif isinstance(item, Diagnostic) and item.verdict == "fail":
+            # reported for the record; whether it was remedied is in the result's caveats
             value = "n/a" if item.value is None else f"{item.value:.4g}"
-            out.append(Flag("diagnostic_failed", "warn", target,
-                            f"{item.name} failed ({item.method}: value {value}, "
-                            f"threshold {item.threshold}){'; ' + item.note if item.note else ''}",
+            out.append(Flag("diagnostic_failed", "info", target,
+                            f"check {item.name} failed ({item.method}: value {value}, "
+                            f"threshold {item.threshold}){'; ' + item.note if item.note else ''}"
+                            "; see the model's caveats for whether it was remedied",
                             "result"))
         elif isinstance(item, Estimate) and item.extrapolated:
             out.append(Flag("extrapolation", "warn", target,
@@ -158,7 +160,8 @@ def rule_flags(target: str, *, n: int | None, min_n: int | None, method: str = "
     if lifetime and not truncation_checked:
         out.append(Flag("truncation_bias", "warn", target,
                         "only defects already fixed are seen, and long-lived ones introduced "
-                        "late cannot have been fixed yet: lifetime summaries are biased low",
+                        "late cannot have been fixed yet: naive lifetime summaries (taken at "
+                        "face value) are biased short; quote the truncation-aware ones",
                         "report"))
     return out
 

@@ -43,13 +43,15 @@ def sha256_file(path: Path) -> str:
     return h.hexdigest()
 
 
-def output_checksums(out: Path) -> dict[str, str]:
-    """SHA-256 of every file in the report folder except the manifest itself."""
-    files = sorted(p for p in out.rglob("*") if p.is_file() and p.name != "manifest.json")
-    return {p.relative_to(out).as_posix(): sha256_file(p) for p in files}
+def output_checksums(out: Path, names: list[str]) -> dict[str, str]:
+    """SHA-256 of the files this report wrote (names relative to ``out``).
+
+    Only our own files: the folder may also hold the store or other material.
+    """
+    return {name: sha256_file(out / name) for name in sorted(names)}
 
 
-def build_manifest(*, out: Path, options: ReportOptions, store_url: str, dialect: str,
+def build_manifest(*, out: Path, written: list[str], options: ReportOptions, store_url: str, dialect: str,
                    schema_version: int, store_checksum: str, repository: dict[str, Any],
                    mining_runs: list[dict[str, Any]], pdf: dict[str, Any], prepared: str,
                    claims: dict[str, Any] | None) -> dict[str, Any]:
@@ -66,7 +68,7 @@ def build_manifest(*, out: Path, options: ReportOptions, store_url: str, dialect
         "claims_file": claims,
         "pdf": pdf,
         "versions": versions(),
-        "outputs": output_checksums(out),
+        "outputs": output_checksums(out, written),
     }
 
 

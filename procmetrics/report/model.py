@@ -82,6 +82,8 @@ class Figure:
     flags: list[Flag] = field(default_factory=list)
     number: int = 0
     alt: str = ""
+    #: what the figure rests on ("history", "trailers", "defects"): store-level flags use it
+    kinds: tuple[str, ...] = ("history",)
 
     def caption_line(self) -> str:
         n = "n not applicable" if self.n is None else f"n = {self.n:,}"
@@ -105,7 +107,7 @@ class Table:
 class Block:
     """A paragraph, a list of items, or a figure/table reference in a section."""
 
-    kind: Literal["p", "list", "figure", "table", "note", "verdicts"]
+    kind: Literal["p", "list", "figure", "table", "note", "verdicts", "caution"]
     text: str = ""
     items: list[str] = field(default_factory=list)
     ref: str = ""

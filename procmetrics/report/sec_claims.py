@@ -1,0 +1,93 @@
+"""Closing sections: claims and verdicts, limitations, and the use of this evidence."""
+from __future__ import annotations
+
+from collections import Counter
+
+from procmetrics.analyse.claims import VERDICT_LABELS, ClaimContext, evaluate_claims
+from procmetrics.analyse.result import CAVEAT_CODES
+from procmetrics.report.context import BuildContext
+from procmetrics.report.flags import describe
+from procmetrics.report.model import Block
+
+CAUTION = (
+    "The figures in this document are statistical evidence about the development process "
+    "as recorded in the repository's history. They support, and never replace, the "
+    "requirements of the applicable safety standard and the judgement of the assessor. A "
+    "history shows what was recorded: work that left no trace in commits and trailers is "
+    "invisible to it, and nothing here shows that defects are absent.")
+
+
+def claim_context(ctx: BuildContext) -> ClaimContext:
+    d, q = ctx.data, ctx.quality
+    return ClaimContext(
+        commits=d["commits"], trailers=d["trailers"], fix_links=d["fix_links"],
+        commit_subsystems=d["commit_subsystems"], tags=d["tags"],
+        policy_date=ctx.policy_date, is_shallow=q["history"]["is_shallow"],
+        rewritten=bool(q["history"]["rewritten"]),
+        unresolved_limit=ctx.options.unresolved_share_limit, min_n=ctx.options.min_n,
+        period=ctx.options.period if ctx.options.period != "release" else "quarter",
+        seed=ctx.seed)
+
+
+def section_claims(ctx: BuildContext) -> None:
+    rep = ctx.report
+    s = rep.add_section("claims", "Claims and verdicts")
+    if ctx.claims is None:
+        s.p("No claims file was given. Claims are checked with “procmetrics check” or by "
+            "passing --claims to “procmetrics report”.")
+        return
+    verdicts = evaluate_claims(ctx.claims.claims, claim_context(ctx))
+    rep.claims = [v.to_dict() for v in verdicts]
+    counts = Counter(v.verdict for v in verdicts)
+    s.p(f"{len(verdicts)} claims were checked against the data (claims file SHA-256 "
+        f"{ctx.claims.sha256[:16]}…). Each claim is judged by one method, named with its "
+        "evidence. A claim is supported when the whole interval lies on the claimed side; "
+        "not supported when it does not (which is not proof of the opposite); undecidable "
+        "when this data cannot answer; and not supportable when no commit data could.")
+    s.bullets([f"{VERDICT_LABELS[k]}: {counts[k]}" for k in VERDICT_LABELS if counts[k]])
+    s.blocks.append(Block("verdicts"))
+
+
+def section_limitations(ctx: BuildContext) -> None:
+    rep = ctx.report
+    s = rep.add_section("limitations", "Limitations")
+    s.p("The report flags, by itself, every figure that the data cannot fully carry. The "
+        "flags raised in this report, by kind:")
+    flags = rep.all_flags()
+    by_code = Counter(f.code for f in flags if f.severity != "info")
+    items = [f"{describe(code)} ({code.replace('_', ' ')}): {n} "
+             f"{'place' if n == 1 else 'places'}" for code, n in sorted(by_code.items())]
+    s.bullets(items or ["none"])
+    s.p("Rules applied: a figure on fewer than "
+        f"{ctx.options.min_n} observations is flagged; defect figures are flagged when more "
+        f"than {ctx.options.unresolved_share_limit:.0%} of fix references are unresolved or "
+        "ambiguous; a shallow or rewritten history flags every figure; a non-significant "
+        "comparison is marked as “no evidence of a change”, never as “no change”; a "
+        "significant but negligible effect is marked as such; results that move with a "
+        "tuning choice (penalty, horizon) say so; many tests without a correction are "
+        "flagged.")
+    s.bullets([
+        "Only what is recorded counts: review that left no trailer, and defects fixed "
+        "without a Fixes: line, are invisible here.",
+        "Commits are not independent: the same people, files and release cycles recur. "
+        "Models on per-period counts allow for overdispersion and autocorrelation, but "
+        "cannot remove every dependence.",
+        "Dates are those recorded by git; rebased and late-applied patches shift them.",
+        "The tidy tables behind every figure are in tables/ so any figure can be checked "
+        "independently.",
+    ])
+    if ctx.skipped:
+        s.p("Analyses that could not be run on this data:")
+        s.bullets(ctx.skipped)
+    codes = sorted(CAVEAT_CODES)
+    s.p("Flag kinds this report can raise: " + "; ".join(
+        f"{c.replace('_', ' ')} ({CAVEAT_CODES[c]})" for c in codes) + ".")
+
+
+def section_use(ctx: BuildContext) -> None:
+    s = ctx.report.add_section("use", "Use of this evidence")
+    s.blocks.append(Block("caution", text=CAUTION))
+    s.p("Every figure states its sample size, method and interval; the numbers behind it "
+        "are in report.json and tables/. The manifest records the repository, the HEAD "
+        "commit, the mining options, the tool versions and checksums, so that the report "
+        "can be regenerated with “procmetrics rerun manifest.json” and compared.")

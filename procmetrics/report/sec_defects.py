@@ -1,0 +1,188 @@
+"""Sections on defects: lifetimes, and reliability growth with its guardrails."""
+from __future__ import annotations
+
+from typing import Any
+
+import pandas as pd
+
+from procmetrics.report import flags as fl
+from procmetrics.report import plots
+from procmetrics.report.context import BuildContext
+from procmetrics.report.model import Figure, Table
+
+DEFECT_KINDS = ("history", "defects", "lifetimes")
+#: curves are not drawn where fewer defects than this remain at risk
+MIN_AT_RISK = 10
+
+
+def compute_defects(ctx: BuildContext) -> Any:
+    from procmetrics.analyse.defects import build_defects
+
+    d = ctx.data
+    cuts = [ctx.policy_date] if ctx.policy_date is not None else None
+    return build_defects(d["fix_links"], commits=d["commits"],
+                         commit_subsystems=d["commit_subsystems"], trailers=d["trailers"],
+                         period_cuts=cuts)
+
+
+def horizon_days(ctx: BuildContext) -> float | None:
+    """Common follow-up for the before/after lifetime comparison (days), or None."""
+    if ctx.policy_date is None or ctx.defects is None or pd.isna(ctx.defects.end_date):
+        return None
+    span = (ctx.defects.end_date - ctx.policy_date).total_seconds() / 86400.0
+    return float(min(365.0, round(span / 2))) if span > 30 else None
+
+
+def section_lifetimes(ctx: BuildContext) -> None:
+    from procmetrics.analyse.lifetime_analysis import analyse_lifetimes
+
+    rep = ctx.report
+    s = rep.add_section("lifetimes", "Defect lifetimes")
+    if ctx.defects is None:
+        s.p("No defect table could be built from the fix references of this store.")
+        return
+    dt = ctx.defects
+    n = int(len(dt.defects))
+    s.p(f"A defect is a resolved fix reference: a commit naming, in a “Fixes:” line, the "
+        f"earlier commit that introduced the problem. {n:,} defects are found "
+        f"(lifetime = committer date of the first fix minus committer date of the "
+        "introducing commit). Defects fixed without a link, and defects not yet found, are "
+        "not in this data.")
+    s.p("Lifetimes seen in a history are right-truncated: a defect introduced a month "
+        "before the end of the history can only appear if it was fixed within that month. "
+        "Taken at face value (the “naive” curve) they are biased short. The truncation-aware "
+        "curve (Lynden-Bell product-limit estimator) corrects this, for defects whose "
+        "lifetime is at most the longest one observed. Both are shown; only the second "
+        "should be quoted.")
+    H = horizon_days(ctx)
+    by = "period" if ctx.policy_date is not None else None
+    la = ctx.attempt("Defect lifetimes", s, lambda: analyse_lifetimes(
+        dt, by=by, horizon=H, level=ctx.options.level, min_at_risk=MIN_AT_RISK, rng=ctx.rng(11)))
+    if la is None:
+        return
+    from procmetrics.analyse.metrics import ALL
+
+    curves = la.curves[la.curves["group"] == ALL].reset_index(drop=True)
+    fig = Figure(
+        "lifetime-curves", "Defect lifetimes: share still unfixed",
+        "Share of defects still unfixed t days after introduction: naive Kaplan–Meier "
+        "(observed lifetimes at face value, biased short) and truncation-aware "
+        "(Lynden-Bell) estimates with pointwise bands; curves stop where fewer than "
+        f"{MIN_AT_RISK} defects remain at risk",
+        n=n - la.n_negative_excluded,
+        method="Kaplan–Meier (Greenwood, log-log band) and Lynden-Bell product-limit "
+               "(percentile bootstrap band)",
+        interval=f"{ctx.options.level:.0%} pointwise bands", data=curves,
+        kinds=DEFECT_KINDS, values={"summary": la.summary, "groups": la.groups,
+                                    "population": la.population},
+        png=plots.survival_png(ctx, la, ALL))
+    ctx.add_figure(s, fig, result=la, min_n=ctx.options.min_n, lifetime=True)
+    summ = la.summary.copy()
+    summ["quantile"] = (summ["quantile"] * 100).round().astype(int)
+    rep.add_table(s, Table(
+        "lifetime-quantiles", "Defect lifetime quantiles (days).",
+        [("group", "Group"), ("method", "Estimator"), ("quantile", "Quantile (%)"),
+         ("value", "Days"), ("low", f"{ctx.options.level:.0%} interval from"),
+         ("high", "to"), ("n", "Defects")], summ,
+        note="naive: observed lifetimes at face value (biased short); truncation_aware: "
+             "Lynden-Bell estimate; horizon: defects introduced at least the horizon before "
+             "the end of the history and fixed within it. Quantiles, not means: lifetimes "
+             "are heavily skewed.",
+        flags=fl.rule_flags("lifetime-quantiles", n=None, min_n=None, lifetime=True)))
+    if la.comparison is not None:
+        c = la.comparison
+        hz = la.curves[la.curves["method"] == "horizon"].reset_index(drop=True)
+        ok = c.p_value < ctx.alpha
+        fig = Figure(
+            "lifetime-before-after", "Defect lifetimes before and after the policy date",
+            f"Lifetimes of defects introduced before and after {ctx.policy_date:%Y-%m-%d}, "
+            f"within a common follow-up horizon of {H:.0f} days (log-rank p = "
+            f"{c.p_value:.3g}; {'a difference' if ok else 'no evidence of a difference'} at "
+            f"the {ctx.alpha:g} level)",
+            n=int(c.n), method=f"Kaplan–Meier per group; {c.method}",
+            interval=f"{ctx.options.level:.0%} pointwise bands", data=hz,
+            kinds=DEFECT_KINDS, values={"test": c.to_dict(), "horizon_days": H},
+            png=plots.survival_groups_png(ctx, la))
+        ctx.add_figure(s, fig, result=c, min_n=ctx.options.min_n, p_value=c.p_value)
+
+
+def section_growth(ctx: BuildContext) -> None:
+    from procmetrics.analyse.growth import analyse_growth, select_fix_times
+
+    rep = ctx.report
+    s = rep.add_section("growth", "Reliability growth and its limits")
+    s.p("Reliability-growth models describe how the rate of fixes changes over time. Here the "
+        "events are commits that fix an earlier commit with a resolved link, in calendar "
+        "days. Trend tests come first (Laplace and the MIL-HDBK-189 power-law test); a model "
+        "is fitted only when its trend test shows a falling fix rate, and is then checked "
+        "for fit (Cramér–von Mises and Kolmogorov–Smirnov on transformed times, a u-plot and "
+        "a hold-out period).")
+    s.note("Guardrails: fixes are not failures in service, calendar time is not exposure, "
+           "the code keeps growing, and tagging practice changes. A falling fix rate is "
+           "consistent with fewer defects, but equally with less testing, less use or a "
+           "smaller team. No number of remaining defects is derived from these curves, and "
+           "every value beyond the end of the history is marked as an extrapolation.")
+    if ctx.defects is None:
+        return
+    dt = ctx.defects
+    ft = ctx.attempt("Fix times", s, lambda: select_fix_times(dt.defects, end=dt.end_date))
+    if ft is None:
+        return
+    g = ctx.attempt("Reliability growth", s, lambda: analyse_growth(
+        ft, alpha=ctx.alpha, level=ctx.options.level, rng=ctx.rng(23)))
+    if g is None:
+        return
+    fitted = [m.model for m in g.models if m.fitted]
+    fig = Figure(
+        "growth-curve", "Cumulative fixes over time",
+        "Cumulative number of fixing commits since " f"{g.origin:%Y-%m-%d}"
+        + (f", with the fitted {', '.join(fitted)} mean-value curve(s) and bootstrap bands; "
+           "the shaded part lies beyond the history and is an extrapolation"
+           if fitted else "; no growth model was fitted (" + g.refused_reason + ")"),
+        n=int(g.n), method="observed counting process; NHPP models by maximum likelihood"
+        if fitted else "observed counting process",
+        interval=f"{ctx.options.level:.0%} parametric bootstrap band" if fitted
+        else "none (no model)", data=g.curve, kinds=("history", "defects", "growth"),
+        values={"scope": g.scope, "population": g.population,
+                "trend": None if g.trend is None else g.trend.to_dict(),
+                "models": [m.to_dict() for m in g.models]},
+        png=plots.growth_png(ctx, g))
+    p = None if g.trend is None else float(g.trend.laplace.p_growth)
+    ctx.add_figure(s, fig, result=g, min_n=ctx.options.min_n, p_value=p)
+    if g.trend is not None:
+        rows = []
+        for t in (g.trend.laplace, g.trend.power_law):
+            rows.append({"test": t.name, "statistic": t.statistic, "n": t.n,
+                         "p_growth": t.p_growth, "p_deterioration": t.p_deterioration,
+                         "direction": t.direction})
+        rep.add_table(s, Table(
+            "growth-trend-tests", "Trend tests on the fix times.",
+            [("test", "Test"), ("statistic", "Statistic"), ("n", "Fixes"),
+             ("p_growth", "p (falling rate)"), ("p_deterioration", "p (rising rate)"),
+             ("direction", "Reading")], pd.DataFrame(rows),
+            note=g.trend.message + ". " + g.trend.rule + "."))
+    rows = []
+    for m in g.models:
+        if not m.fitted:
+            rows.append({"model": m.model, "status": "refused", "detail": m.refused_reason})
+            continue
+        parts = [f"{e.name} = {e.value:.3g} ({e.level:.0%} interval {e.low:.3g} to "
+                 f"{e.high:.3g})" if e.low is not None and e.high is not None else
+                 f"{e.name} = {e.value:.3g}" for e in m.fit.params]
+        checks = [f"{d.name}: {d.verdict}" for d in m.diagnostics]
+        rows.append({"model": m.model, "status": "fitted",
+                     "detail": "; ".join(parts) + ". Checks: " + ", ".join(checks)})
+        for pr in m.predictions:
+            if pr.estimate is None:
+                rows.append({"model": m.model, "status": f"prediction {pr.name} refused",
+                             "detail": pr.refused_reason})
+            else:
+                e = pr.estimate
+                rows.append({"model": m.model, "status": f"prediction {pr.name}",
+                             "detail": f"{e.value:.3g} {e.unit} ({e.level:.0%} interval "
+                                       f"{e.low if e.low is None else format(e.low, '.3g')} to "
+                                       f"{e.high if e.high is None else format(e.high, '.3g')}"
+                                       "); extrapolated beyond the history"})
+    rep.add_table(s, Table("growth-models", "Growth models: fitted or refused, and why.",
+                           [("model", "Model"), ("status", "Status"), ("detail", "Detail")],
+                           pd.DataFrame(rows, columns=["model", "status", "detail"])))
