@@ -57,11 +57,13 @@ def subject_match(cited: str | None, actual: str | None) -> bool | None:
     a cited subject ending in '...' matches as a prefix). None when either is missing."""
     if cited is None or actual is None:
         return None
-    c, a = normalise_subject(cited), normalise_subject(actual)
+    a = normalise_subject(actual)
+    bare = " ".join(cited.split()).strip("\"'\u201c\u201d ")
     for ell in ("...", "\u2026"):
-        if c.endswith(ell):
-            stem = c[: -len(ell)].rstrip()
+        if bare.endswith(ell):
+            stem = normalise_subject(bare[: -len(ell)])
             return bool(stem) and a.startswith(stem)
+    c = normalise_subject(cited)
     return c == a
 
 
@@ -86,17 +88,15 @@ def find_candidates(git: GitRepo, tip: str, refs: Iterable[str],
     ask = [r for r in refs if len(r) < full_len or not found[r]]
     if not ask:
         return found
-    lines = git.batch(["cat-file", "--batch-check"], (f"{r}^{{commit}}" for r in ask))
+    # plain names, not "<ref>^{commit}": git reports a peeled ambiguous prefix as missing
+    lines = git.batch(["cat-file", "--batch-check"], ask)
     need_walk: set[str] = set()
     for r, line in zip(ask, lines):
         parts = line.split()
-        if len(parts) >= 2 and parts[-1] == "missing":
-            continue
-        if len(parts) >= 2 and parts[1] == "commit" and len(parts[0]) == full_len:
-            if parts[0] not in found[r]:
-                need_walk.add(r)        # a commit outside the store: reachable?
-        else:
-            need_walk.add(r)            # ambiguous (or unexpected): count reachable matches
+        if len(parts) == 2 and parts[1] == "ambiguous":
+            need_walk.add(r)            # several objects: count the reachable commits
+        elif len(parts) == 3 and parts[1] == "commit" and parts[0] not in found[r]:
+            need_walk.add(r)            # a commit outside the store: is it reachable?
     if need_walk:
         by_head: dict[str, list[str]] = {}
         for r in need_walk:
