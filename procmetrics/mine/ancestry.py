@@ -36,15 +36,12 @@ def tag_containment(repo: str | GitRepo, commits: Iterable[str],
         tag_list = list(dict.fromkeys(tags))
     rows: list[tuple[str, str, bool]] = []
     if len(tag_list) <= len(wanted):
-        want = set(wanted)
         for tag in tag_list:
             try:
                 reach = set(git.text("rev-list", f"refs/tags/{tag}^{{commit}}", "--").split())
             except GitFailed:
                 reach = set()
             rows += [(tag, c, c in reach) for c in wanted]
-            del reach
-        del want
     else:
         tag_set = set(tag_list)
         for c in wanted:
