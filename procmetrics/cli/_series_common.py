@@ -1,0 +1,90 @@
+"""Options and helpers shared by the ``series``, ``changes`` and ``compare`` commands."""
+from __future__ import annotations
+
+import argparse
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from procmetrics.cli import add_store_argument
+
+
+def add_series_arguments(p: argparse.ArgumentParser) -> None:
+    """--store, --repo, --period, --subsystem, --metric, --include-merges, --out."""
+    from procmetrics.analyse.metrics import METRICS
+    from procmetrics.analyse.periods import PERIODS
+
+    add_store_argument(p)
+    p.add_argument("--repo", help="repository name in the store (needed when it holds several)")
+    p.add_argument("--period", choices=PERIODS, default="month",
+                   help="period length; 'release' = first tag dated on/after the commit")
+    p.add_argument("--subsystem", action="append", metavar="NAME",
+                   help="also per subsystem NAME (repeatable; default: whole project only)")
+    p.add_argument("--all-subsystems", action="store_true", help="every mapped subsystem")
+    p.add_argument("--metric", action="append", choices=list(METRICS), metavar="METRIC",
+                   help="metric(s) to show (repeatable): " + ", ".join(METRICS))
+    p.add_argument("--review-key", action="append", metavar="KEY",
+                   help="review-type trailer key (repeatable; default Reviewed-by, Acked-by, "
+                   "Tested-by)")
+    p.add_argument("--include-merges", action="store_true", help="count merge commits too")
+    p.add_argument("--seed", type=int, default=20240601, help="random seed (bootstrap)")
+    p.add_argument("--out", metavar="DIR", help="write CSV/JSON and PNG+SVG figures here")
+
+
+def load(args: argparse.Namespace) -> tuple[dict[str, pd.DataFrame], str]:
+    from procmetrics.cli.cmd_lifetimes import load_tables
+
+    return load_tables(args.store, args.repo)
+
+
+def metric_config(args: argparse.Namespace, tables: dict[str, pd.DataFrame]) -> Any:
+    """MetricConfig from the options; ``subsystems`` None means whole project only."""
+    from procmetrics.analyse.metrics import DEFAULT_REVIEW_KEYS, MetricConfig
+
+    subs: tuple[str, ...] | None = None
+    if args.subsystem:
+        subs = tuple(args.subsystem)
+    elif getattr(args, "all_subsystems", False):
+        subs = tuple(sorted(tables["commit_subsystems"]["subsystem"].dropna().unique()))
+    return MetricConfig(period=args.period, include_merges=args.include_merges,
+                        review_keys=tuple(args.review_key or DEFAULT_REVIEW_KEYS),
+                        subsystems=subs)
+
+
+def compute(args: argparse.Namespace, tables: dict[str, pd.DataFrame]) -> Any:
+    """PeriodMetrics for the options (per subsystem only when asked)."""
+    from procmetrics.analyse.metrics import compute_period_metrics
+
+    cfg = metric_config(args, tables)
+    cs = tables["commit_subsystems"] if cfg.subsystems else None
+    return compute_period_metrics(tables["commits"], tables["trailers"], commit_subsystems=cs,
+                                  tags=tables["tags"], config=cfg)
+
+
+def fmt(x: Any, digits: int = 3) -> str:
+    if x is None or (isinstance(x, float) and not np.isfinite(x)):
+        return "-"
+    if isinstance(x, float) and abs(x) >= 1000:
+        return f"{x:.0f}"
+    return f"{x:.{digits}g}"
+
+
+def print_caveats(caveats: Any, indent: str = "  ") -> None:
+    for cv in caveats:
+        print(f"{indent}caveat [{cv.code}] {cv.message}")
+
+
+def out_dir(args: argparse.Namespace) -> Any:
+    from pathlib import Path
+
+    from procmetrics.errors import StoreError
+
+    if not args.out:
+        return None
+    out = Path(args.out)
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise StoreError(f"cannot create {out}: {exc}") from exc
+    return out

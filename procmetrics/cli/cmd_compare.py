@@ -1,0 +1,93 @@
+"""``procmetrics compare``: before/after a policy date (ITS and distributions)."""
+from __future__ import annotations
+
+import argparse
+
+from procmetrics.cli import _series_common as common
+
+
+def register(sub: argparse._SubParsersAction) -> None:
+    p = sub.add_parser("compare", help="before/after a policy date: interrupted time series "
+                       "and distribution comparisons",
+                       description="Segmented regression (level and slope change, placebo "
+                       "dates, control series), per-subsystem tests with BH/BY adjustment, "
+                       "per-commit distributions and shares before vs after, and where "
+                       "detected change points lie relative to the date.")
+    common.add_series_arguments(p)
+    p.add_argument("--at", required=True, metavar="DATE|REV",
+                   help="policy date (YYYY-MM-DD, UTC) or a commit (its committer date)")
+    p.add_argument("--control", metavar="SUBSYSTEM", help="control subsystem (not targeted)")
+    p.add_argument("--resamples", type=int, default=999, help="permutations (Anderson-Darling)")
+    p.add_argument("--boot", type=int, default=1000, help="bootstrap replicates")
+    p.set_defaults(func=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    import numpy as np
+
+    from procmetrics.analyse.policy import DEFAULT_METRICS, compare_policy, resolve_date
+
+    tables, name = common.load(args)
+    at = resolve_date(args.at, tables["commits"])
+    cfg = common.metric_config(args, tables)
+    res = compare_policy(tables["commits"], tables["trailers"], at=at, tags=tables["tags"],
+                         commit_subsystems=tables["commit_subsystems"] if cfg.subsystems
+                         or args.control else None, config=cfg,
+                         metrics=tuple(args.metric or DEFAULT_METRICS),
+                         control_subsystem=args.control, n_resamples=args.resamples,
+                         n_boot=args.boot, rng=np.random.default_rng(args.seed))
+    f = common.fmt
+    print(f"{name}: before/after {at:%Y-%m-%d %H:%M} UTC, per {args.period}")
+    for r in res.its:
+        lv, sl = r.level_change, r.slope_change
+        print(f"\nITS {r.metric}: {r.n_before} periods before, {r.n_after} after; {r.model}; "
+              f"{r.cov_type}\n  level change {f(lv.value)} [{f(lv.low)}, {f(lv.high)}] "
+              f"{lv.unit}; slope change {f(sl.value)} [{f(sl.low)}, {f(sl.high)}] {sl.unit}"
+              f"\n  placebo dates: {len(r.placebo)}, share with |effect| >= observed: "
+              f"{f(r.placebo_p_level)}")
+        if r.control_level_change is not None:
+            c = r.control_level_change
+            print(f"  control {r.control_subsystem}: level change {f(c.value)} "
+                  f"[{f(c.low)}, {f(c.high)}]")
+        common.print_caveats(r.caveats, "  ")
+    for d in res.distributions:
+        h, cd = d.hodges_lehmann, d.cliffs_delta
+        tests = ", ".join(f"{t.name} p={f(t.p_value)}" for t in d.tests)
+        print(f"\n{d.quantity}: n={d.n_a} before, n={d.n_b} after; median {f(d.median_a.value)}"
+              f" -> {f(d.median_b.value)}; HL shift {f(h.value)} [{f(h.low)}, {f(h.high)}]; "
+              f"Cliff's delta {f(cd.value)} [{f(cd.low)}, {f(cd.high)}] ({d.magnitude})"
+              f"\n  {tests}")
+        common.print_caveats(d.caveats, "  ")
+    for p in res.proportions:
+        df = p.difference
+        tests = ", ".join(f"{t.name} p={f(t.p_value)}" for t in p.tests)
+        print(f"\n{p.quantity}: {f(p.p_a.value)} (n={p.p_a.n}) -> {f(p.p_b.value)} "
+              f"(n={p.p_b.n}); difference {f(df.value)} [{f(df.low)}, {f(df.high)}] "
+              f"(Newcombe); {tests}")
+        common.print_caveats(p.caveats, "  ")
+    if len(res.subsystems):
+        print(f"\nper subsystem (family of {res.multiplicity.family_size}; BH and BY):")
+        for r in res.subsystems.itertuples():
+            print(f"  {r.subsystem:<16} {r.metric:<20} level {f(r.level_change)} "
+                  f"p={f(r.p_value)} BH={f(r.p_bh)} BY={f(r.p_by)}")
+    for metric, rel in res.change_points:
+        print(f"\nchange points in {metric}: {rel.status}"
+              + (f" (nearest {rel.nearest_period}, {rel.distance_periods:+d} periods)"
+                 if rel.nearest_period else ""))
+    for s in res.skipped:
+        print(f"skipped: {s}")
+    out = common.out_dir(args)
+    if out is not None:
+        _write(out, res)
+    return 0
+
+
+def _write(out, res) -> None:
+    import json
+
+    from procmetrics.plot.series import plot_its, save_figure
+
+    (out / "compare.json").write_text(json.dumps(res.to_dict(), indent=1, default=str) + "\n")
+    res.subsystems.to_csv(out / "compare_subsystems.csv", index=False)
+    for r in res.its:
+        save_figure(plot_its(r), out / f"its_{r.metric}")
