@@ -2,9 +2,12 @@
 from __future__ import annotations
 
 import argparse
+import sys
 
 from procmetrics.cli import add_store_argument
+from procmetrics.errors import ConfigError
 from procmetrics.mine import MineOptions, mine_repository
+from procmetrics.mine.multi import mine_many, read_repo_list
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -12,7 +15,16 @@ def register(sub: argparse._SubParsersAction) -> None:
                        description="Read commits, trailers, fix references, touched paths "
                        "and tags of a local clone (bare or not) into the store. A second "
                        "run adds only new commits.")
-    p.add_argument("path", metavar="PATH", help="top folder of the clone (or a bare repository)")
+    p.add_argument("path", metavar="PATH", nargs="*",
+                   help="top folder of the clone (or a bare repository); several PATHs are "
+                   "mined in parallel into the same store, each under its own name")
+    p.add_argument("--list", metavar="FILE", dest="repo_list",
+                   help="text file naming repositories to mine, one path a line (# comments)")
+    p.add_argument("--jobs", type=int, metavar="N",
+                   help="worker processes for several repositories (default: one per CPU)")
+    p.add_argument("--scheduler", metavar="ADDRESS",
+                   help="mine on a Dask distributed cluster (e.g. tcp://host:8786); workers "
+                   "must see the same paths and the store (use a PostgreSQL URL)")
     p.add_argument("--ref", default="HEAD", help="branch, tag or commit to mine (default HEAD)")
     p.add_argument("--since", metavar="DATE", help="only commits with committer date on/after "
                    "DATE (YYYY-MM-DD, UTC, or an ISO date-time)")
@@ -39,13 +51,18 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
+    paths = list(args.path) + (read_repo_list(args.repo_list) if args.repo_list else [])
+    if not paths:
+        raise ConfigError("name a repository PATH (or several, or --list FILE)")
     opts = MineOptions(ref=args.ref, since=args.since, until=args.until,
                        line_counts=not args.no_line_counts, merge_files=args.merge_files,
                        subsystem_rules=args.subsystem_rules,
                        use_maintainers=not args.no_maintainers, prefix_depth=args.prefix_depth,
                        repo_name=args.repo_name, rewrite_policy=args.rewrite_policy,
                        progress=args.progress)
-    s = mine_repository(args.path, store=args.store, options=opts)
+    if len(paths) > 1 or args.jobs or args.scheduler:
+        return _run_many(paths, args, opts)
+    s = mine_repository(paths[0], store=args.store, options=opts)
     fx = s.fix_status
     print(f"{s.repo}: {s.new_commits} new commit(s) mined "
           f"({'incremental from ' + s.base_hash[:12] if s.base_hash else 'full'}) "
@@ -58,3 +75,17 @@ def run(args: argparse.Namespace) -> int:
     if s.is_shallow:
         print("warning: shallow clone - history before the shallow boundary is missing")
     return 0
+
+
+def _run_many(paths: list[str], args: argparse.Namespace, opts: MineOptions) -> int:
+    r = mine_many(paths, store=args.store, options=opts, jobs=args.jobs,
+                  scheduler=args.scheduler)
+    for s in r.summaries:
+        print(f"{s.repo}: {s.new_commits} new commit(s) "
+              f"({'incremental' if s.incremental else 'full'}), {s.commits} stored, "
+              f"{s.fix_refs} fix references, tip {s.head_hash[:12]}")
+    for f in r.failures:
+        print(f"procmetrics: error: {f.repo} ({f.path}): {f.message}", file=sys.stderr)
+    print(f"{len(r.summaries)} of {len(r.summaries) + len(r.failures)} repositories mined "
+          f"in {r.seconds:.1f} s ({r.executor}, {r.workers} worker(s))")
+    return r.failures[0].exit_code if r.failures else 0

@@ -161,3 +161,21 @@ def test_local_dask_cluster_matches_single_runs(dask_cluster, three_repos,
         _check_against_single_runs(engine, three_repos, names, tmp_path)
     finally:
         engine.dispose()
+
+
+def test_cli_mines_paths_and_a_list(three_repos, tmp_path: Path, capsys) -> None:
+    from procmetrics.cli import main
+    store = tmp_path / "cli.sqlite"
+    lst = tmp_path / "repos.txt"
+    lst.write_text(f"# two teams\n{three_repos[1].path}\n")
+    code = main(["mine", str(three_repos[0].path), "--list", str(lst), "--store", str(store),
+                 "--jobs", "2", "--no-progress"])
+    out = capsys.readouterr().out
+    assert code == 0
+    assert "2 of 2 repositories mined" in out
+    engine = open_store(store)
+    try:
+        assert sorted(read_table(engine, "repositories")["repo"]) == ["team-a-fw", "team-b-fw"]
+    finally:
+        engine.dispose()
+    assert main(["mine", "--store", str(store)]) == ConfigError.exit_code
