@@ -56,8 +56,15 @@ class BuildContext:
 
     def add_figure(self, section: Section, fig: Figure, result: Any = None,
                    **rules: Any) -> Figure:
-        """Number and attach a figure with the flags of its result and the report's rules."""
-        if result is not None:
+        """Number and attach a figure with the flags of its result and the report's rules.
+
+        ``result`` is one analysis result, or a dict ``{name: result}`` whose names
+        lead the flag messages.
+        """
+        if isinstance(result, dict):
+            for name, res in result.items():
+                fig.flags.extend(fl.from_result(res, fig.key, prefix=name))
+        elif result is not None:
             fig.flags.extend(fl.from_result(result, fig.key))
         fig.flags.extend(fl.rule_flags(fig.key, n=fig.n, min_n=rules.pop("min_n", None),
                                        method=fig.method, alpha=self.alpha, **rules))

@@ -1,7 +1,8 @@
-"""Turn a plot function's Axes into PNG bytes, and build the figures every report has.
+"""Turn a plot function's Axes into PNG bytes.
 
-The plotting itself happens in :mod:`procmetrics.plot`; this module only saves
-the figure (PNG, fixed DPI, no timestamp metadata) and closes it.
+The plotting itself happens in :mod:`procmetrics.plot` (figures built on
+``matplotlib.figure.Figure``, no pyplot state); this module only saves the
+figure as PNG at a fixed DPI without timestamp metadata.
 """
 from __future__ import annotations
 
@@ -12,14 +13,11 @@ from procmetrics.report.html import PNG_DPI
 
 
 def to_png(ax: Any) -> bytes:
-    """Save the Axes' figure as PNG and close it (pyplot keeps figures alive otherwise)."""
+    """Save the Axes' figure as PNG (white background, tight bounding box)."""
     fig = ax.figure if hasattr(ax, "figure") else ax
     buf = io.BytesIO()
     fig.savefig(buf, format="png", dpi=PNG_DPI, metadata={"Software": None},
                 bbox_inches="tight", facecolor="white")
-    from matplotlib import pyplot as plt  # local: only to release the figure
-
-    plt.close(fig)
     return buf.getvalue()
 
 

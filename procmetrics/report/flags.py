@@ -46,34 +46,43 @@ def _walk(obj: Any, depth: int = 0) -> Iterator[Any]:
             yield from _walk(v, depth + 1)
 
 
-def from_result(result: Any, target: str) -> list[Flag]:
-    """Flags recorded on an analysis result (caveats, failed diagnostics, extrapolation)."""
+def from_result(result: Any, target: str, prefix: str = "") -> list[Flag]:
+    """Flags recorded on an analysis result (caveats, failed diagnostics, extrapolation).
+
+    ``prefix`` names the analysis in each message (e.g. ``"trend model"``).
+    """
     out: list[Flag] = []
+    lead = f"{prefix}: " if prefix else ""
     for item in _walk(result):
         if isinstance(item, Caveat):
-            out.append(Flag(item.code, item.severity, target, item.message, "result"))
+            out.append(Flag(item.code, item.severity, target, lead + item.message, "result"))
         elif isinstance(item, Diagnostic) and item.verdict == "fail":
             # reported for the record; whether it was remedied is in the result's caveats
             value = "n/a" if item.value is None else f"{item.value:.4g}"
             out.append(Flag("diagnostic_failed", "info", target,
-                            f"check {item.name} failed ({item.method}: value {value}, "
+                            f"{lead}check {item.name} failed ({item.method}: value {value}, "
                             f"threshold {item.threshold}){'; ' + item.note if item.note else ''}"
                             "; see the model's caveats for whether it was remedied",
                             "result"))
         elif isinstance(item, Estimate) and item.extrapolated:
             out.append(Flag("extrapolation", "warn", target,
-                            f"{item.name} is extrapolated beyond the observed data", "result"))
+                            f"{lead}{item.name} is extrapolated beyond the observed data", "result"))
     return dedupe(out)
 
 
 def dedupe(flags: Iterable[Flag]) -> list[Flag]:
+    """Drop repeated flags, and info flags whose code the same target already has at
+    warn or fail (the stronger one says it)."""
+    flags = list(flags)
+    strong = {(f.code, f.target) for f in flags if f.severity != "info"}
     seen: set[tuple[str, str, str]] = set()
     out = []
     for f in flags:
         k = (f.code, f.target, f.message)
-        if k not in seen:
-            seen.add(k)
-            out.append(f)
+        if k in seen or (f.severity == "info" and (f.code, f.target) in strong):
+            continue
+        seen.add(k)
+        out.append(f)
     return out
 
 

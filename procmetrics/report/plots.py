@@ -6,6 +6,8 @@ from typing import Any
 
 import pandas as pd
 
+from procmetrics.report.figures import render
+
 
 def series_png(ctx: Any, rows: pd.DataFrame, cp: Any, tr: Any, metric: str,
                label: str) -> bytes | None:
@@ -17,15 +19,23 @@ def adoption_png(ctx: Any, rows: pd.DataFrame) -> bytes | None:
 
 
 def survival_png(ctx: Any, la: Any, group: str) -> bytes | None:
-    return None
+    from procmetrics.plot.survival import plot_survival
+
+    if la.curves[la.curves["group"] == group].empty:
+        return None
+    return render(plot_survival, la, group=group)
 
 
 def survival_groups_png(ctx: Any, la: Any) -> bytes | None:
-    return None
+    from procmetrics.plot.survival import plot_survival_by_group
+
+    return render(plot_survival_by_group, la, method="horizon")
 
 
 def growth_png(ctx: Any, g: Any) -> bytes | None:
-    return None
+    from procmetrics.plot.growth import plot_growth
+
+    return render(plot_growth, g)
 
 
 def before_after_png(ctx: Any, sh: Any) -> bytes | None:

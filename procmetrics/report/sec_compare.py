@@ -83,7 +83,7 @@ def section_compare(ctx: BuildContext) -> None:
                     "n_after": sh.n_after, "x_after": sh.x_after,
                     "diagnostics": [d.to_dict() for d in sh.diagnostics]},
             png=plots.before_after_png(ctx, sh))
-        ctx.add_figure(s, fig, result=list(sh.diagnostics) + list(sh.caveats),
+        ctx.add_figure(s, fig, result={"step model": list(sh.diagnostics) + list(sh.caveats)},
                        min_n=ctx.options.min_n, p_value=sh.p_value,
                        effect_negligible=negligible)
         tab.flags.extend(fl.retarget([f for f in fig.flags if f.code in

@@ -77,17 +77,16 @@ def section_lifetimes(ctx: BuildContext) -> None:
                                     "population": la.population},
         png=plots.survival_png(ctx, la, ALL))
     ctx.add_figure(s, fig, result=la, min_n=ctx.options.min_n, lifetime=True)
-    summ = la.summary.copy()
-    summ["quantile"] = (summ["quantile"] * 100).round().astype(int)
     rep.add_table(s, Table(
-        "lifetime-quantiles", "Defect lifetime quantiles (days).",
-        [("group", "Group"), ("method", "Estimator"), ("quantile", "Quantile (%)"),
-         ("value", "Days"), ("low", f"{ctx.options.level:.0%} interval from"),
-         ("high", "to"), ("n", "Defects")], summ,
-        note="naive: observed lifetimes at face value (biased short); truncation_aware: "
-             "Lynden-Bell estimate; horizon: defects introduced at least the horizon before "
-             "the end of the history and fixed within it. Quantiles, not means: lifetimes "
-             "are heavily skewed.",
+        "lifetime-quantiles", "Defect lifetime quantiles in days, with "
+        f"{ctx.options.level:.0%} intervals.",
+        [("group", "Defects introduced"), ("method", "Estimator"), ("n", "Defects"),
+         ("q25", "25%"), ("q50", "Median"), ("q75", "75%"), ("q90", "90%")],
+        quantile_table(la.summary),
+        note="Truncation-aware: Lynden-Bell estimate (quote this one); naive: observed "
+             "lifetimes at face value (biased short); common horizon: defects introduced at "
+             "least the horizon before the end of the history and fixed within it. Each cell: "
+             "estimate (interval). Quantiles, not means: lifetimes are heavily skewed.",
         flags=fl.rule_flags("lifetime-quantiles", n=None, min_n=None, lifetime=True)))
     if la.comparison is not None:
         c = la.comparison
@@ -142,12 +141,14 @@ def section_growth(ctx: BuildContext) -> None:
         n=int(g.n), method="observed counting process; NHPP models by maximum likelihood"
         if fitted else "observed counting process",
         interval=f"{ctx.options.level:.0%} parametric bootstrap band" if fitted
-        else "none (no model)", data=g.curve, kinds=("history", "defects", "growth"),
+        else "no interval: no model fitted", data=g.curve, kinds=("history", "defects", "growth"),
         values={"scope": g.scope, "population": g.population,
                 "trend": None if g.trend is None else g.trend.to_dict(),
                 "models": [m.to_dict() for m in g.models]},
         png=plots.growth_png(ctx, g))
-    p = None if g.trend is None else float(g.trend.laplace.p_growth)
+    # "no evidence of a change" only when neither test sees a trend either way
+    p = None if g.trend is None else float(min(g.trend.laplace.p_two_sided,
+                                               g.trend.power_law.p_two_sided))
     ctx.add_figure(s, fig, result=g, min_n=ctx.options.min_n, p_value=p)
     if g.trend is not None:
         rows = []
@@ -186,3 +187,32 @@ def section_growth(ctx: BuildContext) -> None:
     rep.add_table(s, Table("growth-models", "Growth models: fitted or refused, and why.",
                            [("model", "Model"), ("status", "Status"), ("detail", "Detail")],
                            pd.DataFrame(rows, columns=["model", "status", "detail"])))
+
+
+_METHOD_WORDS = {"truncation_aware": "truncation-aware", "naive": "naive",
+                 "horizon": "common horizon"}
+
+
+def quantile_table(summary: pd.DataFrame) -> pd.DataFrame:
+    """One row per (group, estimator); each quantile as "estimate (low–high)" text."""
+    from procmetrics.analyse.metrics import ALL
+
+    def cell(r: pd.Series) -> str:
+        if pd.isna(r["value"]):
+            return "not reached"
+        lo = "–" if pd.isna(r["low"]) else f"{r['low']:.0f}"
+        hi = "∞" if pd.isna(r["high"]) else f"{r['high']:.0f}"
+        return f"{r['value']:.0f} ({lo}–{hi})"
+
+    rows = []
+    order = {ALL: 0, "before": 1, "after": 2}
+    for (group, method), g in summary.groupby(["group", "method"], sort=False):
+        row = {"group": "all" if group == ALL else str(group),
+               "method": _METHOD_WORDS.get(method, method), "n": int(g["n"].max()),
+               "_o": (order.get(group, 3), str(group), list(_METHOD_WORDS).index(method)
+                      if method in _METHOD_WORDS else 9)}
+        for _, r in g.iterrows():
+            row[f"q{int(round(r['quantile'] * 100))}"] = cell(r)
+        rows.append(row)
+    rows.sort(key=lambda r: r["_o"])
+    return pd.DataFrame(rows, columns=["group", "method", "n", "q25", "q50", "q75", "q90"])

@@ -92,9 +92,10 @@ def section_process(ctx: BuildContext) -> None:
                         "change_points": None if cp is None else cp.to_dict(),
                         "trend": None if tr is None else _trend_dict(tr)},
                 png=plots.series_png(ctx, rows, cp, tr, metric, label))
-            ctx.add_figure(s, fig, result=[cp, tr], min_n=ctx.options.min_n)
+            ctx.add_figure(s, fig, result={"change points": cp, "trend model": tr},
+                           min_n=ctx.options.min_n)
             if cp is not None:
-                cp_flags += fl.from_result(cp, "change-points")
+                cp_flags += fl.from_result(cp, "change-points", prefix=f"{metric} ({label})")
                 for c in cp.changes:
                     cp_rows.append({
                         "metric": metric, "subsystem": sub, "period": c.period,

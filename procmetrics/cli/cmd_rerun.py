@@ -1,0 +1,26 @@
+"""``procmetrics rerun``: regenerate a report from its manifest and compare the figures."""
+from __future__ import annotations
+
+import argparse
+
+from procmetrics.report.rerun import EXIT_DIFFERENT, rerun
+
+
+def register(sub: argparse._SubParsersAction) -> None:
+    p = sub.add_parser(
+        "rerun", help="regenerate a report from its manifest and compare the figures",
+        description="Read manifest.json, reuse the recorded store if it still holds the same "
+        "data (else mine the recorded repository again, at the recorded HEAD if the ref "
+        "moved), write the report with the recorded options into a new folder, and compare "
+        "report.json and tables/*.csv by SHA-256. Exit 0 when they match, "
+        f"{EXIT_DIFFERENT} when they differ.")
+    p.add_argument("manifest", metavar="MANIFEST", help="manifest.json of an earlier report")
+    p.add_argument("--out", metavar="DIR",
+                   help="folder for the new report (default: the old folder's name + '-rerun')")
+    p.set_defaults(func=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    result = rerun(args.manifest, args.out)
+    print(result.summary())
+    return 0 if result.matches else EXIT_DIFFERENT

@@ -1,0 +1,202 @@
+"""Regenerate a report from its manifest and say whether the figures match.
+
+Steps: read ``manifest.json``; reuse the recorded store when it still holds the
+same data (same checksum of the tidy tables), otherwise mine the recorded
+repository again into a fresh store in the new folder, at the recorded ref when
+it still points at the recorded HEAD, else at the recorded HEAD commit itself
+(and say that HEAD moved); build the report with the recorded options; compare
+the SHA-256 of ``report.json`` and every ``tables/*.csv`` with the manifest,
+and for ``report.json`` name the figures and tables whose numbers differ.
+
+This module orchestrates mining and reporting, so it imports
+:mod:`procmetrics.mine` (lazily); nothing else in ``report`` does.
+"""
+from __future__ import annotations
+
+import datetime as dt
+import json
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from procmetrics.errors import ConfigError, ProcmetricsError
+from procmetrics.report.manifest import read_manifest, sha256_file
+from procmetrics.report.model import ReportOptions
+
+#: exit status of ``procmetrics rerun`` when the regenerated figures differ
+EXIT_DIFFERENT = 16
+
+
+@dataclass(frozen=True)
+class RerunResult:
+    out: Path
+    store: str
+    remined: bool
+    head_moved: str | None
+    matches: bool
+    compared: int
+    differences: tuple[str, ...] = field(default_factory=tuple)
+    notes: tuple[str, ...] = field(default_factory=tuple)
+
+    def summary(self) -> str:
+        lines = [f"regenerated report in {self.out}"]
+        lines += [f"note: {n}" for n in self.notes]
+        if self.head_moved:
+            lines.append(f"HEAD moved: {self.head_moved}")
+        lines.append(("store re-mined into " if self.remined else "store reused: ") + self.store)
+        if self.matches:
+            lines.append(f"figures match: {self.compared} JSON/CSV files identical "
+                         "(SHA-256)")
+        else:
+            lines.append(f"figures DIFFER: {len(self.differences)} difference(s) in "
+                         f"{self.compared} compared files")
+            lines += [f"  - {d}" for d in self.differences]
+        return "\n".join(lines)
+
+
+def _options(man: dict[str, Any]) -> ReportOptions:
+    o = dict(man.get("report_options") or {})
+    claims = (man.get("claims_file") or {}).get("path")
+    return ReportOptions(repo=o.get("repo"), policy=o.get("policy"),
+                         subsystems=tuple(o.get("subsystems") or ()),
+                         period=o.get("period", "quarter"), claims_path=claims,
+                         level=float(o.get("level", 0.95)),
+                         unresolved_share_limit=float(o.get("unresolved_share_limit", 0.10)),
+                         min_n=int(o.get("min_n", 20)), seed=int(o.get("seed", 20240601)),
+                         pdf_engine=o.get("pdf_engine", "auto"))
+
+
+def _store_still_matches(url: str, repo: str | None, checksum: str) -> bool:
+    from procmetrics.report.data import choose_repo, load_store_data, store_checksum
+    from procmetrics.store import open_store
+
+    if "***" in url:       # a password was hidden in the manifest: cannot reconnect
+        return False
+    try:
+        engine = open_store(url, create=False, readonly=True)
+    except ProcmetricsError:
+        return False
+    try:
+        data = load_store_data(engine, choose_repo(engine, repo))
+        return store_checksum(data) == checksum
+    except ProcmetricsError:
+        return False
+    finally:
+        engine.dispose()
+
+
+def _mine_options(run: dict[str, Any], ref: str) -> Any:
+    from procmetrics.mine import MineOptions
+
+    o = run.get("options_json") or {}
+    if isinstance(o, str):
+        o = json.loads(o)
+
+    def when(epoch: Any) -> Any:
+        return None if epoch is None else dt.datetime.fromtimestamp(int(epoch), dt.timezone.utc)
+
+    return MineOptions(ref=ref, since=when(o.get("since")), until=when(o.get("until")),
+                       line_counts=bool(o.get("line_counts", True)),
+                       merge_files=o.get("merge_files", "none"),
+                       subsystem_rules=o.get("subsystem_rules"),
+                       use_maintainers=bool(o.get("use_maintainers", True)),
+                       prefix_depth=int(o.get("prefix_depth", 1)),
+                       repo_name=o.get("repo_name"), batch_size=int(o.get("batch_size", 5000)),
+                       progress=False)
+
+
+def _json_differences(old: Path | None, new: Path) -> list[str]:
+    """Figure and table keys whose JSON differs (when the old JSON is still on disk)."""
+    if old is None or not old.exists():
+        return []
+    a, b = json.loads(old.read_text("utf-8")), json.loads(new.read_text("utf-8"))
+    out = []
+    for part in ("figures", "tables"):
+        fa = {x["key"]: x for x in a.get(part, [])}
+        fb = {x["key"]: x for x in b.get(part, [])}
+        for k in sorted(set(fa) | set(fb)):
+            if fa.get(k) != fb.get(k):
+                out.append(f"report.json: {part[:-1]} '{k}' "
+                           + ("missing now" if k not in fb else "new" if k not in fa
+                              else "numbers differ"))
+    for key in ("scope", "claims", "flags", "store_checksum", "options"):
+        if a.get(key) != b.get(key):
+            out.append(f"report.json: '{key}' differs")
+    return out
+
+
+def rerun(manifest_path: str | Path, out: str | Path | None = None) -> RerunResult:
+    """Regenerate the report described by a manifest (see the module docstring)."""
+    from procmetrics.report.build import make_report
+
+    mpath = Path(manifest_path)
+    man = read_manifest(mpath)
+    old_dir = mpath.parent
+    repo = man.get("repository") or {}
+    runs = man.get("mining_runs") or []
+    if not runs:
+        raise ConfigError("the manifest records no mining run", path=str(mpath),
+                          key="mining_runs")
+    last = [r for r in runs if r.get("status") == "complete"][-1:] or runs[-1:]
+    run = last[0]
+    head, ref = run.get("head_hash"), run.get("ref") or "HEAD"
+    new_dir = Path(out) if out is not None else old_dir.with_name(old_dir.name + "-rerun")
+    if new_dir.resolve() == old_dir.resolve():
+        raise ConfigError("the rerun folder must differ from the original report folder",
+                          key="--out")
+    new_dir.mkdir(parents=True, exist_ok=True)
+    opts = _options(man)
+    notes: list[str] = []
+    claims = man.get("claims_file")
+    if claims and claims.get("path"):
+        cp = Path(claims["path"])
+        if not cp.exists():
+            raise ConfigError("the claims file recorded in the manifest is gone",
+                              path=str(cp), key="claims_file")
+        if sha256_file(cp) != claims.get("sha256"):
+            notes.append(f"the claims file {cp} changed since the report was made")
+    store = man["store"]
+    head_moved = None
+    remined = False
+    if _store_still_matches(store["url"], opts.repo, store["checksum_sha256"]):
+        store_url = store["url"]
+    else:
+        from procmetrics.mine import mine_repository
+        from procmetrics.mine.git import GitRepo
+
+        path = repo.get("path")
+        if not path:
+            raise ConfigError("the manifest records no repository path", path=str(mpath),
+                              key="repository.path")
+        git = GitRepo.open(path)
+        now = git.resolve_commit(ref)
+        mine_ref = ref
+        if head and now != head:
+            head_moved = (f"{ref} now points at {now[:12]}, the report was made at "
+                          f"{head[:12]}; re-mined at {head[:12]}")
+            mine_ref = head
+        notes.append("the recorded store is gone or holds different data")
+        store_url = str(new_dir / "procmetrics.sqlite")
+        Path(store_url).unlink(missing_ok=True)
+        mine_repository(path, store=store_url,
+                        options=_mine_options(run, mine_ref))
+        remined = True
+    files = make_report(store_url, new_dir, opts)
+    new_man = json.loads(files.manifest.read_text("utf-8"))
+    old_out, new_out = man.get("outputs", {}), new_man.get("outputs", {})
+    compared = [n for n in sorted(set(old_out) | set(new_out))
+                if n.endswith(".json") or n.endswith(".csv")]
+    diffs: list[str] = []
+    for name in compared:
+        if name not in new_out:
+            diffs.append(f"{name}: not produced now")
+        elif name not in old_out:
+            diffs.append(f"{name}: new file")
+        elif old_out[name] != new_out[name]:
+            diffs.append(f"{name}: content differs")
+    if any(d.startswith("report.json") for d in diffs):
+        old_json = old_dir / "report.json"
+        same_file = old_json.exists() and sha256_file(old_json) == old_out.get("report.json")
+        diffs += _json_differences(old_json if same_file else None, files.json)
+    return RerunResult(new_dir, store_url, remined, head_moved, not diffs, len(compared),
+                       tuple(diffs), tuple(notes))
