@@ -69,6 +69,7 @@ class ModelFit:
     residuals: pd.DataFrame
     diagnostics: tuple[Diagnostic, ...]
     caveats: tuple[Caveat, ...] = field(default=())
+    deviance: float | None = None
 
     def to_dict(self) -> dict[str, Any]:
         return to_plain(self)
@@ -290,7 +291,9 @@ def fit_model(endog: np.ndarray, exog: np.ndarray, *, kind: str,
                     cov=tuple(tuple(map(float, r)) for r in np.asarray(res.cov_params())),
                     scale=float(res.scale), dispersion_initial=phi0, nb_alpha=nb_alpha,
                     n_obs=n, n_units=units, df_resid=float(res.df_resid), level=level,
-                    residuals=residuals, diagnostics=tuple(diags), caveats=tuple(cavs))
+                    residuals=residuals, diagnostics=tuple(diags), caveats=tuple(cavs),
+                    deviance=float(getattr(res, "deviance", np.nan))
+                    if hasattr(res, "deviance") else float(res.ssr))
 
 
 def _pearson(res, kind: str) -> np.ndarray:

@@ -76,6 +76,8 @@ def run(args: argparse.Namespace) -> int:
                  if rel.nearest_period else ""))
     for s in res.skipped:
         print(f"skipped: {s}")
+    print("\nall caveats:")
+    common.print_caveats(res.caveats)
     out = common.out_dir(args)
     if out is not None:
         _write(out, res)
