@@ -96,7 +96,8 @@ class GitRepo:
             err = proc.stderr.decode("utf-8", "replace").strip()
             if "dubious ownership" in err:
                 raise NotARepository(f"{given}: git refuses to read it ({err.splitlines()[0]})")
-            raise NotARepository(f"{given} is not a git repository")
+            raise NotARepository(f"{given} is not a git repository (give the top-level "
+                                 "folder of a clone, or a bare repository)")
         lines = proc.stdout.decode("utf-8", "surrogateescape").splitlines()
         is_bare = lines[0].strip() == "true"
         git_dir = Path(lines[1])

@@ -21,8 +21,9 @@ one path component, ``**`` any number of components (rules only), a trailing
 matches that file or everything below that folder.
 
 Specificity: a pattern's specificity is the number of leading path characters
-it fixes literally (everything before its first wildcard; the whole pattern
-when it has none); for an ``N:`` regex it is the offset where its leftmost
+it fixes literally (everything before its first wildcard, or the whole pattern
+when it has none; a final ``/`` is not counted, so ``lib/x`` and ``lib/x/``
+tie); for an ``N:`` regex it is the offset where its leftmost
 match on the path ends. A path goes to the subsystem(s) whose matching
 pattern has the highest specificity; ties keep every tied subsystem. A
 section whose ``X:`` pattern matches the path does not apply to it. A path
@@ -74,8 +75,14 @@ def compile_glob(text: str, *, allow_globstar: bool = False) -> Pattern:
         out.append("[^/]*" if c == "*" else "[^/]" if c == "?" else re.escape(c))
         i += 1
     core = "".join(out)
-    tail = "/.*" if text.endswith("/") else "(?:/.*)?"
-    return Pattern(text, re.compile(core + tail + r"\Z", re.S), len(literal), bucket)
+    if text.endswith("/"):
+        tail = "/.*"                # everything below the folder
+    elif cut < 0:
+        tail = "(?:/.*)?"           # no wildcard: that file, or everything below that folder
+    else:
+        tail = ""
+    return Pattern(text, re.compile(core + tail + r"\Z", re.S), len(literal.rstrip("/")),
+                   bucket)
 
 
 def _buckets(path: str) -> list[str]:

@@ -1,0 +1,156 @@
+"""Incremental mining equals mining once; rewrites and interruptions are handled."""
+from __future__ import annotations
+
+import pandas as pd
+import pytest
+
+from procmetrics.errors import ConfigError, HistoryRewritten
+from procmetrics.mine import MineOptions, mine_repository
+from procmetrics.store import open_store
+from procmetrics.store.tables import READERS, read_table
+from procmetrics.store.writer import StoreWriter
+from tests.git_support import ALICE, BOB, CAROL, when
+
+SKIP = {"mining_runs"}          # provenance differs by design (one run vs several)
+
+
+def tables(store) -> dict[str, pd.DataFrame]:
+    engine = open_store(store)
+    out = {}
+    for name in READERS:
+        if name in SKIP:
+            continue
+        df = read_table(engine, name)
+        if name == "repositories":
+            df = df.drop(columns=["path"])
+        out[name] = df.reset_index(drop=True)
+    engine.dispose()
+    return out
+
+
+def assert_same_store(a, b) -> None:
+    ta, tb = tables(a), tables(b)
+    for name in ta:
+        pd.testing.assert_frame_equal(ta[name], tb[name], obj=name)
+
+
+def opts(**kw) -> MineOptions:
+    return MineOptions(progress=False, repo_name="proj", **kw)
+
+
+def first_part(h):
+    h.commit("core: start\n", files={"core/a.c": "a\n", "README": "r\n"}, date=when(0, "+0100"),
+             name="start")
+    bug = h.commit("core: add bug\n", files={"core/a.c": "a\nbug\n"}, author=BOB,
+                   date=when(1, "-0400"), name="bug")
+    h.branch("side")
+    h.checkout("side")
+    h.commit("side: helper\n", files={"side/h.c": "h\n"}, author=CAROL, date=when(2),
+             name="helper")
+    h.checkout("main")
+    h.commit("pr: amended later\n", files={"pr.txt": "p\n"}, date=when(2.5), name="pr")
+    h.git("update-ref", "refs/pull/1/head", h.ids["pr"])
+    h.git("reset", "-q", "--hard", bug)
+    h.commit(f"core: fix\n\nFixes: {bug[:12]} (\"core: add bug\")\n"
+             f"Fixes: {h.ids['helper'][:12]} (\"side: helper\")\n"
+             f"Fixes: {h.ids['pr'][:12]} (\"pr: amended later\")\n"
+             "Signed-off-by: Alice Example <alice@example.org>\n",
+             files={"core/a.c": "a\nfixed\n"}, date=when(3, "+0200"), name="fix1")
+
+
+def second_part(h):
+    h.merge("side", date=when(4), name="merge_side")
+    h.commit(f"core: more\n\nReviewed-by: Bob Sample <bob@example.net>\n",
+             files={"core/b.c": "b\n"}, author=ALICE, date=when(5, "+0530"), name="more")
+    h.tag("v2", message="two", date=when(6))
+
+
+def test_incremental_equals_once(git_history, tmp_path):
+    h = git_history()
+    first_part(h)
+    twice, once = tmp_path / "twice.sqlite", tmp_path / "once.sqlite"
+    s1 = mine_repository(h.path, store=twice, options=opts())
+    fl = read_table(open_store(twice), "fix_links").set_index("ref_hash")
+    # reachable on a branch but not mined yet -> resolved, no introducer dates
+    assert fl.loc[h.ids["helper"][:12], "status"] == "resolved"
+    assert pd.isna(fl.loc[h.ids["helper"][:12], "intro_author_date"])
+    assert fl.loc[h.ids["pr"][:12], "status"] == "unresolved"      # only a pull-request ref
+    second_part(h)
+    s2 = mine_repository(h.path, store=twice, options=opts())
+    assert s2.incremental and s2.base_hash == s1.head_hash and s2.new_commits == 3
+    s3 = mine_repository(h.path, store=twice, options=opts())
+    assert s3.new_commits == 0
+    mine_repository(h.path, store=once, options=opts())
+    assert_same_store(twice, once)
+    fl = read_table(open_store(twice), "fix_links").set_index("ref_hash")
+    assert fl.loc[h.ids["helper"][:12], "intro_author_date"].timestamp() > 0
+
+
+def test_rewritten_history(git_history, tmp_path):
+    h = git_history()
+    first_part(h)
+    store = tmp_path / "s.sqlite"
+    mine_repository(h.path, store=store, options=opts())
+    h.git("reset", "-q", "--hard", h.ids["bug"])
+    h.commit("core: another fix\n", files={"core/a.c": "x\n"}, date=when(9))
+    with pytest.raises(HistoryRewritten, match="not an ancestor"):
+        mine_repository(h.path, store=store, options=opts())
+    mine_repository(h.path, store=store, options=opts(rewrite_policy="remine"))
+    once = tmp_path / "once.sqlite"
+    mine_repository(h.path, store=once, options=opts())
+    assert_same_store(store, once)
+    runs = read_table(open_store(store), "mining_runs")
+    assert list(runs["status"]) == ["superseded", "complete"]   # refusal starts no run
+
+
+def test_changed_content_options_are_refused(git_history, tmp_path):
+    h = git_history()
+    first_part(h)
+    store = tmp_path / "s.sqlite"
+    mine_repository(h.path, store=store, options=opts(line_counts=False))
+    with pytest.raises(ConfigError, match="line_counts"):
+        mine_repository(h.path, store=store, options=opts())
+    mine_repository(h.path, store=store, options=opts(rewrite_policy="remine"))
+    once = tmp_path / "once.sqlite"
+    mine_repository(h.path, store=once, options=opts())
+    assert_same_store(store, once)
+
+
+class Boom(RuntimeError):
+    pass
+
+
+@pytest.mark.parametrize("hard", [False, True])
+def test_interrupted_run_then_clean_result(git_history, tmp_path, monkeypatch, hard):
+    """A run dying after its first batch leaves a store the next run repairs."""
+    h = git_history()
+    first_part(h)
+    store = tmp_path / "s.sqlite"
+    mine_repository(h.path, store=store, options=opts(batch_size=2))
+    second_part(h)
+    for i in range(5):
+        h.commit(f"core: step {i}\n\nFixes: {h.ids['more'][:12]}\n", files={"core/s.c": f"{i}\n"},
+                 date=when(7 + i))
+    real = StoreWriter.write_batch
+    calls = {"n": 0}
+
+    def flaky(self, *a, **kw):
+        calls["n"] += 1
+        if calls["n"] == 3:
+            raise Boom("disk on fire")
+        return real(self, *a, **kw)
+    monkeypatch.setattr(StoreWriter, "write_batch", flaky)
+    if hard:   # a killed process never records the failure
+        monkeypatch.setattr(StoreWriter, "fail_run", lambda self, run_id, message: None)
+    with pytest.raises(Boom):
+        mine_repository(h.path, store=store, options=opts(batch_size=2))
+    monkeypatch.undo()
+    engine = open_store(store)
+    assert list(read_table(engine, "mining_runs")["status"]) == \
+        ["complete", "running" if hard else "failed"]
+    assert len(read_table(engine, "commits")) > 4         # two batches landed
+    s = mine_repository(h.path, store=store, options=opts(batch_size=2))
+    assert len(s.cleaned_runs) == 1
+    once = tmp_path / "once.sqlite"
+    mine_repository(h.path, store=once, options=opts())
+    assert_same_store(store, once)

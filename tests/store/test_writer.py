@@ -1,0 +1,82 @@
+"""The bulk loader: invariance to batching, indexes, cleanup, and both databases."""
+from __future__ import annotations
+
+import pandas as pd
+from sqlalchemy import inspect, select
+
+from procmetrics.mine import MineOptions, mine_repository
+from procmetrics.store import open_store
+from procmetrics.store import schema as s
+from procmetrics.store.tables import READERS, read_table
+from procmetrics.store.writer import StoreWriter
+from tests.pg_support import any_store_url  # noqa: F401 - fixture
+
+TABLES = [n for n in READERS if n not in ("mining_runs", "repositories")]
+
+
+def _tables(engine, repo=None):
+    return {n: read_table(engine, n, repo) for n in TABLES}
+
+
+def test_batch_size_does_not_change_the_store(sample_history, tmp_path):
+    """Invariance: one commit per transaction or all in one give the same tables."""
+    a = open_store(tmp_path / "a.sqlite")
+    b = open_store(tmp_path / "b.sqlite")
+    mine_repository(sample_history.path, store=a, options=MineOptions(batch_size=1,
+                                                                      progress=False))
+    mine_repository(sample_history.path, store=b, options=MineOptions(progress=False))
+    ta, tb = _tables(a), _tables(b)
+    for name in TABLES:
+        pd.testing.assert_frame_equal(ta[name], tb[name], obj=name)
+    with a.connect() as conn:       # the person cache never inserted a duplicate
+        people = conn.execute(select(s.person.c.name, s.person.c.email)).all()
+    assert len(people) == len(set(people))
+
+
+def test_indexes_exist_after_the_first_bulk_load(sample_history, tmp_path):
+    engine = open_store(tmp_path / "s.sqlite")
+    w = StoreWriter(engine)
+    assert w.drop_indexes_if_empty() is True          # empty store: dropped
+    mine_repository(sample_history.path, store=engine, options=MineOptions(progress=False))
+    insp = inspect(engine)
+    have = {ix["name"] for t in insp.get_table_names() for ix in insp.get_indexes(t)}
+    assert {ix.name for ix in s.INDEXES} <= have
+    assert w.drop_indexes_if_empty() is False         # never drops on a filled store
+
+
+def test_cleanup_touches_only_the_unfinished_run_of_that_repository(sample_history, tmp_path,
+                                                                    git_history):
+    from tests.git_support import when
+    engine = open_store(tmp_path / "s.sqlite")
+    mine_repository(sample_history.path, store=engine, options=MineOptions(progress=False))
+    other = git_history("other")
+    other.commit("x\n", files={"x": "1\n"}, date=when(0))
+    before = _tables(engine, "sample")
+    w = StoreWriter(engine)
+    rid = w.ensure_repository("other", str(other.path))
+    run = w.start_run(rid, ref="HEAD", head_hash="0" * 40, base_hash=None, is_shallow=False,
+                      options_json="{}", versions_json="{}")
+    from procmetrics.store.writer import CommitRow
+    w.write_batch(rid, run, [CommitRow("a" * 40, (), ("N", "n@x"), ("N", "n@x"), 0, 0, 0, 0,
+                                       "s", "s", False, True, [], [], [], [], [])])
+    assert len(read_table(engine, "commits", "other")) == 1
+    assert w.cleanup_incomplete(rid) == [run]
+    assert len(read_table(engine, "commits", "other")) == 0
+    after = _tables(engine, "sample")
+    for name in TABLES:
+        pd.testing.assert_frame_equal(before[name], after[name], obj=name)
+
+
+def test_same_tables_on_every_database(sample_history, any_store_url, tmp_path):  # noqa: F811
+    """PostgreSQL (when configured) must hold what SQLite holds."""
+    ref = open_store(tmp_path / "ref.sqlite")
+    mine_repository(sample_history.path, store=ref, options=MineOptions(progress=False))
+    engine = open_store(any_store_url)
+    try:
+        mine_repository(sample_history.path, store=engine, options=MineOptions(progress=False))
+        mine_repository(sample_history.path, store=engine, options=MineOptions(progress=False))
+        a, b = _tables(ref), _tables(engine)
+        for name in TABLES:
+            pd.testing.assert_frame_equal(a[name], b[name], obj=name)
+    finally:
+        engine.dispose()
