@@ -11,7 +11,12 @@ what a report shows:
   horizon* ``H``: only defects introduced at least ``H`` before the end of the
   history, and only lifetimes up to ``H``. For those cohorts every lifetime
   ``<= H`` was observable, so the comparison is free of truncation bias; the
-  numbers describe the distribution of lifetime *given* lifetime ``<= H``.
+  numbers describe the distribution of lifetime *given* lifetime ``<= H``;
+* beside that log-rank test, a *stratified* log-rank test on the same cohort
+  with the other grouping variable as strata (periods compared within
+  subsystems, subsystems within periods), so a difference between periods is
+  not just a change in the subsystem mix (``stratified_comparison``). Both are
+  reported; when they disagree a caveat says so.
 
 Negative lifetimes (clock skew) are excluded from every estimator and counted
 (``n_negative_excluded``).
@@ -41,7 +46,7 @@ from procmetrics.analyse.lifetimes import (
     CURVE_COLUMNS, kaplan_meier, quantile_estimates, truncated_product_limit,
 )
 from procmetrics.analyse.result import Caveat, caveat, to_plain
-from procmetrics.analyse.survival_tests import TestResult, logrank
+from procmetrics.analyse.survival_tests import TestResult, logrank, stratified_logrank
 
 SUMMARY_COLUMNS = ["group", "method", "quantile", "value", "low", "high", "level", "n", "unit"]
 CURVES_COLUMNS = ["group", "method"] + CURVE_COLUMNS
@@ -79,6 +84,8 @@ class LifetimeAnalysis:
     comparison: TestResult | None
     population: str
     caveats: tuple[Caveat, ...] = field(default_factory=tuple)
+    stratified_comparison: TestResult | None = None
+    strata_by: str | None = None
 
     def to_dict(self) -> dict[str, Any]:
         return to_plain(self)
@@ -120,6 +127,8 @@ def analyse_lifetimes(
     n_boot: int = 200,
     min_group_size: int = 10,
     rng: np.random.Generator | None = None,
+    stratify: bool = True,
+    alpha: float = 0.05,
 ) -> LifetimeAnalysis:
     """Curves, quantile summaries and (with ``by``) a log-rank comparison.
 
@@ -134,11 +143,17 @@ def analyse_lifetimes(
     n_boot : bootstrap resamples for the truncation-aware band and quantiles.
     min_group_size : groups with fewer usable defects get no curve/summary.
     rng : random generator (bootstrap); a fixed seed is used when None.
+    stratify : with ``by`` and ``horizon``, also run the log-rank test
+        stratified by the other grouping variable (``subsystem`` for periods,
+        ``period`` for subsystems).
+    alpha : level used only to word the caveat when the plain and the
+        stratified comparison disagree.
 
     References
     ----------
     Kaplan & Meier (1958); Lynden-Bell (1971); Lagakos, Barraj & De Gruttola
-    (1988); Peto & Peto (1972) for the log-rank test.
+    (1988); Peto & Peto (1972) for the log-rank test; Klein & Moeschberger
+    (2003), Survival Analysis, sec. 7.5 (stratified tests).
     """
     rng = rng if rng is not None else np.random.default_rng(20240601)
     if by not in (None, "subsystem", "period"):
@@ -190,12 +205,19 @@ def analyse_lifetimes(
                           f"than {min_group_size} usable defects: " + ", ".join(skipped)))
 
     comparison = None
+    stratified: TestResult | None = None
+    strata_by: str | None = None
     if by and cohort is not None:
         c = cohort.defects
         big = c.groupby(by)[by].transform("size") >= min_group_size
         c = c[big]
         if c[by].nunique() >= 2:
             comparison = logrank(c["lifetime"], c[by])
+            if stratify:
+                strata_by = "subsystem" if by == "period" else "period"
+                stratified, note = _stratified(c, by, strata_by, comparison, alpha)
+                if note is not None:
+                    cav.append(note)
     elif by:
         cav.append(caveat("truncation_bias", "groups were not compared: give a common "
                           "follow-up horizon so each group has the same chance to show long "
@@ -209,4 +231,36 @@ def analyse_lifetimes(
               else pd.DataFrame(columns=CURVES_COLUMNS))
     return LifetimeAnalysis(table.basis, unit, by, horizon, int(len(table.defects)), n_neg,
                             summary, curves, pd.DataFrame(grows, columns=GROUP_COLUMNS),
-                            comparison, population, tuple(cav))
+                            comparison, population, tuple(cav), stratified,
+                            strata_by if stratified is not None else None)
+
+
+def _stratified(c: pd.DataFrame, by: str, strata_by: str, plain: TestResult,
+                alpha: float) -> tuple[TestResult | None, Caveat | None]:
+    """Log-rank of ``by`` stratified by ``strata_by``, and a caveat if it tells otherwise."""
+    strata = c[strata_by].astype(str)
+    if strata.nunique() < 2:
+        return None, caveat("too_few_observations", f"no stratified comparison: all defects "
+                            f"in the horizon cohort share one {strata_by} ({strata.iloc[0]})",
+                            "info")
+    levels_per = c.groupby(strata)[by].nunique()
+    useful = set(levels_per.index[levels_per >= 2])
+    if not useful:
+        return None, caveat("not_identifiable", f"no {strata_by} has defects from two "
+                            f"{by} groups: {by} and {strata_by} cannot be separated")
+    res = stratified_logrank(c["lifetime"], c[by], strata)
+    n_useful = int(strata.isin(useful).sum())
+    note = None
+    sig_plain, sig_strat = plain.p_value < alpha, res.p_value < alpha
+    if sig_plain != sig_strat:
+        note = caveat("tuning_sensitive", f"the {by} comparison changes when stratified by "
+                      f"{strata_by}: log-rank p = {plain.p_value:.3g}, stratified p = "
+                      f"{res.p_value:.3g} ({n_useful} of {len(c)} defects are in "
+                      f"{strata_by} strata holding more than one {by})"
+                      + ("; the plain difference may be a change in the "
+                         f"{strata_by} mix" if sig_plain else ""))
+    elif n_useful < len(c):
+        note = caveat("too_few_observations", f"stratified by {strata_by}: {len(c) - n_useful} "
+                      f"of {len(c)} defects are in strata with a single {by} and carry no "
+                      "information for the stratified test", "info")
+    return res, note
