@@ -168,16 +168,15 @@ def adoption_figure(ctx: BuildContext, s: Any) -> None:
     if ctx.metrics is None:
         return
     t = ctx.metrics.table
-    rows = t[(t["subsystem"] == ALL) & t["metric"].isin(["fixes_tag_adoption",
-                                                         "review_coverage"])]
+    rows = t[(t["subsystem"] == ALL) & (t["metric"] == "fixes_tag_adoption")]
     rows = rows.reset_index(drop=True)
     n = int(t[(t["subsystem"] == ALL) & (t["metric"] == "fixes_tag_adoption")]["n"].sum())
     adoption = [c for c in ctx.metrics.caveats if c.code == "tag_adoption_rising"]
     fig = Figure(
-        "trailer-adoption", "Use of Fixes: and review trailers over time",
+        "trailer-adoption", "Use of the Fixes: trailer over time",
         f"Share of non-merge commits per {ctx.options.period} carrying at least one Fixes: "
-        "reference, and at least one review trailer (Reviewed-by, Acked-by, Tested-by)",
-        n=n, method="share per period", interval=f"{ctx.options.level:.0%} Wilson interval",
+        "reference, resolved or not (review trailers: see the review coverage series)",
+        n=n, method="share of commits per period", interval=f"{ctx.options.level:.0%} Wilson interval",
         data=rows, kinds=("history",),
         values={"first_use": ctx.quality["first_use"],
                 "adoption_rising": [c.to_dict() for c in adoption]},
