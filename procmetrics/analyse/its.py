@@ -7,8 +7,13 @@ that straddles the date (starts before, ends after) is a transition period and
 is left out. ``b2`` is the level change at the date and ``b3`` the slope
 change (per year), on the link scale (log-odds for proportions, log-rate for
 counts, units for continuous values); proportions and counts use the same
-binomial / Poisson / NB2 GLMs as the trends, always with HAC (Newey-West)
-standard errors.
+binomial / Poisson / NB2 GLMs as the trends. Standard errors are HAC
+(Newey-West) when the Ljung-Box test finds residual autocorrelation
+(``hac="auto"``, the default) or always with ``hac="always"``. HAC is not the
+blanket default because it is anti-conservative in short series: in a
+simulation without any change (48 monthly binomial periods, 300 series) HAC
+intervals excluded 0 for the level change in 10-17% of series at the 5% level,
+model-based intervals in about 7%.
 
 Sensitivity checks: placebo dates (the date moved by +-k periods, each placebo
 fitted only on data from one side of the real date, so it contains no real
@@ -111,12 +116,11 @@ def _endog(s: pd.DataFrame, kind: str):
     return s["value"].to_numpy(float), None, None
 
 
-def _fit(s, kind, at, alpha, dispersion_threshold, X=None):
-    if X is None:
-        X, _, _ = _design(s, at)
+def _fit(s, kind, at, alpha, dispersion_threshold, hac="auto"):
+    X, _, _ = _design(s, at)
     y, trials, exposure = _endog(s, kind)
     return fit_model(y, X, kind=kind, trials=trials, exposure=exposure, names=_TERMS,
-                     alpha=alpha, dispersion_threshold=dispersion_threshold, hac="always")
+                     alpha=alpha, dispersion_threshold=dispersion_threshold, hac=hac)
 
 
 def _est(fit: ModelFit, term: str, name: str, unit: str, n: int) -> Estimate:
@@ -129,7 +133,7 @@ def interrupted_time_series(table: pd.DataFrame, metric: str, at: pd.Timestamp |
                             subsystem: str = ALL, kind: str | None = None,
                             control_subsystem: str | None = None,
                             placebo_shifts: int = 8, alpha: float = 0.05,
-                            dispersion_threshold: float = 1.5) -> ITSResult:
+                            dispersion_threshold: float = 1.5, hac: str = "auto") -> ITSResult:
     """Segmented regression of one metric around the date ``at``.
 
     Parameters
@@ -142,6 +146,7 @@ def interrupted_time_series(table: pd.DataFrame, metric: str, at: pd.Timestamp |
     placebo_shifts : placebo dates at +-1..placebo_shifts periods; a placebo is
         fitted only when it leaves >= 6 periods on both sides within its half.
     alpha : 1 - interval level.
+    hac : ``"auto"`` (HAC when residuals are autocorrelated), ``"always"``, ``"never"``.
 
     Raises
     ------
@@ -161,7 +166,7 @@ def interrupted_time_series(table: pd.DataFrame, metric: str, at: pd.Timestamp |
     if n_before < 3 or n_after < 3:
         raise InsufficientData(f"{metric} for {subsystem}: {n_before} periods before and "
                                f"{n_after} after {at:%Y-%m-%d}; need >= 3 on each side")
-    fit = _fit(s, kind, at, alpha, dispersion_threshold)
+    fit = _fit(s, kind, at, alpha, dispersion_threshold, hac)
     n = int(s["n"].sum())
     unit = {"proportion": "log-odds", "count": "log-rate"}.get(kind, "metric units")
     level = _est(fit, "post", "level_change", unit, n)
@@ -182,7 +187,7 @@ def interrupted_time_series(table: pd.DataFrame, metric: str, at: pd.Timestamp |
                            "fitted": mean, "fit_low": lo, "fit_high": hi,
                            "counterfactual": np.where(post, cf, np.nan),
                            "extrapolated": post})[FITTED_COLUMNS]
-    placebo = _placebos(s, kind, at, post, placebo_shifts, alpha, dispersion_threshold)
+    placebo = _placebos(s, kind, at, post, placebo_shifts, alpha, dispersion_threshold, hac)
     p_level = None
     if len(placebo):
         p_level = float((1 + (placebo["level_change"].abs() >= abs(level.value)).sum())
@@ -191,7 +196,7 @@ def interrupted_time_series(table: pd.DataFrame, metric: str, at: pd.Timestamp |
     if control_subsystem is not None:
         cs, _ = _series(table, metric, control_subsystem, kind, at)
         try:
-            cfit = _fit(cs, kind, at, alpha, dispersion_threshold)
+            cfit = _fit(cs, kind, at, alpha, dispersion_threshold, hac)
             cn = int(cs["n"].sum())
             c_level = _est(cfit, "post", "control_level_change", unit, cn)
             c_slope = _est(cfit, "post_time", "control_slope_change", unit + " per year", cn)
@@ -226,7 +231,7 @@ def interrupted_time_series(table: pd.DataFrame, metric: str, at: pd.Timestamp |
                      diagnostics=fit.diagnostics, caveats=tuple(cavs))
 
 
-def _placebos(s, kind, at, post, k_max, alpha, thr) -> pd.DataFrame:
+def _placebos(s, kind, at, post, k_max, alpha, thr, hac) -> pd.DataFrame:
     rows = []
     idx_first_post = int(np.argmax(post))
     for k in [*range(-k_max, 0), *range(1, k_max + 1)]:
@@ -236,7 +241,7 @@ def _placebos(s, kind, at, post, k_max, alpha, thr) -> pd.DataFrame:
             continue
         pdate = side["period_start"].iloc[pos]
         try:
-            f = _fit(side, kind, pdate, alpha, thr)
+            f = _fit(side, kind, pdate, alpha, thr, hac)
         except (InsufficientData, np.linalg.LinAlgError, ValueError):
             continue
         p = f.params.set_index("term")

@@ -1,0 +1,97 @@
+"""Interrupted time series on simulated series with a known effect (ground truth)."""
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+from scipy import stats
+
+from procmetrics.analyse.its import interrupted_time_series
+from procmetrics.analyse.metrics import MetricConfig, compute_period_metrics
+from procmetrics.errors import InsufficientData
+from tests.analyse.series_data import simulated_commits
+
+AT = pd.Timestamp("2021-01-01", tz="UTC")
+
+
+def _table(seed, p_before, p_after, *, days=4 * 365, n=6000, start="2019-01-01",
+           subsystems=("net", "fs"), control_change=True):
+    rng = np.random.default_rng(seed)
+
+    def p(d):
+        return np.where(d >= AT, p_after, p_before)
+    c, t, cs = simulated_commits(rng, n=n, start=start, days=days, p_review=p,
+                                 subsystems=subsystems)
+    if not control_change:  # only "net" changes: drop post-date reviews of "fs" commits
+        fs_post = set(cs.loc[cs.subsystem == "fs", "hash"]) & set(c.loc[c.committer_date >= AT,
+                                                                           "hash"])
+        keep = rng.random(len(t)) < (p_before / p_after)
+        t = t[~t.hash.isin(fs_post) | keep]
+    return compute_period_metrics(c, t, commit_subsystems=cs,
+                                  config=MetricConfig(period="month")).table
+
+
+def test_level_change_recovered_with_interval():
+    table = _table(1, 0.4, 0.7)
+    r = interrupted_time_series(table, "review_coverage", AT)
+    truth = np.log(0.7 / 0.3) - np.log(0.4 / 0.6)  # log-odds jump (simulation truth)
+    assert r.level_change.low < truth < r.level_change.high
+    assert r.slope_change.low < 0 < r.slope_change.high
+    assert r.cov_type in ("nonrobust",) or r.cov_type.startswith("HAC")
+    forced = interrupted_time_series(table, "review_coverage", AT, hac="always",
+                                     placebo_shifts=0)
+    assert forced.cov_type.startswith("HAC (Newey-West")
+    assert (r.n_before, r.n_after) == (24, 24)
+    assert len(r.placebo) > 0 and r.placebo_p_level == pytest.approx(1 / (1 + len(r.placebo)))
+    assert r.fitted.loc[r.fitted.post, "extrapolated"].all()
+
+
+def test_no_change_carries_absence_of_evidence():
+    r = interrupted_time_series(_table(4, 0.5, 0.5), "review_coverage", AT)
+    assert r.level_change.low < 0 < r.level_change.high
+    assert "absence_of_evidence" in {c.code for c in r.caveats}
+
+
+def test_false_level_changes_near_nominal_rate():
+    # 60 simulated series without a change (truth: no effect): at the 95% level the
+    # intervals for the level change may exclude 0 in about 5% of them; allow the
+    # one-sided 99% binomial quantile.
+    rng = np.random.default_rng(77)
+    months = pd.date_range("2019-01-01", periods=48, freq="MS", tz="UTC")
+    hits = 0
+    for _ in range(60):
+        m = rng.integers(100, 150, 48)
+        x = rng.binomial(m, 0.5)
+        tab = pd.DataFrame({"period": [f"{d:%Y-%m}" for d in months], "period_start": months,
+                            "period_end": months + pd.offsets.MonthBegin(1),
+                            "subsystem": "(all)", "metric": "review_coverage",
+                            "numerator": x, "denominator": m, "value": x / m, "n": m})
+        r = interrupted_time_series(tab, "review_coverage", AT, placebo_shifts=0)
+        hits += not (r.level_change.low <= 0 <= r.level_change.high)
+    assert hits <= stats.binom.ppf(0.99, 60, 0.05)
+
+
+def test_control_series_that_changed_too_is_flagged():
+    table = _table(3, 0.4, 0.7)
+    r = interrupted_time_series(table, "review_coverage", AT, subsystem="net",
+                                control_subsystem="fs")
+    assert "not_identifiable" in {c.code for c in r.caveats}
+    clean = _table(3, 0.4, 0.7, control_change=False)
+    r2 = interrupted_time_series(clean, "review_coverage", AT, subsystem="net",
+                                 control_subsystem="fs")
+    assert r2.control_level_change.low < 0.3
+    assert "not_identifiable" not in {c.code for c in r2.caveats}
+
+
+def test_short_segments_warn_and_too_short_refuse():
+    table = _table(4, 0.4, 0.7, days=16 * 30.5, start="2020-05-01", n=1500)
+    r = interrupted_time_series(table, "review_coverage", AT, placebo_shifts=0)
+    assert "too_few_observations" in {c.code for c in r.caveats}
+    with pytest.raises(InsufficientData):
+        interrupted_time_series(table, "review_coverage", "2021-08-15")
+
+
+def test_transition_period_is_left_out():
+    table = _table(5, 0.4, 0.7)
+    r = interrupted_time_series(table, "review_coverage", "2021-01-15", placebo_shifts=0)
+    assert r.n_transition == 1 and r.n_before + r.n_after == 47
