@@ -7,10 +7,13 @@ import numpy as np
 import pandas as pd
 import pytest
 from lifelines.datasets import load_leukemia, load_rossi
-from lifelines.statistics import multivariate_logrank_test
+from lifelines import CoxPHFitter
+from lifelines.statistics import multivariate_logrank_test, proportional_hazard_test
 from statsmodels.duration.survfunc import survdiff
 
-from procmetrics.analyse.cox import fit_cox, fit_lifetime_cox, lifetime_design
+from procmetrics.analyse.cox import (
+    categorical_groups, fit_cox, fit_lifetime_cox, lifetime_design,
+)
 from procmetrics.analyse.survival_tests import logrank, stratified_logrank
 from procmetrics.errors import InsufficientData
 
@@ -71,7 +74,8 @@ def test_stratified_logrank_matches_statsmodels():
 
 
 def test_cox_rossi_published_efron_fit():
-    r = fit_cox(load_rossi(), "week", "arrest")
+    rossi = load_rossi()
+    r = fit_cox(rossi, "week", "arrest")
     c = r.summary.set_index("term")["coef"]
     # Fox & Weisberg, "Cox Proportional-Hazards Regression for Survival Data in R"
     # (appendix to An R Companion to Applied Regression), Efron ties; recalled from memory
@@ -80,12 +84,68 @@ def test_cox_rossi_published_efron_fit():
     assert c["prio"] == pytest.approx(0.0915, abs=1e-3)
     assert c["mar"] == pytest.approx(-0.434, abs=1e-3)
     assert r.ties == "efron"
-    # The same appendix reports non-proportional hazards for age (recalled from memory);
-    # the check fails and an AFT fallback is fitted and named
-    assert not r.ph_holds
-    assert r.fallback.startswith(("weibull_aft", "lognormal_aft"))
-    assert len(r.fallback_summary) > 0
+    # The same appendix reports non-proportional hazards for age and wexp (recalled from
+    # memory). Oracle: lifelines' own Schoenfeld test (rank transform) on the same fit.
+    ref = proportional_hazard_test(CoxPHFitter().fit(rossi, "week", "arrest"), rossi,
+                                   time_transform="rank").summary
+    ph = r.ph_tests.set_index("term")
+    for term in ref.index:
+        assert ph.loc[term, "p"] == pytest.approx(ref.loc[term, "p"], rel=1e-8)
+    failing = {t for t, p in ph["p"].items() if p * len(ph) < 0.05}   # Bonferroni
+    assert failing == {"age", "wexp"} and not r.ph_holds
+    # wexp is binary, so it is offered as a stratum; oracle: lifelines strata=["wexp"]
+    assert r.strata == ("wexp",)
+    sref = CoxPHFitter().fit(rossi, "week", "arrest", strata=["wexp"])
+    ss = r.stratified_summary.set_index("term")
+    assert "wexp" not in ss.index
+    for term in sref.summary.index:
+        assert ss.loc[term, "coef"] == pytest.approx(sref.summary.loc[term, "coef"], rel=1e-6)
+        assert ss.loc[term, "se"] == pytest.approx(sref.summary.loc[term, "se(coef)"], rel=1e-6)
+    sph = proportional_hazard_test(sref, rossi, time_transform="rank").summary
+    assert r.stratified_ph_tests.set_index("term").loc["age", "p"] == pytest.approx(
+        sph.loc["age", "p"], rel=1e-8)
+    # stratified on wexp, age's Schoenfeld p (about 0.03) passes Bonferroni over 6 terms,
+    # so the stratified model is the recommended fallback; the AFT fit is kept beside it
+    assert r.stratified_ph_holds is True
+    assert r.fallback == "stratified_cox (strata: wexp)"
+    assert "wexp is categorical" in r.fallback_reason and "age" in r.fallback_reason
+    assert r.aft_model.startswith(("weibull_aft", "lognormal_aft"))
+    assert len(r.aft_summary) > 0 and r.fallback_summary is r.aft_summary
+    assert any(d.name == "schoenfeld_min_p_stratified" and d.verdict == "pass"
+               for d in r.diagnostics)
     json.dumps(r.to_dict())
+
+
+def test_cox_stratifies_a_non_proportional_group_simulation():
+    # known truth: crossing hazards between two groups (Weibull shapes 0.5 and 2.5),
+    # and a proportional covariate x with log hazard ratio 0.5 in both
+    rng = np.random.default_rng(4)
+    n = 600
+    g = rng.random(n) < 0.5
+    x = rng.normal(size=n)
+    shape = np.where(g, 2.5, 0.5)
+    t = (-np.log(rng.random(n)) / (np.exp(0.5 * x) * 0.05 ** shape)) ** (1 / shape)
+    r = fit_cox(pd.DataFrame({"t": t, "g": g.astype(float), "x": x}), "t")
+    assert not r.ph_holds and "g" in set(r.ph_tests.loc[r.ph_tests["p"] < 0.025, "term"])
+    assert r.fallback == "stratified_cox (strata: g)" and r.stratified_ph_holds
+    row = r.stratified_summary.set_index("term").loc["x"]
+    lo, hi = np.log(row["hr_low"]), np.log(row["hr_high"])
+    assert lo < 0.5 < hi
+
+
+def test_cox_continuous_violation_falls_back_to_aft_simulation():
+    # known truth: log-normal AFT, log T = 1.0 x + 0.3 g + 0.4 e: x is not proportional
+    rng = np.random.default_rng(5)
+    n = 600
+    x, z = rng.normal(size=n), rng.normal(size=n)
+    g = (rng.random(n) < 0.5).astype(float)
+    t = np.exp(1.0 * x + 0.3 * g + 0.4 * rng.normal(size=n))
+    r = fit_cox(pd.DataFrame({"t": t, "x": x, "z": z, "g": g}), "t")
+    assert not r.ph_holds and r.strata == () and r.stratified_ph_holds is None
+    assert r.fallback.startswith("lognormal_aft") and "x not categorical" in r.fallback_reason
+    a = r.aft_summary.set_index(["parameter", "term"])
+    for term, truth in (("x", 1.0), ("g", 0.3)):
+        assert a.loc[("mu_", term), "low"] < truth < a.loc[("mu_", term), "high"]
 
 
 def test_cox_rank_check_drops_aliased_columns_and_warns_on_epv():
@@ -123,6 +183,11 @@ def test_lifetime_cox_design_and_fit():
         f"subsystem[{s}]" for s in {"fs", "net", "mm"} - {ref})
     assert {"reviewed_introducer", "log1p_intro_size", "lifetime", "event"} <= set(X.columns)
     assert sum(c.startswith("period[") for c in X.columns) == 1
+    # stratum candidates: indicator groups and two-valued columns, not the size
+    covs = [c for c in X.columns if c not in ("lifetime", "event")]
+    groups = categorical_groups(covs, X)
+    assert set(groups) == {"subsystem", "period", "reviewed_introducer"}
+    assert len(groups["subsystem"]) == 2
     r = fit_lifetime_cox(d)
     hr = r.summary.set_index("term").loc["reviewed_introducer", ["hr_low", "hr_high"]]
     assert hr["hr_low"] < 2.0 < hr["hr_high"]
