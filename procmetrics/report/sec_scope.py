@@ -129,6 +129,7 @@ def section_quality(ctx: BuildContext) -> None:
               f"Every defect figure is flagged when more than {limit:.0%} of references are "
               "unresolved or ambiguous"
               + ("" if share is None else f"; here {share:.1%}") + ".")))
+    _unresolved_table(ctx, s)
     rows = [
         {"check": f"author date later than committer date by more than "
                   f"{clock['skew_tolerance_hours']:g} h", "count": clock["n_author_after_committer"]},
@@ -182,3 +183,29 @@ def adoption_figure(ctx: BuildContext, s: Any) -> None:
                 "adoption_rising": [c.to_dict() for c in adoption]},
         png=plots.adoption_png(ctx, rows))
     ctx.add_figure(s, fig, result=adoption, min_n=None)
+
+
+#: at most this many unresolved references are listed by name
+MAX_LISTED = 15
+
+
+def _unresolved_table(ctx: BuildContext, s: Any) -> None:
+    """List (some of) the fix references that name no single commit, with their text."""
+    fl_ = ctx.data["fix_links"]
+    bad = fl_[fl_["status"].isin(["unresolved", "ambiguous"])]
+    if bad.empty:
+        return
+    c = ctx.data["commits"][["hash", "subject"]]
+    rows = bad.merge(c, left_on="fix_hash", right_on="hash", how="left")
+    rows = rows.sort_values(["fix_committer_date", "fix_hash", "position"]).head(MAX_LISTED)
+    out = pd.DataFrame({"fix": rows["fix_hash"].astype(str).str[:12],
+                        "subject": rows["subject"].fillna(""),
+                        "reference": rows["raw_text"].fillna(""),
+                        "status": rows["status"]})
+    ctx.report.add_table(s, Table(
+        "unresolved-references", "Fix references that name no single commit of this history"
+        + (f" (first {MAX_LISTED} of {len(bad)})" if len(bad) > MAX_LISTED else "") + ".",
+        [("fix", "Fixing commit"), ("subject", "Its subject"),
+         ("reference", "Reference as written"), ("status", "Status")], out,
+        note="Text as written in the repository. Typical causes: a hash of a commit amended "
+             "before merging, a commit of another project, a typing error, or a shallow clone."))
