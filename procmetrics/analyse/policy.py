@@ -45,7 +45,11 @@ _SHARES = {"reviewed": "review_coverage", "independent": "independent_review",
 
 @dataclass(frozen=True)
 class PolicyComparison:
-    """All before/after evidence for one declared date."""
+    """All before/after evidence for one declared date.
+
+    ``samples`` (not in ``to_dict``) holds the per-commit values compared, long
+    format: ``quantity``, ``side`` ("before"/"after"), ``value`` - for ECDF plots.
+    """
 
     at: pd.Timestamp
     period: str
@@ -55,6 +59,8 @@ class PolicyComparison:
     distributions: tuple[DistributionComparison, ...]
     proportions: tuple[ProportionComparison, ...]
     change_points: tuple[tuple[str, ChangeVsDate], ...]
+    samples: pd.DataFrame = field(default_factory=pd.DataFrame,
+                                  metadata={"json": False})
     skipped: tuple[str, ...] = field(default=())
     caveats: tuple[Caveat, ...] = field(default=())
 
@@ -153,6 +159,11 @@ def compare_policy(commits: pd.DataFrame, trailers: pd.DataFrame, *, at: pd.Time
                                              quantity=label, alpha=alpha))
         except InsufficientData as exc:
             skipped.append(f"proportion {label}: {exc}")
+    samples = pd.concat([pd.DataFrame({"quantity": label, "side": side,
+                                       "value": part[col].to_numpy(float)})
+                         for col, label in _PER_COMMIT.items()
+                         for side, part in (("before", before), ("after", after))],
+                        ignore_index=True)
     cps = []
     for m in metrics:
         try:
@@ -173,7 +184,7 @@ def compare_policy(commits: pd.DataFrame, trailers: pd.DataFrame, *, at: pd.Time
     return PolicyComparison(at=at, period=config.period, its=tuple(its), subsystems=sub,
                             multiplicity=mult, distributions=tuple(dists),
                             proportions=tuple(props), change_points=tuple(cps),
-                            skipped=tuple(skipped), caveats=tuple(_dedupe(cavs)))
+                            samples=samples, skipped=tuple(skipped), caveats=tuple(_dedupe(cavs)))
 
 
 def _dedupe(cavs: list[Caveat]) -> list[Caveat]:

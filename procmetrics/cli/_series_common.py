@@ -28,6 +28,8 @@ def add_series_arguments(p: argparse.ArgumentParser) -> None:
                    help="review-type trailer key (repeatable; default Reviewed-by, Acked-by, "
                    "Tested-by)")
     p.add_argument("--include-merges", action="store_true", help="count merge commits too")
+    p.add_argument("--fix-keywords", action="store_true",
+                   help="add fix_ratio_heuristic (subject keywords; flagged as heuristic)")
     p.add_argument("--seed", type=int, default=20240601, help="random seed (bootstrap)")
     p.add_argument("--out", metavar="DIR", help="write CSV/JSON and PNG+SVG figures here")
 
@@ -40,7 +42,8 @@ def load(args: argparse.Namespace) -> tuple[dict[str, pd.DataFrame], str]:
 
 def metric_config(args: argparse.Namespace, tables: dict[str, pd.DataFrame]) -> Any:
     """MetricConfig from the options; ``subsystems`` None means whole project only."""
-    from procmetrics.analyse.metrics import DEFAULT_REVIEW_KEYS, MetricConfig
+    from procmetrics.analyse.metrics import (DEFAULT_FIX_KEYWORDS, DEFAULT_REVIEW_KEYS,
+                                             MetricConfig)
 
     subs: tuple[str, ...] | None = None
     if args.subsystem:
@@ -49,7 +52,8 @@ def metric_config(args: argparse.Namespace, tables: dict[str, pd.DataFrame]) -> 
         subs = tuple(sorted(tables["commit_subsystems"]["subsystem"].dropna().unique()))
     return MetricConfig(period=args.period, include_merges=args.include_merges,
                         review_keys=tuple(args.review_key or DEFAULT_REVIEW_KEYS),
-                        subsystems=subs)
+                        heuristic_keywords=DEFAULT_FIX_KEYWORDS if args.fix_keywords
+                        else None, subsystems=subs)
 
 
 def compute(args: argparse.Namespace, tables: dict[str, pd.DataFrame]) -> Any:

@@ -87,9 +87,13 @@ def run(args: argparse.Namespace) -> int:
 def _write(out, res) -> None:
     import json
 
+    from procmetrics.plot.distributions import plot_ecdf
     from procmetrics.plot.series import plot_its, save_figure
 
     (out / "compare.json").write_text(json.dumps(res.to_dict(), indent=1, default=str) + "\n")
     res.subsystems.to_csv(out / "compare_subsystems.csv", index=False)
     for r in res.its:
         save_figure(plot_its(r), out / f"its_{r.metric}")
+    for i, (quantity, part) in enumerate(res.samples.groupby("quantity", sort=False)):
+        groups = {side: part.loc[part["side"] == side, "value"] for side in ("before", "after")}
+        save_figure(plot_ecdf(groups, quantity=quantity, log_x=True), out / f"ecdf_{i}")
