@@ -201,7 +201,12 @@ def fit_model(endog: np.ndarray, exog: np.ndarray, *, kind: str,
         quasi = phi0 > dispersion_threshold
         model, link, units = ("quasi-binomial GLM (logit, scale = Pearson X2/df)" if quasi
                               else "binomial GLM (logit)"), "logit", float(m.sum())
-        fit_kw: dict[str, Any] = {"scale": "X2"} if quasi else {}
+        # Pass the dispersion as a number: with a two-column (successes, failures)
+        # endog, statsmodels' scale="X2" is computed on the proportion scale without
+        # the binomial weights and comes out far too small (measured: 0.015 where
+        # Pearson X2/df is 3.0), which would make quasi-binomial intervals narrower
+        # than binomial ones instead of wider.
+        fit_kw: dict[str, Any] = {"scale": phi0} if quasi else {}
         diags.append(dg.pearson_dispersion(base.pearson_chi2, base.df_resid,
                                            warn=dispersion_threshold,
                                            note="switched to quasi-binomial" if quasi else ""))
@@ -225,7 +230,7 @@ def fit_model(endog: np.ndarray, exog: np.ndarray, *, kind: str,
                              offset=offset)
                 model = f"negative binomial NB2 GLM (log, alpha={nb_alpha.value:.3g} by MLE)"
             else:
-                fit_kw = {"scale": "X2"}
+                fit_kw = {"scale": phi0}
                 model = "quasi-Poisson GLM (log, scale = Pearson X2/df)"
                 notes.append("NB2 alpha did not converge; quasi-Poisson used")
         diags.insert(0, dg.pearson_dispersion(

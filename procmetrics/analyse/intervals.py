@@ -30,6 +30,10 @@ def wilson(count: np.ndarray, nobs: np.ndarray, alpha: float = 0.05
     if ok.any():
         lo[ok], hi[ok] = proportion_confint(count[ok], nobs[ok], alpha=alpha,
                                             method="wilson")
+        # The closed form leaves rounding residue (e.g. 8.7e-19) at 0 successes and
+        # just below 1 at all successes; the Wilson bounds are exactly 0 and 1 there.
+        lo[ok & (count == 0)] = 0.0
+        hi[ok & (count == nobs)] = 1.0
     return lo, hi
 
 

@@ -147,3 +147,14 @@ def test_tag_adoption_rising_caveat():
     flat = c.assign(n_fix_refs=(rng.random(len(c)) < 0.15).astype(int))
     pm2 = compute_period_metrics(flat, t, config=MetricConfig(period="quarter"))
     assert "tag_adoption_rising" not in {cv.code for cv in pm2.caveats}
+
+
+def test_wilson_bounds_are_exact_at_zero_and_all_successes():
+    # Wilson (1927): with 0 successes the lower bound is 0 and with n successes the
+    # upper bound is 1 (the score interval's closed form); the upper bound at 0/n is
+    # z^2 / (n + z^2), here checked for n = 358.
+    from procmetrics.analyse.intervals import wilson
+    z = 1.959963984540054
+    lo, hi = wilson(np.array([0, 358]), np.array([358, 358]))
+    assert lo[0] == 0.0 and hi[1] == 1.0
+    assert hi[0] == pytest.approx(z**2 / (358 + z**2), rel=1e-9)

@@ -171,3 +171,23 @@ def test_normality_note_at_large_n():
 def test_cooks_distance_screening():
     d = dg.cooks_distance(np.array([0.01] * 6 + [0.6, 1.5]))   # 4/n = 0.5
     assert d.verdict == "warn" and d.note.startswith("2 of 8") and d.value == 1.5
+
+
+def test_quasi_binomial_widens_binomial_errors_by_sqrt_dispersion():
+    # Quasi-likelihood: the quasi-binomial covariance is the binomial one times the
+    # Pearson X2/df dispersion (McCullagh & Nelder 1989, Generalized Linear Models,
+    # 2nd ed., section 4.5). statsmodels' own scale="X2" gets this wrong for a
+    # two-column endog (it came out 0.015 instead of 3.0 on a real history), so the
+    # oracle here is the unscaled statsmodels fit times sqrt(Pearson X2/df).
+    rng = np.random.default_rng(11)
+    trials = rng.integers(60, 600, size=18)
+    p = 1 / (1 + np.exp(-(-4 + 0.3 * np.arange(18) + rng.normal(0, 0.4, 18))))
+    y = rng.binomial(trials, p)
+    X = sm.add_constant(np.arange(18, dtype=float))
+    ref = sm.GLM(np.column_stack([y, trials - y]), X, family=sm.families.Binomial()).fit()
+    phi = ref.pearson_chi2 / ref.df_resid
+    assert phi > 1.5
+    fit = fit_model(y, X, kind="proportion", trials=trials, hac="never")
+    assert "quasi-binomial" in fit.model
+    np.testing.assert_allclose(fit.params["std_error"], ref.bse * np.sqrt(phi), rtol=1e-6)
+    assert (fit.params["std_error"].to_numpy() > ref.bse).all()
