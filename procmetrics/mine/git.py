@@ -4,7 +4,7 @@ Every call is an argv list (never a shell). The environment drops inherited
 ``GIT_*`` variables and sets ``GIT_CONFIG_NOSYSTEM=1``,
 ``GIT_CONFIG_GLOBAL=/dev/null`` (so neither system nor user configuration can
 change results or start programs), no pager, no terminal prompts, no optional
-locks, no lazy fetches in partial clones and no replace refs. Command-line
+locks, no lazy fetches in partial clones and no replace refs or grafts. Command-line
 ``-c`` settings then pin what the repository's own config could change
 (fsmonitor, external diff, textconv, signature display, diff algorithm,
 rename limit, output encoding, hooks path) and mark the repository a
@@ -44,6 +44,9 @@ def git_environment(base: dict[str, str] | None = None) -> dict[str, str]:
         "GIT_ATTR_NOSYSTEM": "1", "GIT_TERMINAL_PROMPT": "0", "GIT_PAGER": "cat",
         "PAGER": "cat", "GIT_OPTIONAL_LOCKS": "0", "GIT_NO_LAZY_FETCH": "1",
         "GIT_NO_REPLACE_OBJECTS": "1", "LC_ALL": "C", "LANGUAGE": "C",
+        # a path that cannot exist: info/grafts (which GIT_NO_REPLACE_OBJECTS does not
+        # cover) is ignored too, so the mined parents are those in the commit objects
+        "GIT_GRAFT_FILE": os.devnull + "/no-grafts",
     })
     return env
 
@@ -221,4 +224,7 @@ class GitRepo:
 def _failure(args: Sequence[str], code: int, stderr: bytes) -> str:
     msg = stderr.decode("utf-8", "replace").strip().splitlines()
     detail = msg[-1] if msg else "no message"
+    if "promisor remote" in detail:
+        detail += (" (a partial clone without these objects; procmetrics never fetches: "
+                   "mine a full clone)")
     return f"git {args[0] if args else ''} failed (exit {code}): {detail}"
