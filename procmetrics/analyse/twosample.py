@@ -146,6 +146,12 @@ def _kth_difference(a: np.ndarray, b: np.ndarray, k: int) -> float:
             lo = mid
         if hi - lo <= 1e-12 * max(1.0, abs(hi)):
             break
+    # Snap the bisection bound to the actual difference just below it, so the result
+    # is one of the b_j - a_i (no rounding residue such as 4.5e-13 for a zero shift).
+    idx = np.searchsorted(a, b - hi, side="left")
+    ok = idx < len(a)
+    if ok.any():
+        return float((b[ok] - a[idx[ok]]).max())
     return hi
 
 

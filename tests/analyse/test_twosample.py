@@ -66,7 +66,12 @@ def test_large_sample_hodges_lehmann_without_materialising():
     a, b = rng.normal(0, 1, 300), rng.normal(0.5, 1, 250)
     d = np.sort(np.subtract.outer(b, a).ravel())
     for k in (1, 100, 37_500, 75_000):
-        assert _kth_difference(a, b, k) == pytest.approx(d[k - 1], abs=1e-9)
+        assert _kth_difference(a, b, k) == d[k - 1]   # exactly one of the differences
+    # heavily tied integer data (as in "reviewers per commit"): the shift is exactly 0
+    ta, tb = rng.integers(0, 3, 2000).astype(float), rng.integers(0, 3, 2500).astype(float)
+    td = np.sort(np.subtract.outer(tb, ta).ravel())
+    for k in (1, 2_500_000, 5_000_000):
+        assert _kth_difference(ta, tb, k) == td[k - 1]
 
 
 def test_cliffs_delta_brute_force_and_magnitude_caveats():
