@@ -14,6 +14,17 @@ the commit that introduced the problem. The rules, fixed and documented:
   late-applied patches) are kept, flagged ``negative=True``, counted and
   carried with a ``clock_skew`` caveat. Estimators exclude them from
   estimation and report how many they excluded; nothing is clipped.
+* **Link era.** A defect can only be seen once the project writes fix links.
+  Before that date ``A`` no fix is linked, so a defect introduced at ``u < A``
+  shows up only if its lifetime is at least ``A - u``: old introducers enter
+  the table only with long lifetimes (left truncation on top of the right
+  truncation at the end of the history). By default (``links_from=
+  "first_link"``) ``A`` is the date of the first linked fix and defects
+  introduced before ``A`` are left out and counted (``n_before_links``); for
+  introducers from ``A`` on, the only truncation is at the end of the history.
+  Where linking starts slowly, a later ``links_from`` date is better; a
+  ``tag_adoption_rising`` caveat says when the first year after ``A`` has far
+  fewer links per commit than the rest.
 
 Columns of :attr:`DefectTable.defects` (:data:`DEFECT_COLUMNS`):
 
@@ -83,9 +94,39 @@ class DefectTable:
     n_follow_up_fixes: int
     population: str
     caveats: tuple[Caveat, ...] = field(default_factory=tuple)
+    links_from: pd.Timestamp | None = None
+    n_before_links: int = 0
 
     def to_dict(self) -> dict[str, Any]:
         return to_plain(self)
+
+
+def _utc(x: Any) -> pd.Timestamp:
+    ts = pd.Timestamp(x)
+    return ts.tz_localize("UTC") if ts.tzinfo is None else ts.tz_convert("UTC")
+
+
+def _adoption_caveat(fixes: pd.Series, commits: pd.DataFrame | None, start: pd.Timestamp,
+                     tau: pd.Timestamp, clock: str) -> Caveat | None:
+    """Warn when the first year after ``start`` has far fewer linked fixes per commit."""
+    if commits is None or not len(commits) or pd.isna(tau) or (tau - start).days < 730:
+        return None
+    c = commits
+    if "is_merge" in c:
+        c = c[~c["is_merge"].fillna(False).astype(bool)]
+    cd = pd.to_datetime(c[f"{clock}_date"], utc=True)
+    cut = start + pd.Timedelta(days=365)
+    n1, n2 = int(((cd >= start) & (cd < cut)).sum()), int(((cd >= cut) & (cd <= tau)).sum())
+    f1, f2 = int(((fixes >= start) & (fixes < cut)).sum()), int(((fixes >= cut) & (fixes <= tau)).sum())
+    if not (n1 and n2 and f2):
+        return None
+    s1, s2 = f1 / n1, f2 / n2
+    if s1 >= 0.5 * s2:
+        return None
+    return caveat("tag_adoption_rising", f"fix links were rare in the first year after "
+                  f"{start:%Y-%m-%d} ({f1} linked fixes in {n1} commits, {s1:.1%}) compared "
+                  f"with later ({s2:.1%}): defects fixed in that year are under-represented; "
+                  "choose a later links_from date (CLI: --links-from) where linking had settled")
 
 
 def _periods(dates: pd.Series, cuts: Sequence[Any] | None, freq: str) -> pd.Series:
@@ -132,6 +173,8 @@ def build_defects(
     period_cuts: Sequence[Any] | None = None,
     period_freq: str = "Y",
     review_keys: Sequence[str] = REVIEW_KEYS,
+    links_from: Any = "first_link",
+    link_source: str = "Fixes: link",
 ) -> DefectTable:
     """Build the one-row-per-defect table from the tidy ``fix_links`` table.
 
@@ -153,6 +196,11 @@ def build_defects(
     period_cuts : dates splitting introductions into periods (one date gives
         ``before``/``after``); default: calendar periods of ``period_freq``.
     review_keys : trailer keys that count as review (case-insensitive).
+    links_from : start of the link era (see module docstring): ``"first_link"``
+        (default: the first linked fix on the basis clock), a date, or None
+        (keep every introducer, accepting the left truncation).
+    link_source : how the links were found, for the population text
+        (``"Fixes: link"``; the blame heuristic passes its own wording).
 
     Returns
     -------
@@ -188,6 +236,15 @@ def build_defects(
     first["follow_up_fixes"] = [follow.loc[(r, h)] for r, h in
                                 zip(first["repo"], first["introducer_hash"])]
     n_follow = int(len(links) - len(first))
+    if isinstance(links_from, str) and links_from == "first_link":
+        era = links["_fix"].min() if len(links) else pd.NaT
+    elif links_from is None:
+        era = pd.NaT
+    else:
+        era = _utc(links_from)
+    before = (first["_intro"] < era) if pd.notna(era) else pd.Series(False, index=first.index)
+    n_before = int(before.sum())
+    first = first[~before]
 
     if end_date is not None:
         tau = pd.Timestamp(end_date)
@@ -270,18 +327,30 @@ def build_defects(
     if n_missing:
         cav.append(caveat("too_few_observations", f"{n_missing} resolved link(s) lack a "
                           "date for the introducer or the fix and were dropped", "info"))
+    if n_before:
+        cav.append(caveat("truncation_bias", f"{n_before} defect(s) introduced before the "
+                          f"link era began ({era:%Y-%m-%d}) were left out: before that date no "
+                          "fix was linked, so old introducers appear only with long lifetimes",
+                          "info"))
+    if pd.notna(era) and link_source == "Fixes: link":
+        adopt = _adoption_caveat(links.drop_duplicates("fix_hash")["_fix"], commits, era,
+                                 tau, clock)
+        if adopt is not None:
+            cav.append(adopt)
     cav.append(caveat("truncation_bias", "only defects fixed (with a link) before the end "
                       "of the history appear: long lifetimes of recent defects are missing",
                       "info"))
-    cav.append(caveat("not_identifiable", "defects never found or fixed without a Fixes: "
-                      "link are absent; their number cannot be estimated from this data",
-                      "info"))
+    cav.append(caveat("not_identifiable", f"defects never found or fixed without a "
+                      f"{link_source} are absent; their number cannot be estimated from this "
+                      "data", "info"))
     unit = "releases" if basis == "releases" else "days"
-    population = ("defects whose fixing commit cites the introducing commit with a resolved "
-                  f"Fixes: link, fixed before {tau:%Y-%m-%d}; lifetime = {unit} from introducer "
-                  "to first fix" if pd.notna(tau) else "no defects")
+    since = f"introduced on or after {era:%Y-%m-%d} (start of the link era), " \
+        if pd.notna(era) else ""
+    population = (f"defects whose fixing commit is linked to the introducing commit by a "
+                  f"resolved {link_source}, {since}fixed before {tau:%Y-%m-%d}; lifetime = "
+                  f"{unit} from introducer to first fix" if pd.notna(tau) else "no defects")
     return DefectTable(d, basis, unit, tau, link_counts, n_missing, n_neg, n_follow,
-                       population, tuple(cav))
+                       population, tuple(cav), era if pd.notna(era) else None, n_before)
 
 
 def lifetimes_for_estimation(defects: pd.DataFrame) -> tuple[pd.DataFrame, int]:

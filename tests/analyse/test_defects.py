@@ -3,6 +3,7 @@ from __future__ import annotations
 
 import json
 
+import numpy as np
 import pandas as pd
 import pytest
 
@@ -41,7 +42,7 @@ def links() -> pd.DataFrame:
 
 
 def test_pairing_rules(links):
-    t = build_defects(links, end_date=d(100))
+    t = build_defects(links, end_date=d(100), links_from=None)
     df = t.defects
     assert list(df.columns) == DEFECT_COLUMNS
     assert sorted(df["introducer_hash"]) == ["i1", "i2", "i3", "i4", "i5"]
@@ -58,7 +59,7 @@ def test_pairing_rules(links):
 
 
 def test_negative_lifetimes_kept_flagged_and_caveated(links):
-    t = build_defects(links, end_date=d(100))
+    t = build_defects(links, end_date=d(100), links_from=None)
     neg = t.defects[t.defects["negative"]]
     assert list(neg["introducer_hash"]) == ["i4"] and neg["lifetime"].iloc[0] == -10
     assert t.n_negative == 1
@@ -66,8 +67,8 @@ def test_negative_lifetimes_kept_flagged_and_caveated(links):
 
 
 def test_author_basis_uses_author_dates(links):
-    c = build_defects(links, end_date=d(100)).defects.set_index("introducer_hash")
-    a = build_defects(links, basis="author", end_date=d(100)).defects.set_index("introducer_hash")
+    c = build_defects(links, end_date=d(100), links_from=None).defects.set_index("introducer_hash")
+    a = build_defects(links, basis="author", end_date=d(100), links_from=None).defects.set_index("introducer_hash")
     assert c.loc["i5", "lifetime"] == 20 and a.loc["i5", "lifetime"] == 3
     assert (a["basis"] == "author").all()
 
@@ -83,7 +84,7 @@ def test_end_date_from_commits_and_covariates(links):
     subs = pd.DataFrame({"repo": "r", "hash": ["i1", "i1", "i2"], "subsystem": ["net", "fs", "fs"]})
     trailers = pd.DataFrame({"repo": "r", "hash": ["i2", "i3"], "key": ["Reviewed-by", "Signed-off-by"]})
     t = build_defects(links, commits=commits, commit_subsystems=subs, trailers=trailers,
-                      period_cuts=["2022-01-15"])
+                      period_cuts=["2022-01-15"], links_from=None)
     assert t.end_date == d(120)
     df = t.defects.set_index("introducer_hash")
     assert df.loc["i1", "subsystem"] == "(multiple)" and df.loc["i1", "subsystems"] == "fs;net"
@@ -101,7 +102,8 @@ def test_release_basis_counts_tags_with_introducer_not_fix(links):
         {"tag": "v2", "commit_hash": "f1", "contains": True},
         {"tag": "v1", "commit_hash": "f1", "contains": False},
     ])
-    t = build_defects(links, basis="releases", tag_containment=cont, end_date=d(100))
+    t = build_defects(links, basis="releases", tag_containment=cont, end_date=d(100),
+                      links_from=None)
     row = t.defects.set_index("introducer_hash").loc["i1"]
     assert row["lifetime"] == 1 and row["window"] == 2
     assert t.unit == "releases"
@@ -110,7 +112,55 @@ def test_release_basis_counts_tags_with_introducer_not_fix(links):
 
 
 def test_invariant_to_row_order_and_json(links):
-    a = build_defects(links, end_date=d(100)).defects
-    b = build_defects(links.sample(frac=1, random_state=3), end_date=d(100)).defects
+    a = build_defects(links, end_date=d(100), links_from=None).defects
+    b = build_defects(links.sample(frac=1, random_state=3), end_date=d(100), links_from=None).defects
     pd.testing.assert_frame_equal(a, b)
-    json.dumps(build_defects(links, end_date=d(100)).to_dict())
+    json.dumps(build_defects(links, end_date=d(100), links_from=None).to_dict())
+
+
+def test_link_era_default_drops_introducers_before_the_first_link(links):
+    t = build_defects(links, end_date=d(100))
+    # the first linked fix is f1 at day 10 (committer clock; f4 at day 50 is negative
+    # but still a linked fix, f1 is earlier): introducers before day 10 are left out
+    assert t.links_from == d(10)
+    assert sorted(t.defects["introducer_hash"]) == ["i3", "i4", "i5"]
+    assert t.n_before_links == 2
+    assert "introduced on or after 2022-01-11" in t.population
+    assert any(c.code == "truncation_bias" and "link era" in c.message for c in t.caveats)
+    assert build_defects(links, end_date=d(100), links_from=d(25)).n_before_links == 3
+
+
+def test_link_era_removes_left_truncation_bias_simulation():
+    """Known truth: log-normal lifetimes (median 120 days, sigma 1), introductions uniform
+    over 6 years, fixes linked only from year 3 on. Keeping old introducers inflates the
+    lifetimes (they enter only when long); the link-era restriction recovers the truth."""
+    from scipy import stats
+
+    from procmetrics.analyse.lifetimes import quantile_estimates
+
+    rng = np.random.default_rng(31)
+    n = 3000
+    t0 = pd.Timestamp("2015-01-01", tz="UTC")
+    u = rng.uniform(0, 6 * 365, n)
+    life = np.exp(np.log(120.0) + rng.normal(size=n))
+    fix = u + life
+    seen = (fix >= 3 * 365) & (fix <= 6 * 365)     # linked, and before the end
+    df = pd.DataFrame([link(f"f{i}", f"i{i}", 0, 0) for i in np.flatnonzero(seen)])
+    days = {"fix": fix[seen], "intro": u[seen]}
+    for col, key in (("fix_committer_date", "fix"), ("fix_author_date", "fix"),
+                     ("intro_committer_date", "intro"), ("intro_author_date", "intro")):
+        df[col] = t0 + pd.to_timedelta(days[key], unit="D")
+    end = t0 + pd.Timedelta(days=6 * 365)
+    med = {}
+    for mode in (None, "first_link"):
+        t = build_defects(df, end_date=end, links_from=mode)
+        q = quantile_estimates(t.defects["lifetime"], t.defects["window"], quantiles=(0.5,),
+                               n_boot=100, rng=np.random.default_rng(0))[0]
+        med[mode] = (q, t.defects["lifetime"].max())
+    # the estimator targets the median given lifetime <= the longest observed one
+    q, t_max = med["first_link"]
+    f_max = stats.norm.cdf(np.log(t_max / 120.0))
+    truth = 120.0 * np.exp(stats.norm.ppf(0.5 * f_max))
+    assert q.low <= truth <= q.high
+    # old introducers enter only with long lifetimes: the unrestricted estimate is far off
+    assert med[None][0].low > 1.2 * truth

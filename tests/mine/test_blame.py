@@ -121,6 +121,6 @@ def test_szz_candidates_and_release_lifetime(history):
     assert len(FAILURE_MODES) >= 5
     links = as_fix_links(res, commits)
     cont = tag_containment(repo, [history["b"], history["fix"]])
-    t = build_defects(links, basis="releases", tag_containment=cont)
+    t = build_defects(links, basis="releases", tag_containment=cont, links_from=None)
     # b is in v2 and v3; the fix only in v3: one release shipped with the defect
     assert t.defects["lifetime"].tolist() == [1.0]
