@@ -55,6 +55,19 @@ def _repo_filter(stmt: Select, repo: str | None) -> Select:
     return stmt.where(s.repository.c.name == repo) if repo is not None else stmt
 
 
+# seconds pandas can hold as a Timestamp (about 1677-09-22 .. 2262-04-11)
+_MIN_SECONDS = int(pd.Timestamp.min.timestamp()) + 1
+_MAX_SECONDS = int(pd.Timestamp.max.timestamp()) - 1
+
+
+def _to_utc(seconds: pd.Series) -> pd.Series:
+    """Epoch seconds -> UTC timestamps; a date pandas cannot hold (git keeps up to
+    2**63 - 1 seconds) becomes NaT instead of failing the whole read."""
+    v = pd.to_numeric(seconds, errors="coerce").astype("float64")
+    v = v.where((v >= _MIN_SECONDS) & (v <= _MAX_SECONDS))
+    return pd.to_datetime(v, unit="s", utc=True)
+
+
 def _read(engine: Engine, stmt: Select, name: str) -> pd.DataFrame:
     with engine.connect() as conn:
         # one read transaction: a concurrent miner never shows half a batch
@@ -63,7 +76,7 @@ def _read(engine: Engine, stmt: Select, name: str) -> pd.DataFrame:
     df = df.reindex(columns=cols)
     for c in cols:
         if c in _DATE_COLUMNS:
-            df[c] = pd.to_datetime(df[c], unit="s", utc=True)
+            df[c] = _to_utc(df[c])
         elif c in _BOOL_COLUMNS:
             df[c] = df[c].astype("boolean")
     return df
