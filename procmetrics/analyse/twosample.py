@@ -148,10 +148,19 @@ def _kth_difference(a: np.ndarray, b: np.ndarray, k: int) -> float:
             break
     # Snap the bisection bound to the actual difference just below it, so the result
     # is one of the b_j - a_i (no rounding residue such as 4.5e-13 for a zero shift).
-    idx = np.searchsorted(a, b - hi, side="left")
-    ok = idx < len(a)
-    if ok.any():
-        return float((b[ok] - a[idx[ok]]).max())
+    tol = 1e-9 * max(1.0, abs(hi), abs(lo))
+    cands: set[float] = set()
+    for bound in (lo - tol, hi + tol):
+        # per b_j, the differences nearest the bound from either side
+        idx = np.searchsorted(a, b - bound, side="left")
+        for shift in (-1, 0):
+            j = idx + shift
+            ok = (j >= 0) & (j < len(a))
+            cands.update((b[ok] - a[j[ok]]).tolist())
+    for c in sorted(x for x in cands if lo - tol <= x <= hi + tol):
+        # c is the k-th smallest when at least k differences are <= c
+        if int((len(a) - np.searchsorted(a, b - c, side="left")).sum()) >= k:
+            return float(c)
     return hi
 
 
