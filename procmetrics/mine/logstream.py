@@ -20,10 +20,11 @@ entry belongs to the i-th raw entry. Merge commits carry no file entries unless
 from __future__ import annotations
 
 import re
+import warnings
 from dataclasses import dataclass
 from typing import Iterable, Iterator
 
-from procmetrics.errors import GitFailed
+from procmetrics.errors import DataQualityWarning, GitFailed
 
 FIELDS = ("%H", "%P", "%aN", "%aE", "%ad", "%cN", "%cE", "%cd", "%e", "%s", "%B")
 LOG_FORMAT = "%x01" + "%x00".join(FIELDS)
@@ -31,6 +32,7 @@ N_FIELDS = len(FIELDS)
 
 _RAW_RE = re.compile(rb"^\n?:(\d+) (\d+) ([0-9a-f]+) ([0-9a-f]+) ([A-Z])(\d*)$")
 _NUM_RE = re.compile(rb"^(\d+|-)\t(\d+|-)\t(.*)$", re.S)
+_HASHES_RE = re.compile(rb"^[0-9a-f]{40,64}(?: [0-9a-f]{40,64})*$")
 
 
 @dataclass(frozen=True, slots=True)
@@ -105,6 +107,14 @@ def parse_raw_date(raw: bytes) -> tuple[int, int]:
     return int(stamp), sign * (int(digits[:2]) * 60 + int(digits[2:4]))
 
 
+def parse_raw_date_or_none(raw: bytes) -> tuple[int, int] | None:
+    """:func:`parse_raw_date`, or None when git printed no readable date."""
+    try:
+        return parse_raw_date(raw)
+    except (ValueError, IndexError):
+        return None
+
+
 def tokens(chunks: Iterable[bytes]) -> Iterator[bytes]:
     """NUL-separated tokens of a byte stream (the last empty token is dropped)."""
     rest = b""
@@ -172,8 +182,18 @@ def _commit(f: list[bytes], raws: list[tuple[str, str, str | None]],
         else:
             added = deleted = binary = None
         files.append(FileEntry(path, old, status, added, deleted, binary))
-    at, ao = parse_raw_date(f[4])
-    ct, co = parse_raw_date(f[7])
+    if not _HASHES_RE.match(f[0]) or (f[1] and not _HASHES_RE.match(f[1])):
+        raise GitFailed(f"unexpected git log output near {f[0][:60]!r}")
+    at_ao, ct_co = parse_raw_date_or_none(f[4]), parse_raw_date_or_none(f[7])
+    if at_ao is None or ct_co is None:
+        # a malformed ident line (only writable with hash-object --literally):
+        # git prints no date; keep the commit, use its other date (or 0) and say so
+        warnings.warn("a commit has an author or committer date git cannot read; its "
+                      "other date (or 1970-01-01 when both are unreadable) is stored",
+                      DataQualityWarning, stacklevel=2)
+        at_ao = at_ao or ct_co or (0, 0)
+        ct_co = ct_co or at_ao
+    (at, ao), (ct, co) = at_ao, ct_co
     message, ok = decode(f[10])
     return LogCommit(
         hash=f[0].decode("ascii"), parents=tuple(f[1].decode("ascii").split()),

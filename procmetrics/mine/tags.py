@@ -2,7 +2,7 @@
 from __future__ import annotations
 
 from procmetrics.mine.git import GitRepo
-from procmetrics.mine.logstream import parse_raw_date
+from procmetrics.mine.logstream import parse_raw_date_or_none
 from procmetrics.store.writer import TagRow
 
 _FORMAT = "%(refname)%00%(objecttype)%00%(objectname)%00%(taggerdate:raw)"
@@ -39,12 +39,14 @@ def read_tags(git: GitRepo) -> list[TagRow]:
         for line in git.batch(["log", "--no-walk=unsorted", "--stdin", "--date=raw",
                                "--format=%H %cd"], need_dates):
             h, _, raw = line.partition(" ")
-            dates[h] = parse_raw_date(raw.encode())
+            when = parse_raw_date_or_none(raw.encode())     # None: a date git cannot read
+            if when is not None:
+                dates[h] = when
     tags = []
     for i, (name, otype, _oid, tdate) in enumerate(records):
         if i not in commits:
             continue
-        when = parse_raw_date(tdate.encode()) if tdate else dates.get(commits[i])
+        when = (parse_raw_date_or_none(tdate.encode()) if tdate else None) or dates.get(commits[i])
         tags.append(TagRow(name, commits[i], when[0] if when else None,
                            when[1] if when else None, otype == "tag"))
     return tags
