@@ -2,8 +2,10 @@
 
 The event process is the stream of *fixing commits* (a commit that fixes
 several introducers counts once; only a defect's first fix counts), measured
-in days from an origin: the start of the history, or a release tag's date when
-looking at one release's fixes after its tag. Observation ends at the end of
+in days from an origin: the start of observation (by default the earliest
+introduction date; the ``growth`` command uses the start of the fix-linking
+era, because before it no fix can appear in the stream), or a release tag's
+date when looking at one release's fixes after its tag. Observation ends at the end of
 the history (time-truncated).
 
 Order of work in :func:`analyse_growth`:
@@ -184,11 +186,16 @@ def select_fix_times(defects: pd.DataFrame, *, end: Any, origin: Any = None,
     ev = (d.groupby("fix_hash").agg(fix_date=("fix_date", "min"),
                                     n_defects=("introducer_hash", "size")).reset_index())
     ev["time_days"] = (ev["fix_date"] - origin_ts).dt.total_seconds() / 86400.0
-    keep = (ev["time_days"] > 0) & (ev["fix_date"] <= end_ts)
+    early, late = ev["time_days"] <= 0, ev["fix_date"] > end_ts
+    keep = ~early & ~late
     n_drop = int((~keep).sum())
-    if n_drop:
-        cav.append(caveat("clock_skew", f"{n_drop} fix(es) dated at/before the origin or after "
-                          "the end were left out", "info"))
+    if early.any():
+        cav.append(caveat("too_few_observations", f"{int(early.sum())} fix(es) dated at or "
+                          f"before the origin {origin_ts:%Y-%m-%d} were left out (observation "
+                          "starts at the origin)", "info"))
+    if late.any():
+        cav.append(caveat("clock_skew", f"{int(late.sum())} fix(es) dated after the end of "
+                          "the history were left out", "info"))
     ev = ev[keep].sort_values(["time_days", "fix_hash"]).reset_index(drop=True)
     end_days = float((end_ts - origin_ts).total_seconds() / 86400.0)
     return FixTimes(ev[EVENT_COLUMNS], origin_ts, end_ts, end_days, scope, n_drop, tuple(cav))

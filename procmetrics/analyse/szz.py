@@ -14,14 +14,27 @@ table. ``SZZResult.links`` columns (:data:`SZZ_COLUMNS`): ``repo``,
 ``fix_date``. :func:`as_fix_links` turns them into rows shaped like the tidy
 ``fix_links`` table (``raw_text = "szz-blame"``) so
 :func:`procmetrics.analyse.defects.build_defects` can use them.
+
+Which commits are blamed (:func:`select_unlinked_fixes`): non-merge commits
+that have **no resolved** ``Fixes:`` link (those already name their
+introducer), and either whose subject contains a fix keyword (a second
+heuristic, :data:`procmetrics.analyse.metrics.DEFAULT_FIX_KEYWORDS`, matched at
+the start of a word, case-insensitive), or that the user lists explicitly.
+The keyword rule misses fixes described otherwise and includes commits that
+only mention a fix; both heuristics are named in the caveats.
 """
 from __future__ import annotations
 
 from dataclasses import dataclass, field
 from typing import Any
 
+import re
+from typing import Iterable, Sequence
+
+import numpy as np
 import pandas as pd
 
+from procmetrics.analyse.metrics import DEFAULT_FIX_KEYWORDS
 from procmetrics.analyse.result import Caveat, caveat, to_plain
 
 SZZ_COLUMNS = ["repo", "fix_hash", "introducer_hash", "n_lines", "share", "intro_date",
@@ -36,6 +49,83 @@ FAILURE_MODES: tuple[str, ...] = (
     "renamed or moved files and code moved between files lose the history blame follows",
     "the introducer may be older than the blamed commit (a latent defect exposed later)",
 )
+
+
+@dataclass(frozen=True)
+class FixSelection:
+    """The commits chosen for blaming and how they were chosen."""
+
+    hashes: tuple[str, ...]
+    rule: str
+    keywords: tuple[str, ...]
+    n_candidates: int          # non-merge commits the rule looked at
+    n_with_fixes_link: int     # left out: they already have a resolved Fixes: link
+    n_unknown: int             # user-listed hashes not in the commits table (or merges)
+
+    def to_dict(self) -> dict[str, Any]:
+        return to_plain(self)
+
+
+def select_unlinked_fixes(commits: pd.DataFrame, fix_links: pd.DataFrame, *,
+                          keywords: Sequence[str] = DEFAULT_FIX_KEYWORDS,
+                          hashes: Iterable[str] | None = None) -> FixSelection:
+    """Fix commits to blame: no resolved ``Fixes:`` link, keyword subject or listed.
+
+    Parameters
+    ----------
+    commits : tidy ``commits`` table.
+    fix_links : tidy ``fix_links`` table (commits with a resolved link are left out).
+    keywords : subject words marking a fix (matched at a word start,
+        case-insensitive); ignored when ``hashes`` is given.
+    hashes : the user's own list of fix commits (full hashes or unique
+        prefixes of at least 7 digits) instead of the keyword rule.
+
+    References
+    ----------
+    Mockus & Votta (2000), "Identifying reasons for software changes using
+    historic databases", ICSM (keyword classification of changes).
+    """
+    c = commits.drop_duplicates("hash")
+    merge = c["is_merge"].fillna(False).astype(bool) if "is_merge" in c else False
+    c = c[~merge]
+    linked = set(fix_links.loc[fix_links["status"] == "resolved", "fix_hash"])
+    if hashes is not None:
+        wanted = [h.strip().lower() for h in hashes if h and h.strip()]
+        full = c["hash"].astype(str)
+        picked, unknown = [], 0
+        for h in dict.fromkeys(wanted):
+            hit = full[full.str.startswith(h)] if len(h) >= 7 else full[full == h]
+            if len(hit) == 1:
+                picked.append(str(hit.iloc[0]))
+            else:
+                unknown += 1
+        chosen = [h for h in picked if h not in linked]
+        return FixSelection(tuple(chosen), "listed by the user", (), len(picked),
+                            len(picked) - len(chosen), unknown)
+    kw = tuple(keywords)
+    pat = r"\b(?:" + "|".join(re.escape(k) for k in kw) + r")"
+    hit = c["subject"].astype("string").str.contains(pat, case=False, regex=True)
+    hit = hit.fillna(False).to_numpy(dtype=bool)
+    cand = c[hit]
+    chosen = cand[~cand["hash"].isin(linked)]
+    return FixSelection(tuple(chosen["hash"].astype(str)),
+                        "subject contains a fix keyword (heuristic)", kw, int(len(cand)),
+                        int(len(cand) - len(chosen)), 0)
+
+
+def sample_linked_fixes(fix_links: pd.DataFrame, n: int,
+                        rng: np.random.Generator) -> tuple[str, ...]:
+    """Up to ``n`` fix commits with a resolved ``Fixes:`` link, drawn without replacement.
+
+    Blaming them and comparing with the developers' own links measures how
+    often the heuristic finds the introducer they named (``agreement``).
+    """
+    fixes = sorted(set(fix_links.loc[fix_links["status"] == "resolved", "fix_hash"]))
+    if n <= 0 or not fixes:
+        return ()
+    if n >= len(fixes):
+        return tuple(fixes)
+    return tuple(fixes[i] for i in sorted(rng.choice(len(fixes), n, replace=False)))
 
 
 @dataclass(frozen=True)
@@ -59,7 +149,8 @@ class SZZResult:
 def szz_candidates(blame_rows: pd.DataFrame, commits: pd.DataFrame, *, repo: str | None = None,
                    n_fixes: int | None = None, unblamable: int = 0,
                    explicit_links: pd.DataFrame | None = None,
-                   top_only: bool = False) -> SZZResult:
+                   top_only: bool = False,
+                   checked_fixes: Iterable[str] | None = None) -> SZZResult:
     """Candidate introducers from blame rows.
 
     Candidates dated (committer clock) after their fix are impossible and are
@@ -67,7 +158,9 @@ def szz_candidates(blame_rows: pd.DataFrame, commits: pd.DataFrame, *, repo: str
     blamed lines is kept per fix (ties: the latest). With ``explicit_links``
     (tidy ``fix_links``) the share of explicit introducers found among the
     candidates is reported as ``agreement`` — a recall against the
-    developers' own links, not a validation of the heuristic.
+    developers' own links, not a validation of the heuristic. Pass
+    ``checked_fixes`` (every fix that was blamed for the check, including
+    those that gave no blame rows) so that unblamable fixes count as misses.
 
     References
     ----------
@@ -95,7 +188,8 @@ def szz_candidates(blame_rows: pd.DataFrame, commits: pd.DataFrame, *, repo: str
     agreement: dict[str, Any] = {}
     if explicit_links is not None:
         ex = explicit_links[explicit_links["status"] == "resolved"]
-        ex = ex[ex["fix_hash"].isin(set(blame_rows["fix_hash"]))]
+        scope = set(checked_fixes) if checked_fixes is not None else set(blame_rows["fix_hash"])
+        ex = ex[ex["fix_hash"].isin(scope)].drop_duplicates(["fix_hash", "introducer_hash"])
         pairs = set(zip(links["fix_hash"], links["introducer_hash"]))
         hit = [(f, i) in pairs for f, i in zip(ex["fix_hash"], ex["introducer_hash"])]
         agreement = {"n_explicit": len(hit), "n_found": int(sum(hit)),

@@ -2,12 +2,10 @@
 from __future__ import annotations
 
 import argparse
-from pathlib import Path
-
 import numpy as np
 
 from procmetrics.cli import add_store_argument
-from procmetrics.cli.cmd_lifetimes import containment, load_tables, write_json
+from procmetrics.cli.cmd_lifetimes import containment, links_from, load_tables
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -20,6 +18,10 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--subsystem", metavar="NAME", help="only defects introduced in this subsystem")
     p.add_argument("--after-tag", metavar="TAG", help="only defects shipped in release TAG, "
                    "fixed after the tag (time counted from the tag)")
+    p.add_argument("--links-from", metavar="DATE|first|all", default="first",
+                   help="start of observation: 'first' (default) = the first linked fix "
+                   "(it starts the clock and is not counted), a DATE, or 'all' = the first "
+                   "commit of the history")
     p.add_argument("--require", choices=["own", "both", "either"], default="own",
                    help="trend evidence needed before a model is fitted (default: each "
                    "model's own test)")
@@ -36,14 +38,23 @@ def run(args: argparse.Namespace) -> int:
     from procmetrics.analyse.growth import analyse_growth, select_fix_times
 
     tables, name = load_tables(args.store, args.repo)
+    # every linked fix is an event, whatever the age of its introducer ...
     table = build_defects(tables["fix_links"], commits=tables["commits"],
-                          commit_subsystems=tables["commit_subsystems"])
+                          commit_subsystems=tables["commit_subsystems"], links_from=None)
+    # ... but observation starts with the fix-linking era: before it no fix can be seen
+    era = links_from(args.links_from)
+    if era is None:
+        origin = tables["commits"]["committer_date"].min()
+    elif isinstance(era, str):
+        origin = table.defects["fix_date"].min() if len(table.defects) else None
+    else:
+        origin = era
     cont = None
     if args.after_tag:
         d = table.defects
         cont = containment(tables, list(d["introducer_hash"]), [args.after_tag])
     ft = select_fix_times(table.defects, end=table.end_date,
-                          origin=tables["commits"]["committer_date"].min(),
+                          origin=origin,
                           subsystem=args.subsystem, after_tag=args.after_tag,
                           tags=tables["tags"], tag_containment=cont)
     res = analyse_growth(ft, require=args.require, ahead=args.ahead, n_boot=args.boot,
@@ -69,17 +80,11 @@ def run(args: argparse.Namespace) -> int:
     for cv in res.caveats:
         print(f"  caveat [{cv.code}] {cv.message}")
     if args.out:
-        from procmetrics.plot.growth import plot_growth, plot_u_plot
+        from procmetrics.report.command_outputs import write_growth_outputs
 
-        out = Path(args.out)
-        out.mkdir(parents=True, exist_ok=True)
-        write_json(out / "growth.json", res.to_dict())
-        res.curve.to_csv(out / "growth_curve.csv", index=False)
-        res.events.to_csv(out / "growth_events.csv", index=False,
-                          date_format="%Y-%m-%dT%H:%M:%SZ")
-        plot_growth(res).figure.savefig(out / "growth.png", dpi=120, bbox_inches="tight")
-        if any(m.fitted for m in res.models):
-            plot_u_plot(res).figure.savefig(out / "u_plot.png", dpi=120, bbox_inches="tight")
+        opts = {k: v for k, v in vars(args).items() if k not in ("func", "store")}
+        for path in write_growth_outputs(args.out, res, options=opts):
+            print(f"  wrote {path}")
     return 0
 
 

@@ -2,7 +2,6 @@
 from __future__ import annotations
 
 import argparse
-import json
 from pathlib import Path
 from typing import Any
 
@@ -17,7 +16,10 @@ def register(sub: argparse._SubParsersAction) -> None:
     p = sub.add_parser("lifetimes", help="defect lifetimes (introducer to first fix)",
                        description="Defect lifetimes from resolved Fixes: links: naive and "
                        "right-truncation-aware curves and quantiles, per subsystem or period, "
-                       "and a log-rank comparison at a common follow-up horizon.")
+                       "and log-rank comparisons (plain and stratified) at a common "
+                       "follow-up horizon. With --szz, also lifetimes from blame-based "
+                       "(SZZ) candidate introducers of fixes that have no Fixes: link, "
+                       "reported apart and labelled heuristic.")
     add_store_argument(p)
     p.add_argument("--repo", help="repository name in the store (needed when it holds several)")
     p.add_argument("--basis", choices=["committer", "author", "releases"], default="committer",
@@ -28,9 +30,31 @@ def register(sub: argparse._SubParsersAction) -> None:
                    "(default: calendar years)")
     p.add_argument("--horizon", type=float, metavar="N", help="common follow-up horizon for "
                    "comparisons, in days (in releases with --basis releases)")
+    p.add_argument("--links-from", metavar="DATE|first|all", default="first",
+                   help="start of the fix-linking era: defects introduced earlier are left "
+                   "out (they are seen only when long-lived). 'first' (default) = the first "
+                   "linked fix; 'all' keeps every introducer")
     p.add_argument("--boot", type=int, default=200, metavar="B", help="bootstrap resamples")
     p.add_argument("--seed", type=int, default=20240601, help="random seed (bootstrap)")
     p.add_argument("--out", metavar="DIR", help="write JSON, CSV tables and figures here")
+    g = p.add_argument_group("blame-based linking (heuristic, off by default)")
+    g.add_argument("--szz", action="store_true", help="also blame fix commits without a "
+                   "Fixes: link (runs git blame on the clone; read-only) and report their "
+                   "lifetimes apart, labelled heuristic")
+    g.add_argument("--szz-commits", metavar="FILE", help="blame the commits listed in FILE "
+                   "(one hash per line) instead of keyword-classified fixes")
+    g.add_argument("--szz-keywords", metavar="WORDS", help="comma-separated subject words "
+                   "that mark a fix (default: the built-in list fix, bug, crash, leak, "
+                   "regression, overflow, race)")
+    g.add_argument("--szz-candidates", choices=["top", "all"], default="top",
+                   help="per fix keep the commit owning most blamed lines (default) or "
+                   "every blamed commit")
+    g.add_argument("--szz-check", type=int, default=50, metavar="N",
+                   help="also blame N fixes that do have a Fixes: link and report how often "
+                   "the heuristic finds the introducer the developers named (default 50; 0: "
+                   "skip)")
+    g.add_argument("--jobs", type=int, default=2, metavar="N", help="git blame processes "
+                   "at once (default 2)")
     p.set_defaults(func=run)
 
 
@@ -68,16 +92,22 @@ def containment(tables: dict[str, pd.DataFrame], commits: list[str],
     return tag_containment(path, commits, tags)
 
 
-def write_json(path: Path, obj: Any) -> None:
+def links_from(value: str | None) -> Any:
+    """``--links-from`` as :func:`procmetrics.analyse.defects.build_defects` takes it."""
+    if value is None or value == "first":
+        return "first_link"
+    if value == "all":
+        return None
     try:
-        path.write_text(json.dumps(obj, indent=2, sort_keys=True, allow_nan=False) + "\n")
-    except OSError as exc:
-        raise StoreError(f"cannot write {path}: {exc}") from exc
+        return pd.Timestamp(value)
+    except ValueError as exc:
+        raise ProcmetricsError(f"--links-from: not a date, 'first' or 'all': {value!r}") from exc
 
 
 def run(args: argparse.Namespace) -> int:
     from procmetrics.analyse.defects import build_defects
     from procmetrics.analyse.lifetime_analysis import analyse_lifetimes
+    from procmetrics.report.command_outputs import write_lifetime_outputs
 
     tables, name = load_tables(args.store, args.repo)
     links = tables["fix_links"]
@@ -89,43 +119,108 @@ def run(args: argparse.Namespace) -> int:
     table = build_defects(links, basis=args.basis, commits=tables["commits"],
                           commit_subsystems=tables["commit_subsystems"],
                           trailers=tables["trailers"], tag_containment=cont,
-                          period_cuts=[args.change_date] if args.change_date else None)
+                          period_cuts=[args.change_date] if args.change_date else None,
+                          links_from=links_from(args.links_from))
     res = analyse_lifetimes(table, by=args.by, horizon=args.horizon, n_boot=args.boot,
                             rng=np.random.default_rng(args.seed))
     print(f"{name}: {res.n_defects} defects ({res.n_negative_excluded} with negative lifetime "
           f"excluded); basis {res.basis}, unit {res.unit}")
+    print(f"  population: {table.population}")
+    _print_analysis(res, args.horizon)
+    heuristic = _heuristic(args, tables, name) if args.szz else None
+    if args.out:
+        opts = {k: v for k, v in vars(args).items() if k not in ("func", "store")}
+        for path in write_lifetime_outputs(args.out, table, res, options=opts,
+                                           heuristic=heuristic):
+            print(f"  wrote {path}")
+    return 0
+
+
+def _print_analysis(res: Any, horizon: float | None, indent: str = "  ") -> None:
     med = res.summary[res.summary["quantile"] == 0.5]
     for row in med.itertuples():
-        print(f"  median {row.group:<20} {row.method:<17} {_num(row.value)} "
+        print(f"{indent}median {row.group:<20} {row.method:<17} {_num(row.value)} "
               f"[{_num(row.low)}, {_num(row.high)}] n={row.n}")
-    if res.comparison is not None:
-        c = res.comparison
-        print(f"  {c.name} at horizon {args.horizon:g}: chi2={c.statistic:.2f} df={c.df} "
-              f"p={c.p_value:.3g}")
+    for c, label in ((res.comparison, ""), (res.stratified_comparison,
+                                             f" (strata: {res.strata_by})")):
+        if c is not None:
+            print(f"{indent}{c.name}{label} at horizon {horizon:g}: chi2={c.statistic:.2f} "
+                  f"df={c.df} p={c.p_value:.3g} n={c.n}")
     for cv in res.caveats:
-        print(f"  caveat [{cv.code}] {cv.message}")
-    if args.out:
-        _write(Path(args.out), table, res)
-    return 0
+        print(f"{indent}caveat [{cv.code}] {cv.message}")
+
+
+def _heuristic(args: argparse.Namespace, tables: dict[str, pd.DataFrame],
+               name: str) -> dict[str, Any]:
+    """Blame-based (SZZ) links for fixes without a Fixes: link, analysed apart."""
+    from procmetrics.analyse.defects import build_defects
+    from procmetrics.analyse.lifetime_analysis import analyse_lifetimes
+    from procmetrics.analyse.metrics import DEFAULT_FIX_KEYWORDS
+    from procmetrics.analyse.szz import (
+        FAILURE_MODES, as_fix_links, sample_linked_fixes, select_unlinked_fixes,
+        szz_candidates,
+    )
+    from procmetrics.mine.blame import blame_fixes
+
+    commits, links = tables["commits"], tables["fix_links"]
+    listed = None
+    if args.szz_commits:
+        try:
+            listed = Path(args.szz_commits).read_text().split()
+        except OSError as exc:
+            raise StoreError(f"cannot read {args.szz_commits}: {exc}") from exc
+    keywords = (tuple(k.strip() for k in args.szz_keywords.split(",") if k.strip())
+                if args.szz_keywords else DEFAULT_FIX_KEYWORDS)
+    sel = select_unlinked_fixes(commits, links, keywords=keywords, hashes=listed)
+    path = str(tables["repositories"]["path"].iloc[0])
+    top = args.szz_candidates == "top"
+    run_ = blame_fixes(path, sel.hashes, jobs=args.jobs)
+    szz = szz_candidates(run_.rows, commits, repo=name, n_fixes=run_.n_fixes,
+                         unblamable=len(run_.added_only), top_only=top)
+    check = sample_linked_fixes(links, args.szz_check, np.random.default_rng(args.seed))
+    agreement: dict[str, Any] = {}
+    if check:
+        crun = blame_fixes(path, check, jobs=args.jobs)
+        agreement = szz_candidates(crun.rows, commits, repo=name, top_only=top,
+                                   explicit_links=links, checked_fixes=check).agreement
+    szz = type(szz)(**{**szz.__dict__, "agreement": agreement})
+    table = build_defects(as_fix_links(szz, commits), basis="committer" if args.basis ==
+                          "releases" else args.basis, commits=commits,
+                          commit_subsystems=tables["commit_subsystems"],
+                          trailers=tables["trailers"],
+                          period_cuts=[args.change_date] if args.change_date else None,
+                          links_from=None, link_source="blame-based (SZZ) candidate link")
+    an = analyse_lifetimes(table, by=args.by, horizon=args.horizon, n_boot=args.boot,
+                           rng=np.random.default_rng(args.seed))
+    print(f"HEURISTIC: blame-based (SZZ) links for fixes without a Fixes: link "
+          f"({szz.method})")
+    print(f"  selection: {sel.rule}"
+          + (f" ({', '.join(sel.keywords)})" if sel.keywords else "")
+          + f": {len(sel.hashes)} commit(s) blamed "
+          f"({sel.n_with_fixes_link} left out: they have a Fixes: link"
+          + (f"; {sel.n_unknown} listed hash(es) unknown or merges" if listed is not None
+             else "") + ")")
+    print(f"  blame: {szz.n_fixes_with_candidates} fix(es) with a candidate, "
+          f"{len(run_.added_only)} only add lines, {len(run_.skipped_merges) + len(run_.skipped_roots)}"
+          f" merge/root, {len(run_.failed)} failed; {szz.n_dropped_later_than_fix} candidate(s) "
+          "dated after their fix dropped")
+    if agreement:
+        rec = agreement["recall"]
+        print(f"  check on {len(check)} fixes that have a Fixes: link: the heuristic found "
+              f"{agreement['n_found']} of {agreement['n_explicit']} named introducers"
+              + (f" (recall {rec:.2f})" if rec is not None else ""))
+    if args.basis == "releases":
+        print("  (heuristic lifetimes use committer dates; --basis releases applies to the "
+              "Fixes: links only)")
+    print(f"  heuristic: {an.n_defects} defects; population: {table.population}")
+    _print_analysis(an, args.horizon, indent="  heuristic ")
+    print("  known failure modes of blame-based linking:")
+    for fm in FAILURE_MODES:
+        print(f"    - {fm}")
+    return {"szz": szz, "table": table, "analysis": an,
+            "selection": {**sel.to_dict(), "hashes": None, "n_selected": len(sel.hashes),
+                          "n_checked": len(check)}}
 
 
 def _num(x: Any) -> str:
     return "-" if x is None or (isinstance(x, float) and not np.isfinite(x)) else f"{x:.1f}"
-
-
-def _write(out: Path, table: Any, res: Any) -> None:
-    from procmetrics.plot.survival import plot_survival, plot_survival_by_group
-
-    out.mkdir(parents=True, exist_ok=True)
-    write_json(out / "lifetimes.json", {"defect_table": {k: v for k, v in table.to_dict().items()
-                                                         if k != "defects"},
-                                        "analysis": res.to_dict()})
-    table.defects.to_csv(out / "defects.csv", index=False, date_format="%Y-%m-%dT%H:%M:%SZ")
-    res.summary.to_csv(out / "lifetime_quantiles.csv", index=False)
-    res.curves.to_csv(out / "lifetime_curves.csv", index=False)
-    if len(res.curves):
-        ax = plot_survival(res)
-        ax.figure.savefig(out / "lifetimes.png", dpi=120, bbox_inches="tight")
-        if res.by and (res.curves["group"] != "(all)").any():
-            ax = plot_survival_by_group(res)
-            ax.figure.savefig(out / f"lifetimes_by_{res.by}.png", dpi=120, bbox_inches="tight")

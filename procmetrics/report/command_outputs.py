@@ -1,0 +1,120 @@
+"""Files written by the ``lifetimes`` and ``growth`` commands for ``--out DIR``.
+
+The commands stay thin: they compute results through the library and hand
+them here; this module writes the JSON, CSV tables and figures (it is the only
+place on that path that imports :mod:`procmetrics.plot`). Every function
+returns the paths it wrote, in order.
+
+Files
+-----
+``lifetimes``: ``lifetimes.json`` (defect-table counts, population, caveats and
+the full analysis), ``defects.csv``, ``lifetime_quantiles.csv``,
+``lifetime_curves.csv``, ``lifetimes.png`` and, per group,
+``lifetimes_by_<subsystem|period>.png``. With the blame heuristic also
+``lifetimes_heuristic.json`` (the candidate counts, failure modes and the
+analysis of the heuristic defects, all labelled ``heuristic``),
+``defects_heuristic.csv``, ``szz_candidates.csv`` and
+``lifetimes_heuristic.png``.
+
+``growth``: ``growth.json``, ``growth_curve.csv``, ``growth_events.csv``,
+``growth.png`` and, when a model was fitted, ``u_plot.png``.
+"""
+from __future__ import annotations
+
+import json
+from pathlib import Path
+from typing import Any
+
+from procmetrics.errors import StoreError
+
+DATE_FORMAT = "%Y-%m-%dT%H:%M:%SZ"
+
+
+def write_json(path: Path, obj: Any) -> Path:
+    """Deterministic JSON (sorted keys, no NaN); an unwritable path is a StoreError."""
+    try:
+        path.write_text(json.dumps(obj, indent=2, sort_keys=True, allow_nan=False) + "\n")
+    except OSError as exc:
+        raise StoreError(f"cannot write {path}: {exc}") from exc
+    return path
+
+
+def _out_dir(out: Path | str) -> Path:
+    out = Path(out)
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise StoreError(f"cannot create {out}: {exc}") from exc
+    return out
+
+
+def _csv(df: Any, path: Path) -> Path:
+    try:
+        df.to_csv(path, index=False, date_format=DATE_FORMAT)
+    except OSError as exc:
+        raise StoreError(f"cannot write {path}: {exc}") from exc
+    return path
+
+
+def _save(ax: Any, path: Path) -> Path:
+    ax.figure.savefig(path, dpi=120, bbox_inches="tight")
+    return path
+
+
+def _table_meta(table: Any) -> dict[str, Any]:
+    return {k: v for k, v in table.to_dict().items() if k != "defects"}
+
+
+def write_lifetime_outputs(out: Path | str, table: Any, analysis: Any, *,
+                           options: dict[str, Any] | None = None,
+                           heuristic: Any = None) -> list[Path]:
+    """Write the ``lifetimes`` files (see module docstring).
+
+    ``table`` is a :class:`procmetrics.analyse.defects.DefectTable`, ``analysis``
+    a :class:`procmetrics.analyse.lifetime_analysis.LifetimeAnalysis`;
+    ``heuristic`` (optional) is a mapping with ``szz`` (an
+    :class:`procmetrics.analyse.szz.SZZResult`), ``table`` and ``analysis`` for
+    the blame-based defects and ``selection`` (how the fix commits were chosen).
+    """
+    from procmetrics.plot.survival import plot_survival, plot_survival_by_group
+
+    out = _out_dir(out)
+    paths = [write_json(out / "lifetimes.json", {
+        "options": options or {}, "defect_table": _table_meta(table),
+        "analysis": analysis.to_dict()})]
+    paths.append(_csv(table.defects, out / "defects.csv"))
+    paths.append(_csv(analysis.summary, out / "lifetime_quantiles.csv"))
+    paths.append(_csv(analysis.curves, out / "lifetime_curves.csv"))
+    if len(analysis.curves):
+        paths.append(_save(plot_survival(analysis), out / "lifetimes.png"))
+        if analysis.by and (analysis.curves["group"] != "(all)").any():
+            paths.append(_save(plot_survival_by_group(analysis),
+                               out / f"lifetimes_by_{analysis.by}.png"))
+    if heuristic is not None:
+        h_table, h_an, szz = heuristic["table"], heuristic["analysis"], heuristic["szz"]
+        paths.append(write_json(out / "lifetimes_heuristic.json", {
+            "label": "heuristic", "selection": heuristic.get("selection", {}),
+            "szz": {k: v for k, v in szz.to_dict().items() if k != "links"},
+            "defect_table": _table_meta(h_table), "analysis": h_an.to_dict()}))
+        paths.append(_csv(h_table.defects, out / "defects_heuristic.csv"))
+        paths.append(_csv(szz.links, out / "szz_candidates.csv"))
+        if len(h_an.curves):
+            ax = plot_survival(h_an)
+            ax.set_title("Defect lifetimes, HEURISTIC blame-based links (SZZ)")
+            paths.append(_save(ax, out / "lifetimes_heuristic.png"))
+    return paths
+
+
+def write_growth_outputs(out: Path | str, result: Any, *,
+                         options: dict[str, Any] | None = None) -> list[Path]:
+    """Write the ``growth`` files for a :class:`procmetrics.analyse.growth.GrowthResult`."""
+    from procmetrics.plot.growth import plot_growth, plot_u_plot
+
+    out = _out_dir(out)
+    paths = [write_json(out / "growth.json", {**result.to_dict(), "options": options or {}})]
+    paths.append(_csv(result.curve, out / "growth_curve.csv"))
+    paths.append(_csv(result.events, out / "growth_events.csv"))
+    paths.append(_save(plot_growth(result), out / "growth.png"))
+    if any(m.fitted for m in result.models):
+        paths.append(_save(plot_u_plot(result), out / "u_plot.png"))
+    return paths
