@@ -2,16 +2,20 @@
 from __future__ import annotations
 
 import os
+import re
 from pathlib import Path
 
 from sqlalchemy import create_engine, event, inspect, select
 from sqlalchemy.engine import Engine
 from sqlalchemy.exc import SQLAlchemyError
 
-from procmetrics.errors import SchemaError, StoreError
+from procmetrics.errors import SchemaError, StoreBusy, StoreError
 from procmetrics.store import schema
 
 DEFAULT_STORE_NAME = "procmetrics.sqlite"
+#: seconds a PostgreSQL connection attempt may take (unless the URL sets connect_timeout)
+CONNECT_TIMEOUT = 10
+_LIBPQ_SCHEMES = ("postgresql", "postgresql+psycopg", "postgresql+psycopg2")
 
 
 def resolve_url(store: str | os.PathLike[str] | None) -> str:
@@ -50,22 +54,63 @@ def open_store(store: str | os.PathLike[str] | None = None, *, create: bool = Tr
                 raise StoreError(f"cannot create store: folder {path.parent} does not exist")
         elif path.is_dir():
             raise StoreError(f"store path is a folder, not a file: {path}")
+    extra = {}
+    if url.split("://", 1)[0] in _LIBPQ_SCHEMES and "connect_timeout" not in url:
+        extra["connect_args"] = {"connect_timeout": CONNECT_TIMEOUT}
     try:
-        engine = create_engine(url, future=True)
+        engine = create_engine(url, future=True, **extra)
     except (SQLAlchemyError, ImportError, ValueError) as exc:
-        raise StoreError(f"cannot open store {url!r}: {exc}") from exc
+        raise StoreError(f"cannot open store {_safe(url)}: {_scrub(str(exc), url)}") from exc
     if engine.dialect.name == "sqlite":
         event.listen(engine, "connect", _sqlite_pragmas)
+    event.listen(engine, "handle_error", _as_store_error)
     try:
         _ensure_schema(engine, create=create and not readonly)
     except SchemaError:
         engine.dispose()
         raise
+    except StoreError as exc:       # from _as_store_error
+        engine.dispose()
+        raise exc.__class__(f"cannot use store {_safe(url)}: {exc}") from exc
     except SQLAlchemyError as exc:
         engine.dispose()
         raise StoreError(f"cannot use store {_safe(url)}: {exc.__class__.__name__}: "
                          f"{str(exc).splitlines()[0]}") from exc
     return engine
+
+
+def _as_store_error(ctx) -> None:
+    """``handle_error`` hook: a database failure becomes one line of our own.
+
+    A lock held too long becomes :class:`StoreBusy`; everything else (full
+    disk, read-only file, lost server, constraint broken by a concurrent
+    writer) :class:`StoreError`. The transaction has been rolled back.
+    """
+    orig = ctx.original_exception
+    if not isinstance(orig, Exception) or ctx.sqlalchemy_exception is None:
+        return None             # KeyboardInterrupt and non-database errors pass through
+    lines = str(orig).strip().splitlines()
+    text = lines[0] if lines else orig.__class__.__name__
+    low = text.lower()
+    state = getattr(orig, "sqlstate", None) or getattr(getattr(orig, "diag", None),
+                                                        "sqlstate", None)
+    if "database is locked" in low or "database table is locked" in low \
+            or state in ("55P03", "40P01"):
+        raise StoreBusy(f"the store is busy: another process holds its lock ({text}); "
+                        "run again when it has finished")
+    if "database or disk is full" in low or "no space left" in low or state == "53100":
+        raise StoreError(f"the store is full ({text}); the unfinished transaction was "
+                         "rolled back: free space and run again")
+    if "readonly database" in low or "unable to open database file" in low:
+        raise StoreError(f"{text} (the store file and its folder must be readable and "
+                         "writable: SQLite keeps -wal and -shm files beside the store)")
+    raise StoreError(f"{orig.__class__.__name__}: {text}")
+
+
+def _scrub(text: str, url: str) -> str:
+    """``text`` without the password of ``url``."""
+    m = re.search(r"://[^/@:]*:([^@/]+)@", url)
+    return text.replace(m.group(1), "***") if m else text
 
 
 def _safe(url: str) -> str:
