@@ -232,7 +232,7 @@ def _map_paths(writer: StoreWriter, repo_id: int, mapper: PathMapper) -> None:
         writer.clear_mapping(repo_id)
     paths = writer.unmapped_paths(repo_id)
     if paths:
-        writer.add_path_subsystems(repo_id, [(p, mapper.map(p)) for p in paths])
+        writer.add_path_subsystems(repo_id, list(zip(paths, mapper.map_many(paths))))
 
 
 def default_repo_name(git: GitRepo) -> str:

@@ -31,13 +31,14 @@ no rule or section matches goes to ``(unmapped)``.
 """
 from __future__ import annotations
 
+import bisect
 import hashlib
 import re
 import tomllib
 import warnings
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Iterable
+from typing import Iterable, Sequence
 
 from procmetrics.errors import ConfigError, DataQualityWarning
 
@@ -51,7 +52,8 @@ class Pattern:
     text: str
     regex: re.Pattern[str]
     specificity: int
-    bucket: str          # literal folder prefix ("" or ending in "/")
+    bucket: str          # literal folder prefix and the next literal character, if any
+    literal: bool = False   # no wildcard: matches by prefix look-up, no regex needed
 
 
 def compile_glob(text: str, *, allow_globstar: bool = False) -> Pattern:
@@ -59,7 +61,8 @@ def compile_glob(text: str, *, allow_globstar: bool = False) -> Pattern:
     text = text.strip().lstrip("/")
     cut = min((text.find(c) for c in _GLOB_CHARS if c in text), default=-1)
     literal = text if cut < 0 else text[:cut]
-    bucket = literal[: literal.rfind("/") + 1]
+    folder = literal.rfind("/") + 1
+    bucket = literal[: folder + 1]      # literal folder prefix plus one more literal character
     out, i = [], 0
     body = text[:-1] if text.endswith("/") else text
     while i < len(body):
@@ -82,7 +85,7 @@ def compile_glob(text: str, *, allow_globstar: bool = False) -> Pattern:
     else:
         tail = ""
     return Pattern(text, re.compile(core + tail + r"\Z", re.S), len(literal.rstrip("/")),
-                   bucket)
+                   bucket, cut < 0)
 
 
 def _buckets(path: str) -> list[str]:
@@ -103,51 +106,100 @@ class PathMapper:
     depth: int = 1
     titles: list[str] = field(default_factory=list)
     by_bucket: dict[str, list[tuple[Pattern, int]]] = field(default_factory=dict)
+    exact: dict[str, list[tuple[Pattern, int]]] = field(default_factory=dict)
     excludes: dict[int, list[Pattern]] = field(default_factory=dict)
     regexes: list[tuple[re.Pattern[str], int]] = field(default_factory=list)
-    any_regex: re.Pattern[str] | None = None
 
     def add(self, title: str, patterns: Iterable[Pattern], excludes: Iterable[Pattern] = (),
             regexes: Iterable[re.Pattern[str]] = ()) -> None:
         idx = len(self.titles)
         self.titles.append(title)
         for p in patterns:
-            self.by_bucket.setdefault(p.bucket, []).append((p, idx))
+            if p.literal:
+                self.exact.setdefault(p.text.rstrip("/"), []).append((p, idx))
+            else:
+                self.by_bucket.setdefault(p.bucket, []).append((p, idx))
         ex = list(excludes)
         if ex:
             self.excludes[idx] = ex
         self.regexes.extend((r, idx) for r in regexes)
 
     def finish(self) -> "PathMapper":
-        if self.regexes:
-            self.any_regex = re.compile("|".join(f"(?:{r.pattern})" for r, _ in self.regexes))
         return self
 
     def map(self, path: str) -> list[str]:
+        """Subsystems of one path (see :meth:`map_many`)."""
+        return self.map_many([path])[0]
+
+    def map_many(self, paths: Sequence[str]) -> list[list[str]]:
+        """Subsystems of each path (sorted names; never empty)."""
         if self.kind == "path-prefix":
-            parts = path.split("/")[:-1][: self.depth]
-            return ["/".join(parts) if parts else TOP_LEVEL]
-        best, chosen = -1, set()
-        hits: list[tuple[int, int]] = []
-        for b in _buckets(path):
-            for pat, idx in self.by_bucket.get(b, ()):
-                if pat.regex.match(path):
-                    hits.append((pat.specificity, idx))
-        if self.any_regex is not None and self.any_regex.search(path):
-            for rx, idx in self.regexes:
-                m = rx.search(path)
-                if m:
-                    hits.append((m.end(), idx))
-        for spec, idx in hits:
-            if any(x.regex.match(path) for x in self.excludes.get(idx, ())):
+            out = []
+            for path in paths:
+                parts = path.split("/")[:-1][: self.depth]
+                out.append(["/".join(parts) if parts else TOP_LEVEL])
+            return out
+        hits: list[list[tuple[int, int]]] = [[] for _ in paths]
+        exact, by_bucket = self.exact, self.by_bucket
+        for i, path in enumerate(paths):
+            found = hits[i]
+            for b in _buckets(path):
+                for key in (b, path[: len(b) + 1]):
+                    for pat, idx in by_bucket.get(key, ()):
+                        if pat.regex.match(path):
+                            found.append((pat.specificity, idx))
+                if b:       # literal patterns naming this folder (or a file of that name)
+                    for pat, idx in exact.get(b[:-1], ()):
+                        found.append((pat.specificity, idx))
+            for pat, idx in exact.get(path, ()):
+                if not pat.text.endswith("/"):
+                    found.append((pat.specificity, idx))
+        if self.regexes:
+            self._regex_hits(paths, hits)
+        out = []
+        for path, found in zip(paths, hits):
+            best, chosen = -1, set()
+            for spec, idx in found:
+                if any(x.regex.match(path) for x in self.excludes.get(idx, ())):
+                    continue
+                if spec > best:
+                    best, chosen = spec, {idx}
+                elif spec == best:
+                    chosen.add(idx)
+            out.append(sorted({self.titles[i] for i in chosen}) if chosen else [UNMAPPED])
+        return out
+
+    def _regex_hits(self, paths: Sequence[str], hits: list[list[tuple[int, int]]]) -> None:
+        """Leftmost match of every N: regex in every path: one ``finditer`` per regex over
+        all paths joined by newlines (paths never contain one), instead of one
+        ``search`` per (path, regex)."""
+        joined = "\n".join(paths)
+        starts = [0]
+        for path in paths[:-1]:
+            starts.append(starts[-1] + len(path) + 1)
+        for rx, idx in self.regexes:
+            if "\\A" in rx.pattern or "\\Z" in rx.pattern:
+                for i, path in enumerate(paths):
+                    m = rx.search(path)
+                    if m:
+                        hits[i].append((m.end(), idx))
                 continue
-            if spec > best:
-                best, chosen = spec, {idx}
-            elif spec == best:
-                chosen.add(idx)
-        if not chosen:
-            return [UNMAPPED]
-        return sorted({self.titles[i] for i in chosen})
+            multi = re.compile(rx.pattern, rx.flags | re.M)
+            done = -1
+            for m in multi.finditer(joined):
+                i = bisect.bisect_right(starts, m.start()) - 1
+                if "\n" in m.group():      # spans paths: fall back for the paths it covers
+                    j = bisect.bisect_right(starts, m.end()) - 1
+                    for k in range(max(i, done + 1), j + 1):
+                        single = rx.search(paths[k])
+                        if single:
+                            hits[k].append((single.end(), idx))
+                    done = j
+                    continue
+                if i <= done:
+                    continue
+                done = i
+                hits[i].append((m.end() - starts[i], idx))
 
 
 def prefix_mapper(depth: int = 1) -> PathMapper:

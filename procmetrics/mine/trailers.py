@@ -85,23 +85,24 @@ def _is_blank(line: str) -> bool:
     return line.strip(_WS) == ""
 
 
+# token = ASCII letters, digits, '-'; then blanks; then ':' (git's find_separator;
+# leading blanks are not allowed, a ':' at offset 0 gives 0)
+_SEPARATOR = re.compile(r"(?:[A-Za-z0-9-]+[ \t]*)?:")
+
+
 def find_separator(line: str) -> int:
     """Index of the ``:`` ending a trailer token, or -1 (git's ``find_separator``)."""
-    whitespace_found = False
-    for i, c in enumerate(line):
-        if c == ":":
-            return i
-        if not whitespace_found and (c == "-" or (c.isascii() and c.isalnum())):
-            continue
-        if i != 0 and c in " \t":
-            whitespace_found = True
-            continue
-        break
-    return -1
+    m = _SEPARATOR.match(line)
+    return m.end() - 1 if m else -1
 
 
 def _end_of_log_message(msg: str) -> int:
     """Length of ``msg`` without trailing comments/blank lines/Conflicts block."""
+    if not msg.startswith(COMMENT_CHAR) and "\n" + COMMENT_CHAR not in msg \
+            and "Conflicts:\n" not in msg:
+        stripped = len(msg.rstrip("\n"))       # fast path: only empty lines to drop
+        if stripped:
+            return stripped if stripped == len(msg) else stripped + 1
     cutoff = len(msg)
     scissors = msg.find("# ------------------------ >8 ------------------------\n")
     if scissors == 0 or (scissors > 0 and msg[scissors - 1] == "\n"):
@@ -114,7 +115,7 @@ def _end_of_log_message(msg: str) -> int:
         nxt = cutoff if nl < 0 else nl + 1
         ch = msg[bol]
         if ch == COMMENT_CHAR or ch == "\n":
-            if not boc:
+            if not boc:     # (sic) git's test: a run starting at offset 0 is not noticed
                 boc = bol
         elif msg.startswith("Conflicts:\n", bol):
             in_conflicts = True
@@ -129,70 +130,75 @@ def _end_of_log_message(msg: str) -> int:
     return boc if boc else cutoff
 
 
-def _line_starts(msg: str, end: int) -> list[int]:
-    starts = [0] if end > 0 else []
-    pos = msg.find("\n", 0, end)
-    while pos >= 0 and pos + 1 < end:
-        starts.append(pos + 1)
-        pos = msg.find("\n", pos + 1, end)
-    return starts
+_BLANK_LINE = re.compile(r"^[ \t\r]*(?:\n|\Z)", re.M)
 
 
-def _block_start(msg: str, end: int, starts: list[int]) -> int:
+def _last_line(msg: str, length: int) -> int:
+    """Start of the last line of ``msg[:length]`` (git's ``last_line``); -1 if empty."""
+    if length <= 0:
+        return -1
+    if length == 1:
+        return 0
+    return msg.rfind("\n", 0, length - 1) + 1
+
+
+def _block_start(msg: str, end: int) -> int:
     """git's ``find_trailer_block_start``: offset where the block starts, or ``end``."""
-    # the first paragraph is the title and cannot be trailers
-    end_of_title = end
-    for s in starts:
-        if msg[s] == COMMENT_CHAR:
-            continue
-        if _is_blank(_line(msg, s, end)):
-            end_of_title = s
-            break
+    # the first paragraph is the title and cannot be trailers (comment lines are never blank)
+    m = _BLANK_LINE.search(msg, 0, end)
+    end_of_title = m.start() if m else end
     only_spaces = True
     recognized = False
     trailer_lines = non_trailer_lines = possible_continuation = 0
-    for s in reversed(starts):
-        if s < end_of_title:
-            break
-        line = _line(msg, s, end)
+    s = _last_line(msg, end)
+    while s >= end_of_title:
+        nl = msg.find("\n", s, end)
+        line = msg[s:end] if nl < 0 else msg[s:nl + 1]
+        prev = _last_line(msg, s)
         if line[:1] == COMMENT_CHAR:
             non_trailer_lines += possible_continuation
             possible_continuation = 0
-            continue
-        if _is_blank(line):
-            if only_spaces:
-                continue
-            non_trailer_lines += possible_continuation
-            nxt = msg.find("\n", s, end)
-            block = end if nxt < 0 else nxt + 1
-            if recognized and trailer_lines * 3 >= non_trailer_lines:
-                return block
-            if trailer_lines and not non_trailer_lines:
-                return block
-            return end
-        only_spaces = False
-        if line.startswith(_GIT_GENERATED):
-            trailer_lines += 1
-            possible_continuation = 0
-            recognized = True
-            continue
-        if find_separator(line) >= 1 and not line[0] in _WS:
-            trailer_lines += 1
-            possible_continuation = 0
-        elif line[0] in _WS:
-            possible_continuation += 1
+        elif _is_blank(line):
+            if not only_spaces:
+                non_trailer_lines += possible_continuation
+                block = end if nl < 0 else nl + 1
+                if recognized and trailer_lines * 3 >= non_trailer_lines:
+                    return block
+                if trailer_lines and not non_trailer_lines:
+                    return block
+                return end
         else:
-            non_trailer_lines += 1 + possible_continuation
-            possible_continuation = 0
+            only_spaces = False
+            if line.startswith(_GIT_GENERATED):
+                trailer_lines += 1
+                possible_continuation = 0
+                recognized = True
+            elif line[0] in _WS:
+                possible_continuation += 1
+            elif find_separator(line) >= 1:
+                trailer_lines += 1
+                possible_continuation = 0
+            else:
+                non_trailer_lines += 1 + possible_continuation
+                possible_continuation = 0
+        if s == 0:
+            break
+        s = prev
     return end
 
 
-def _line(msg: str, start: int, end: int) -> str:
-    nl = msg.find("\n", start, end)
-    return msg[start:end] if nl < 0 else msg[start:nl + 1]
+def _lines(msg: str, start: int, end: int) -> list[str]:
+    """Lines of ``msg[start:end]``, each with its newline (split on "\\n" only)."""
+    parts = msg[start:end].split("\n")
+    out = [p + "\n" for p in parts[:-1]]
+    if parts[-1]:
+        out.append(parts[-1])
+    return out
 
 
 def _unfold(value: str) -> str:
+    if "\n" not in value:
+        return value.strip(_WS)
     out = []
     i, n = 0, len(value)
     while i < n:
@@ -210,16 +216,12 @@ def _unfold(value: str) -> str:
 def parse_trailers(message: str) -> TrailerBlock:
     """Trailers of the final trailer block, as ``git interpret-trailers --parse`` lists them."""
     end = _end_of_log_message(message)
-    starts = _line_starts(message, end)
-    start = _block_start(message, end, starts)
+    start = _block_start(message, end)
     if start >= end:
         return TrailerBlock([], end, end)
     raw: list[str] = []
     last_is_trailer = False
-    for s in starts:
-        if s < start:
-            continue
-        line = _line(message, s, end)
+    for line in _lines(message, start, end):
         if last_is_trailer and line[:1] in _WS and line[:1] != "":
             raw[-1] += line
             continue

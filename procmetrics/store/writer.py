@@ -102,6 +102,36 @@ class LinkRow(NamedTuple):
     is_new: bool
 
 
+_COLUMNS = {
+    s.commit.name: ("commit_id", "repo_id", "run_id", "hash", "author_id", "committer_id",
+                    "author_time", "author_offset_min", "committer_time",
+                    "committer_offset_min", "subject", "message", "n_parents", "is_merge",
+                    "stable_request", "message_was_utf8"),
+    s.commit_parent.name: ("commit_id", "position", "parent_hash"),
+    s.file_change.name: ("commit_id",) + FileRow._fields,
+    s.trailer.name: ("commit_id", "position", "key", "raw_key", "value", "person_id"),
+    s.fix_link.name: ("commit_id", "position", "ref_hash", "status", "introducer_hash",
+                      "cited_subject", "subject_match", "in_trailer_block", "raw_text"),
+    s.revert_link.name: ("commit_id", "ref_hash", "status", "reverted_hash"),
+    s.unparsed_reference.name: ("commit_id", "kind", "raw_text"),
+}
+
+
+def _bulk_insert(conn: Connection, table, columns: Sequence[str], rows: list[tuple]) -> None:
+    """executemany of plain tuples straight to the driver (SQLAlchemy's per-row parameter
+    processing costs more than SQLite's insert itself); other paramstyles use Core."""
+    if not rows:
+        return
+    mark = {"qmark": "?", "format": "%s", "pyformat": "%s"}.get(conn.dialect.paramstyle)
+    if mark is None:
+        conn.execute(insert(table), [dict(zip(columns, r)) for r in rows])
+        return
+    q = conn.dialect.identifier_preparer.quote
+    sql = (f"INSERT INTO {q(table.name)} ({', '.join(q(c) for c in columns)}) "
+           f"VALUES ({', '.join([mark] * len(columns))})")
+    conn.exec_driver_sql(sql, rows)
+
+
 def _chunks(items: Sequence, size: int = CHUNK) -> Iterable[Sequence]:
     for i in range(0, len(items), size):
         yield items[i:i + size]
@@ -261,38 +291,25 @@ class StoreWriter:
                 commits, parents, files, trailers, fixes, reverts, unparsed = \
                     [], [], [], [], [], [], []
                 for cid, r in enumerate(rows, start=next_id):
-                    commits.append({
-                        "commit_id": cid, "repo_id": repo_id, "run_id": run_id, "hash": r.hash,
-                        "author_id": ids[r.author], "committer_id": ids[r.committer],
-                        "author_time": r.author_time, "author_offset_min": r.author_offset_min,
-                        "committer_time": r.committer_time,
-                        "committer_offset_min": r.committer_offset_min,
-                        "subject": r.subject, "message": r.message,
-                        "n_parents": len(r.parents), "is_merge": len(r.parents) > 1,
-                        "stable_request": r.stable_request,
-                        "message_was_utf8": r.message_was_utf8})
-                    parents += [{"commit_id": cid, "position": i, "parent_hash": h}
-                                for i, h in enumerate(r.parents)]
-                    files += [{"commit_id": cid, **f._asdict()} for f in r.files]
-                    trailers += [{"commit_id": cid, "position": i, "key": t.key,
-                                  "raw_key": t.raw_key, "value": t.value,
-                                  "person_id": ids[t.person] if t.person else None}
+                    commits.append((
+                        cid, repo_id, run_id, r.hash, ids[r.author], ids[r.committer],
+                        r.author_time, r.author_offset_min, r.committer_time,
+                        r.committer_offset_min, r.subject, r.message, len(r.parents),
+                        len(r.parents) > 1, r.stable_request, r.message_was_utf8))
+                    parents += [(cid, i, h) for i, h in enumerate(r.parents)]
+                    files += [(cid, *f) for f in r.files]
+                    trailers += [(cid, i, t.key, t.raw_key, t.value,
+                                  ids[t.person] if t.person else None)
                                  for i, t in enumerate(r.trailers)]
-                    fixes += [{"commit_id": cid, "position": i, "ref_hash": f.ref_hash,
-                               "status": "unresolved", "introducer_hash": None,
-                               "cited_subject": f.cited_subject, "subject_match": None,
-                               "in_trailer_block": f.in_trailer_block, "raw_text": f.raw_text}
-                              for i, f in enumerate(r.fixes)]
-                    reverts += [{"commit_id": cid, "ref_hash": h, "status": "unresolved",
-                                 "reverted_hash": None} for h in r.reverts]
-                    unparsed += [{"commit_id": cid, "kind": k, "raw_text": t}
-                                 for k, t in r.unparsed]
+                    fixes += [(cid, i, f.ref_hash, "unresolved", None, f.cited_subject, None,
+                               f.in_trailer_block, f.raw_text) for i, f in enumerate(r.fixes)]
+                    reverts += [(cid, h, "unresolved", None) for h in r.reverts]
+                    unparsed += [(cid, k, t) for k, t in r.unparsed]
                 for table, data in ((s.commit, commits), (s.commit_parent, parents),
                                     (s.file_change, files), (s.trailer, trailers),
                                     (s.fix_link, fixes), (s.revert_link, reverts),
                                     (s.unparsed_reference, unparsed)):
-                    if data:
-                        conn.execute(insert(table), data)
+                    _bulk_insert(conn, table, _COLUMNS[table.name], data)
         except BaseException:
             self._persons = None        # the cache may hold ids of rolled-back rows
             raise
@@ -389,8 +406,8 @@ class StoreWriter:
     def replace_tags(self, repo_id: int, tags: Sequence[TagRow]) -> None:
         with self.engine.begin() as conn:
             conn.execute(delete(s.tag).where(s.tag.c.repo_id == repo_id))
-            if tags:
-                conn.execute(insert(s.tag), [{"repo_id": repo_id, **t._asdict()} for t in tags])
+            _bulk_insert(conn, s.tag, ("repo_id",) + TagRow._fields,
+                         [(repo_id, *t) for t in tags])
 
     def mapping_of(self, repo_id: int) -> tuple[str | None, str | None]:
         r = s.repository
@@ -426,10 +443,8 @@ class StoreWriter:
                                               sort_by_parameter_order=True),
                         [{"repo_id": repo_id, "name": n} for n in new]):
                     known[name] = sid
-            rows = [{"repo_id": repo_id, "path": p, "subsystem_id": known[n]}
-                    for p, names in pairs for n in names]
-            for part in _chunks(rows, 20000):
-                conn.execute(insert(s.path_subsystem), list(part))
+            rows = [(repo_id, p, known[n]) for p, names in pairs for n in names]
+            _bulk_insert(conn, s.path_subsystem, ("repo_id", "path", "subsystem_id"), rows)
 
     def prune_mapping(self, repo_id: int) -> None:
         """Drop path->subsystem rows of paths no stored commit touches any more."""

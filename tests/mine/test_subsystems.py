@@ -144,3 +144,18 @@ def test_changing_the_mapping_remaps_every_path(git_history, tmp_path):
     b = read_table(open_store(once), "commit_subsystems")
     pd.testing.assert_frame_equal(a, b)
     assert set(a["subsystem"]) == {"net", "(unmapped)"}
+
+
+_PATHS = ["net/ipv4/tcp.c", "net/core/sock.c", "drivers/net/wireless/ath.c", "include/foo.h",
+          "include/sub/foo.h", "drivers/gpu/tegra/dc.c", "lib/shared/x.c", "README",
+          "tegra", "a/tegra/b", "net", "drivers/net", "lib/shared"]
+
+
+def test_batch_mapping_equals_one_path_at_a_time():
+    """Invariance: mapping all paths in one call (joined-string regex scan, index
+    look-ups) gives what mapping each path alone gives, in any order."""
+    m = maintainers_mapper(MAINTAINERS + "\nCROSS\nN:\tc\\.c$|^net\n", "M")
+    one = [m.map(p) for p in _PATHS]
+    assert m.map_many(_PATHS) == one
+    assert m.map_many(_PATHS[::-1]) == one[::-1]
+    assert m.map("a/tegra/b") == ["TEGRA"] and m.map("net") == ["CROSS"]   # "net/" is a folder
