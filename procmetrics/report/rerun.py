@@ -25,6 +25,9 @@ from procmetrics.report.model import ReportOptions
 
 #: exit status of ``procmetrics rerun`` when the regenerated figures differ
 EXIT_DIFFERENT = 16
+#: tables and JSON parts that describe how the data was obtained, not the figures
+PROVENANCE_TABLES = ("scope-facts", "mining-runs")
+PROVENANCE_PARTS = ("scope", "provenance")
 
 
 @dataclass(frozen=True)
@@ -37,6 +40,7 @@ class RerunResult:
     compared: int
     differences: tuple[str, ...] = field(default_factory=tuple)
     notes: tuple[str, ...] = field(default_factory=tuple)
+    provenance_differences: tuple[str, ...] = field(default_factory=tuple)
 
     def summary(self) -> str:
         lines = [f"regenerated report in {self.out}"]
@@ -44,9 +48,12 @@ class RerunResult:
         if self.head_moved:
             lines.append(f"HEAD moved: {self.head_moved}")
         lines.append(("store re-mined into " if self.remined else "store reused: ") + self.store)
-        if self.matches:
+        if self.matches and not self.provenance_differences:
             lines.append(f"figures match: {self.compared} JSON/CSV files identical "
                          "(SHA-256)")
+        elif self.matches:
+            lines.append("figures match; only the provenance differs:")
+            lines += [f"  - {d}" for d in self.provenance_differences]
         else:
             lines.append(f"figures DIFFER: {len(self.differences)} difference(s) in "
                          f"{self.compared} compared files")
@@ -119,7 +126,7 @@ def _json_differences(old: Path | None, new: Path) -> list[str]:
                 out.append(f"report.json: {part[:-1]} '{k}' "
                            + ("missing now" if k not in fb else "new" if k not in fa
                               else "numbers differ"))
-    for key in ("scope", "claims", "flags", "store_checksum", "options"):
+    for key in ("scope", "provenance", "claims", "flags", "store_checksum", "options"):
         if a.get(key) != b.get(key):
             out.append(f"report.json: '{key}' differs")
     return out
@@ -194,9 +201,18 @@ def rerun(manifest_path: str | Path, out: str | Path | None = None) -> RerunResu
             diffs.append(f"{name}: new file")
         elif old_out[name] != new_out[name]:
             diffs.append(f"{name}: content differs")
-    if any(d.startswith("report.json") for d in diffs):
+    prov: list[str] = []
+    if "report.json: content differs" in diffs:
         old_json = old_dir / "report.json"
         same_file = old_json.exists() and sha256_file(old_json) == old_out.get("report.json")
-        diffs += _json_differences(old_json if same_file else None, files.json)
+        detail = _json_differences(old_json if same_file else None, files.json)
+        if detail:   # the old JSON is at hand: say exactly what differs
+            diffs.remove("report.json: content differs")
+            diffs += detail
+    for d in list(diffs):
+        if (any(f"-{t}.csv" in d or f"'{t}'" in d for t in PROVENANCE_TABLES)
+                or any(d == f"report.json: '{k}' differs" for k in PROVENANCE_PARTS)):
+            diffs.remove(d)
+            prov.append(d)
     return RerunResult(new_dir, store_url, remined, head_moved, not diffs, len(compared),
-                       tuple(diffs), tuple(notes))
+                       tuple(diffs), tuple(notes), tuple(prov))
