@@ -174,7 +174,7 @@ def build_defects(
     period_freq: str = "Y",
     review_keys: Sequence[str] = REVIEW_KEYS,
     links_from: Any = "first_link",
-    link_source: str = "Fixes: link",
+    link_source: str = "resolved Fixes: link",
 ) -> DefectTable:
     """Build the one-row-per-defect table from the tidy ``fix_links`` table.
 
@@ -199,8 +199,9 @@ def build_defects(
     links_from : start of the link era (see module docstring): ``"first_link"``
         (default: the first linked fix on the basis clock), a date, or None
         (keep every introducer, accepting the left truncation).
-    link_source : how the links were found, for the population text
-        (``"Fixes: link"``; the blame heuristic passes its own wording).
+    link_source : how the links were found, for the population text. Any
+        value other than the default marks the links as heuristic (a
+        ``heuristic_classification`` caveat is attached).
 
     Returns
     -------
@@ -332,7 +333,12 @@ def build_defects(
                           f"link era began ({era:%Y-%m-%d}) were left out: before that date no "
                           "fix was linked, so old introducers appear only with long lifetimes",
                           "info"))
-    if pd.notna(era) and link_source == "Fixes: link":
+    heuristic = link_source != "resolved Fixes: link"
+    if heuristic:
+        cav.append(caveat("heuristic_classification", f"HEURISTIC: the links are "
+                          f"{link_source}s found by a heuristic, not links written by the "
+                          "developers; introducers and lifetimes may be wrong"))
+    if pd.notna(era) and not heuristic:
         adopt = _adoption_caveat(links.drop_duplicates("fix_hash")["_fix"], commits, era,
                                  tau, clock)
         if adopt is not None:
@@ -340,15 +346,16 @@ def build_defects(
     cav.append(caveat("truncation_bias", "only defects fixed (with a link) before the end "
                       "of the history appear: long lifetimes of recent defects are missing",
                       "info"))
-    cav.append(caveat("not_identifiable", f"defects never found or fixed without a "
-                      f"{link_source} are absent; their number cannot be estimated from this "
-                      "data", "info"))
+    kind = link_source if heuristic else "Fixes: link"
+    cav.append(caveat("not_identifiable", f"defects never found or fixed without a {kind} "
+                      "are absent; their number cannot be estimated from this data", "info"))
     unit = "releases" if basis == "releases" else "days"
     since = f"introduced on or after {era:%Y-%m-%d} (start of the link era), " \
         if pd.notna(era) else ""
-    population = (f"defects whose fixing commit is linked to the introducing commit by a "
-                  f"resolved {link_source}, {since}fixed before {tau:%Y-%m-%d}; lifetime = "
-                  f"{unit} from introducer to first fix" if pd.notna(tau) else "no defects")
+    population = (("HEURISTIC: " if heuristic else "") + "defects whose fixing commit is "
+                  f"linked to the introducing commit by a {link_source}, {since}fixed "
+                  f"before {tau:%Y-%m-%d}; lifetime = {unit} from introducer to first fix"
+                  if pd.notna(tau) else "no defects")
     return DefectTable(d, basis, unit, tau, link_counts, n_missing, n_neg, n_follow,
                        population, tuple(cav), era if pd.notna(era) else None, n_before)
 

@@ -189,7 +189,8 @@ def _heuristic(args: argparse.Namespace, tables: dict[str, pd.DataFrame],
                           commit_subsystems=tables["commit_subsystems"],
                           trailers=tables["trailers"],
                           period_cuts=[args.change_date] if args.change_date else None,
-                          links_from=None, link_source="blame-based (SZZ) candidate link")
+                          links_from=None,
+                          link_source="blame-based (SZZ) candidate link")
     an = analyse_lifetimes(table, by=args.by, horizon=args.horizon, n_boot=args.boot,
                            rng=np.random.default_rng(args.seed))
     print(f"HEURISTIC: blame-based (SZZ) links for fixes without a Fixes: link "
@@ -212,7 +213,9 @@ def _heuristic(args: argparse.Namespace, tables: dict[str, pd.DataFrame],
     if args.basis == "releases":
         print("  (heuristic lifetimes use committer dates; --basis releases applies to the "
               "Fixes: links only)")
-    print(f"  heuristic: {an.n_defects} defects; population: {table.population}")
+    print(f"  heuristic: {an.n_defects} defects (distinct candidate introducers; "
+          f"{table.n_follow_up_fixes} later fix(es) blamed an introducer already counted)")
+    print(f"  population: {table.population}")
     _print_analysis(an, args.horizon, indent="  heuristic ")
     print("  known failure modes of blame-based linking:")
     for fm in FAILURE_MODES:
