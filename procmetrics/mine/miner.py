@@ -33,6 +33,7 @@ from procmetrics.mine.subsystems import (
 from procmetrics.mine.tags import read_tags
 from procmetrics.mine.trailers import parse_trailers, split_person
 from procmetrics.store import open_store
+from procmetrics.store.runlock import repository_lock
 from procmetrics.store.writer import CommitRow, FileRow, FixRow, StoreWriter, TrailerRow
 
 MAINTAINERS_FILE = "MAINTAINERS"
@@ -62,28 +63,31 @@ def mine_repository(path: str | os.PathLike[str], store: str | os.PathLike[str] 
     writer = StoreWriter(engine)
     name = opts.repo_name or default_repo_name(git)
     repo_id = writer.ensure_repository(name, str(git.path))
-    writer.ensure_indexes()
-    cleaned = writer.cleanup_incomplete(repo_id)
-    base = _decide_base(git, writer, repo_id, tip, opts)
-    run_id = writer.start_run(repo_id, ref=opts.ref, head_hash=tip, base_hash=base,
-                              is_shallow=shallow, options_json=opts.to_json(),
-                              versions_json=json.dumps(versions(git), sort_keys=True))
-    try:
-        counts = _load(git, writer, repo_id, run_id, tip, base, opts)
-        resolve_links(git, writer, repo_id, run_id, tip)
-        writer.replace_tags(repo_id, read_tags(git))
-        _map_paths(writer, repo_id, mapper)
-        writer.complete_run(run_id, repo_id, tip_hash=tip, tip_ref=opts.ref, path=str(git.path),
-                            remote_url=redact_url(git.config_value("remote.origin.url")),
-                            is_shallow=shallow, mapping_kind=mapper.kind,
-                            mapping_source=mapper.source, counts=counts,
-                            message="shallow clone" if shallow else None)
-    except BaseException as exc:
+    # one run per repository and store at a time (released even when the run dies)
+    with repository_lock(engine, repo_id, name):
+        writer.ensure_indexes()
+        cleaned = writer.cleanup_incomplete(repo_id)
+        base = _decide_base(git, writer, repo_id, tip, opts)
+        run_id = writer.start_run(repo_id, ref=opts.ref, head_hash=tip, base_hash=base,
+                                  is_shallow=shallow, options_json=opts.to_json(),
+                                  versions_json=json.dumps(versions(git), sort_keys=True))
         try:
-            writer.fail_run(run_id, f"{exc.__class__.__name__}: {exc}")
-        except Exception:  # noqa: BLE001 - the store may be what failed; keep the first error
-            pass
-        raise
+            counts = _load(git, writer, repo_id, run_id, tip, base, opts)
+            resolve_links(git, writer, repo_id, run_id, tip)
+            writer.replace_tags(repo_id, read_tags(git))
+            _map_paths(writer, repo_id, mapper)
+            writer.complete_run(run_id, repo_id, tip_hash=tip, tip_ref=opts.ref,
+                                path=str(git.path),
+                                remote_url=redact_url(git.config_value("remote.origin.url")),
+                                is_shallow=shallow, mapping_kind=mapper.kind,
+                                mapping_source=mapper.source, counts=counts,
+                                message="shallow clone" if shallow else None)
+        except BaseException as exc:
+            try:
+                writer.fail_run(run_id, f"{exc.__class__.__name__}: {exc}")
+            except Exception:  # noqa: BLE001 - the store may be what failed; keep the first error
+                pass
+            raise
     t = writer.totals(repo_id)
     return MiningSummary(
         repo=name, run_id=run_id, head_hash=tip, base_hash=base, incremental=base is not None,
