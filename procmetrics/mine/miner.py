@@ -75,7 +75,7 @@ def mine_repository(path: str | os.PathLike[str], store: str | os.PathLike[str] 
             counts = _load(git, writer, repo_id, run_id, tip, base, opts)
             resolve_links(git, writer, repo_id, run_id, tip)
             writer.replace_tags(repo_id, read_tags(git))
-            _map_paths(writer, repo_id, mapper)
+            _map_paths(writer, repo_id, run_id, mapper)
             writer.complete_run(run_id, repo_id, tip_hash=tip, tip_ref=opts.ref,
                                 path=str(git.path),
                                 remote_url=redact_url(git.config_value("remote.origin.url")),
@@ -231,12 +231,17 @@ def build_mapper(git: GitRepo, tip: str, opts: MineOptions) -> PathMapper:
     return prefix_mapper(opts.prefix_depth)
 
 
-def _map_paths(writer: StoreWriter, repo_id: int, mapper: PathMapper) -> None:
+def _map_paths(writer: StoreWriter, repo_id: int, run_id: int, mapper: PathMapper,
+               chunk: int = 5000) -> None:
+    """Map the paths no stored mapping covers yet; everything when the mapping changed."""
     if writer.mapping_of(repo_id) != (mapper.kind, mapper.source):
         writer.clear_mapping(repo_id)
-    paths = writer.unmapped_paths(repo_id)
-    if paths:
-        writer.add_path_subsystems(repo_id, list(zip(paths, mapper.map_many(paths))))
+        paths = writer.unmapped_paths(repo_id)
+    else:
+        paths = writer.unmapped_paths(repo_id, run_id)
+    for i in range(0, len(paths), chunk):        # bounded memory on large histories
+        part = paths[i:i + chunk]
+        writer.add_path_subsystems(repo_id, list(zip(part, mapper.map_many(part))))
 
 
 def default_repo_name(git: GitRepo) -> str:

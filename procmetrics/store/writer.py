@@ -34,6 +34,7 @@ from sqlalchemy.schema import CreateIndex, DropIndex
 from procmetrics.store import schema as s
 
 CHUNK = 500
+MANY_REFS = 2000      # above this many short references, scan stored hashes once
 
 
 class FileRow(NamedTuple):
@@ -359,6 +360,20 @@ class StoreWriter:
                 for (h,) in conn.execute(select(g.c.hash).where(g.c.repo_id == repo_id,
                                                                 g.c.hash.in_(part))):
                     out[h].append(h)
+            if len(short) > MANY_REFS:     # one pass over the stored hashes beats a query each
+                k = min(len(r) for r in short)
+                heads: dict[str, list[str]] = {}
+                for r in short:
+                    heads.setdefault(r[:k], []).append(r)
+                result = conn.execution_options(yield_per=20000).execute(
+                    select(g.c.hash).where(g.c.repo_id == repo_id))
+                for h in result.scalars():
+                    for r in heads.get(h[:k], ()):
+                        if h.startswith(r):
+                            out[r].append(h)
+                for r in short:
+                    out[r] = sorted(out[r])[:limit]
+                return out
             stmt = (select(g.c.hash).where(g.c.repo_id == repo_id,
                                            g.c.hash >= bindparam("lo"),
                                            g.c.hash < bindparam("hi"))
@@ -421,12 +436,15 @@ class StoreWriter:
             conn.execute(delete(s.path_subsystem).where(s.path_subsystem.c.repo_id == repo_id))
             conn.execute(delete(s.subsystem).where(s.subsystem.c.repo_id == repo_id))
 
-    def unmapped_paths(self, repo_id: int) -> list[str]:
+    def unmapped_paths(self, repo_id: int, run_id: int | None = None) -> list[str]:
+        """Touched paths without a subsystem row (only those of ``run_id`` when given)."""
         g, fc, ps = s.commit, s.file_change, s.path_subsystem
         stmt = (select(fc.c.path).distinct().select_from(fc)
                 .join(g, g.c.commit_id == fc.c.commit_id)
                 .where(g.c.repo_id == repo_id)
                 .where(~exists().where(ps.c.repo_id == repo_id, ps.c.path == fc.c.path)))
+        if run_id is not None:
+            stmt = stmt.where(g.c.run_id == run_id)
         with self.engine.connect() as conn:
             return sorted(conn.execute(stmt).scalars())
 

@@ -80,3 +80,21 @@ def test_same_tables_on_every_database(sample_history, any_store_url, tmp_path):
             pd.testing.assert_frame_equal(a[name], b[name], obj=name)
     finally:
         engine.dispose()
+
+
+def test_prefix_lookup_by_scan_equals_lookup_by_query(sample_history, tmp_path, monkeypatch):
+    """The two look-up strategies (a range query per reference, or one scan of all stored
+    hashes) give the same answer; the oracle for 'which commits share a prefix' is git."""
+    import procmetrics.store.writer as w
+    engine = open_store(tmp_path / "s.sqlite")
+    mine_repository(sample_history.path, store=engine, options=MineOptions(progress=False))
+    hashes = sample_history.git("rev-list", "HEAD").split()
+    refs = sorted({h[:n] for h in hashes for n in (1, 2, 7, 12)} | {"deadbeef", hashes[0]})
+    writer = StoreWriter(engine)
+    rid = writer.ensure_repository("sample", str(sample_history.path))    # existing row
+    by_query = writer.stored_matches(rid, refs, 40)
+    monkeypatch.setattr(w, "MANY_REFS", 0)
+    by_scan = writer.stored_matches(rid, refs, 40)
+    assert by_query == by_scan
+    for r in refs:
+        assert by_query[r] == sorted(h for h in hashes if h.startswith(r))[:2]
