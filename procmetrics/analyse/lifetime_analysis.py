@@ -110,9 +110,14 @@ def restrict_to_horizon(defects: pd.DataFrame, horizon: float, unit: str = "days
 
 
 def _group_keys(d: pd.DataFrame, by: str | None) -> list[tuple[str, pd.DataFrame]]:
+    """``(all)`` first, then the groups; periods in time order, subsystems by name."""
     out = [(ALL, d)]
     if by:
-        out += [(str(k), g) for k, g in d.groupby(by, sort=True)]
+        parts = [(str(k), g) for k, g in d.groupby(by, sort=True)]
+        if by == "period" and len(d):
+            first = d.groupby(by)["intro_date"].min()
+            parts.sort(key=lambda kv: first[kv[0]])
+        out += parts
     return out
 
 

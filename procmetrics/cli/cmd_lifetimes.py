@@ -136,11 +136,22 @@ def run(args: argparse.Namespace) -> int:
     return 0
 
 
+_METHODS = ("methods: naive = observed lifetimes at face value (biased short); "
+            "truncation_aware = corrected for the end of the history, describes lifetimes up "
+            "to the longest observed one{tmax}; horizon = defects introduced at least H before "
+            "the end, lifetimes given <= H (what the comparisons use)")
+
+
 def _print_analysis(res: Any, horizon: float | None, indent: str = "  ") -> None:
     med = res.summary[res.summary["quantile"] == 0.5]
     for row in med.itertuples():
         print(f"{indent}median {row.group:<20} {row.method:<17} {_num(row.value)} "
-              f"[{_num(row.low)}, {_num(row.high)}] n={row.n}")
+              f"[{_num(row.low)}, {_num(row.high)}] n={row.n} ({row.level:.0%} interval)")
+    if len(med):
+        allc = res.curves[(res.curves["group"] == "(all)")
+                          & (res.curves["method"] == "truncation_aware")]
+        tmax = f" ({allc['time'].max():.0f} {res.unit})" if len(allc) else ""
+        print(f"{indent}" + _METHODS.format(tmax=tmax))
     for c, label in ((res.comparison, ""), (res.stratified_comparison,
                                              f" (strata: {res.strata_by})")):
         if c is not None:

@@ -37,6 +37,11 @@ def plot_growth(result: Any, *, ax: Axes | None = None) -> Axes:
     ax.axvline(end, color="gray", ls=":", lw=0.8)
     refused = [m.model for m in result.models if not m.fitted]
     ax.set_title("Cumulative fixes" + (f" (refused: {', '.join(refused)})" if refused else ""))
+    if result.trend is not None:
+        lines = [f"{t.name}: {t.direction} (p_growth={t.p_growth:.2g})"
+                 for t in (result.trend.laplace, result.trend.power_law)]
+        ax.text(0.02, 0.86, "trend tests\n" + "\n".join(lines), transform=ax.transAxes,
+                ha="left", va="top", fontsize="x-small", color="dimgray")
     ax.set_xlabel(f"days since {result.origin:%Y-%m-%d}")
     ax.set_ylabel("cumulative fixing commits")
     ax.legend(fontsize="small")
