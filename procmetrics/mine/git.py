@@ -155,12 +155,13 @@ class GitRepo:
                                         stdin=subprocess.DEVNULL, env=git_environment())
             except OSError as exc:
                 raise GitUnavailable(f"cannot run git: {exc}") from exc
-            assert proc.stdout is not None
+            out = proc.stdout
+            if out is None:     # pragma: no cover - stdout=PIPE always gives a stream
+                raise GitFailed("git gave no output stream")
             finished = False
             try:
                 while True:
-                    chunk = proc.stdout.read1(CHUNK) if hasattr(proc.stdout, "read1") \
-                        else proc.stdout.read(CHUNK)
+                    chunk = out.read1(CHUNK)
                     if not chunk:
                         break
                     yield chunk
@@ -168,7 +169,7 @@ class GitRepo:
             finally:
                 if not finished and proc.poll() is None:
                     proc.kill()
-                proc.stdout.close()
+                out.close()
                 code = proc.wait()
             if code != 0:
                 err.seek(0)

@@ -170,3 +170,21 @@ def test_mining_never_writes_or_runs_repository_programs(git_history, tmp_path):
         mine_repository(h.path, store=tmp_path / "s.sqlite", options=OPTS)
     assert not sentinel.exists()
     assert _snapshot(h.path / ".git") == before
+
+
+def test_missing_objects_fail_cleanly_and_leave_no_rows(git_history, tmp_path):
+    from procmetrics.errors import GitFailed
+    h = _small(git_history())
+    blob = h.git("rev-parse", "HEAD~1:a/x.txt")
+    (h.path / ".git" / "objects" / blob[:2] / blob[2:]).unlink()      # corrupt the clone
+    store = tmp_path / "s.sqlite"
+    with pytest.raises(GitFailed, match="git log failed"):
+        mine_repository(h.path, store=store, options=OPTS)
+    engine = open_store(store)
+    runs = read_table(engine, "mining_runs")
+    assert list(runs["status"]) == ["failed"] and "GitFailed" in runs["message"].iloc[0]
+    assert read_table(engine, "repositories")["tip_hash"].isna().all()
+    # paths only: no blob is read, so the same clone mines (and cleans the failed run)
+    s = mine_repository(h.path, store=store, options=MineOptions(progress=False, repo_name="r",
+                                                                 line_counts=False))
+    assert s.commits == 3 and len(s.cleaned_runs) == 1
