@@ -1,0 +1,105 @@
+"""Helpers for the robustness tests (a plain module: ``from tests.robustness.robust_support
+import ...``); the fixtures built on them live in ``conftest.py``."""
+from __future__ import annotations
+
+import hashlib
+import os
+import sqlite3
+import stat
+import subprocess
+import sys
+from dataclasses import dataclass
+from pathlib import Path
+
+import pandas as pd
+
+from procmetrics.store import open_store
+from procmetrics.store.tables import READERS, read_table
+
+ROOT = Path(__file__).resolve().parents[2]
+AURORA_COMMITS = 1500
+
+
+@dataclass(frozen=True)
+class Ran:
+    code: int
+    out: str
+    err: str
+
+
+def subprocess_env(**extra: str) -> dict[str, str]:
+    env = {k: v for k, v in os.environ.items() if not k.startswith(("GIT_", "PROCMETRICS_"))}
+    env.update(extra)
+    return env
+
+
+def run_procmetrics(*args: str, env: dict[str, str] | None = None, user: int | None = None,
+                    cwd: Path | None = None, timeout: float = 120) -> subprocess.CompletedProcess:
+    """``python -m procmetrics ARGS`` in a child process (optionally as another user)."""
+    kw = {}
+    if user is not None:
+        kw = {"user": user, "group": user, "extra_groups": []}
+    return subprocess.run([sys.executable, "-m", "procmetrics", *map(str, args)],
+                          capture_output=True, text=True, env=env or subprocess_env(),
+                          cwd=cwd or ROOT, timeout=timeout, **kw)
+
+
+def assert_one_line_error(err: str, *needles: str) -> None:
+    """stderr is exactly one ``procmetrics: error: ...`` line (no traceback) naming needles."""
+    lines = [ln for ln in err.splitlines() if ln.strip()]
+    assert len(lines) == 1, err
+    assert lines[0].startswith("procmetrics: error: "), err
+    assert "Traceback" not in err
+    for n in needles:
+        assert n.lower() in lines[0].lower(), (n, err)
+
+
+def tree_digest(root: Path) -> dict[str, tuple]:
+    """(kind, mode, content hash or link target) of everything under ``root``."""
+    out: dict[str, tuple] = {}
+    for dirpath, dirs, files in os.walk(root, followlinks=False):
+        for name in dirs + files:
+            p = Path(dirpath) / name
+            st = p.lstat()
+            rel = str(p.relative_to(root))
+            if stat.S_ISLNK(st.st_mode):
+                out[rel] = ("link", os.readlink(p))
+            elif stat.S_ISDIR(st.st_mode):
+                out[rel] = ("dir", stat.S_IMODE(st.st_mode))
+            else:
+                out[rel] = ("file", stat.S_IMODE(st.st_mode),
+                            hashlib.sha256(p.read_bytes()).hexdigest())
+    return out
+
+
+def tidy_tables(store) -> dict[str, pd.DataFrame]:
+    """Every tidy table except ``mining_runs`` (provenance differs by design), with the
+    repository path dropped and rows sorted, so two stores of one history compare equal."""
+    engine = open_store(store, create=False)
+    try:
+        out = {}
+        for name in READERS:
+            if name == "mining_runs":
+                continue
+            df = read_table(engine, name)
+            if name == "repositories":
+                df = df.drop(columns=["path"])
+            out[name] = df.sort_values(list(df.columns)).reset_index(drop=True) \
+                if len(df) else df.reset_index(drop=True)
+        return out
+    finally:
+        engine.dispose()
+
+
+def assert_same_tables(a: dict[str, pd.DataFrame], b: dict[str, pd.DataFrame]) -> None:
+    assert a.keys() == b.keys()
+    for name in a:
+        pd.testing.assert_frame_equal(a[name], b[name], obj=name)
+
+
+def integrity_ok(path: Path) -> bool:
+    con = sqlite3.connect(path)
+    try:
+        return con.execute("PRAGMA integrity_check").fetchall() == [("ok",)]
+    finally:
+        con.close()

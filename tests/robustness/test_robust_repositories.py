@@ -1,0 +1,198 @@
+"""What the miner does with odd or broken repositories and a missing or old git.
+
+Every failure must be one ``procmetrics: error:`` line and a documented exit code
+(3 for repository and git problems); oracles are plain git plumbing.
+"""
+from __future__ import annotations
+
+import os
+import stat
+import subprocess
+from pathlib import Path
+
+import pytest
+
+from procmetrics.store import open_store
+from procmetrics.store.tables import read_table
+from tests.git_support import BOB, when
+
+from tests.robustness.robust_support import assert_one_line_error, integrity_ok, tidy_tables
+
+
+def _small(h):
+    h.commit("a: one\n", files={"a/x.txt": "1\n"}, date=when(0), name="one")
+    h.commit("a: two\n\nFixes: " + h.rev()[:12] + "\n", files={"a/x.txt": "1\n2\n"},
+             author=BOB, date=when(1, "-0300"), name="two")
+    h.commit("b: three\n", files={"b/y.txt": "3\n"}, date=when(2), name="three")
+    return h
+
+
+def _count(h, *args) -> int:
+    return int(h.git("rev-list", "--count", *args))
+
+
+def test_not_a_repository(cli, tmp_path):
+    (tmp_path / "plain").mkdir()
+    r = cli("mine", tmp_path / "plain", "--store", tmp_path / "s.sqlite")
+    assert r.code == 3
+    assert_one_line_error(r.err, "not a git repository")
+    (tmp_path / "file.txt").write_text("x")
+    r = cli("mine", tmp_path / "file.txt", "--store", tmp_path / "s.sqlite")
+    assert r.code == 3
+    assert_one_line_error(r.err, "no such folder")
+    r = cli("mine", tmp_path / "missing", "--store", tmp_path / "s.sqlite")
+    assert r.code == 3
+    assert_one_line_error(r.err, "no such folder")
+
+
+def test_bare_repository_is_mined_like_its_source(cli, git_history, tmp_path):
+    h = _small(git_history())
+    bare = tmp_path / "bare.git"
+    subprocess.run(["git", "clone", "-q", "--bare", str(h.path), str(bare)], check=True,
+                   env=h.env)
+    r = cli("mine", bare, "--store", tmp_path / "b.sqlite", "--repo-name", "r")
+    assert r.code == 0, r.err
+    assert cli("mine", h.path, "--store", tmp_path / "w.sqlite", "--repo-name", "r").code == 0
+    commits = read_table(open_store(tmp_path / "b.sqlite"), "commits")
+    assert len(commits) == _count(h, "HEAD")          # oracle: git rev-list
+    b, w = tidy_tables(tmp_path / "b.sqlite"), tidy_tables(tmp_path / "w.sqlite")
+    for name in ("commits", "file_changes", "fix_links", "trailers"):
+        assert b[name].equals(w[name]), name
+
+
+def test_empty_repository(cli, git_history, tmp_path):
+    h = git_history()
+    r = cli("mine", h.path, "--store", tmp_path / "s.sqlite")
+    assert r.code == 3
+    assert_one_line_error(r.err, "no commits yet")
+
+
+def test_unknown_ref_and_option_like_ref(cli, git_history, tmp_path):
+    h = _small(git_history())
+    r = cli("mine", h.path, "--ref", "no-such-branch", "--store", tmp_path / "s.sqlite")
+    assert r.code == 3
+    assert_one_line_error(r.err, "no-such-branch", "does not name a commit")
+    target = tmp_path / "written-by-git"
+    r = cli("mine", h.path, f"--ref=--output={target}", "--store", tmp_path / "s.sqlite")
+    assert r.code == 2
+    assert_one_line_error(r.err, "not a usable ref")
+    assert not target.exists()
+
+
+def test_shallow_clone_warns_loudly_and_is_recorded(cli, git_history, tmp_path):
+    h = _small(git_history())
+    shallow = tmp_path / "shallow"
+    subprocess.run(["git", "clone", "-q", "--depth", "2", f"file://{h.path}", str(shallow)],
+                   check=True, env=h.env, capture_output=True)
+    with pytest.warns(Warning, match="shallow clone"):
+        r = cli("mine", shallow, "--store", tmp_path / "s.sqlite")
+    assert r.code == 0, r.err
+    assert "shallow" in r.out
+    engine = open_store(tmp_path / "s.sqlite")
+    runs = read_table(engine, "mining_runs")
+    assert runs["is_shallow"].tolist() == [True]
+    assert read_table(engine, "repositories")["is_shallow"].tolist() == [True]
+    assert len(read_table(engine, "commits")) == 2
+
+
+def test_replace_refs_and_grafts_are_ignored(git_history, tmp_path, cli):
+    """The stored parents are the ones written in the commit objects (oracle: cat-file)."""
+    h = _small(git_history())
+    assert cli("mine", h.path, "--store", tmp_path / "before.sqlite", "--repo-name", "r").code == 0
+    ids = h.ids
+    h.git("replace", ids["two"], ids["one"])                       # hides "two"
+    (h.path / ".git" / "info").mkdir(exist_ok=True)
+    (h.path / ".git" / "info" / "grafts").write_text(ids["three"] + "\n")   # cuts the past
+    assert _count(h, "HEAD") == 1                                   # git itself is fooled
+    r = cli("mine", h.path, "--store", tmp_path / "after.sqlite", "--repo-name", "r")
+    assert r.code == 0, r.err
+    parents = read_table(open_store(tmp_path / "after.sqlite"), "commits")
+    assert len(parents) == 3
+    obj = h.git("cat-file", "-p", ids["three"], env={"GIT_NO_REPLACE_OBJECTS": "1"})
+    assert f"parent {ids['two']}" in obj
+    before, after = tidy_tables(tmp_path / "before.sqlite"), tidy_tables(tmp_path / "after.sqlite")
+    for name in ("commits", "file_changes", "fix_links"):
+        assert before[name].equals(after[name]), name
+
+
+def _loose(h, oid: str) -> Path:
+    return h.path / ".git" / "objects" / oid[:2] / oid[2:]
+
+
+def test_missing_blob_fails_clearly_with_line_counts(git_history, tmp_path, cli):
+    h = _small(git_history())
+    blob = h.git("rev-parse", f"{h.ids['two']}:a/x.txt")
+    _loose(h, blob).unlink()
+    store = tmp_path / "s.sqlite"
+    r = cli("mine", h.path, "--store", store)
+    assert r.code == 3
+    assert_one_line_error(r.err, "git log failed", blob)
+    assert integrity_ok(store)
+    runs = read_table(open_store(store), "mining_runs")
+    assert runs["status"].tolist() == ["failed"]
+    # without line counts no blob is read: the history is complete
+    r = cli("mine", h.path, "--store", tmp_path / "paths.sqlite", "--no-line-counts")
+    assert r.code == 0, r.err
+    assert len(read_table(open_store(tmp_path / "paths.sqlite"), "commits")) == 3
+
+
+def test_missing_tree_or_commit_fails_clearly(git_history, tmp_path, cli):
+    h = _small(git_history())
+    _loose(h, h.git("rev-parse", "HEAD^{tree}")).unlink()
+    r = cli("mine", h.path, "--store", tmp_path / "s.sqlite", "--no-line-counts")
+    assert r.code == 3
+    assert_one_line_error(r.err, "unable to read tree")
+    h2 = _small(git_history("other"))
+    _loose(h2, h2.ids["one"]).unlink()
+    r = cli("mine", h2.path, "--store", tmp_path / "s2.sqlite", "--no-line-counts")
+    assert r.code == 3
+    assert_one_line_error(r.err, "git log failed")
+
+
+@pytest.mark.timeout(120)
+def test_partial_clone_fails_fast_and_never_fetches(aurora, tmp_path, cli):
+    """A blob-less partial clone: git must not fetch lazily (GIT_NO_LAZY_FETCH), the
+    run fails with a hint instead of hanging or downloading; the clone is unchanged."""
+    server = tmp_path / "server.git"
+    env = {k: v for k, v in os.environ.items() if not k.startswith("GIT_")}
+    env.update(GIT_CONFIG_NOSYSTEM="1", GIT_CONFIG_GLOBAL="/dev/null")
+    subprocess.run(["git", "clone", "-q", "--bare", str(aurora), str(server)], check=True,
+                   env=env)
+    subprocess.run(["git", "-C", str(server), "config", "uploadpack.allowFilter", "true"],
+                   check=True, env=env)
+    part = tmp_path / "part"
+    subprocess.run(["git", "clone", "-q", "--no-checkout", "--filter=blob:none",
+                    f"file://{server}", str(part)], check=True, env=env, capture_output=True)
+
+    def objects() -> str:
+        return subprocess.run(["git", "-C", str(part), "count-objects", "-v"], env=env,
+                              capture_output=True, text=True, check=True).stdout
+    before = objects()
+    r = cli("mine", part, "--store", tmp_path / "s.sqlite")
+    assert r.code == 3
+    assert_one_line_error(r.err, "partial clone", "never fetches")
+    assert objects() == before
+
+
+def _fake_git(folder: Path, version_line: str) -> str:
+    folder.mkdir()
+    exe = folder / "git"
+    exe.write_text(f"#!/bin/sh\necho '{version_line}'\n")
+    exe.chmod(exe.stat().st_mode | stat.S_IEXEC)
+    return str(folder)
+
+
+def test_git_missing_or_too_old(cli, git_history, tmp_path, monkeypatch):
+    h = _small(git_history())
+    monkeypatch.setenv("PATH", str(tmp_path / "empty-bin"))
+    r = cli("mine", h.path, "--store", tmp_path / "s.sqlite")
+    assert r.code == 3
+    assert_one_line_error(r.err, "git is not installed")
+    monkeypatch.setenv("PATH", _fake_git(tmp_path / "old-bin", "git version 2.20.1"))
+    r = cli("mine", h.path, "--store", tmp_path / "s.sqlite")
+    assert r.code == 3
+    assert_one_line_error(r.err, "2.20.1 is too old")
+    monkeypatch.setenv("PATH", _fake_git(tmp_path / "odd-bin", "not a version"))
+    r = cli("mine", h.path, "--store", tmp_path / "s.sqlite")
+    assert r.code == 3
+    assert_one_line_error(r.err, "cannot read git's version")
