@@ -40,6 +40,7 @@ def test_make_demo_end_to_end(tmp_path):
     truth = json.loads((tmp_path / "aurora-fw.truth.json").read_text("utf-8"))
     assert doc["scope"]["policy"] == truth["change"]["date"]
     assert verdicts["review-rose"] == "supported"
+    assert verdicts["fixed-faster"] == "supported"   # truth: lifetimes halved after the date
     shares = {t["key"]: t for t in doc["tables"]}["before-after-shares"]["rows"]
     cov = next(r for r in shares if r["quantity"] == "review coverage")
     real = truth["review"]["realised"]

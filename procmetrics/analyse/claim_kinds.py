@@ -376,13 +376,16 @@ def eval_lifetimes_shorter(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
     row = res.summary.set_index("term").loc["after"]
     cav = list(res.caveats)
     if not res.ph_holds:
+        ordered = _ordered_after_below(d, claim, ctx)
+        if ordered is not None:
+            return ordered
         from procmetrics.analyse.survival_tests import logrank
 
         lr = logrank(d["lifetime"], d["after"])
         cav.append(caveat("diagnostic_failed", "the hazards before and after are not "
-                          "proportional (Schoenfeld test), so one hazard ratio cannot say "
-                          "whether lifetimes are shorter; the log-rank test gives p = "
-                          f"{lr.p_value:.3g} for any difference between the distributions",
+                          "proportional (Schoenfeld test) and the two lifetime curves cross, "
+                          "so whether lifetimes are shorter depends on the horizon; the "
+                          f"log-rank test gives p = {lr.p_value:.3g} for any difference",
                           "fail"))
     est = Estimate("hazard ratio of fixing, after/before", float(row["hazard_ratio"]),
                    float(row["hr_low"]), float(row["hr_high"]), claim.level, res.method,
@@ -396,6 +399,49 @@ def eval_lifetimes_shorter(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
                      "(after/before)", method=SPECS[claim.kind].method, n=res.n,
                      test={"name": "Wald z (Cox)", "p_value": float(row["p"])},
                      diagnostics=res.diagnostics, caveats=cav, extra=extra)
+
+
+def _ordered_after_below(d: pd.DataFrame, claim: Claim, ctx: ClaimContext
+                         ) -> ClaimVerdict | None:
+    """When hazards are not proportional: decide by the log-rank test if the 'after'
+    Kaplan-Meier curve never lies above the 'before' curve by more than 0.05 within the
+    horizon (stochastic ordering, read off the curves); else ``None``.
+
+    References
+    ----------
+    Peto & Peto (1972) (log-rank); Kaplan & Meier (1958).
+    """
+    from procmetrics.analyse.lifetimes import kaplan_meier
+    from procmetrics.analyse.survival_tests import logrank
+
+    a = kaplan_meier(d.loc[d["after"] == 1, "lifetime"].to_numpy(float), level=claim.level)
+    b = kaplan_meier(d.loc[d["after"] == 0, "lifetime"].to_numpy(float), level=claim.level)
+    grid = np.unique(d["lifetime"].to_numpy(float))
+    sa = np.array([a.survival_at(t) for t in grid])
+    sb = np.array([b.survival_at(t) for t in grid])
+    if (sa > sb + 0.05).any() or not (sa < sb).any():
+        return None
+    lr = logrank(d["lifetime"], d["after"])
+    med_a = float(np.median(d.loc[d["after"] == 1, "lifetime"]))
+    med_b = float(np.median(d.loc[d["after"] == 0, "lifetime"]))
+    est = Estimate("median lifetime after minus before (within the horizon)", med_a - med_b,
+                   None, None, claim.level, "difference of sample medians", int(len(d)),
+                   "days")
+    alpha = round(1 - claim.level, 10)
+    shown = (f"the lifetime curve of defects introduced after the date lies below the "
+             f"curve before it throughout the horizon (medians {med_b:.0f} days before, "
+             f"{med_a:.0f} after); hazards are not proportional, so the log-rank test "
+             f"decides, not a single hazard ratio")
+    test = {"name": "log-rank", "p_value": float(lr.p_value)}
+    method = "log-rank test within a common follow-up horizon (Kaplan-Meier curves ordered)"
+    if lr.p_value < alpha:
+        return ClaimVerdict(claim, cl.SUPPORTED, (f"log-rank p = {lr.p_value:.3g} < {alpha:g}"
+                                                  f": {shown}",), method, n=int(len(d)),
+                            estimate=est, test=test)
+    return ClaimVerdict(claim, cl.NOT_SUPPORTED, (
+        f"log-rank p = {lr.p_value:.3g} ≥ {alpha:g}: no evidence that lifetimes differ; "
+        "this is not evidence that they do not",), method, n=int(len(d)), estimate=est,
+        test=test)
 
 
 def eval_fix_rate(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:

@@ -16,6 +16,11 @@ CAUTION = (
     "history shows what was recorded: work that left no trace in commits and trailers is "
     "invisible to it, and nothing here shows that defects are absent.")
 
+CAUTION_SHORT = (
+    "Read this document as statistical evidence about the recorded history: it supports, and "
+    "never replaces, the applicable safety standard and the assessor's judgement (section "
+    "“Use of this evidence”).")
+
 
 def claim_context(ctx: BuildContext) -> ClaimContext:
     d, q = ctx.data, ctx.quality

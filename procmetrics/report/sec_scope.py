@@ -8,7 +8,7 @@ import pandas as pd
 
 from procmetrics.report import plots
 from procmetrics.report.context import BuildContext, date_text
-from procmetrics.report.model import Figure, Table
+from procmetrics.report.model import Block, Figure, Table
 
 
 def scope(ctx: BuildContext) -> dict[str, Any]:
@@ -96,8 +96,11 @@ def section_scope(ctx: BuildContext) -> None:
                                     "in manifest.json."))
     opts = sc["mining_options"]
     if opts:
-        s.bullets([f"Mining option {k}: {json.dumps(v, sort_keys=True)}"
-                   for k, v in sorted(opts.items())])
+        s.p("Mining options of the last run: " + "; ".join(
+            f"{k.replace('_', ' ')} {json.dumps(v, sort_keys=True)}"
+            for k, v in sorted(opts.items())) + ".")
+    from procmetrics.report.sec_claims import CAUTION_SHORT
+    s.blocks.append(Block("caution", text=CAUTION_SHORT))
 
 
 def section_quality(ctx: BuildContext) -> None:
