@@ -5,6 +5,7 @@ from typing import Any
 
 import pandas as pd
 
+from procmetrics.analyse.changepoints import STATED_FALSE_POSITIVE_RATE
 from procmetrics.report import flags as fl
 from procmetrics.report import plots
 from procmetrics.report.context import BuildContext, date_text
@@ -122,10 +123,12 @@ def section_process(ctx: BuildContext) -> None:
                    pd.DataFrame(cp_rows, columns=["metric", "subsystem", "period", "date_low",
                                                   "date_high", "level_before", "level_after",
                                                   "support", "tuning_sensitive"]),
-                   note=(f"{n_series} series were searched. The search is tuned to a false "
-                         "change in at most about 1 series in 10 without a real change, so "
-                         f"among {n_series} series about {0.1 * n_series:.1f} false changes "
-                         "are to be expected; no further correction is applied. "
+                   note=(f"{n_series} series were searched. The penalty is tuned so that "
+                         "a series of at least 24 periods without a real change shows a false "
+                         f"change in at most about {STATED_FALSE_POSITIVE_RATE:.0%} of cases "
+                         "(shorter series are flagged), so among "
+                         f"{n_series} series about {STATED_FALSE_POSITIVE_RATE * n_series:.1f} "
+                         "false changes are to be expected; no further correction is applied. "
                          if n_series > 1 else "") + "Shares are fractions (0 to 1).")
     cp_tab.flags = fl.dedupe(fl.retarget(cp_flags, "change-points")
                              + fl.rule_flags("change-points", n=None, min_n=None,
