@@ -123,7 +123,8 @@ def _decide_base(git: GitRepo, writer: StoreWriter, repo_id: int, tip: str,
         return None
     raise HistoryRewritten(
         f"the stored tip {old_tip[:12]} is not an ancestor of {opts.ref} ({tip[:12]}): the "
-        "history was rewritten (force-push, rebase) or an older ref was given; "
+        "history was rewritten (force-push, rebase), an older ref was given, or another "
+        "repository is stored under the same name (then use --repo-name); "
         "use --rewrite-policy remine to delete this repository's rows and mine it again")
 
 

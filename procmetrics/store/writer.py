@@ -203,7 +203,7 @@ class StoreWriter:
         with self.engine.begin() as conn:
             runs = list(conn.execute(select(m.c.run_id).where(
                 m.c.repo_id == repo_id, m.c.status.in_(("running", "failed")),
-                m.c.message.is_(None) | ~m.c.message.like("rows removed%"))).scalars())
+                or_(m.c.message.is_(None), ~m.c.message.like("rows removed%")))).scalars())
             if not runs:
                 return []
             self._delete_commits(conn, select(g.c.commit_id).where(g.c.run_id.in_(runs)))
