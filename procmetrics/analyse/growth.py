@@ -20,6 +20,10 @@ Order of work in :func:`analyse_growth`:
 3. Fitted models get goodness-of-fit (CvM/KS on transformed times), a
    prequential u-plot, a hold-out check and predictions with intervals
    (``extrapolated=True``), each refused with a reason where not supported.
+   A failed CvM, KS or u-plot check withholds every prediction (the u-plot
+   fails when the model's own one-step predictions were wrong on this
+   history); a failed hold-out check is reported but, its interval ignoring
+   parameter uncertainty, does not withhold them.
 
 What commit data is not (recorded as caveats on every result): fixes are not
 field failures; calendar time is not usage or test exposure; the code base
@@ -286,9 +290,14 @@ def analyse_growth(fix_times: FixTimes, *, models: Sequence[str] = MODELS, alpha
         up, u = u_plot_check(name, t, alpha)
         diags.append(up)
         preds, thetas = predictions(fit, t, ahead=ahead, level=level, n_boot=n_boot, rng=rng)
-        if any(dg.verdict == "fail" for dg in diags[:2]):
-            preds = [Prediction(p.name, None, "goodness of fit failed; no prediction from a "
-                                "model the data reject") for p in preds]
+        gof_fail = [dg.name for dg in diags if dg.verdict == "fail" and dg.name in
+                    ("cramer_von_mises", "kolmogorov_smirnov", "u_plot_distance")]
+        if gof_fail:
+            # a failed u-plot means the model's one-step predictions were already wrong
+            # on this history: no forecast from it either
+            preds = [Prediction(p.name, None, "goodness of fit failed ("
+                                + ", ".join(gof_fail) + "); no prediction from a model the "
+                                "data reject") for p in preds]
         band = np.array([mean_value(name, tuple(th), grid) for th in thetas]) \
             if len(thetas) else np.full((1, len(grid)), np.nan)
         a = (1 - level) / 2

@@ -161,11 +161,28 @@ def fit_goel_okumoto(times: Any, end: float | None = None, *, level: float = 0.9
 
     b_lo, b_hi = profile_interval(prof_b, b, ll, level, low_limit=b * 1e-8)
     a_lo, a_hi = profile_interval(prof_a, a, ll, level, low_limit=n * 0.5, high_limit=a * 1e6)
+    if _hpp_within_cut(ll, n, T, level):
+        # as b -> 0 and a -> infinity the model tends to a constant rate; when that limit
+        # is inside the likelihood region, a has no upper and b no lower limit (any finite
+        # value found above is an artefact of the search range)
+        a_hi, b_lo = None, None
     meth = f"maximum likelihood ({trunc}); profile-likelihood interval"
     params = (Estimate("a", a, a_lo, a_hi, level, meth, n, "fixes"),
               Estimate("b", b, b_lo, b_hi, level, meth, n, "per day"))
     return NHPPFit("goel_okumoto", params, ll, 4 - 2 * ll, n, T, trunc,
                    "Goel-Okumoto NHPP m(t) = a(1 - exp(-b t))")
+
+
+def _hpp_within_cut(ll_max: float, n: int, T: float, level: float) -> bool:
+    """Is the constant-rate (HPP) limit of the model inside the profile region?
+
+    The HPP log-likelihood ``n log(n/T) - n`` is the supremum of the
+    Goel-Okumoto likelihood along ``b -> 0``; a likelihood-ratio statistic
+    ``2 (ll_max - ll_hpp)`` below the chi-square(1) quantile leaves ``a``
+    unbounded above.
+    """
+    ll_hpp = n * np.log(n / T) - n
+    return bool(2 * (ll_max - ll_hpp) < stats.chi2.ppf(level, 1))
 
 
 def go_residual_profile(fit: NHPPFit, times: Any, *, level: float = 0.95
@@ -187,6 +204,8 @@ def go_residual_profile(fit: NHPPFit, times: Any, *, level: float = 0.95
                              b * 1e-4, min(b * 1e4, 700.0 / T))
     lo, hi = profile_interval(prof_r, r_hat, fit.loglik, level, low_limit=1e-6,
                               high_limit=r_hat * 1e6 + 1e6)
+    if _hpp_within_cut(fit.loglik, len(t), T, level):
+        hi = None     # r grows without limit along the constant-rate direction
     return float(r_hat), (0.0 if lo is None else lo), hi
 
 

@@ -69,7 +69,8 @@ def run(args: argparse.Namespace) -> int:
         if not m.fitted:
             print(f"  {m.model}: refused ({m.refused_reason})")
             continue
-        ps = ", ".join(f"{p.name}={p.value:.4g} [{_n(p.low)}, {_n(p.high)}]" for p in m.fit.params)
+        ps = ", ".join(f"{p.name}={p.value:.4g} [{_n(p.low, 'not bounded')}, {_n(p.high)}]"
+                       for p in m.fit.params)
         print(f"  {m.model}: {ps}")
         for pr in m.predictions:
             if pr.estimate is None:
@@ -88,5 +89,5 @@ def run(args: argparse.Namespace) -> int:
     return 0
 
 
-def _n(x: float | None) -> str:
-    return "unbounded" if x is None else f"{x:.4g}"
+def _n(x: float | None, missing: str = "unbounded") -> str:
+    return missing if x is None else f"{x:.4g}"

@@ -147,3 +147,28 @@ def test_select_fix_times_scopes():
     assert list(ft.events["fix_hash"]) == ["f3"] and ft.events["time_days"].iloc[0] == 50
     ft2 = select_fix_times(dd, end=t0 + pd.Timedelta(days=100), after_tag="v1", tags=tags)
     assert any(c.code == "heuristic_classification" for c in ft2.caveats)
+
+
+def test_go_total_unbounded_when_a_constant_rate_fits_as_well():
+    # known truth: a homogeneous Poisson process (30 uniform times on (0, 100]); the
+    # Goel-Okumoto MLE exists (mean time below T/2) but the likelihood-ratio statistic
+    # against the constant-rate limit, computed here directly, is below chi2(1, 0.95)
+    from scipy import stats
+
+    from procmetrics.analyse.growth_checks import predictions
+    from procmetrics.analyse.nhpp import go_residual_profile
+
+    rng = np.random.default_rng(2)
+    T = 100.0
+    t = np.sort(rng.uniform(0, T, 30))
+    assert t.mean() < T / 2
+    fit = fit_goel_okumoto(t, T)
+    n = len(t)
+    lr = 2 * (fit.loglik - (n * np.log(n / T) - n))
+    assert lr < stats.chi2.ppf(0.95, 1)
+    a, b = fit.params
+    assert a.high is None and b.low is None and a.low is not None
+    assert go_residual_profile(fit, t)[2] is None
+    preds, _ = predictions(fit, t, n_boot=20, rng=np.random.default_rng(0))
+    res = next(p for p in preds if p.name == "expected_residual_fixes")
+    assert res.estimate is None and "do not bound" in res.refused_reason
