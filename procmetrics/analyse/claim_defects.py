@@ -1,0 +1,213 @@
+"""Claim evaluators about defects: lifetimes, fix rates, and residual defects.
+
+Split from :mod:`procmetrics.analyse.claim_kinds` (which holds the kind
+specifications and the share-metric evaluators); the decision rule is
+:func:`procmetrics.analyse.claims.decide`.
+
+References
+----------
+Lynden-Bell (1971) (right-truncated lifetimes); Cox (1972) (hazard ratio);
+Crow (1974), MIL-HDBK-189C (power-law NHPP); Cox & Lewis (1966) (Laplace test);
+Littlewood & Strigini (1993) (limits of evidence for residual-defect claims).
+"""
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from procmetrics.analyse import claims as cl
+from procmetrics.analyse.claim_kinds import SPECS, _window, _adoption_caveat
+from procmetrics.analyse.claims import (
+    NOT_SUPPORTABLE, Claim, ClaimContext, ClaimVerdict, Undecidable,
+)
+from procmetrics.analyse.result import Estimate, caveat
+from procmetrics.errors import InsufficientData
+
+
+def _defects(ctx: ClaimContext, cuts: list[pd.Timestamp] | None = None):
+    from procmetrics.analyse.defects import build_defects
+
+    share = cl.unresolved_share(ctx.fix_links)
+    if share is not None and share > ctx.unresolved_limit:
+        raise Undecidable(f"{share:.0%} of fix references are unresolved or ambiguous, above "
+                          f"the {ctx.unresolved_limit:.0%} limit: the defects seen may not "
+                          "represent the defects fixed")
+    return build_defects(ctx.fix_links, commits=ctx.commits,
+                         commit_subsystems=ctx.commit_subsystems, trailers=ctx.trailers,
+                         period_cuts=cuts)
+
+
+def eval_median_lifetime(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
+    from procmetrics.analyse.defects import lifetimes_for_estimation
+    from procmetrics.analyse.lifetimes import quantile_estimates
+
+    p = claim.params
+    after, before = _window(ctx, p)
+    table = _defects(ctx)
+    d, n_neg = lifetimes_for_estimation(table.defects)
+    if after is not None:
+        d = d[d["intro_date"] >= after]
+    if before is not None:
+        d = d[d["intro_date"] < before]
+    if p.get("subsystem"):
+        d = d[d["subsystems"].str.split(";").apply(lambda s: p["subsystem"] in s)]
+    if len(d) < ctx.min_n:
+        raise Undecidable(f"only {len(d)} defects with a resolved fix link in the window "
+                          f"(at least {ctx.min_n} needed)")
+    rng = np.random.default_rng(ctx.seed)
+    (q50,) = quantile_estimates(d["lifetime"].to_numpy(float), d["window"].to_numpy(float),
+                                quantiles=(0.5,), level=claim.level, rng=rng)
+    est = Estimate("median lifetime", q50.value, q50.low, q50.high, q50.level, q50.method,
+                   q50.n, "days")
+    extra = ["this is the median among defects found and fixed with a Fixes: link, "
+             "corrected for right truncation; defects never found are not covered"]
+    if n_neg:
+        extra.append(f"{n_neg} defect(s) with a fix dated before the introducer were excluded")
+    return cl.decide(claim, est, side="below", threshold=float(p["threshold_days"]),
+                     what="median defect lifetime", method=SPECS[claim.kind].method,
+                     n=q50.n, fmt=lambda x: f"{x:.0f} days", extra=extra)
+
+
+def eval_lifetimes_shorter(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
+    from procmetrics.analyse.cox import fit_cox
+    from procmetrics.analyse.lifetime_analysis import restrict_to_horizon
+
+    p = claim.params
+    date = cl.resolve_date(p["date"], ctx, "date")
+    table = _defects(ctx)
+    end = table.end_date
+    if pd.isna(end) or date >= end:
+        raise Undecidable(f"the history ends before {date:%Y-%m-%d}")
+    horizon = float(p.get("horizon_days") or min(365.0, (end - date).days / 2))
+    cohort = restrict_to_horizon(table.defects, horizon)
+    d = cohort.defects
+    if p.get("subsystem"):
+        d = d[d["subsystems"].str.split(";").apply(lambda s: p["subsystem"] in s)]
+    d = d.assign(after=(d["intro_date"] >= date).astype(float))
+    n_b, n_a = int((d["after"] == 0).sum()), int((d["after"] == 1).sum())
+    if min(n_a, n_b) < ctx.min_n:
+        raise Undecidable(f"within a common follow-up of {horizon:.0f} days there are {n_b} "
+                          f"defects introduced before and {n_a} after {date:%Y-%m-%d} "
+                          f"(at least {ctx.min_n} each are needed)")
+    try:
+        res = fit_cox(d[["lifetime", "after"]].assign(event=True), "lifetime", "event",
+                      level=claim.level, fallback=False)
+    except InsufficientData as exc:
+        raise Undecidable(str(exc)) from exc
+    row = res.summary.set_index("term").loc["after"]
+    cav = list(res.caveats)
+    if not res.ph_holds:
+        ordered = _ordered_after_below(d, claim, ctx)
+        if ordered is not None:
+            return ordered
+        from procmetrics.analyse.survival_tests import logrank
+
+        lr = logrank(d["lifetime"], d["after"])
+        cav.append(caveat("diagnostic_failed", "the hazards before and after are not "
+                          "proportional (Schoenfeld test) and the two lifetime curves cross, "
+                          "so whether lifetimes are shorter depends on the horizon; the "
+                          f"log-rank test gives p = {lr.p_value:.3g} for any difference",
+                          "fail"))
+    est = Estimate("hazard ratio of fixing, after/before", float(row["hazard_ratio"]),
+                   float(row["hr_low"]), float(row["hr_high"]), claim.level, res.method,
+                   res.n)
+    med = d.groupby("after")["lifetime"].median()
+    extra = [f"common follow-up horizon {horizon:.0f} days: median lifetime "
+             f"{med.get(0.0, float('nan')):.0f} days before, {med.get(1.0, float('nan')):.0f} "
+             "after (defects fixed within the horizon); a hazard ratio above 1 means "
+             "faster fixing after the date"]
+    return cl.decide(claim, est, side="above", threshold=1.0, what="hazard ratio of fixing "
+                     "(after/before)", method=SPECS[claim.kind].method, n=res.n,
+                     test={"name": "Wald z (Cox)", "p_value": float(row["p"])},
+                     diagnostics=res.diagnostics, caveats=cav, extra=extra)
+
+
+def _ordered_after_below(d: pd.DataFrame, claim: Claim, ctx: ClaimContext
+                         ) -> ClaimVerdict | None:
+    """When hazards are not proportional: decide by the log-rank test if the 'after'
+    Kaplan-Meier curve never lies above the 'before' curve by more than 0.05 within the
+    horizon (stochastic ordering, read off the curves); else ``None``.
+
+    References
+    ----------
+    Peto & Peto (1972) (log-rank); Kaplan & Meier (1958).
+    """
+    from procmetrics.analyse.lifetimes import kaplan_meier
+    from procmetrics.analyse.survival_tests import logrank
+
+    a = kaplan_meier(d.loc[d["after"] == 1, "lifetime"].to_numpy(float), level=claim.level)
+    b = kaplan_meier(d.loc[d["after"] == 0, "lifetime"].to_numpy(float), level=claim.level)
+    grid = np.unique(d["lifetime"].to_numpy(float))
+    sa = np.array([a.survival_at(t) for t in grid])
+    sb = np.array([b.survival_at(t) for t in grid])
+    if (sa > sb + 0.05).any() or not (sa < sb).any():
+        return None
+    lr = logrank(d["lifetime"], d["after"])
+    med_a = float(np.median(d.loc[d["after"] == 1, "lifetime"]))
+    med_b = float(np.median(d.loc[d["after"] == 0, "lifetime"]))
+    est = Estimate("median lifetime after minus before (within the horizon)", med_a - med_b,
+                   None, None, claim.level, "difference of sample medians", int(len(d)),
+                   "days")
+    alpha = round(1 - claim.level, 10)
+    shown = (f"the lifetime curve of defects introduced after the date lies below the "
+             f"curve before it throughout the horizon (medians {med_b:.0f} days before, "
+             f"{med_a:.0f} after); hazards are not proportional, so the log-rank test "
+             f"decides, not a single hazard ratio")
+    test = {"name": "log-rank", "p_value": float(lr.p_value)}
+    method = "log-rank test within a common follow-up horizon (Kaplan-Meier curves ordered)"
+    if lr.p_value < alpha:
+        return ClaimVerdict(claim, cl.SUPPORTED, (f"log-rank p = {lr.p_value:.3g} < {alpha:g}"
+                                                  f": {shown}",), method, n=int(len(d)),
+                            estimate=est, test=test)
+    return ClaimVerdict(claim, cl.NOT_SUPPORTED, (
+        f"log-rank p = {lr.p_value:.3g} ≥ {alpha:g}: no evidence that lifetimes differ; "
+        "this is not evidence that they do not",), method, n=int(len(d)), estimate=est,
+        test=test)
+
+
+def eval_fix_rate(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
+    from procmetrics.analyse.nhpp import fit_power_law
+    from procmetrics.analyse.trendtests import trend_tests
+
+    after, before = _window(ctx, claim.params)
+    c = ctx.commits[~ctx.commits["is_merge"].fillna(False).astype(bool)]
+    start = after if after is not None else c["committer_date"].min()
+    end = before if before is not None else c["committer_date"].max()
+    fixes = c.loc[(c["n_resolved_fixes"] > 0) & (c["committer_date"] > start)
+                  & (c["committer_date"] <= end), "committer_date"]
+    if len(fixes) < ctx.min_n:
+        raise Undecidable(f"only {len(fixes)} fixing commits in the window "
+                          f"(at least {ctx.min_n} needed)")
+    t = np.sort(((fixes - start).dt.total_seconds() / 86400.0).to_numpy(float))
+    T = float((end - start).total_seconds() / 86400.0)
+    fit = fit_power_law(t, T, level=claim.level)
+    beta = next(e for e in fit.params if e.name == "beta")
+    tests = trend_tests(t, T, alpha=round(1 - claim.level, 10))
+    cav = _adoption_caveat(ctx, "fix_ratio")
+    extra = [tests.message, "a falling fix rate is consistent with fewer defects, but "
+             "equally with less testing, less use or a smaller team"]
+    return cl.decide(claim, beta, side="below", threshold=1.0, what="power-law shape beta",
+                     method=SPECS[claim.kind].method, n=len(t),
+                     test={"name": "Laplace test (growth, one-sided)",
+                           "p_value": float(tests.laplace.p_growth)}, caveats=cav, extra=extra)
+
+
+def eval_not_supportable(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
+    what = ("that fewer than {} defects remain".format(claim.params["threshold"])
+            if claim.kind == "residual_defects_below" else "that no defects remain")
+    reasons = (
+        f"A commit history records the defects that were found and fixed; it holds no "
+        f"trace of those still hidden, so it cannot show {what}.",
+        "Models that project a falling fix rate to a number of remaining defects "
+        "(reliability growth) rest on assumptions this data cannot check: constant "
+        "testing effort and use, every defect fixed with a link, no new code; their "
+        "projection is an extrapolation.",
+        "A falling rate of fixes is equally consistent with less testing, less use or a "
+        "smaller team.",
+        "Evidence of this kind must come from elsewhere (verification and validation "
+        "records, field data, the safety case) and be judged by the assessor.",
+    )
+    cav = (caveat("not_identifiable", "the number of undiscovered defects cannot be "
+                  "identified from fix records", "fail"),)
+    return ClaimVerdict(claim, NOT_SUPPORTABLE, reasons, SPECS[claim.kind].method,
+                        caveats=cav)
