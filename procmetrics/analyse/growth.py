@@ -141,7 +141,8 @@ def _utc(x: Any) -> pd.Timestamp:
 def select_fix_times(defects: pd.DataFrame, *, end: Any, origin: Any = None,
                      subsystem: str | None = None, after_tag: str | None = None,
                      tags: pd.DataFrame | None = None,
-                     tag_containment: pd.DataFrame | None = None) -> FixTimes:
+                     tag_containment: pd.DataFrame | None = None,
+                     batch_hours: float = 0.0) -> FixTimes:
     """Fix events for the whole project, one subsystem, or one release after its tag.
 
     Parameters
@@ -155,6 +156,12 @@ def select_fix_times(defects: pd.DataFrame, *, end: Any, origin: Any = None,
     tags : tidy ``tags`` table (needed with ``after_tag``).
     tag_containment : ``tag, commit_hash, contains``; without it an introducer
         dated before the tag is taken as shipped (a heuristic, flagged).
+    batch_hours : fixing commits within this many hours of the first commit of
+        a batch count as one fix event (its ``fix_hash`` is the batch's first
+        commit, ``n_defects`` the batch total). Patch series applied together
+        otherwise give near-simultaneous events, which NHPP models do not
+        expect; 0 (default) keeps every commit and records a caveat when more
+        than 5 % of gaps are under an hour.
     """
     d = defects
     cav: list[Caveat] = []
@@ -201,8 +208,32 @@ def select_fix_times(defects: pd.DataFrame, *, end: Any, origin: Any = None,
         cav.append(caveat("clock_skew", f"{int(late.sum())} fix(es) dated after the end of "
                           "the history were left out", "info"))
     ev = ev[keep].sort_values(["time_days", "fix_hash"]).reset_index(drop=True)
+    if batch_hours > 0 and len(ev):
+        ev = _batches(ev, batch_hours / 24.0)
+        scope += f" (fixes within {batch_hours:g} h batched)"
+    gaps = np.diff(ev["time_days"].to_numpy(float))
+    n_close = int((gaps < 1 / 24).sum())
+    if len(gaps) and n_close / len(gaps) > 0.05:
+        cav.append(caveat("tuning_sensitive", f"{n_close} of {len(gaps)} gaps between fix "
+                          "events are under an hour (patch series applied together): growth "
+                          "models assume one event at a time and their u-plot and fit checks "
+                          "suffer; consider batching (batch_hours, CLI --batch-hours)"))
     end_days = float((end_ts - origin_ts).total_seconds() / 86400.0)
     return FixTimes(ev[EVENT_COLUMNS], origin_ts, end_ts, end_days, scope, n_drop, tuple(cav))
+
+
+def _batches(ev: pd.DataFrame, window_days: float) -> pd.DataFrame:
+    """Merge events closer than ``window_days`` to the first event of their batch."""
+    t = ev["time_days"].to_numpy(float)
+    batch, start, k = np.zeros(len(t), int), t[0], 0
+    for i in range(1, len(t)):
+        if t[i] - start >= window_days:
+            k, start = k + 1, t[i]
+        batch[i] = k
+    g = ev.assign(_b=batch).groupby("_b", sort=True)
+    return pd.DataFrame({"fix_hash": g["fix_hash"].first(), "fix_date": g["fix_date"].first(),
+                         "time_days": g["time_days"].first(),
+                         "n_defects": g["n_defects"].sum()}).reset_index(drop=True)
 
 
 def _refused(model: str, reason: str) -> ModelResult:

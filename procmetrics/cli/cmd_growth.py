@@ -22,6 +22,9 @@ def register(sub: argparse._SubParsersAction) -> None:
                    help="start of observation: 'first' (default) = the first linked fix "
                    "(it starts the clock and is not counted), a DATE, or 'all' = the first "
                    "commit of the history")
+    p.add_argument("--batch-hours", type=float, default=0.0, metavar="H",
+                   help="count fixing commits within H hours of each other as one fix event "
+                   "(patch series applied together; default 0: every commit)")
     p.add_argument("--require", choices=["own", "both", "either"], default="own",
                    help="trend evidence needed before a model is fitted (default: each "
                    "model's own test)")
@@ -56,7 +59,8 @@ def run(args: argparse.Namespace) -> int:
     ft = select_fix_times(table.defects, end=table.end_date,
                           origin=origin,
                           subsystem=args.subsystem, after_tag=args.after_tag,
-                          tags=tables["tags"], tag_containment=cont)
+                          tags=tables["tags"], tag_containment=cont,
+                          batch_hours=args.batch_hours)
     res = analyse_growth(ft, require=args.require, ahead=args.ahead, n_boot=args.boot,
                          rng=np.random.default_rng(args.seed))
     print(f"{name}: {res.n} fix events ({res.scope}), {res.origin:%Y-%m-%d} .. "

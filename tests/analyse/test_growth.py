@@ -172,3 +172,23 @@ def test_go_total_unbounded_when_a_constant_rate_fits_as_well():
     preds, _ = predictions(fit, t, n_boot=20, rng=np.random.default_rng(0))
     res = next(p for p in preds if p.name == "expected_residual_fixes")
     assert res.estimate is None and "do not bound" in res.refused_reason
+
+
+def test_batching_merges_patch_series_and_flags_them():
+    t0 = pd.Timestamp("2022-01-01", tz="UTC")
+    hours = [24, 24.2, 24.5, 100, 200, 200.1, 300, 400, 500, 600, 700]
+    dd = pd.DataFrame({
+        "introducer_hash": [f"i{k}" for k in range(len(hours))],
+        "fix_hash": [f"f{k}" for k in range(len(hours))],
+        "intro_date": [t0] * len(hours),
+        "fix_date": [t0 + pd.Timedelta(hours=h) for h in hours],
+        "subsystems": "", "negative": False})
+    ft = select_fix_times(dd, end=t0 + pd.Timedelta(days=40), origin=t0)
+    assert len(ft.events) == 11
+    # 3 of 10 gaps are under an hour: flagged
+    assert any(c.code == "tuning_sensitive" and "3 of 10 gaps" in c.message for c in ft.caveats)
+    fb = select_fix_times(dd, end=t0 + pd.Timedelta(days=40), origin=t0, batch_hours=1)
+    assert list(fb.events["fix_hash"]) == ["f0", "f3", "f4", "f6", "f7", "f8", "f9", "f10"]
+    assert list(fb.events["n_defects"]) == [3, 1, 2, 1, 1, 1, 1, 1]
+    assert fb.events["n_defects"].sum() == len(dd)
+    assert not any("gaps" in c.message for c in fb.caveats)
