@@ -34,6 +34,7 @@ import numpy as np
 import pandas as pd
 import statsmodels.api as sm
 from scipy import stats
+from scipy.special import expit
 from statsmodels.tools.sm_exceptions import ConvergenceWarning, PerfectSeparationWarning
 
 from procmetrics.analyse import diagnostics as dg
@@ -90,7 +91,7 @@ class ModelFit:
 
 
 _INVERSE = {
-    "logit": lambda e: 1.0 / (1.0 + np.exp(-e)),
+    "logit": expit,   # overflow-free inverse logit
     "log": np.exp,
     "identity": lambda e: e,
 }

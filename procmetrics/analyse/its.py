@@ -174,10 +174,11 @@ def interrupted_time_series(table: pd.DataFrame, metric: str, at: pd.Timestamp |
     pre = _est(fit, "time_years", "pre_slope", unit + " per year", n)
     ratio = None
     if kind != "continuous":
-        ratio = Estimate("odds_ratio_at_date" if kind == "proportion" else
-                         "rate_ratio_at_date", float(np.exp(level.value)),
-                         float(np.exp(level.low)), float(np.exp(level.high)), level.level,
-                         level.method, n, unit="ratio")
+        with np.errstate(over="ignore"):   # an unbounded ratio is reported, not warned
+            ratio = Estimate("odds_ratio_at_date" if kind == "proportion" else
+                             "rate_ratio_at_date", float(np.exp(level.value)),
+                             float(np.exp(level.low)), float(np.exp(level.high)),
+                             level.level, level.method, n, unit="ratio")
     X, t, postf = _design(s, at)
     mean, lo, hi = fit.predict(X)
     cf, _, _ = fit.predict(X * np.array([1.0, 1.0, 0.0, 0.0]))
@@ -203,6 +204,12 @@ def interrupted_time_series(table: pd.DataFrame, metric: str, at: pd.Timestamp |
         except InsufficientData:
             c_level = c_slope = None
     cavs = list(fit.caveats)
+    bounds = [x if x is not None else np.nan for x in (level.value, level.low, level.high)]
+    if kind != "continuous" and (not np.all(np.isfinite(bounds))
+                                 or max(abs(bounds[1]), abs(bounds[2])) > 50):
+        cavs.append(caveat("diagnostic_failed", "the level change is not estimable: its "
+                           "interval is unbounded (a share of 0 or 1, or no events, on one "
+                           "side of the date)", "fail"))
     if min(n_before, n_after) < MIN_PERIODS_PER_SEGMENT:
         cavs.append(caveat("too_few_observations",
                            f"{n_before} periods before and {n_after} after the date; "

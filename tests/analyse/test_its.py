@@ -95,3 +95,19 @@ def test_transition_period_is_left_out():
     table = _table(5, 0.4, 0.7)
     r = interrupted_time_series(table, "review_coverage", "2021-01-15", placebo_shifts=0)
     assert r.n_transition == 1 and r.n_before + r.n_after == 47
+
+
+def test_share_of_zero_before_the_date_is_flagged_not_estimable():
+    # Simulation with a known degenerate truth: nobody reviews before the date, so the
+    # log-odds level change is infinite. The result must say so (not report a huge
+    # number as an effect) and must not overflow while doing it.
+    import warnings
+    table = _table(3, 0.0, 0.5)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", RuntimeWarning)
+        r = interrupted_time_series(table, "review_coverage", AT)
+    msgs = [c.message for c in r.caveats if c.code == "diagnostic_failed"]
+    assert any("not estimable" in m for m in msgs)
+    # and an ordinary change is not flagged that way
+    r2 = interrupted_time_series(_table(1, 0.4, 0.7), "review_coverage", AT)
+    assert not any("not estimable" in c.message for c in r2.caveats)
