@@ -117,7 +117,8 @@ def _adoption_caveat(fixes: pd.Series, commits: pd.DataFrame | None, start: pd.T
     cd = pd.to_datetime(c[f"{clock}_date"], utc=True)
     cut = start + pd.Timedelta(days=365)
     n1, n2 = int(((cd >= start) & (cd < cut)).sum()), int(((cd >= cut) & (cd <= tau)).sum())
-    f1, f2 = int(((fixes >= start) & (fixes < cut)).sum()), int(((fixes >= cut) & (fixes <= tau)).sum())
+    f1 = int(((fixes >= start) & (fixes < cut)).sum())
+    f2 = int(((fixes >= cut) & (fixes <= tau)).sum())
     if not (n1 and n2 and f2):
         return None
     s1, s2 = f1 / n1, f2 / n2

@@ -212,9 +212,10 @@ def _heuristic(args: argparse.Namespace, tables: dict[str, pd.DataFrame],
           f"({sel.n_with_fixes_link} left out: they have a Fixes: link"
           + (f"; {sel.n_unknown} listed hash(es) unknown or merges" if listed is not None
              else "") + ")")
+    n_skip = len(run_.skipped_merges) + len(run_.skipped_roots)
     print(f"  blame: {szz.n_fixes_with_candidates} fix(es) with a candidate, "
-          f"{len(run_.added_only)} only add lines, {len(run_.skipped_merges) + len(run_.skipped_roots)}"
-          f" merge/root, {len(run_.failed)} failed; {szz.n_dropped_later_than_fix} candidate(s) "
+          f"{len(run_.added_only)} only add lines, {n_skip} merge/root, "
+          f"{len(run_.failed)} failed; {szz.n_dropped_later_than_fix} candidate(s) "
           "dated after their fix dropped")
     if agreement:
         rec = agreement["recall"]
