@@ -123,24 +123,43 @@ def _safe(url: str) -> str:
     return url
 
 
+def _schema_version(bind) -> tuple | None:
+    """The ``schema_version`` row, or None when the store has no (complete) schema."""
+    if not inspect(bind).has_table(schema.meta.name):
+        return None
+    if isinstance(bind, Engine):
+        with bind.connect() as conn:
+            return _schema_version(conn)
+    return bind.execute(select(schema.meta.c.value)
+                        .where(schema.meta.c.key == "schema_version")).first()
+
+
 def _ensure_schema(engine: Engine, *, create: bool) -> None:
     from procmetrics.store.migrate import migrate  # local: migrate imports schema only
 
-    insp = inspect(engine)
-    if not insp.has_table(schema.meta.name):
+    row = _schema_version(engine)
+    if row is None:
         if not create:
             raise SchemaError("store has no procmetrics schema")
-        with engine.begin() as conn:
-            schema.metadata.create_all(conn)
-            for ix in schema.INDEXES:
-                ix.create(conn, checkfirst=True)
-            conn.execute(schema.meta.insert(), [
-                {"key": "schema_version", "value": str(schema.SCHEMA_VERSION)},
-            ])
-        return
-    with engine.connect() as conn:
-        row = conn.execute(select(schema.meta.c.value)
-                           .where(schema.meta.c.key == "schema_version")).first()
+        for _attempt in range(3):
+            # Creating is idempotent (every step checks first) because it is not atomic
+            # on SQLite (its driver commits DDL at once): another process may be creating
+            # the same store right now, or a first run died half-way through creating it.
+            try:
+                with engine.begin() as conn:
+                    schema.metadata.create_all(conn)
+                    for ix in schema.INDEXES:
+                        ix.create(conn, checkfirst=True)
+                    if _schema_version(conn) is None:
+                        conn.execute(schema.meta.insert(), [
+                            {"key": "schema_version", "value": str(schema.SCHEMA_VERSION)},
+                        ])
+            except StoreError:
+                if _schema_version(engine) is None and _attempt == 2:
+                    raise
+            row = _schema_version(engine)
+            if row is not None:
+                break
     if row is None:
         raise SchemaError("store has no schema version")
     found = int(row[0])

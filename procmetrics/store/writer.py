@@ -149,6 +149,7 @@ class StoreWriter:
     def ensure_repository(self, name: str, path: str) -> int:
         r = s.repository
         with self.engine.begin() as conn:
+            self._write_lock(conn)      # two first runs may race to create the row
             rid = conn.execute(select(r.c.repo_id).where(r.c.name == name)).scalar()
             if rid is None:
                 rid = conn.execute(insert(r).values(name=name, path=path, is_shallow=False)
