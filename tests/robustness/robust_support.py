@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import hashlib
 import os
+import shutil
 import sqlite3
 import stat
 import subprocess
@@ -33,15 +34,25 @@ def subprocess_env(**extra: str) -> dict[str, str]:
     return env
 
 
-def run_procmetrics(*args: str, env: dict[str, str] | None = None, user: int | None = None,
-                    cwd: Path | None = None, timeout: float = 120) -> subprocess.CompletedProcess:
-    """``python -m procmetrics ARGS`` in a child process (optionally as another user)."""
-    kw = {}
-    if user is not None:
-        kw = {"user": user, "group": user, "extra_groups": []}
-    return subprocess.run([sys.executable, "-m", "procmetrics", *map(str, args)],
+def run_procmetrics(*args: str, env: dict[str, str] | None = None,
+                    honour_permissions: bool = False, cwd: Path | None = None,
+                    timeout: float = 120) -> subprocess.CompletedProcess:
+    """``python -m procmetrics ARGS`` in a child process.
+
+    ``honour_permissions``: when we run as root, start the child without the
+    capabilities that let root ignore file permissions (``setpriv``), so a chmod'ed
+    store is as unreadable to it as to any user.
+    """
+    prefix: list[str] = []
+    if honour_permissions and os.geteuid() == 0:
+        setpriv = shutil.which("setpriv")
+        if setpriv is None:
+            import pytest
+            pytest.skip("running as root without setpriv: permissions cannot be tested")
+        prefix = [setpriv, "--bounding-set=-dac_override,-dac_read_search"]
+    return subprocess.run([*prefix, sys.executable, "-m", "procmetrics", *map(str, args)],
                           capture_output=True, text=True, env=env or subprocess_env(),
-                          cwd=cwd or ROOT, timeout=timeout, **kw)
+                          cwd=cwd or ROOT, timeout=timeout)
 
 
 def assert_one_line_error(err: str, *needles: str) -> None:
@@ -103,3 +114,24 @@ def integrity_ok(path: Path) -> bool:
         return con.execute("PRAGMA integrity_check").fetchall() == [("ok",)]
     finally:
         con.close()
+
+
+# Runs the real CLI with a smaller commit batch (more transactions, so an
+# interruption can land between any two of them). Test hook only.
+SMALL_BATCH_RUNNER = """
+import sys
+from functools import partial
+import procmetrics.cli.cmd_mine as cmd_mine
+from procmetrics.mine.options import MineOptions
+cmd_mine.MineOptions = partial(MineOptions, batch_size=int(sys.argv[1]))
+from procmetrics.cli import main
+sys.exit(main(sys.argv[2:]))
+"""
+
+
+def small_batch_argv(batch: int, *args: str) -> list[str]:
+    return [sys.executable, "-c", SMALL_BATCH_RUNNER, str(batch), *map(str, args)]
+
+
+def file_sha(path: Path) -> str:
+    return hashlib.sha256(Path(path).read_bytes()).hexdigest()
