@@ -127,6 +127,11 @@ def compare_policy(commits: pd.DataFrame, trailers: pd.DataFrame, *, at: pd.Time
             except InsufficientData as exc:
                 skipped.append(f"ITS {m} [{s}]: {exc}")
                 continue
+            if any(c.code == "diagnostic_failed" and "not estimable" in c.message
+                   for c in r.caveats):
+                skipped.append(f"ITS {m} [{s}]: level change not estimable (a share of 0 "
+                               "or 1, or no events, on one side of the date)")
+                continue
             p = float(r.fit.params.set_index("term").loc["post", "p_value"])
             rows.append((s, m, r.level_change.value, r.level_change.low, r.level_change.high,
                          p, r.n_before, r.n_after))
