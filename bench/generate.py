@@ -39,6 +39,9 @@ import threading
 import time
 from pathlib import Path
 
+# 2: release tags at an even pace (one every max(50, commits / 3000) commits)
+GENERATOR_VERSION = 2
+
 FIRST = ["Alba", "Brin", "Cato", "Dara", "Elio", "Fenn", "Gala", "Hale", "Ines", "Joss",
          "Kira", "Lior", "Mira", "Nilo", "Orla", "Pere", "Quin", "Rhea", "Sami", "Tova",
          "Ulla", "Vero", "Wren", "Xeno", "Yara", "Zeno", "Aron", "Beda", "Cira", "Dov"]
@@ -190,6 +193,7 @@ class Generator:
         subprocess.run(["git", "-C", str(out), "commit-graph", "write", "--reachable"],
                        check=True, env=env)
         marker = {k: (str(v) if isinstance(v, Path) else v) for k, v in vars(self.args).items()}
+        marker["generator_version"] = GENERATOR_VERSION
         (out / ".git" / "bench-complete.json").write_text(json.dumps(marker, sort_keys=True))
         print(f"generated {self.total} non-merge commits in {time.perf_counter() - start:.0f} s "
               f"-> {out}", file=sys.stderr)
@@ -369,7 +373,8 @@ class Generator:
         self.n_nonmerge = 1
         prefixes = sorted(set(args.prefix))
         release, rc = 1, 0
-        next_release = max(50, args.commits // 300)
+        tag_every = max(50, args.commits // 3000)
+        next_tag = tag_every
         ref = b"refs/heads/main"
         serial = 1
         while self.n_nonmerge < self.total:
@@ -399,7 +404,8 @@ class Generator:
                 serial += 1
                 self.n_nonmerge += 1
                 self._after_commit(prefixes, main)
-            if ref == b"refs/heads/main" and serial >= next_release * (release * 10 + rc + 1) // 10:
+            if ref == b"refs/heads/main" and serial >= next_tag:
+                next_tag += tag_every
                 self._tag(release, rc, main, serial)
                 rc += 1
                 if rc == 8:
