@@ -155,7 +155,7 @@ class Generator:
         self._last_dir = "core"
         self.n_nonmerge = 0
         self.t0 = 1_104_537_600      # 2005-01-01
-        self.span = 20 * 365 * 86400
+        self.span = int(args.years * 365 * 86400)
         self.total = args.commits + args.extra
 
     # -- fast-import output -------------------------------------------------
@@ -226,7 +226,8 @@ class Generator:
         fixes: list[str] = []
         if frac > 0.25 and rng.random() < 0.15 and len(self.hashes) > 10:
             for _ in range(1 if rng.random() < 0.93 else rng.randint(2, 4)):
-                back = min(len(self.hashes) - 1, int(rng.expovariate(1 / 3000)))
+                back = min(len(self.hashes) - 1,
+                           int(rng.expovariate(1 / self.args.fix_distance)))
                 _m, h, cited = self.hashes[len(self.hashes) - 1 - back]
                 r = rng.random()
                 if r < 0.04:
@@ -455,6 +456,9 @@ def main(argv: list[str] | None = None) -> int:
     p.add_argument("--maintainers", type=int, default=3000, help="MAINTAINERS entries")
     p.add_argument("--people", type=int, default=4000)
     p.add_argument("--seed", type=int, default=20261201)
+    p.add_argument("--years", type=float, default=20.0, help="span of the history from 2005")
+    p.add_argument("--fix-distance", type=float, default=3000.0,
+                   help="mean distance (commits) from a fix back to the commit it cites")
     args = p.parse_args(argv)
     if args.out.exists() and any(args.out.iterdir()):
         p.error(f"{args.out} exists and is not empty")
