@@ -22,7 +22,7 @@ from __future__ import annotations
 import re
 import warnings
 from dataclasses import dataclass
-from typing import Iterable, Iterator
+from typing import Iterable, Iterator, Sequence
 
 from procmetrics.errors import DataQualityWarning, GitFailed
 
@@ -64,9 +64,10 @@ class LogCommit:
     files: tuple[FileEntry, ...]
 
 
-def log_args(tip: str, base: str | None, *, line_counts: bool, merge_files: str,
-             since: int | None, until: int | None) -> list[str]:
-    """The ``git log`` argv (after ``git``) for commits reachable from ``tip`` not ``base``."""
+def log_args(tip: str, base: str | Sequence[str] | None, *, line_counts: bool,
+             merge_files: str, since: int | None, until: int | None) -> list[str]:
+    """The ``git log`` argv (after ``git``) for commits reachable from ``tip`` and from
+    none of ``base`` (one hash or several)."""
     args = ["log", "-z", f"--format={LOG_FORMAT}", "--date=raw", "--encoding=UTF-8",
             "--no-color", "--no-notes", "--no-show-signature", "--no-ext-diff",
             "--no-textconv", "--root", "--raw", "-M",
@@ -75,8 +76,8 @@ def log_args(tip: str, base: str | None, *, line_counts: bool, merge_files: str,
         args.append("--numstat")
     args += date_filter_args(since, until)
     args.append(tip)
-    if base:
-        args.append("^" + base)
+    for b in ([base] if isinstance(base, str) else base or ()):
+        args.append("^" + b)
     args.append("--")
     return args
 

@@ -6,6 +6,34 @@ stream ``git log`` through the parser into batches (one transaction each),
 then resolve fix/revert references, store tags, map new paths to subsystems
 and finally mark the run complete and move the stored tip (see
 :mod:`procmetrics.store.writer` for why an interrupted run is harmless).
+
+What the rows mean
+------------------
+* ``git_commit``: every commit reachable from the ref (merges included,
+  ``is_merge`` = more than one parent); names and e-mails after ``.mailmap``
+  (git's ``%aN``/``%aE``/``%cN``/``%cE``); times are UTC epoch seconds plus the
+  original offset in minutes. Messages git cannot give as UTF-8 are read as
+  Latin-1 and flagged ``message_was_utf8 = False``.
+* ``file_change``: one row per path a non-merge commit touches against its
+  parent (root commits against the empty tree), renames detected (``-M``,
+  ``old_path`` set, ``change_type`` R), copies not looked for. Merge commits get
+  NO rows by default (``merge_files="none"``), so every line is counted once, on
+  the commit that wrote it; ``"first-parent"`` gives merges their diff against
+  the first parent (what the merge brought into the mainline). Line counts are
+  git's ``--numstat`` (myers diff); binary files have ``is_binary`` and NULL
+  counts; with ``line_counts=False`` counts and ``is_binary`` are NULL.
+* ``trailer``: the final trailer block, by git's own rules
+  (:mod:`procmetrics.mine.trailers`); person trailers (keys ending ``-by``,
+  ``Cc``, ``To``, ``From``) carry a ``person_id`` when the value holds an
+  e-mail address (no ``.mailmap`` applied to them).
+* ``fix_link`` / ``revert_link`` / ``unparsed_reference``: see
+  :mod:`procmetrics.mine.references` and :mod:`procmetrics.mine.resolve`. A
+  ``resolved`` link whose introducer lies outside the mined range (``--since``,
+  another branch) has an ``introducer_hash`` but no introducer row, so its
+  introducer dates read as missing.
+* ``path_subsystem``: every touched path maps to at least one subsystem
+  (:mod:`procmetrics.mine.subsystems`), always by the mapping of the latest run,
+  so mining in steps and mining once agree.
 """
 from __future__ import annotations
 
@@ -37,6 +65,7 @@ from procmetrics.store.runlock import repository_lock
 from procmetrics.store.writer import CommitRow, FileRow, FixRow, StoreWriter, TrailerRow
 
 MAINTAINERS_FILE = "MAINTAINERS"
+COMMITS_PER_GIT_PROCESS = 100_000   # bounds git's own memory (it never frees parsed objects)
 _PERSON_KEYS = {"Cc", "To", "From"}
 
 
@@ -163,14 +192,15 @@ def _load(git: GitRepo, writer: StoreWriter, repo_id: int, run_id: int, tip: str
                desc="mining", dynamic_ncols=True)
     try:
         batch: list[CommitRow] = []
-        args = log_args(tip, base, line_counts=opts.line_counts, merge_files=opts.merge_files,
-                        since=since, until=until)
-        for c in parse_log(git.stream(args)):
-            batch.append(commit_row(c))
-            if len(batch) >= opts.batch_size:
-                _add(counts, writer.write_batch(repo_id, run_id, batch))
-                bar.update(len(batch))
-                batch = []
+        for part_tip, excluded in history_parts(git, tip, base):
+            args = log_args(part_tip, excluded, line_counts=opts.line_counts,
+                            merge_files=opts.merge_files, since=since, until=until)
+            for c in parse_log(git.stream(args)):
+                batch.append(commit_row(c))
+                if len(batch) >= opts.batch_size:
+                    _add(counts, writer.write_batch(repo_id, run_id, batch))
+                    bar.update(len(batch))
+                    batch = []
         _add(counts, writer.write_batch(repo_id, run_id, batch))
         bar.update(len(batch))
     finally:
@@ -178,6 +208,34 @@ def _load(git: GitRepo, writer: StoreWriter, repo_id: int, run_id: int, tip: str
         if bulk:
             writer.ensure_indexes()
     return counts
+
+
+def history_parts(git: GitRepo, tip: str, base: str | None,
+                  per_part: int | None = None) -> list[tuple[str, list[str]]]:
+    """Split ``base..tip`` into parts of about ``per_part`` commits, one git process each.
+
+    git keeps every object it has parsed until it exits, so one ``git log --raw``
+    over a whole large history grows to gigabytes (1.4 GB for 500,000 synthetic
+    commits). Cutting the first-parent chain at commits B1, B2, ... gives the
+    parts ``B1``, ``B2 ^B1``, ``B3 ^B2``, ..., ``tip ^Bk``: each commit reachable
+    from the tip lies in exactly one part, because every B is an ancestor of the
+    next one.
+    """
+    per_part = per_part or COMMITS_PER_GIT_PROCESS
+    outside = [base] if base else []
+    rng = [tip] + ["^" + b for b in outside] + ["--"]
+    total = int(git.text("rev-list", "--count", *rng).strip() or 0)
+    if total <= per_part:
+        return [(tip, outside)]
+    chain = git.text("rev-list", "--first-parent", "--reverse", *rng).split()
+    n_parts = min(len(chain), -(-total // per_part))
+    cuts = [chain[(len(chain) * i) // n_parts - 1] for i in range(1, n_parts)]
+    cuts = list(dict.fromkeys(c for c in cuts if c != tip))
+    parts, previous = [], None
+    for cut in cuts + [tip]:
+        parts.append((cut, outside + ([previous] if previous else [])))
+        previous = cut
+    return parts
 
 
 def _add(total: dict[str, int], part: dict[str, int]) -> None:

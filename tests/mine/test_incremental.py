@@ -154,3 +154,23 @@ def test_interrupted_run_then_clean_result(git_history, tmp_path, monkeypatch, h
     once = tmp_path / "once.sqlite"
     mine_repository(h.path, store=once, options=opts())
     assert_same_store(store, once)
+
+
+def test_history_cut_into_parts_gives_the_same_store(sample_history, tmp_path, monkeypatch):
+    """Invariance: mining through several git processes (parts of the first-parent
+    chain) stores exactly what one process stores; the parts cover the history once."""
+    import procmetrics.mine.miner as miner
+    from procmetrics.mine.git import GitRepo
+    git = GitRepo.open(sample_history.path)
+    tip = git.resolve_commit("HEAD")
+    parts = miner.history_parts(git, tip, None, per_part=3)
+    assert len(parts) > 2
+    seen = []
+    for part_tip, excluded in parts:
+        seen += sample_history.git("rev-list", part_tip, *[f"^{e}" for e in excluded]).split()
+    assert sorted(seen) == sorted(sample_history.git("rev-list", "HEAD").split())
+    one, many = tmp_path / "one.sqlite", tmp_path / "many.sqlite"
+    mine_repository(sample_history.path, store=one, options=MineOptions(progress=False))
+    monkeypatch.setattr(miner, "COMMITS_PER_GIT_PROCESS", 2)
+    mine_repository(sample_history.path, store=many, options=MineOptions(progress=False))
+    assert_same_store(one, many)
