@@ -28,7 +28,7 @@ HEX_MIN, HEX_MAX = 7, 64
 _FIXES_LINE = re.compile(r"^[ \t]*fixes[ \t]*:[ \t]*(.*)$", re.I | re.M)
 _HASH = re.compile(r"(?:commit[ \t]+)?([0-9a-fA-F]{%d,%d})(?![0-9A-Za-z_])" % (HEX_MIN, HEX_MAX),
                    re.I)
-_SEP = re.compile(r"(?:[\s,;&+/]+|\band\b)+", re.I)
+_SEP = re.compile(r"(?:[\s,;&+/]|\band\b)+", re.I)
 _REVERT = re.compile(r"this[ \t]+reverts[ \t]+commit\b[ \t]*(.*)$", re.I | re.M)
 _REVERT_HASH = re.compile(r"([0-9a-fA-F]{%d,%d})(?![0-9A-Za-z_])" % (HEX_MIN, HEX_MAX))
 _STABLE = re.compile(r"^[ \t]*cc[ \t]*:.*(?<![\w.+-])stable@", re.I | re.M)

@@ -38,7 +38,7 @@ KNOWN_KEYS: tuple[str, ...] = (
 _CANONICAL = {k.lower(): k for k in KNOWN_KEYS}
 
 # "Name <mail>" (anything after the closing bracket, e.g. "# v5.10+", is dropped)
-_PERSON_RE = re.compile(r"^(?P<name>[^<>]*?)\s*<(?P<email>[^<>\s]*@[^<>\s]*)>")
+_PERSON_RE = re.compile(r"^(?P<name>[^<>]*)<(?P<email>[^<>\s]*@[^<>\s]*)>")
 _BARE_MAIL_RE = re.compile(r"^(?P<email>[^\s<>@\"(),;]+@[^\s<>@\"(),;]+)(?:\s|$)")
 
 
