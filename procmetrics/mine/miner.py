@@ -205,8 +205,10 @@ def _load(git: GitRepo, writer: StoreWriter, repo_id: int, run_id: int, tip: str
         bar.update(len(batch))
     finally:
         bar.close()
-        if bulk:
-            writer.ensure_indexes()
+    # not in the finally: after an interruption the store may still be locked by the
+    # interrupted transaction and the next run rebuilds the indexes at its start anyway
+    if bulk:
+        writer.ensure_indexes()
     return counts
 
 
