@@ -239,20 +239,27 @@ def build_defects(
                                 zip(first["repo"], first["introducer_hash"])]
     n_follow = int(len(links) - len(first))
     if isinstance(links_from, str) and links_from == "first_link":
-        era = links["_fix"].min() if len(links) else pd.NaT
-    elif links_from is None:
-        era = pd.NaT
+        # each repository's own link era: histories adopt Fixes: at different times
+        era_by_repo = links.groupby(links["repo"].astype(str))["_fix"].min()
+        era = era_by_repo.min() if len(era_by_repo) else pd.NaT
+        era_row = first["repo"].astype(str).map(era_by_repo)
+        before = (first["_intro"] < era_row).fillna(False).astype(bool)
     else:
-        era = _utc(links_from)
-    before = (first["_intro"] < era) if pd.notna(era) else pd.Series(False, index=first.index)
+        era = pd.NaT if links_from is None else _utc(links_from)
+        before = ((first["_intro"] < era) if pd.notna(era)
+                  else pd.Series(False, index=first.index))
     n_before = int(before.sum())
     first = first[~before]
 
+    tau_by_repo: pd.Series | None = None
     if end_date is not None:
         tau = pd.Timestamp(end_date)
         tau = tau.tz_localize("UTC") if tau.tzinfo is None else tau.tz_convert("UTC")
     elif commits is not None and len(commits):
-        tau = pd.to_datetime(commits[f"{clock}_date"], utc=True).max()
+        # each repository's history ends at its own latest commit
+        cdates = pd.to_datetime(commits[f"{clock}_date"], utc=True)
+        tau_by_repo = cdates.groupby(commits["repo"].astype(str)).max()
+        tau = cdates.max()
     elif len(first):
         tau = first["_fix"].max()
     else:
@@ -278,7 +285,9 @@ def build_defects(
         d["negative"] = np.zeros(len(d), dtype=bool)
     else:
         d["lifetime"] = d["lifetime_days"]
-        d["window"] = (tau - d["intro_date"]).dt.total_seconds() / 86400.0
+        ends = (pd.to_datetime(d["repo"].map(tau_by_repo), utc=True).fillna(tau)
+                if tau_by_repo is not None else tau)
+        d["window"] = (ends - d["intro_date"]).dt.total_seconds() / 86400.0
         d["negative"] = d["lifetime"] < 0
 
     subs = pd.Series(dtype=object)

@@ -158,10 +158,6 @@ def test_pooled_defect_table_keeps_repositories_apart(two_repo_store) -> None:
                                    np.sort(alone["lifetime_days"].to_numpy(float)))
 
 
-@pytest.mark.xfail(strict=True, reason=(
-    "build_defects takes one end of history (tau) for all repositories: a pooled call "
-    "gives a repository whose history ends earlier longer observation windows than "
-    "its own history allows; needs tau per repo (missing feature, reported)"))
 def test_pooled_defect_windows_use_each_repositorys_end(two_repo_store) -> None:
     repos, t = two_repo_store
     pooled = _defects(t, None).defects
