@@ -32,6 +32,8 @@ _PINNED_CONFIG = (
     "core.pager=cat", "diff.external=", "diff.algorithm=myers", "diff.renameLimit=1000",
     "diff.relative=false", "log.showSignature=false", "i18n.logOutputEncoding=UTF-8",
     "color.ui=false", "protocol.allow=never", "gc.auto=0", "maintenance.auto=false",
+    # files the repository's config could name for git to read: /dev/zero would hang it
+    "mailmap.file=/dev/null", "diff.orderFile=/dev/null",
 )
 
 
