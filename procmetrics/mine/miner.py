@@ -249,16 +249,7 @@ def resolve_links(git: GitRepo, writer: StoreWriter, repo_id: int, run_id: int,
                   tip: str) -> int:
     """(Re-)resolve the references whose outcome this run may have changed."""
     full_len = len(tip)
-    links = writer.links_to_check(repo_id, run_id, full_len)
-    if not links:
-        return 0
-    heads: dict[str, list[str]] = {}
-    if any(not ln.is_new for ln in links):
-        for h in writer.run_hashes(repo_id, run_id):
-            heads.setdefault(h[:7], []).append(h)
-    todo = [ln for ln in links
-            if ln.is_new or ln.status not in (RESOLVED, SELF) or not ln.target_stored
-            or any(h.startswith(ln.ref_hash) for h in heads.get(ln.ref_hash[:7], ()))]
+    todo = writer.links_to_check(repo_id, run_id, full_len)
     if not todo:
         return 0
     cands = find_candidates(git, tip, {ln.ref_hash for ln in todo},

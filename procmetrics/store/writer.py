@@ -34,7 +34,7 @@ from sqlalchemy.schema import CreateIndex, DropIndex
 from procmetrics.store import schema as s
 
 CHUNK = 500
-MANY_REFS = 2000      # above this many short references, scan stored hashes once
+MANY_REFS = 20000     # above this many short references, scan stored hashes once
 
 
 class FileRow(NamedTuple):
@@ -331,9 +331,12 @@ class StoreWriter:
 
     # -- reference resolution -----------------------------------------------------------
     def links_to_check(self, repo_id: int, run_id: int, full_len: int) -> list[LinkRow]:
-        """Links of this run, plus older links whose resolution may change."""
+        """Links whose resolution this run may change: those of this run's commits; those
+        not resolved to a stored commit; and short references that a commit of this
+        run also matches (a prefix that was unique may now be ambiguous)."""
         g = s.commit
         intro = s.commit.alias("intro")
+        new = s.commit.alias("new")
         out: list[LinkRow] = []
         with self.engine.connect() as conn:
             for kind, t, key, target in (("fix", s.fix_link, s.fix_link.c.position,
@@ -345,6 +348,9 @@ class StoreWriter:
                         intro.c.commit_id, g.c.run_id]
                 if cited is not None:
                     cols.append(cited)
+                collides = exists().where(new.c.repo_id == repo_id, new.c.run_id == run_id,
+                                          new.c.hash >= t.c.ref_hash,
+                                          new.c.hash < t.c.ref_hash + "g")
                 stmt = (select(*cols).select_from(t)
                         .join(g, g.c.commit_id == t.c.commit_id)
                         .outerjoin(intro, and_(intro.c.repo_id == repo_id,
@@ -352,7 +358,7 @@ class StoreWriter:
                         .where(g.c.repo_id == repo_id)
                         .where(or_(g.c.run_id == run_id, ~t.c.status.in_(("resolved", "self")),
                                    intro.c.commit_id.is_(None),
-                                   func.length(t.c.ref_hash) < full_len)))
+                                   and_(func.length(t.c.ref_hash) < full_len, collides))))
                 for row in conn.execute(stmt):
                     out.append(LinkRow(kind, row[0], row[1], row[2], row[3],
                                        row[8] if cited is not None else None, row[4], row[5],

@@ -98,3 +98,32 @@ def test_prefix_lookup_by_scan_equals_lookup_by_query(sample_history, tmp_path, 
     assert by_query == by_scan
     for r in refs:
         assert by_query[r] == sorted(h for h in hashes if h.startswith(r))[:2]
+
+
+def test_links_to_recheck_include_prefixes_a_new_commit_shares(tmp_path):
+    """A short reference resolved earlier is looked at again only when a commit of the
+    new run shares its prefix (7 hex digits would need ~16,000 real commits to collide,
+    so the rows are written directly)."""
+    from procmetrics.store.writer import CommitRow, FixRow
+    engine = open_store(tmp_path / "s.sqlite")
+    w = StoreWriter(engine)
+    rid = w.ensure_repository("r", "/nowhere")
+
+    def commit(h, fixes=()):
+        return CommitRow(h, (), ("N", "n@x"), ("N", "n@x"), 0, 0, 0, 0, "s", "s", False, True,
+                         [], [], [FixRow(f, None, True, "Fixes: " + f) for f in fixes], [], [])
+    a, c = "abcdef1" + "0" * 33, "1" * 40
+    run1 = w.start_run(rid, ref="HEAD", head_hash=c, base_hash=None, is_shallow=False,
+                       options_json="{}", versions_json="{}")
+    w.write_batch(rid, run1, [commit(a), commit("2" * 40), commit(c, ["abcdef1", "2222222"])])
+    links = w.links_to_check(rid, run1, 40)
+    assert {ln.ref_hash for ln in links} == {"abcdef1", "2222222"} and all(ln.is_new for ln in links)
+    w.update_links([(ln, "resolved", a if ln.ref_hash == "abcdef1" else "2" * 40, None)
+                    for ln in links])
+    run2 = w.start_run(rid, ref="HEAD", head_hash=c, base_hash=c, is_shallow=False,
+                       options_json="{}", versions_json="{}")
+    assert w.links_to_check(rid, run2, 40) == []            # nothing new: nothing to do
+    w.write_batch(rid, run2, [commit("abcdef1" + "f" * 33)])
+    again = w.links_to_check(rid, run2, 40)
+    assert [(ln.ref_hash, ln.is_new) for ln in again] == [("abcdef1", False)]
+    assert w.stored_matches(rid, ["abcdef1"], 40)["abcdef1"] == [a, "abcdef1" + "f" * 33]
