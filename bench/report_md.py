@@ -105,6 +105,12 @@ def render(res: dict) -> str:
             else:
                 out.append(f"| {k} | {_fmt(v.get('seconds'))} | "
                            f"{_fmt(v.get('peak_rss_mib'), ' MiB')} | {v.get('exit_code')} |")
+    failed = [(k, v) for k, v in an.items() if isinstance(v, dict) and v.get("exit_code")]
+    if failed:
+        out += ["", "Failed analysis commands (last line of their error output):", ""]
+        for k, v in failed:
+            last = (v.get("stderr") or "").strip().splitlines()
+            out.append(f"- {k}: exit code {v.get('exit_code')}: {last[-1] if last else ''}")
     notes = res.get("notes")
     if notes:
         out += ["", "## Notes", ""] + [f"- {n}" for n in notes]

@@ -76,13 +76,15 @@ def machine() -> dict[str, object]:
     except OSError:
         pass
     git = subprocess.run(["git", "--version"], capture_output=True, text=True).stdout.strip()
+    head = subprocess.run(["git", "-C", str(HERE.parent), "describe", "--always", "--dirty"],
+                          capture_output=True, text=True).stdout.strip()
     from importlib import metadata
     return {
         "cpu_model": cpu, "logical_cpus": os.cpu_count(),
         "physical_cores": psutil.cpu_count(logical=False),
         "ram_gib": round(psutil.virtual_memory().total / 2**30, 1),
         "os": f"{platform.system()} {platform.release()}", "git": git,
-        "python": platform.python_version(), "procmetrics": metadata.version("procmetrics"),
+        "python": platform.python_version(), "procmetrics": f"{metadata.version('procmetrics')} ({head})",
         "sqlalchemy": metadata.version("sqlalchemy"), "sqlite": sqlite3.sqlite_version,
     }
 
@@ -122,12 +124,19 @@ class Peak:
 
 
 def timed(argv: list[str], *, env: dict[str, str] | None = None,
-          stdout=subprocess.DEVNULL) -> dict[str, object]:
-    """Run argv; wall seconds, peak tree RSS (MiB) and exit code."""
+          stdout=subprocess.DEVNULL, timeout: float | None = None) -> dict[str, object]:
+    """Run argv; wall seconds, peak tree RSS (MiB) and exit code (-9: timed out)."""
     start = time.perf_counter()
     proc = subprocess.Popen(argv, stdout=stdout, stderr=subprocess.PIPE, env=env)
     peak = Peak(proc.pid)
-    _, err = proc.communicate()
+    try:
+        _, err = proc.communicate(timeout=timeout)
+    except subprocess.TimeoutExpired:
+        for child in psutil.Process(proc.pid).children(recursive=True):
+            child.kill()
+        proc.kill()
+        _, err = proc.communicate()
+        err = b"timed out after %d s\n" % timeout + err
     seconds = time.perf_counter() - start
     rss = peak.stop()
     out = {"seconds": round(seconds, 3), "peak_rss_mib": round(rss / 2**20, 1),
@@ -196,7 +205,8 @@ def incremental(repo: Path, base_store: Path, work: Path, *, lines: bool,
     return out
 
 
-def analyses(store: Path, repo: Path, work: Path, commits: int) -> dict[str, object]:
+def analyses(store: Path, repo: Path, work: Path, commits: int,
+             timeout: float) -> dict[str, object]:
     """Time every analysis command that exists, and the full report."""
     sys.path.insert(0, str(HERE.parent))
     from procmetrics.cli import COMMANDS
@@ -210,7 +220,6 @@ def analyses(store: Path, repo: Path, work: Path, commits: int) -> dict[str, obj
         "compare": ["compare", "--store", str(store), "--at", at],
         "lifetimes": ["lifetimes", "--store", str(store), "--out", str(work / "lifetimes")],
         "growth": ["growth", "--store", str(store), "--out", str(work / "growth")],
-        "check": ["check", "--store", str(store), "--policy-date", at],
         "report": ["report", "--store", str(store), "--out", str(work / "report"),
                    "--policy-date", at, "--pdf-engine", "none"],
     }
@@ -220,7 +229,7 @@ def analyses(store: Path, repo: Path, work: Path, commits: int) -> dict[str, obj
             out[name] = {"skipped": "command not available in this procmetrics"}
             continue
         print(f"  {name} ...", file=sys.stderr)
-        out[name] = timed(procmetrics(*argv))
+        out[name] = timed(procmetrics(*argv), timeout=timeout)
     return out
 
 
@@ -260,6 +269,8 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--skip", action="append", default=[],
                     choices=["lines", "memory", "incremental", "analyses", "pydriller"])
     ap.add_argument("--out", type=Path, default=RESULTS)
+    ap.add_argument("--analysis-timeout", type=float, default=1800.0,
+                    help="seconds before an analysis command is stopped and recorded as such")
     args = ap.parse_args(argv)
     n = args.commits
     prefixes = [n // 4, n // 2]
@@ -307,7 +318,7 @@ def main(argv: list[str] | None = None) -> int:
                                              repeats=args.repeats)
         if "analyses" not in args.skip and "lines" not in args.skip:
             print("analyses and report ...", file=sys.stderr)
-            res["analyses"] = analyses(lines_store, repo, work, n)
+            res["analyses"] = analyses(lines_store, repo, work, n, args.analysis_timeout)
         if "pydriller" not in args.skip:
             print(f"pydriller loop vs procmetrics on {args.small} commits ...", file=sys.stderr)
             small = history(args.small, prefixes=[], extra=0, small_tree=True)
