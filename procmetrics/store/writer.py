@@ -19,8 +19,12 @@ empty store and rebuilt after it (``ensure_indexes`` also runs at the start of
 every run, so an interrupted first load gets them back). The unique
 (repo_id, hash) index stays: prefix look-ups need it.
 
-Commit ids are assigned here (max + 1 inside the batch transaction), so one
-miner per repository per store at a time.
+Commit ids are assigned here (max + 1 inside the batch transaction, after
+taking the store's write lock, so miners of different repositories can share
+a store); :mod:`procmetrics.store.runlock` keeps a second run of the SAME
+repository out. Status values of ``mining_run``: ``running``, ``complete``,
+``failed`` (message says why; ``rows removed: ...`` once cleaned) and
+``superseded`` (its rows were deleted by a re-mine after a rewrite).
 """
 from __future__ import annotations
 
