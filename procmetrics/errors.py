@@ -6,6 +6,10 @@ line of text and an exit code (see ``EXIT_CODES``).
 from __future__ import annotations
 
 
+# `procmetrics rerun`: the rebuilt figures differ from the manifest's.
+EXIT_FIGURES_DIFFER = 16
+
+
 class ProcmetricsError(Exception):
     """Base of every error this package raises on purpose."""
 

@@ -46,23 +46,10 @@ from procmetrics.analyse.periods import assign_periods, period_midpoints, years_
 from procmetrics.analyse.result import Caveat, caveat, to_plain
 from procmetrics.errors import InsufficientData
 
-ALL = "(all)"
-METRIC_COLUMNS: list[str] = ["period", "period_start", "period_end", "subsystem", "metric",
-                             "numerator", "denominator", "value", "ci_low", "ci_high",
-                             "ci_method", "n"]
-DEFAULT_REVIEW_KEYS: tuple[str, ...] = ("Reviewed-by", "Acked-by", "Tested-by")
-DEFAULT_FIX_KEYWORDS: tuple[str, ...] = ("fix", "bug", "crash", "leak", "regression",
-                                         "overflow", "race")
+from procmetrics.analyse.vocabulary import (  # noqa: E402 - re-exported names
+    ALL, DEFAULT_FIX_KEYWORDS, DEFAULT_REVIEW_KEYS, METRIC_COLUMNS, METRICS,
+)
 
-#: metric name -> kind ("proportion", "count", "total", "median")
-METRICS: dict[str, str] = {
-    "commits": "count", "active_authors": "count",
-    "review_coverage": "proportion", "independent_review": "proportion",
-    "unreviewed_self_commits": "proportion", "fix_ratio": "proportion",
-    "fix_ratio_heuristic": "proportion", "revert_ratio": "proportion",
-    "stable_request_share": "proportion", "fixes_tag_adoption": "proportion",
-    "churn_lines": "total", "churn_median": "median",
-}
 _EMAIL = re.compile(r"<([^<>\s]+@[^<>\s]+)>")
 
 

@@ -12,7 +12,7 @@ from procmetrics.cli import add_store_argument
 
 def add_series_arguments(p: argparse.ArgumentParser) -> None:
     """--store, --repo, --period, --subsystem, --metric, --include-merges, --out."""
-    from procmetrics.analyse.metrics import METRICS
+    from procmetrics.analyse.vocabulary import METRICS
     from procmetrics.analyse.periods import PERIODS
 
     add_store_argument(p)

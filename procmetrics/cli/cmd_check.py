@@ -4,10 +4,7 @@ from __future__ import annotations
 import argparse
 import sys
 
-from procmetrics.analyse.claims import exit_code
 from procmetrics.cli import add_store_argument
-from procmetrics.report.check import check_claims, list_kinds, render_verdicts, write_text
-from procmetrics.report.jsonout import dumps
 from procmetrics.report.model import PERIODS
 
 
@@ -32,6 +29,11 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
+    # heavy analysis imports happen only when the command runs
+    from procmetrics.analyse.claims import exit_code
+    from procmetrics.report.check import check_claims, list_kinds, render_verdicts, write_text
+    from procmetrics.report.jsonout import dumps
+
     if args.list_kinds:
         print(list_kinds())
         return 0

@@ -4,7 +4,6 @@ from __future__ import annotations
 import argparse
 
 from procmetrics.cli import add_store_argument
-from procmetrics.report.build import make_report
 from procmetrics.report.model import PERIODS, ReportOptions
 
 
@@ -42,6 +41,8 @@ def run(args: argparse.Namespace) -> int:
                          subsystems=tuple(dict.fromkeys(args.subsystems)), period=args.period,
                          claims_path=args.claims, level=args.level, seed=args.seed,
                          pdf_engine=args.pdf_engine)
+    from procmetrics.report.build import make_report  # heavy: imported when run
+
     files = make_report(args.store, args.out, opts)
     print(f"report written to {files.html} (PDF: {files.pdf_engine}; "
           f"{len(files.csv)} tables; manifest {files.manifest.name})")

@@ -3,7 +3,7 @@ from __future__ import annotations
 
 import argparse
 
-from procmetrics.report.rerun import EXIT_DIFFERENT, rerun
+from procmetrics.errors import EXIT_FIGURES_DIFFER as EXIT_DIFFERENT
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -21,6 +21,8 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
+    from procmetrics.report.rerun import rerun  # heavy: imported when run
+
     result = rerun(args.manifest, args.out)
     print(result.summary())
     return 0 if result.matches else EXIT_DIFFERENT

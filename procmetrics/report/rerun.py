@@ -20,11 +20,12 @@ from pathlib import Path
 from typing import Any
 
 from procmetrics.errors import ConfigError, ProcmetricsError
+from procmetrics.errors import EXIT_FIGURES_DIFFER
 from procmetrics.report.manifest import read_manifest, sha256_file
 from procmetrics.report.model import ReportOptions
 
 #: exit status of ``procmetrics rerun`` when the regenerated figures differ
-EXIT_DIFFERENT = 16
+EXIT_DIFFERENT = EXIT_FIGURES_DIFFER
 #: tables and JSON parts that describe how the data was obtained, not the figures
 PROVENANCE_TABLES = ("scope-facts", "mining-runs")
 PROVENANCE_PARTS = ("scope", "provenance")
