@@ -46,7 +46,11 @@ test: setup-test
 	PROCMETRICS_TEST_PG_URL=$$(sh .ci/pg start "$$pgdir") && export PROCMETRICS_TEST_PG_URL && \
 	$(BIN)/python -m pytest -q -p no:cacheprovider
 
-bench: $(VENV)/.installed-test
+$(VENV)/.installed-bench: $(VENV)/.installed-test
+	$(BIN)/python -m pip install --quiet -e '.[test,bench]'
+	touch $@
+
+bench: $(VENV)/.installed-bench
 	$(BIN)/python bench/run.py
 
 clean:
