@@ -66,8 +66,9 @@ def removed_lines(git: GitRepo, fix_hash: str, parent: str) -> dict[str, list[tu
 def _blame(git: GitRepo, parent: str, path: str, ranges: list[tuple[int, int]],
            ignore_whitespace: bool) -> list[tuple[int, str, str]]:
     # --no-ignore-revs-file: drop files named by blame.ignoreRevsFile in the repository's
-    # config (untrusted; /dev/zero would hang git)
-    args = ["blame", "--porcelain", "--no-ignore-revs-file"] + \
+    # config (untrusted; /dev/zero would hang git); --no-textconv: blame would otherwise
+    # run textconv and filter programs the repository's attributes and config name
+    args = ["blame", "--porcelain", "--no-ignore-revs-file", "--no-textconv"] + \
         (["-w"] if ignore_whitespace else [])
     for start, count in ranges:
         args += ["-L", f"{start},{start + count - 1}"]

@@ -49,6 +49,10 @@ def git_environment(base: dict[str, str] | None = None) -> dict[str, str]:
         # a path that cannot exist: info/grafts (which GIT_NO_REPLACE_OBJECTS does not
         # cover) is ignored too, so the mined parents are those in the commit objects
         "GIT_GRAFT_FILE": os.devnull + "/no-grafts",
+        # no transport at all, whatever protocol.<name>.allow the repository sets: a
+        # partial clone's lazy fetch (GIT_NO_LAZY_FETCH needs git >= 2.44) could
+        # otherwise start an ext:: command named in the repository's config
+        "GIT_ALLOW_PROTOCOL": "",
     })
     return env
 
