@@ -32,7 +32,8 @@ N_FIELDS = len(FIELDS)
 
 _RAW_RE = re.compile(rb"^\n?:(\d+) (\d+) ([0-9a-f]+) ([0-9a-f]+) ([A-Z])(\d*)$")
 _NUM_RE = re.compile(rb"^(\d+|-)\t(\d+|-)\t(.*)$", re.S)
-_HASHES_RE = re.compile(rb"^[0-9a-f]{40,64}(?: [0-9a-f]{40,64})*$")
+_HASH_RB = rb"(?:[0-9a-f]{64}|[0-9a-f]{40})"
+_HASHES_RE = re.compile(rb"^" + _HASH_RB + rb"(?: " + _HASH_RB + rb")*$")
 
 
 @dataclass(frozen=True, slots=True)
