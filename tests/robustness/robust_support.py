@@ -135,3 +135,12 @@ def small_batch_argv(batch: int, *args: str) -> list[str]:
 
 def file_sha(path: Path) -> str:
     return hashlib.sha256(Path(path).read_bytes()).hexdigest()
+
+
+def store_dump(path: Path) -> str:
+    """SQLite's SQL dump of a store (its logical content, whatever the WAL state)."""
+    con = sqlite3.connect(f"file:{path}?mode=ro", uri=True)
+    try:
+        return "\n".join(con.iterdump())
+    finally:
+        con.close()

@@ -146,7 +146,7 @@ def test_missing_tree_or_commit_fails_clearly(git_history, tmp_path, cli):
     _loose(h2, h2.ids["one"]).unlink()
     r = cli("mine", h2.path, "--store", tmp_path / "s2.sqlite", "--no-line-counts")
     assert r.code == 3
-    assert_one_line_error(r.err, "git log failed")
+    assert_one_line_error(r.err, "failed (exit 128)", "parents of commit")
 
 
 @pytest.mark.timeout(120)

@@ -25,7 +25,7 @@ from procmetrics.store.tables import read_table
 from tests.git_support import when
 from tests.robustness.robust_support import (
     ROOT, assert_one_line_error, assert_same_tables, file_sha, integrity_ok, run_procmetrics,
-    subprocess_env, tidy_tables,
+    store_dump, subprocess_env, tidy_tables,
 )
 
 OPTS = MineOptions(progress=False, repo_name="r")
@@ -204,13 +204,13 @@ def test_store_of_a_newer_schema_is_refused_and_untouched(git_history, tmp_path,
     con.execute("UPDATE pm_meta SET value='99' WHERE key='schema_version'")
     con.commit()
     con.close()
-    before = file_sha(store)
+    before = store_dump(store)
     for args in (["mine", h.path], ["export", "--table", "commits"],
                  ["report", "--out", tmp_path / "rep", "--pdf-engine", "none"]):
         r = cli(*args, "--store", store)
         assert r.code == 5, args
         assert_one_line_error(r.err, "newer procmetrics", "schema 99")
-    assert file_sha(store) == before
+    assert store_dump(store) == before
     assert not (tmp_path / "rep").exists() or not any((tmp_path / "rep").iterdir())
 
 
