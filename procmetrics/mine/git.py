@@ -14,18 +14,27 @@ edited and nothing is written to the mined repository.
 from __future__ import annotations
 
 import os
+import queue
 import re
 import shutil
 import subprocess
 import tempfile
+import threading
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Iterable, Iterator, Sequence
+
+try:
+    import fcntl
+except ImportError:     # pragma: no cover - not POSIX
+    fcntl = None  # type: ignore[assignment]
 
 from procmetrics.errors import GitFailed, GitUnavailable, NotARepository, UnknownRef
 
 MIN_GIT_VERSION = (2, 32)   # GIT_CONFIG_GLOBAL appeared in 2.32
 CHUNK = 1 << 20
+PIPE_SIZE = 1 << 20     # git's stdout pipe (Linux default 64 KiB)
+READ_AHEAD = 32         # chunks of git output queued ahead of the consumer (<= 32 MiB)
 
 _PINNED_CONFIG = (
     "core.fsmonitor=false", "core.hooksPath=/dev/null", "core.attributesFile=/dev/null",
@@ -153,7 +162,9 @@ class GitRepo:
 
         stderr goes to a temporary file so a chatty git can never block on a full
         pipe; a non-zero exit raises :class:`GitFailed` after the last chunk. When
-        the consumer stops early, git is terminated.
+        the consumer stops early, git is terminated. A reader thread keeps up to
+        ``READ_AHEAD`` chunks queued, so git keeps writing while the consumer is
+        busy (e.g. inside a database transaction) instead of stalling on a full pipe.
         """
         with tempfile.TemporaryFile() as err:
             try:
@@ -164,17 +175,16 @@ class GitRepo:
             out = proc.stdout
             if out is None:     # pragma: no cover - stdout=PIPE always gives a stream
                 raise GitFailed("git gave no output stream")
+            _widen_pipe(out)
+            reader = _Reader(out)
             finished = False
             try:
-                while True:
-                    chunk = out.read1(CHUNK)
-                    if not chunk:
-                        break
-                    yield chunk
+                yield from reader.chunks()
                 finished = True
             finally:
                 if not finished and proc.poll() is None:
                     proc.kill()
+                reader.stop()
                 out.close()
                 code = proc.wait()
             if code != 0:
@@ -226,6 +236,58 @@ class GitRepo:
         if self.text("cat-file", "-t", blob).strip() != "blob":
             return None
         return blob, self._run(["cat-file", "blob", blob]).stdout
+
+
+def _widen_pipe(out) -> None:
+    """Ask Linux for a larger pipe buffer (fewer, larger reads); harmless elsewhere."""
+    setsize = getattr(fcntl, "F_SETPIPE_SZ", None) if fcntl is not None else None
+    if setsize is None:
+        return
+    try:
+        fcntl.fcntl(out.fileno(), setsize, PIPE_SIZE)
+    except OSError:     # above /proc/sys/fs/pipe-max-size or the user's pipe quota
+        pass
+
+
+class _Reader:
+    """Read a pipe on a thread into a bounded queue (chunks; b"" ends; an exception
+    raised while reading is passed on to the consumer)."""
+
+    def __init__(self, out) -> None:
+        self._out = out
+        self._queue: queue.Queue = queue.Queue(maxsize=READ_AHEAD)
+        self._stopping = threading.Event()
+        self._thread = threading.Thread(target=self._pump, name="git-reader", daemon=True)
+        self._thread.start()
+
+    def _pump(self) -> None:
+        try:
+            while not self._stopping.is_set():
+                chunk = self._out.read1(CHUNK)
+                self._queue.put(chunk)
+                if not chunk:
+                    return
+        except BaseException as exc:  # noqa: BLE001 - handed to the consumer
+            self._queue.put(exc)
+
+    def chunks(self) -> Iterator[bytes]:
+        while True:
+            item = self._queue.get()
+            if isinstance(item, BaseException):
+                raise item
+            if not item:
+                return
+            yield item
+
+    def stop(self) -> None:
+        """Let the thread end (the caller has killed git or read to the end)."""
+        self._stopping.set()
+        while self._thread.is_alive():
+            try:        # make room for a put that is blocked on a full queue
+                self._queue.get(timeout=0.05)
+            except queue.Empty:
+                pass
+        self._thread.join()
 
 
 def _failure(args: Sequence[str], code: int, stderr: bytes) -> str:

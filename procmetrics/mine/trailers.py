@@ -213,9 +213,28 @@ def _unfold(value: str) -> str:
     return "".join(out).strip(_WS)
 
 
+# Fast path: after a blank line (not the message's first line), a last paragraph whose
+# every line is one whole "Token: value" trailer (no continuation, comment or
+# git-generated line without a colon). Git's walk (_block_start) then always takes that
+# paragraph as the block: it has trailer lines and no other lines. Anything else takes
+# the general walk.
+_SIMPLE_BLOCK = re.compile(r"\n[ \t\r]*\n((?:[A-Za-z0-9-]+[ \t]*:[^\n]*\n)*"
+                           r"[A-Za-z0-9-]+[ \t]*:[^\n]*\n?)\Z")
+
+
 def parse_trailers(message: str) -> TrailerBlock:
     """Trailers of the final trailer block, as ``git interpret-trailers --parse`` lists them."""
     end = _end_of_log_message(message)
+    fast = _SIMPLE_BLOCK.search(message, 0, end)
+    if fast is not None:    # the common case, same result as the general walk below
+        start = fast.start(1)
+        simple: list[Trailer] = []
+        for line in message[start:end].split("\n"):
+            if line:        # "Token<blanks>:value"; the token holds no ':'
+                key, _, value = line.partition(":")
+                key = key.rstrip(" \t")
+                simple.append(Trailer(normalise_key(key), key, value.strip(_WS)))
+        return TrailerBlock(simple, start, end)
     start = _block_start(message, end)
     if start >= end:
         return TrailerBlock([], end, end)
