@@ -21,8 +21,7 @@ from __future__ import annotations
 
 import re
 import warnings
-from dataclasses import dataclass
-from typing import Iterable, Iterator, Sequence
+from typing import Iterable, Iterator, NamedTuple, Sequence
 
 from procmetrics.errors import DataQualityWarning, GitFailed
 
@@ -36,8 +35,10 @@ _HASH_RB = rb"(?:[0-9a-f]{64}|[0-9a-f]{40})"
 _HASHES_RE = re.compile(rb"^" + _HASH_RB + rb"(?: " + _HASH_RB + rb")*$")
 
 
-@dataclass(frozen=True, slots=True)
-class FileEntry:
+class FileEntry(NamedTuple):
+    """One path a commit touches (same fields, in the same order, as the store's
+    ``FileRow``)."""
+
     path: str
     old_path: str | None
     change_type: str
@@ -46,8 +47,7 @@ class FileEntry:
     is_binary: bool | None
 
 
-@dataclass(frozen=True, slots=True)
-class LogCommit:
+class LogCommit(NamedTuple):
     hash: str
     parents: tuple[str, ...]
     author_name: str
@@ -117,91 +117,152 @@ def parse_raw_date_or_none(raw: bytes) -> tuple[int, int] | None:
         return None
 
 
-def tokens(chunks: Iterable[bytes]) -> Iterator[bytes]:
-    """NUL-separated tokens of a byte stream (the last empty token is dropped)."""
+def parse_log(chunks: Iterable[bytes]) -> Iterator[LogCommit]:
+    """Parse the stream written by ``git log`` with :func:`log_args`.
+
+    Each chunk is split on NUL once; commits are read from that token list by
+    index. A commit is only parsed once the next commit's header (or the end of
+    the stream) is in view, so chunk boundaries never change the result; the
+    tokens of an unfinished commit are carried into the next round.
+    """
+    toks: list[bytes] = []
+    pos = 0
     rest = b""
+    wait = 0        # tokens an unfinished commit needs before it is tried again
     for chunk in chunks:
+        if not chunk:
+            continue
         parts = (rest + chunk).split(b"\0") if rest else chunk.split(b"\0")
         rest = parts.pop()
-        yield from parts
-    if rest:
-        yield rest
+        toks = toks[pos:] + parts if pos < len(toks) else parts
+        pos = 0
+        if len(toks) < wait:    # a huge commit: retry after doubling, not every chunk
+            continue
+        while pos < len(toks):
+            got = _next_commit(toks, pos, False)
+            if got is None:
+                wait = 2 * (len(toks) - pos)
+                break
+            commit, pos = got
+            yield commit
+    toks = toks[pos:] + ([rest] if rest else [])
+    pos = 0
+    while pos < len(toks):
+        got = _next_commit(toks, pos, True)
+        if got is None:     # pragma: no cover - final=True never gives None
+            break
+        commit, pos = got
+        yield commit
 
 
-def _need(toks: Iterator[bytes]) -> bytes:
-    tok = next(toks, None)
-    if tok is None:
-        raise GitFailed("git log output ended in the middle of a commit")
-    return tok
+def _ended() -> GitFailed:
+    return GitFailed("git log output ended in the middle of a commit")
 
 
-def parse_log(chunks: Iterable[bytes]) -> Iterator[LogCommit]:
-    """Parse the stream written by ``git log`` with :func:`log_args`."""
-    toks = tokens(chunks)
-    pending: bytes | None = next(toks, None)
-    while pending is not None:
-        head = pending
-        if not head.startswith(b"\x01"):
-            raise GitFailed(f"unexpected git log output near {head[:60]!r}")
-        fields = [head[1:]]
-        for _ in range(N_FIELDS - 1):
-            fields.append(_need(toks))
-        raws: list[tuple[str, str, str | None]] = []
-        nums: list[tuple[int | None, int | None, bool]] = []
-        pending = next(toks, None)
-        while pending is not None and not pending.startswith(b"\x01"):
-            m = _RAW_RE.match(pending)
-            if m:
-                status = m.group(5).decode("ascii")
-                first = decode(_need(toks))[0]
-                if status in "RC":
-                    raws.append((status, decode(_need(toks))[0], first))
-                else:
-                    raws.append((status, first, None))
+def _next_commit(toks: list[bytes], i: int, final: bool) -> tuple[LogCommit, int] | None:
+    """The commit whose header is ``toks[i]`` and the index after it; None when more
+    tokens are needed to know where it ends (``final``: the stream has ended)."""
+    head = toks[i]
+    if not head.startswith(b"\x01"):
+        raise GitFailed(f"unexpected git log output near {head[:60]!r}")
+    n = len(toks)
+    j = i + N_FIELDS
+    if j > n:
+        if final:
+            raise _ended()
+        return None
+    raws: list[tuple[str, str, str | None]] = []
+    nums: list[tuple[int | None, int | None, bool]] = []
+    raw_match, num_match = _RAW_RE.match, _NUM_RE.match
+    while True:
+        if j >= n:
+            if not final:
+                return None
+            break
+        tok = toks[j]
+        if tok.startswith(b"\x01"):
+            break
+        m = raw_match(tok)
+        if m:
+            status = chr(m.group(5)[0])
+            if status in "RC":
+                if j + 2 >= n:
+                    if final:
+                        raise _ended()
+                    return None
+                raws.append((status, _text(toks[j + 2]), _text(toks[j + 1])))
+                j += 3
             else:
-                n = _NUM_RE.match(pending)
-                if n is None:
-                    raise GitFailed(f"unexpected git log output near {pending[:60]!r}")
-                if not n.group(3):      # rename: old and new path follow
-                    _need(toks)
-                    _need(toks)
-                binary = n.group(1) == b"-"
-                nums.append((None if binary else int(n.group(1)),
-                             None if binary else int(n.group(2)), binary))
-            pending = next(toks, None)
-        yield _commit(fields, raws, nums)
+                if j + 1 >= n:
+                    if final:
+                        raise _ended()
+                    return None
+                raws.append((status, _text(toks[j + 1]), None))
+                j += 2
+            continue
+        m = num_match(tok)
+        if m is None:
+            raise GitFailed(f"unexpected git log output near {tok[:60]!r}")
+        if not m.group(3):      # rename: old and new path follow
+            if j + 2 >= n:
+                if final:
+                    raise _ended()
+                return None
+            j += 2
+        j += 1
+        if m.group(1) == b"-":
+            nums.append((None, None, True))
+        else:
+            nums.append((int(m.group(1)), int(m.group(2)), False))
+    fields = toks[i:i + N_FIELDS]
+    fields[0] = head[1:]
+    return _commit(fields, raws, nums), j
+
+
+def _text(raw: bytes) -> str:
+    """:func:`decode` without the flag."""
+    try:
+        return raw.decode("utf-8")
+    except UnicodeDecodeError:
+        return raw.decode("latin-1")
+
+
+def _date(raw: bytes) -> tuple[int, int] | None:
+    """:func:`parse_raw_date_or_none`, with a fast path for ``<digits> <+|-><4 digits>``."""
+    if len(raw) > 6 and raw[-6] == 32 and raw[-5] in b"+-" and raw[-4:].isdigit() \
+            and raw[:-6].isdigit():
+        off = int(raw[-4:-2]) * 60 + int(raw[-2:])
+        return int(raw[:-6]), -off if raw[-5] == 45 else off
+    return parse_raw_date_or_none(raw)
 
 
 def _commit(f: list[bytes], raws: list[tuple[str, str, str | None]],
             nums: list[tuple[int | None, int | None, bool]]) -> LogCommit:
-    if nums and len(nums) != len(raws):
-        raise GitFailed(f"git log gave {len(raws)} raw but {len(nums)} numstat entries "
-                        f"for {f[0].decode('ascii', 'replace')}")
-    files = []
-    for i, (status, path, old) in enumerate(raws):
-        if nums:
-            added, deleted, binary = nums[i]
-        else:
-            added = deleted = binary = None
-        files.append(FileEntry(path, old, status, added, deleted, binary))
+    if nums:
+        if len(nums) != len(raws):
+            raise GitFailed(f"git log gave {len(raws)} raw but {len(nums)} numstat entries "
+                            f"for {f[0].decode('ascii', 'replace')}")
+        files = tuple([FileEntry(path, old, status, *num)
+                       for (status, path, old), num in zip(raws, nums)])
+    else:
+        files = tuple([FileEntry(path, old, status, None, None, None)
+                       for status, path, old in raws])
     if not _HASHES_RE.match(f[0]) or (f[1] and not _HASHES_RE.match(f[1])):
         raise GitFailed(f"unexpected git log output near {f[0][:60]!r}")
-    at_ao, ct_co = parse_raw_date_or_none(f[4]), parse_raw_date_or_none(f[7])
+    at_ao, ct_co = _date(f[4]), _date(f[7])
     if at_ao is None or ct_co is None:
         # a malformed ident line (only writable with hash-object --literally):
         # git prints no date; keep the commit, use its other date (or 0) and say so
         warnings.warn("a commit has an author or committer date git cannot read; its "
                       "other date (or 1970-01-01 when both are unreadable) is stored",
-                      DataQualityWarning, stacklevel=2)
+                      DataQualityWarning, stacklevel=3)
         at_ao = at_ao or ct_co or (0, 0)
         ct_co = ct_co or at_ao
-    (at, ao), (ct, co) = at_ao, ct_co
-    message, ok = decode(f[10])
+    try:
+        message, ok = f[10].decode("utf-8"), True
+    except UnicodeDecodeError:
+        message, ok = f[10].decode("latin-1"), False
     return LogCommit(
-        hash=f[0].decode("ascii"), parents=tuple(f[1].decode("ascii").split()),
-        author_name=decode(f[2])[0], author_email=decode(f[3])[0],
-        author_time=at, author_offset_min=ao,
-        committer_name=decode(f[5])[0], committer_email=decode(f[6])[0],
-        committer_time=ct, committer_offset_min=co,
-        encoding=decode(f[8])[0], subject=decode(f[9])[0], message=message,
-        message_was_utf8=ok, files=tuple(files))
+        f[0].decode("ascii"), tuple(f[1].decode("ascii").split()),
+        _text(f[2]), _text(f[3]), at_ao[0], at_ao[1], _text(f[5]), _text(f[6]),
+        ct_co[0], ct_co[1], _text(f[8]) if f[8] else "", _text(f[9]), message, ok, files)
