@@ -22,7 +22,7 @@ from tests.robustness.robust_support import (
     subprocess_env, tidy_tables,
 )
 
-TRIALS = [  # (signal, base ref mined first or None) - delays come from a seeded generator
+TRIALS = [  # (signal, base ref mined first or None); kill points come from a seeded generator
     (signal.SIGKILL, None), (signal.SIGINT, None), (signal.SIGTERM, None),
     (signal.SIGKILL, "v2.0"), (signal.SIGINT, "v2.0"),
 ]
@@ -35,25 +35,31 @@ def clean(aurora, tmp_path_factory) -> dict:
     return tidy_tables(store)
 
 
-def _run_started(store: Path) -> bool:
+def _loaded(store: Path) -> int | None:
+    """Commits the running run has stored so far (None before the run has started)."""
     if not store.exists():
-        return False
+        return None
     try:
         con = sqlite3.connect(f"file:{store}?mode=ro", uri=True, timeout=0.2)
         try:
-            return con.execute("SELECT count(*) FROM mining_run WHERE status='running'"
-                               ).fetchone()[0] > 0
+            row = con.execute("SELECT max(run_id) FROM mining_run WHERE status='running'"
+                              ).fetchone()
+            if row is None or row[0] is None:
+                return None
+            return con.execute("SELECT count(*) FROM git_commit WHERE run_id=?",
+                               (row[0],)).fetchone()[0]
         finally:
             con.close()
     except sqlite3.Error:
-        return False
+        return None
 
 
 @pytest.mark.slow
 @pytest.mark.timeout(300)
 def test_interrupted_runs_resume_to_the_clean_store(aurora, clean, tmp_path):
-    """Kill ``procmetrics mine`` (batches of 40 commits) at seeded points after its run
-    has started; the store stays consistent and the next run ends with the clean store."""
+    """Kill ``procmetrics mine`` (batches of 40 commits) once it has stored a seeded
+    number of commits; the store stays consistent and the next run ends with the
+    clean store."""
     tags = subprocess.run(["git", "-C", str(aurora), "tag"], capture_output=True, text=True,
                           check=True).stdout.split()
     rng = random.Random(20261201)
@@ -63,12 +69,22 @@ def test_interrupted_runs_resume_to_the_clean_store(aurora, clean, tmp_path):
         if base is not None:
             assert base in tags
             mine_repository(aurora, store=store, options=MineOptions(progress=False, ref=base))
+        total = len(clean["commits"])
+        stored_before = 0 if base is None else int(subprocess.run(
+            ["git", "-C", str(aurora), "rev-list", "--count", base], capture_output=True,
+            text=True, check=True).stdout)
         proc = subprocess.Popen(small_batch_argv(40, "mine", aurora, "--store", store),
                                 cwd=ROOT, env=subprocess_env(), stdout=subprocess.DEVNULL,
                                 stderr=subprocess.PIPE, text=True)
-        while proc.poll() is None and not _run_started(store):
-            time.sleep(0.02)
-        time.sleep(rng.uniform(0.0, 1.2))
+        # kill once the run has stored at least `after` commits (seeded): mid-load for
+        # most trials; `after` = everything loaded lands in resolution/tags/mapping
+        after = rng.choice([rng.randrange(0, 1200), rng.randrange(0, 1200), total])
+        target = min(after, total - stored_before)
+        while proc.poll() is None:
+            loaded = _loaded(store)
+            if loaded is not None and loaded >= target:
+                break
+            time.sleep(0.01)
         if proc.poll() is None:
             proc.send_signal(sig)
         code = proc.wait(timeout=120)
@@ -90,7 +106,7 @@ def test_interrupted_runs_resume_to_the_clean_store(aurora, clean, tmp_path):
         assert runs["status"].iloc[-1] == "complete"
         assert "running" not in set(runs["status"])
     # the seeded delays must really interrupt runs, not only find them finished
-    assert sum(interrupted for _, _, interrupted in outcomes) >= 3, outcomes
+    assert sum(interrupted for _, _, interrupted in outcomes) >= 4, outcomes
 
 
 def _small(h):
