@@ -260,6 +260,15 @@ def pydriller_ratio(small: Path, work: Path, repeats: int) -> dict[str, object]:
             "ratio": round(pyd["seconds"] / ours["seconds"], 1)}
 
 
+def save(out: Path, n: int, res: dict[str, object]) -> Path:
+    """Write the results so far (a long run that is stopped keeps what it measured)."""
+    name = "latest" if n >= 1_000_000 else f"latest-{n}"
+    out.mkdir(parents=True, exist_ok=True)
+    (out / f"{name}.json").write_text(json.dumps(res, indent=2, sort_keys=True) + "\n")
+    (out / f"{name}.md").write_text(report_md.render(res))
+    return out / f"{name}.md"
+
+
 def main(argv: list[str] | None = None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--commits", type=int, default=1_000_000)
@@ -292,6 +301,7 @@ def main(argv: list[str] | None = None) -> int:
         res["stored_commits"] = count_commits(paths_store)
         res["store_bytes_per_commit_paths"] = round(store_size(paths_store) / res["stored_commits"])
         res["paths_ratio"] = round(paths["seconds"] / res["git_raw"]["seconds"], 2)
+        save(args.out, n, res)
         if "lines" not in args.skip:
             print("git log --numstat baseline ...", file=sys.stderr)
             res["git_numstat"] = git_log(repo, "main", "numstat", args.repeats)
@@ -302,6 +312,7 @@ def main(argv: list[str] | None = None) -> int:
             res["store_bytes_per_commit_lines"] = round(store_size(lines_store)
                                                         / count_commits(lines_store))
             res["lines_ratio"] = round(lines["seconds"] / res["git_numstat"]["seconds"], 2)
+            save(args.out, n, res)
         if "memory" not in args.skip:
             res["memory"] = {}
             for p in prefixes:
@@ -310,12 +321,14 @@ def main(argv: list[str] | None = None) -> int:
                 res["memory"][str(p)] = {"peak_rss_mib": r["peak_rss_mib"],
                                          "seconds": r["seconds"]}
                 st.unlink()
+                save(args.out, n, res)
             res["memory"][str(n)] = {"peak_rss_mib": paths["peak_rss_mib"],
                                      "seconds": paths["seconds"]}
         if "incremental" not in args.skip:
             print("incremental mining of 1,000 commits ...", file=sys.stderr)
             res["incremental"] = incremental(repo, paths_store, work, lines=False,
                                              repeats=args.repeats)
+            save(args.out, n, res)
         if "analyses" not in args.skip and "lines" not in args.skip:
             print("analyses and report ...", file=sys.stderr)
             res["analyses"] = analyses(lines_store, repo, work, n, args.analysis_timeout)
@@ -326,12 +339,9 @@ def main(argv: list[str] | None = None) -> int:
     finally:
         res["load_avg_end"] = os.getloadavg()
         res["finished"] = time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime())
-        args.out.mkdir(parents=True, exist_ok=True)
-        name = "latest" if n >= 1_000_000 else f"latest-{n}"
-        (args.out / f"{name}.json").write_text(json.dumps(res, indent=2, sort_keys=True) + "\n")
-        (args.out / f"{name}.md").write_text(report_md.render(res))
+        written = save(args.out, n, res)
         shutil.rmtree(work, ignore_errors=True)
-        print(f"wrote {args.out / (name + '.md')}", file=sys.stderr)
+        print(f"wrote {written}", file=sys.stderr)
     return 0
 
 
