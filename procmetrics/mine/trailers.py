@@ -22,6 +22,7 @@ case-insensitively); any other key becomes first letter upper, rest lower.
 """
 from __future__ import annotations
 
+import functools
 import re
 from typing import NamedTuple
 
@@ -67,6 +68,7 @@ def normalise_key(raw_key: str) -> str:
     return raw_key[:1].upper() + raw_key[1:].lower()
 
 
+@functools.lru_cache(maxsize=1 << 16)   # reviewers repeat: most values are seen before
 def split_person(value: str) -> tuple[str, str] | None:
     """``"Jo Doe <jo@x.org> # note"`` -> ``("Jo Doe", "jo@x.org")``; bare e-mail -> ``("", mail)``."""
     m = _PERSON_RE.match(value)
