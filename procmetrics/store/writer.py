@@ -14,10 +14,9 @@ mines from the unchanged tip - so it ends with exactly the store a clean run
 gives. Links of older runs that the dead run had re-resolved are re-resolved
 again because their target is no longer stored or their status is not final.
 
-Indexes (``schema.INDEXES``) are dropped before the first bulk load into an
-empty store and rebuilt after it (``ensure_indexes`` also runs at the start of
-every run, so an interrupted first load gets them back). The unique
-(repo_id, hash) index stays: prefix look-ups need it.
+Run bookkeeping and repair live in :mod:`procmetrics.store.runbook`, index and
+bulk-load handling in :mod:`procmetrics.store.bulkload`, link resolution queries
+in :mod:`procmetrics.store.linkstore`; :class:`StoreWriter` combines them.
 
 Commit ids are assigned here (max + 1 inside the batch transaction, after
 taking the store's write lock, so miners of different repositories can share
@@ -28,17 +27,17 @@ repository out. Status values of ``mining_run``: ``running``, ``complete``,
 """
 from __future__ import annotations
 
-import time
 from typing import Iterable, NamedTuple, Sequence
 
-from sqlalchemy import and_, bindparam, delete, exists, func, insert, or_, select, update
+from sqlalchemy import delete, exists, func, insert, select
 from sqlalchemy.engine import Connection, Engine
-from sqlalchemy.schema import CreateIndex, DropIndex
 
 from procmetrics.store import schema as s
+from procmetrics.store.bulkload import BulkLoad, _bulk_insert
+from procmetrics.store.linkstore import LinkQueries, LinkRow
+from procmetrics.store.runbook import RunBook
 
-CHUNK = 500
-MANY_REFS = 20000     # above this many short references, scan stored hashes once
+__all__ = ["CommitRow", "FileRow", "FixRow", "LinkRow", "StoreWriter", "TagRow", "TrailerRow"]
 
 
 class FileRow(NamedTuple):
@@ -92,21 +91,6 @@ class TagRow(NamedTuple):
     is_annotated: bool
 
 
-class LinkRow(NamedTuple):
-    """A fix (``kind='fix'``, key = position) or revert (key = ref hash) reference."""
-
-    kind: str
-    commit_id: int
-    key: int | str
-    ref_hash: str
-    citing_hash: str
-    cited_subject: str | None
-    status: str
-    target: str | None
-    target_stored: bool
-    is_new: bool
-
-
 _COLUMNS = {
     s.commit.name: ("commit_id", "repo_id", "run_id", "hash", "author_id", "committer_id",
                     "author_time", "author_offset_min", "committer_time",
@@ -122,152 +106,12 @@ _COLUMNS = {
 }
 
 
-def _bulk_insert(conn: Connection, table, columns: Sequence[str], rows: list[tuple]) -> None:
-    """executemany of plain tuples straight to the driver (SQLAlchemy's per-row parameter
-    processing costs more than SQLite's insert itself); other paramstyles use Core."""
-    if not rows:
-        return
-    mark = {"qmark": "?", "format": "%s", "pyformat": "%s"}.get(conn.dialect.paramstyle)
-    if mark is None:
-        conn.execute(insert(table), [dict(zip(columns, r)) for r in rows])
-        return
-    q = conn.dialect.identifier_preparer.quote
-    sql = (f"INSERT INTO {q(table.name)} ({', '.join(q(c) for c in columns)}) "
-           f"VALUES ({', '.join([mark] * len(columns))})")
-    conn.exec_driver_sql(sql, rows)
-
-
-def _chunks(items: Sequence, size: int = CHUNK) -> Iterable[Sequence]:
-    for i in range(0, len(items), size):
-        yield items[i:i + size]
-
-
-class StoreWriter:
+class StoreWriter(RunBook, LinkQueries, BulkLoad):
     """Writes one repository's mined rows; see the module docstring."""
 
     def __init__(self, engine: Engine) -> None:
         self.engine = engine
         self._persons: dict[tuple[str, str], int] | None = None
-
-    # -- repository and runs ------------------------------------------------------------
-    def ensure_repository(self, name: str, path: str) -> int:
-        r = s.repository
-        with self.engine.begin() as conn:
-            self._write_lock(conn)      # two first runs may race to create the row
-            rid = conn.execute(select(r.c.repo_id).where(r.c.name == name)).scalar()
-            if rid is None:
-                rid = conn.execute(insert(r).values(name=name, path=path, is_shallow=False)
-                                   ).inserted_primary_key[0]
-        return int(rid)
-
-    def repository_state(self, repo_id: int) -> tuple[str | None, str | None]:
-        """(stored tip hash, options JSON of the last complete run)."""
-        r, m = s.repository, s.mining_run
-        with self.engine.connect() as conn:
-            tip = conn.execute(select(r.c.tip_hash).where(r.c.repo_id == repo_id)).scalar()
-            opts = conn.execute(select(m.c.options_json).where(
-                m.c.repo_id == repo_id, m.c.status == "complete")
-                .order_by(m.c.run_id.desc()).limit(1)).scalar()
-        return tip, opts
-
-    def start_run(self, repo_id: int, *, ref: str, head_hash: str, base_hash: str | None,
-                  is_shallow: bool, options_json: str, versions_json: str) -> int:
-        with self.engine.begin() as conn:
-            return int(conn.execute(insert(s.mining_run).values(
-                repo_id=repo_id, status="running", started_utc=int(time.time()), ref=ref,
-                head_hash=head_hash, base_hash=base_hash, is_shallow=is_shallow,
-                options_json=options_json, versions_json=versions_json)
-            ).inserted_primary_key[0])
-
-    def fail_run(self, run_id: int, message: str) -> None:
-        with self.engine.begin() as conn:
-            conn.execute(update(s.mining_run).where(s.mining_run.c.run_id == run_id)
-                         .values(status="failed", ended_utc=int(time.time()),
-                                 message=message[:2000]))
-
-    def complete_run(self, run_id: int, repo_id: int, *, tip_hash: str, tip_ref: str,
-                     path: str, remote_url: str | None, is_shallow: bool, mapping_kind: str,
-                     mapping_source: str, counts: dict[str, int], message: str | None) -> None:
-        """Mark the run complete and move the repository's tip (one transaction)."""
-        with self.engine.begin() as conn:
-            conn.execute(update(s.mining_run).where(s.mining_run.c.run_id == run_id).values(
-                status="complete", ended_utc=int(time.time()), message=message, **counts))
-            conn.execute(update(s.repository).where(s.repository.c.repo_id == repo_id).values(
-                tip_hash=tip_hash, tip_ref=tip_ref, path=path, remote_url=remote_url,
-                is_shallow=is_shallow, mapping_kind=mapping_kind,
-                mapping_source=mapping_source))
-        self.refresh_statistics()
-
-    def refresh_statistics(self) -> None:
-        """Planner statistics after a load. Without them SQLite nests the
-        repository-filtered ``commit_subsystems`` read as commits x path mappings
-        (hours at 20,000 commits); sampled ANALYZE takes milliseconds."""
-        with self.engine.begin() as conn:
-            if self.engine.dialect.name == "sqlite":
-                conn.exec_driver_sql("PRAGMA analysis_limit=1000")
-            conn.exec_driver_sql("ANALYZE")
-
-    def _delete_commits(self, conn: Connection, commit_ids) -> None:
-        for t in (s.file_change, s.trailer, s.fix_link, s.unparsed_reference, s.revert_link,
-                  s.commit_parent):
-            conn.execute(delete(t).where(t.c.commit_id.in_(commit_ids)))
-
-    def cleanup_incomplete(self, repo_id: int) -> list[int]:
-        """Remove the rows of this repository's runs that never completed."""
-        m, g = s.mining_run, s.commit
-        with self.engine.begin() as conn:
-            runs = list(conn.execute(select(m.c.run_id).where(
-                m.c.repo_id == repo_id, m.c.status.in_(("running", "failed")),
-                or_(m.c.message.is_(None), ~m.c.message.like("rows removed%")))).scalars())
-            if not runs:
-                return []
-            self._delete_commits(conn, select(g.c.commit_id).where(g.c.run_id.in_(runs)))
-            conn.execute(delete(g).where(g.c.run_id.in_(runs)))
-            conn.execute(update(m).where(m.c.run_id.in_(runs)).values(
-                status="failed", message="rows removed: the run did not complete"))
-        self.prune_mapping(repo_id)
-        return runs
-
-    def delete_repository_data(self, repo_id: int, reason: str) -> None:
-        """Delete every mined row of a repository (history rewritten) in one transaction."""
-        g, m = s.commit, s.mining_run
-        with self.engine.begin() as conn:
-            self._delete_commits(conn, select(g.c.commit_id).where(g.c.repo_id == repo_id))
-            conn.execute(delete(g).where(g.c.repo_id == repo_id))
-            for t in (s.path_subsystem, s.tag):
-                conn.execute(delete(t).where(t.c.repo_id == repo_id))
-            conn.execute(delete(s.subsystem).where(s.subsystem.c.repo_id == repo_id))
-            conn.execute(update(m).where(m.c.repo_id == repo_id, m.c.status == "complete")
-                         .values(status="superseded", message=reason[:2000]))
-            conn.execute(update(s.repository).where(s.repository.c.repo_id == repo_id)
-                         .values(tip_hash=None, mapping_kind=None, mapping_source=None))
-
-    # -- indexes ------------------------------------------------------------------------
-    @staticmethod
-    def _write_lock(conn: Connection) -> None:
-        """Serialise with other miners writing to the same store (other repositories).
-
-        A no-op update of one row: SQLite takes its write lock (waiting up to the
-        busy timeout), PostgreSQL a row lock, both held until the transaction ends.
-        """
-        conn.execute(update(s.meta).where(s.meta.c.key == "schema_version")
-                     .values(value=s.meta.c.value))
-
-    def ensure_indexes(self) -> None:
-        with self.engine.begin() as conn:
-            self._write_lock(conn)
-            for ix in s.INDEXES:
-                conn.execute(CreateIndex(ix, if_not_exists=True))
-
-    def drop_indexes_if_empty(self) -> bool:
-        """Drop the analysis indexes when the store holds no commit yet (fast first load)."""
-        with self.engine.begin() as conn:
-            self._write_lock(conn)
-            if conn.execute(select(s.commit.c.commit_id).limit(1)).first() is not None:
-                return False
-            for ix in s.INDEXES:
-                conn.execute(DropIndex(ix, if_exists=True))
-        return True
 
     # -- bulk rows ----------------------------------------------------------------------
     def _person_ids(self, conn: Connection, people: Iterable[tuple[str, str]]) -> dict:
@@ -333,111 +177,6 @@ class StoreWriter:
                       n_fix_refs=len(fixes))
         return counts
 
-    # -- reference resolution -----------------------------------------------------------
-    def links_to_check(self, repo_id: int, run_id: int, full_len: int) -> list[LinkRow]:
-        """Links whose resolution this run may change: those of this run's commits; those
-        not resolved to a stored commit; and short references that a commit of this
-        run also matches (a prefix that was unique may now be ambiguous)."""
-        g = s.commit
-        intro = s.commit.alias("intro")
-        new = s.commit.alias("new")
-        out: list[LinkRow] = []
-        with self.engine.connect() as conn:
-            for kind, t, key, target in (("fix", s.fix_link, s.fix_link.c.position,
-                                          s.fix_link.c.introducer_hash),
-                                         ("revert", s.revert_link, s.revert_link.c.ref_hash,
-                                          s.revert_link.c.reverted_hash)):
-                cited = t.c.cited_subject if kind == "fix" else None
-                cols = [t.c.commit_id, key, t.c.ref_hash, g.c.hash, t.c.status, target,
-                        intro.c.commit_id, g.c.run_id]
-                if cited is not None:
-                    cols.append(cited)
-                collides = exists().where(new.c.repo_id == repo_id, new.c.run_id == run_id,
-                                          new.c.hash >= t.c.ref_hash,
-                                          new.c.hash < t.c.ref_hash + "g")
-                stmt = (select(*cols).select_from(t)
-                        .join(g, g.c.commit_id == t.c.commit_id)
-                        .outerjoin(intro, and_(intro.c.repo_id == repo_id,
-                                               intro.c.hash == target))
-                        .where(g.c.repo_id == repo_id)
-                        .where(or_(g.c.run_id == run_id, ~t.c.status.in_(("resolved", "self")),
-                                   intro.c.commit_id.is_(None),
-                                   and_(func.length(t.c.ref_hash) < full_len, collides))))
-                for row in conn.execute(stmt):
-                    out.append(LinkRow(kind, row[0], row[1], row[2], row[3],
-                                       row[8] if cited is not None else None, row[4], row[5],
-                                       row[6] is not None, row[7] == run_id))
-        return out
-
-    def stored_matches(self, repo_id: int, refs: Sequence[str], full_len: int,
-                       limit: int = 2) -> dict[str, list[str]]:
-        """Stored hashes of this repository starting with each reference."""
-        g = s.commit
-        out: dict[str, list[str]] = {r: [] for r in refs}
-        full = [r for r in refs if len(r) >= full_len]
-        short = [r for r in refs if len(r) < full_len]
-        with self.engine.connect() as conn:
-            for part in _chunks(full):
-                for (h,) in conn.execute(select(g.c.hash).where(g.c.repo_id == repo_id,
-                                                                g.c.hash.in_(part))):
-                    out[h].append(h)
-            if len(short) > MANY_REFS:     # one pass over the stored hashes beats a query each
-                k = min(len(r) for r in short)
-                heads: dict[str, list[str]] = {}
-                for r in short:
-                    heads.setdefault(r[:k], []).append(r)
-                result = conn.execution_options(yield_per=20000).execute(
-                    select(g.c.hash).where(g.c.repo_id == repo_id))
-                for h in result.scalars():
-                    for r in heads.get(h[:k], ()):
-                        if h.startswith(r):
-                            out[r].append(h)
-                for r in short:
-                    out[r] = sorted(out[r])[:limit]
-                return out
-            stmt = (select(g.c.hash).where(g.c.repo_id == repo_id,
-                                           g.c.hash >= bindparam("lo"),
-                                           g.c.hash < bindparam("hi"))
-                    .order_by(g.c.hash).limit(limit))
-            for r in short:
-                out[r] = list(conn.execute(stmt, {"lo": r, "hi": r + "g"}).scalars())
-        return out
-
-    def stored_subjects(self, repo_id: int, hashes: Sequence[str]) -> dict[str, str]:
-        g = s.commit
-        out: dict[str, str] = {}
-        with self.engine.connect() as conn:
-            for part in _chunks(list(hashes)):
-                out.update(conn.execute(select(g.c.hash, g.c.subject).where(
-                    g.c.repo_id == repo_id, g.c.hash.in_(part))).all())
-        return out
-
-    def run_hashes(self, repo_id: int, run_id: int) -> list[str]:
-        g = s.commit
-        with self.engine.connect() as conn:
-            return list(conn.execute(select(g.c.hash).where(
-                g.c.repo_id == repo_id, g.c.run_id == run_id)).scalars())
-
-    def update_links(self, updates: Sequence[tuple[LinkRow, str, str | None, bool | None]]
-                     ) -> None:
-        """Write (link, status, target, subject_match) for changed links."""
-        fl, rl = s.fix_link, s.revert_link
-        fix_stmt = (update(fl).where(fl.c.commit_id == bindparam("cid"),
-                                     fl.c.position == bindparam("key"))
-                    .values(status=bindparam("st"), introducer_hash=bindparam("tg"),
-                            subject_match=bindparam("sm")))
-        rev_stmt = (update(rl).where(rl.c.commit_id == bindparam("cid"),
-                                     rl.c.ref_hash == bindparam("key"))
-                    .values(status=bindparam("st"), reverted_hash=bindparam("tg")))
-        fixes = [{"cid": ln.commit_id, "key": ln.key, "st": st, "tg": tg, "sm": sm}
-                 for ln, st, tg, sm in updates if ln.kind == "fix"]
-        revs = [{"cid": ln.commit_id, "key": ln.key, "st": st, "tg": tg}
-                for ln, st, tg, _ in updates if ln.kind == "revert"]
-        with self.engine.begin() as conn:
-            for stmt, data in ((fix_stmt, fixes), (rev_stmt, revs)):
-                for part in _chunks(data, 5000):
-                    conn.execute(stmt, list(part))
-
     # -- tags and subsystems ------------------------------------------------------------
     def replace_tags(self, repo_id: int, tags: Sequence[TagRow]) -> None:
         with self.engine.begin() as conn:
@@ -484,16 +223,6 @@ class StoreWriter:
                     known[name] = sid
             rows = [(repo_id, p, known[n]) for p, names in pairs for n in names]
             _bulk_insert(conn, s.path_subsystem, ("repo_id", "path", "subsystem_id"), rows)
-
-    def prune_mapping(self, repo_id: int) -> None:
-        """Drop path->subsystem rows of paths no stored commit touches any more."""
-        g, fc, ps, sub = s.commit, s.file_change, s.path_subsystem, s.subsystem
-        used = (select(fc.c.path).join(g, g.c.commit_id == fc.c.commit_id)
-                .where(g.c.repo_id == repo_id))
-        with self.engine.begin() as conn:
-            conn.execute(delete(ps).where(ps.c.repo_id == repo_id, ps.c.path.not_in(used)))
-            conn.execute(delete(sub).where(sub.c.repo_id == repo_id, ~exists().where(
-                ps.c.subsystem_id == sub.c.subsystem_id)))
 
     # -- summary ------------------------------------------------------------------------
     def totals(self, repo_id: int) -> dict[str, object]:

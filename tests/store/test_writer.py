@@ -85,7 +85,7 @@ def test_same_tables_on_every_database(sample_history, any_store_url, tmp_path):
 def test_prefix_lookup_by_scan_equals_lookup_by_query(sample_history, tmp_path, monkeypatch):
     """The two look-up strategies (a range query per reference, or one scan of all stored
     hashes) give the same answer; the oracle for 'which commits share a prefix' is git."""
-    import procmetrics.store.writer as w
+    import procmetrics.store.linkstore as w
     engine = open_store(tmp_path / "s.sqlite")
     mine_repository(sample_history.path, store=engine, options=MineOptions(progress=False))
     hashes = sample_history.git("rev-list", "HEAD").split()

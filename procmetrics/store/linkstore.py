@@ -1,0 +1,138 @@
+"""Fix/revert link queries of the store writer: which links a run must (re-)resolve,
+stored hashes matching cited prefixes, subjects, and the resolution updates."""
+from __future__ import annotations
+
+from typing import NamedTuple, Sequence
+
+from sqlalchemy import and_, bindparam, exists, func, or_, select, update
+from sqlalchemy.engine import Engine
+
+from procmetrics.store import schema as s
+from procmetrics.store.bulkload import _chunks
+
+MANY_REFS = 20000     # above this many short references, scan stored hashes once
+
+
+class LinkRow(NamedTuple):
+    """A fix (``kind='fix'``, key = position) or revert (key = ref hash) reference."""
+
+    kind: str
+    commit_id: int
+    key: int | str
+    ref_hash: str
+    citing_hash: str
+    cited_subject: str | None
+    status: str
+    target: str | None
+    target_stored: bool
+    is_new: bool
+
+
+class LinkQueries:
+    """Reference resolution reads and writes."""
+
+    engine: Engine
+
+    def links_to_check(self, repo_id: int, run_id: int, full_len: int) -> list[LinkRow]:
+        """Links whose resolution this run may change: those of this run's commits; those
+        not resolved to a stored commit; and short references that a commit of this
+        run also matches (a prefix that was unique may now be ambiguous)."""
+        g = s.commit
+        intro = s.commit.alias("intro")
+        new = s.commit.alias("new")
+        out: list[LinkRow] = []
+        with self.engine.connect() as conn:
+            for kind, t, key, target in (("fix", s.fix_link, s.fix_link.c.position,
+                                          s.fix_link.c.introducer_hash),
+                                         ("revert", s.revert_link, s.revert_link.c.ref_hash,
+                                          s.revert_link.c.reverted_hash)):
+                cited = t.c.cited_subject if kind == "fix" else None
+                cols = [t.c.commit_id, key, t.c.ref_hash, g.c.hash, t.c.status, target,
+                        intro.c.commit_id, g.c.run_id]
+                if cited is not None:
+                    cols.append(cited)
+                collides = exists().where(new.c.repo_id == repo_id, new.c.run_id == run_id,
+                                          new.c.hash >= t.c.ref_hash,
+                                          new.c.hash < t.c.ref_hash + "g")
+                stmt = (select(*cols).select_from(t)
+                        .join(g, g.c.commit_id == t.c.commit_id)
+                        .outerjoin(intro, and_(intro.c.repo_id == repo_id,
+                                               intro.c.hash == target))
+                        .where(g.c.repo_id == repo_id)
+                        .where(or_(g.c.run_id == run_id, ~t.c.status.in_(("resolved", "self")),
+                                   intro.c.commit_id.is_(None),
+                                   and_(func.length(t.c.ref_hash) < full_len, collides))))
+                for row in conn.execute(stmt):
+                    out.append(LinkRow(kind, row[0], row[1], row[2], row[3],
+                                       row[8] if cited is not None else None, row[4], row[5],
+                                       row[6] is not None, row[7] == run_id))
+        return out
+
+    def stored_matches(self, repo_id: int, refs: Sequence[str], full_len: int,
+                       limit: int = 2) -> dict[str, list[str]]:
+        """Stored hashes of this repository starting with each reference."""
+        g = s.commit
+        out: dict[str, list[str]] = {r: [] for r in refs}
+        full = [r for r in refs if len(r) >= full_len]
+        short = [r for r in refs if len(r) < full_len]
+        with self.engine.connect() as conn:
+            for part in _chunks(full):
+                for (h,) in conn.execute(select(g.c.hash).where(g.c.repo_id == repo_id,
+                                                                g.c.hash.in_(part))):
+                    out[h].append(h)
+            if len(short) > MANY_REFS:     # one pass over the stored hashes beats a query each
+                k = min(len(r) for r in short)
+                heads: dict[str, list[str]] = {}
+                for r in short:
+                    heads.setdefault(r[:k], []).append(r)
+                result = conn.execution_options(yield_per=20000).execute(
+                    select(g.c.hash).where(g.c.repo_id == repo_id))
+                for h in result.scalars():
+                    for r in heads.get(h[:k], ()):
+                        if h.startswith(r):
+                            out[r].append(h)
+                for r in short:
+                    out[r] = sorted(out[r])[:limit]
+                return out
+            stmt = (select(g.c.hash).where(g.c.repo_id == repo_id,
+                                           g.c.hash >= bindparam("lo"),
+                                           g.c.hash < bindparam("hi"))
+                    .order_by(g.c.hash).limit(limit))
+            for r in short:
+                out[r] = list(conn.execute(stmt, {"lo": r, "hi": r + "g"}).scalars())
+        return out
+
+    def stored_subjects(self, repo_id: int, hashes: Sequence[str]) -> dict[str, str]:
+        g = s.commit
+        out: dict[str, str] = {}
+        with self.engine.connect() as conn:
+            for part in _chunks(list(hashes)):
+                out.update(conn.execute(select(g.c.hash, g.c.subject).where(
+                    g.c.repo_id == repo_id, g.c.hash.in_(part))).all())
+        return out
+
+    def run_hashes(self, repo_id: int, run_id: int) -> list[str]:
+        g = s.commit
+        with self.engine.connect() as conn:
+            return list(conn.execute(select(g.c.hash).where(
+                g.c.repo_id == repo_id, g.c.run_id == run_id)).scalars())
+
+    def update_links(self, updates: Sequence[tuple[LinkRow, str, str | None, bool | None]]
+                     ) -> None:
+        """Write (link, status, target, subject_match) for changed links."""
+        fl, rl = s.fix_link, s.revert_link
+        fix_stmt = (update(fl).where(fl.c.commit_id == bindparam("cid"),
+                                     fl.c.position == bindparam("key"))
+                    .values(status=bindparam("st"), introducer_hash=bindparam("tg"),
+                            subject_match=bindparam("sm")))
+        rev_stmt = (update(rl).where(rl.c.commit_id == bindparam("cid"),
+                                     rl.c.ref_hash == bindparam("key"))
+                    .values(status=bindparam("st"), reverted_hash=bindparam("tg")))
+        fixes = [{"cid": ln.commit_id, "key": ln.key, "st": st, "tg": tg, "sm": sm}
+                 for ln, st, tg, sm in updates if ln.kind == "fix"]
+        revs = [{"cid": ln.commit_id, "key": ln.key, "st": st, "tg": tg}
+                for ln, st, tg, _ in updates if ln.kind == "revert"]
+        with self.engine.begin() as conn:
+            for stmt, data in ((fix_stmt, fixes), (rev_stmt, revs)):
+                for part in _chunks(data, 5000):
+                    conn.execute(stmt, list(part))
