@@ -141,33 +141,64 @@ class PathMapper:
             return out
         hits: list[list[tuple[int, int]]] = [[] for _ in paths]
         exact, by_bucket = self.exact, self.by_bucket
+        per_folder: dict[str, tuple[list[tuple[int, int]], list[tuple[Pattern, int]]]] = {}
         for i, path in enumerate(paths):
+            cut = path.rfind("/") + 1
+            folder = path[:cut]
+            known = per_folder.get(folder)
+            if known is None:
+                known = per_folder[folder] = self._folder_candidates(folder)
+            fixed, wild = known
             found = hits[i]
-            for b in _buckets(path):
-                for key in (b, path[: len(b) + 1]):
-                    for pat, idx in by_bucket.get(key, ()):
-                        if pat.regex.match(path):
-                            found.append((pat.specificity, idx))
-                if b:       # literal patterns naming this folder (or a file of that name)
-                    for pat, idx in exact.get(b[:-1], ()):
-                        found.append((pat.specificity, idx))
+            found.extend(fixed)
+            for pat, idx in wild:
+                if pat.regex.match(path):
+                    found.append((pat.specificity, idx))
+            # the one bucket key that depends on the file name: folder + its first character
+            for pat, idx in by_bucket.get(path[:cut + 1], ()):
+                if pat.regex.match(path):
+                    found.append((pat.specificity, idx))
             for pat, idx in exact.get(path, ()):
                 if not pat.text.endswith("/"):
                     found.append((pat.specificity, idx))
         if self.regexes:
             self._regex_hits(paths, hits)
         out = []
+        excludes, titles = self.excludes, self.titles
         for path, found in zip(paths, hits):
-            best, chosen = -1, set()
+            # the highest specificity among hits whose section does not exclude the
+            # path, and every such section with it: walk down from the top specificity
+            # and check exclusions only until a level keeps a section
+            found.sort(reverse=True)
+            chosen: set[int] = set()
+            best = -1
             for spec, idx in found:
-                if any(x.regex.match(path) for x in self.excludes.get(idx, ())):
+                if spec < best:
+                    break
+                ex = excludes.get(idx)
+                if ex and any(x.regex.match(path) for x in ex):
                     continue
-                if spec > best:
-                    best, chosen = spec, {idx}
-                elif spec == best:
-                    chosen.add(idx)
-            out.append(sorted({self.titles[i] for i in chosen}) if chosen else [UNMAPPED])
+                best = spec
+                chosen.add(idx)
+            out.append(sorted({titles[i] for i in chosen}) if chosen else [UNMAPPED])
         return out
+
+    def _folder_candidates(self, folder: str
+                           ) -> tuple[list[tuple[int, int]], list[tuple[Pattern, int]]]:
+        """What every path directly in ``folder`` (``""`` or ending in ``/``) shares: the
+        hits of literal patterns naming the folder or one above it, and the wildcard
+        patterns of every bucket key that lies inside the folder part of the path
+        (each bucket ``b``, and ``b`` plus the next character while that is still
+        in the folder)."""
+        fixed: list[tuple[int, int]] = []
+        wild: list[tuple[Pattern, int]] = []
+        for b in _buckets(folder):
+            wild.extend(self.by_bucket.get(b, ()))
+            if len(b) < len(folder):
+                wild.extend(self.by_bucket.get(folder[:len(b) + 1], ()))
+            if b:       # literal patterns naming this folder (or a file of that name)
+                fixed.extend((pat.specificity, idx) for pat, idx in self.exact.get(b[:-1], ()))
+        return fixed, wild
 
     def _regex_hits(self, paths: Sequence[str], hits: list[list[tuple[int, int]]]) -> None:
         """Leftmost match of every N: regex in every path: one ``finditer`` per regex over
