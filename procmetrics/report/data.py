@@ -17,7 +17,7 @@ import pandas as pd
 from sqlalchemy.engine import Engine
 
 from procmetrics.errors import ProcmetricsError
-from procmetrics.store.tables import COLUMNS, read_table
+from procmetrics.store.tables import COLUMNS, read_table, read_tables
 
 CHECKSUM_TABLES: tuple[str, ...] = tuple(
     sorted(t for t in COLUMNS if t not in ("mining_runs", "repositories")))
@@ -53,7 +53,8 @@ def choose_repo(engine: Engine, repo: str | None) -> str:
 
 def load_store_data(engine: Engine, repo: str) -> StoreData:
     """Every tidy table for ``repo``."""
-    return StoreData(repo, {name: read_table(engine, name, repo) for name in COLUMNS})
+    # one snapshot: a miner writing at the same time is never seen half-way
+    return StoreData(repo, read_tables(engine, COLUMNS, repo))
 
 
 def _canon(value: Any) -> str:

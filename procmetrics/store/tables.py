@@ -8,11 +8,12 @@ Dates are timezone-aware UTC ``Timestamp``; the original offset is kept in a
 """
 from __future__ import annotations
 
-from typing import Callable
+from contextlib import contextmanager
+from typing import Callable, Iterable, Iterator
 
 import pandas as pd
 from sqlalchemy import and_, case, func, select
-from sqlalchemy.engine import Engine
+from sqlalchemy.engine import Connection, Engine
 from sqlalchemy.sql import Select
 
 from procmetrics.errors import StoreError
@@ -68,10 +69,18 @@ def _to_utc(seconds: pd.Series) -> pd.Series:
     return pd.to_datetime(v, unit="s", utc=True)
 
 
-def _read(engine: Engine, stmt: Select, name: str) -> pd.DataFrame:
-    with engine.connect() as conn:
-        # one read transaction: a concurrent miner never shows half a batch
-        df = pd.read_sql(stmt, conn)
+def _complete_runs() -> Select:
+    """Run ids of completed mining runs: rows of a running or killed run stay hidden
+    until it completes (or the next run removes them)."""
+    return select(s.mining_run.c.run_id).where(s.mining_run.c.status == "complete")
+
+
+def _read(engine: Engine | Connection, stmt: Select, name: str) -> pd.DataFrame:
+    if isinstance(engine, Connection):
+        df = pd.read_sql(stmt, engine)
+    else:
+        with engine.connect() as conn:
+            df = pd.read_sql(stmt, conn)
     cols = COLUMNS[name]
     df = df.reindex(columns=cols)
     for c in cols:
@@ -121,7 +130,8 @@ def commits(engine: Engine, repo: str | None = None) -> pd.DataFrame:
         .outerjoin(rv, rv.c.commit_id == g.c.commit_id)
         .order_by(s.repository.c.name, g.c.committer_time, g.c.hash)
     )
-    df = _read(engine, _repo_filter(stmt, repo), "commits")
+    df = _read(engine, _repo_filter(stmt.where(g.c.run_id.in_(_complete_runs())), repo),
+               "commits")
     for col in ("n_files", "n_fix_refs", "n_resolved_fixes", "n_parents"):
         df[col] = df[col].astype("int64")
     for col in ("lines_added", "lines_deleted"):
@@ -142,7 +152,8 @@ def commit_subsystems(engine: Engine, repo: str | None = None) -> pd.DataFrame:
         .join(sub, sub.c.subsystem_id == ps.c.subsystem_id)
         .order_by(s.repository.c.name, g.c.hash, sub.c.name)
     )
-    return _read(engine, _repo_filter(stmt, repo), "commit_subsystems")
+    return _read(engine, _repo_filter(stmt.where(g.c.run_id.in_(_complete_runs())), repo),
+                 "commit_subsystems")
 
 
 def file_changes(engine: Engine, repo: str | None = None) -> pd.DataFrame:
@@ -155,7 +166,8 @@ def file_changes(engine: Engine, repo: str | None = None) -> pd.DataFrame:
         .join(s.repository, s.repository.c.repo_id == g.c.repo_id)
         .order_by(s.repository.c.name, g.c.hash, fc.c.path)
     )
-    df = _read(engine, _repo_filter(stmt, repo), "file_changes")
+    df = _read(engine, _repo_filter(stmt.where(g.c.run_id.in_(_complete_runs())), repo),
+               "file_changes")
     for col in ("lines_added", "lines_deleted"):
         df[col] = df[col].astype("Int64")
     return df
@@ -173,7 +185,8 @@ def trailers(engine: Engine, repo: str | None = None) -> pd.DataFrame:
         .outerjoin(p, p.c.person_id == t.c.person_id)
         .order_by(s.repository.c.name, g.c.hash, t.c.position)
     )
-    return _read(engine, _repo_filter(stmt, repo), "trailers")
+    return _read(engine, _repo_filter(stmt.where(g.c.run_id.in_(_complete_runs())), repo),
+                 "trailers")
 
 
 def fix_links(engine: Engine, repo: str | None = None) -> pd.DataFrame:
@@ -191,10 +204,12 @@ def fix_links(engine: Engine, repo: str | None = None) -> pd.DataFrame:
         .select_from(fl).join(g, g.c.commit_id == fl.c.commit_id)
         .join(s.repository, s.repository.c.repo_id == g.c.repo_id)
         .outerjoin(intro, and_(intro.c.repo_id == g.c.repo_id,
-                               intro.c.hash == fl.c.introducer_hash))
+                               intro.c.hash == fl.c.introducer_hash,
+                               intro.c.run_id.in_(_complete_runs())))
         .order_by(s.repository.c.name, g.c.committer_time, g.c.hash, fl.c.position)
     )
-    return _read(engine, _repo_filter(stmt, repo), "fix_links")
+    return _read(engine, _repo_filter(stmt.where(g.c.run_id.in_(_complete_runs())), repo),
+                 "fix_links")
 
 
 def reverts(engine: Engine, repo: str | None = None) -> pd.DataFrame:
@@ -206,7 +221,8 @@ def reverts(engine: Engine, repo: str | None = None) -> pd.DataFrame:
         .join(s.repository, s.repository.c.repo_id == g.c.repo_id)
         .order_by(s.repository.c.name, g.c.hash)
     )
-    return _read(engine, _repo_filter(stmt, repo), "reverts")
+    return _read(engine, _repo_filter(stmt.where(g.c.run_id.in_(_complete_runs())), repo),
+                 "reverts")
 
 
 def unparsed_references(engine: Engine, repo: str | None = None) -> pd.DataFrame:
@@ -217,7 +233,8 @@ def unparsed_references(engine: Engine, repo: str | None = None) -> pd.DataFrame
         .join(s.repository, s.repository.c.repo_id == g.c.repo_id)
         .order_by(s.repository.c.name, g.c.hash)
     )
-    return _read(engine, _repo_filter(stmt, repo), "unparsed_references")
+    return _read(engine, _repo_filter(stmt.where(g.c.run_id.in_(_complete_runs())), repo),
+                 "unparsed_references")
 
 
 def tags(engine: Engine, repo: str | None = None) -> pd.DataFrame:
@@ -261,7 +278,35 @@ READERS: dict[str, Callable[..., pd.DataFrame]] = {
 }
 
 
-def read_table(engine: Engine, name: str, repo: str | None = None) -> pd.DataFrame:
+@contextmanager
+def snapshot(engine: Engine) -> Iterator[Connection]:
+    """A connection whose reads all see one consistent state of the store.
+
+    SQLite (WAL): an explicit deferred ``BEGIN`` pins the snapshot at the first
+    read; PostgreSQL: a ``REPEATABLE READ`` transaction. A miner writing at the
+    same time is neither blocked nor seen half-way.
+    """
+    with engine.connect() as conn:
+        if engine.dialect.name == "sqlite":
+            conn.exec_driver_sql("BEGIN")
+        else:
+            conn = conn.execution_options(isolation_level="REPEATABLE READ")
+            conn.begin()
+        try:
+            yield conn
+        finally:
+            conn.rollback()
+
+
+def read_tables(engine: Engine, names: Iterable[str], repo: str | None = None
+                ) -> dict[str, pd.DataFrame]:
+    """Read several tidy tables from one consistent snapshot of the store."""
+    with snapshot(engine) as conn:
+        return {name: read_table(conn, name, repo) for name in names}
+
+
+def read_table(engine: Engine | Connection, name: str,
+               repo: str | None = None) -> pd.DataFrame:
     """Read one tidy table by name (see :data:`COLUMNS`)."""
     try:
         reader = READERS[name]

@@ -41,7 +41,7 @@ def _fill(engine) -> None:
              "is_shallow": False, "options_json": "{}", "versions_json": "{\"git\": \"2\"}",
              "n_commits": 4, "n_file_changes": 5, "n_trailers": 3, "n_fix_refs": 2,
              "message": None},
-            {"run_id": 2, "repo_id": 2, "status": "failed", "started_utc": FAR,
+            {"run_id": 2, "repo_id": 2, "status": "complete", "started_utc": FAR,
              "ended_utc": None, "ref": "trunk", "head_hash": None, "base_hash": H[4],
              "is_shallow": True, "options_json": "{}", "versions_json": "{}",
              "n_commits": None, "n_file_changes": None, "n_trailers": None,

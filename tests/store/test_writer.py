@@ -59,9 +59,13 @@ def test_cleanup_touches_only_the_unfinished_run_of_that_repository(sample_histo
     from procmetrics.store.writer import CommitRow
     w.write_batch(rid, run, [CommitRow("a" * 40, (), ("N", "n@x"), ("N", "n@x"), 0, 0, 0, 0,
                                        "s", "s", False, True, [], [], [], [], [])])
-    assert len(read_table(engine, "commits", "other")) == 1
+    def stored() -> int:    # raw rows: the tidy tables hide unfinished runs anyway
+        with engine.connect() as conn:
+            return conn.exec_driver_sql("SELECT count(*) FROM git_commit WHERE repo_id = ?",
+                                        (rid,)).scalar()
+    assert stored() == 1 and len(read_table(engine, "commits", "other")) == 0
     assert w.cleanup_incomplete(rid) == [run]
-    assert len(read_table(engine, "commits", "other")) == 0
+    assert stored() == 0
     after = _tables(engine, "sample")
     for name in TABLES:
         pd.testing.assert_frame_equal(before[name], after[name], obj=name)
