@@ -84,6 +84,7 @@ def mine_repository(path: str | os.PathLike[str], store: str | os.PathLike[str] 
     started = time.monotonic()
     git = GitRepo.open(path)
     tip = git.resolve_commit(opts.ref)
+    git = git.at_revision(tip)      # identities by the mined tip's .mailmap
     shallow = git.is_shallow()
     if shallow:
         warnings.warn(f"{git.path} is a shallow clone: history before the shallow boundary "
@@ -101,7 +102,8 @@ def mine_repository(path: str | os.PathLike[str], store: str | os.PathLike[str] 
         base = _decide_base(git, writer, repo_id, tip, opts)
         run_id = writer.start_run(repo_id, ref=opts.ref, head_hash=tip, base_hash=base,
                                   is_shallow=shallow, options_json=opts.to_json(),
-                                  versions_json=json.dumps(versions(git), sort_keys=True))
+                                  versions_json=json.dumps(environment(git, tip),
+                                                           sort_keys=True))
         try:
             with _few_collections():
                 counts = _load(git, writer, repo_id, run_id, tip, base, opts)
@@ -218,11 +220,11 @@ def _load(git: GitRepo, writer: StoreWriter, repo_id: int, run_id: int, tip: str
             for c in parse_log(git.stream(args)):
                 batch.append(commit_row(c))
                 if len(batch) >= opts.batch_size:
-                    _add(counts, writer.write_batch(repo_id, run_id, batch))
+                    _add(counts, writer.write_batch(repo_id, run_id, batch, durable=not bulk))
                     bar.update(len(batch))
                     batch = []
                     gc.collect(1)       # see _few_collections
-        _add(counts, writer.write_batch(repo_id, run_id, batch))
+        _add(counts, writer.write_batch(repo_id, run_id, batch, durable=not bulk))
         bar.update(len(batch))
     finally:
         bar.close()
@@ -335,6 +337,14 @@ def redact_url(url: str | None) -> str | None:
     if parts.port:
         host += f":{parts.port}"
     return urlunsplit(parts._replace(netloc=f"***@{host}"))
+
+
+def environment(git: GitRepo, tip: str) -> dict[str, str]:
+    """Tool versions plus the identity mapping git applied (``.mailmap`` at the tip)."""
+    out = versions(git)
+    found = git.blob_at(tip, ".mailmap")
+    out["identity_mapping"] = f".mailmap@{found[0]}" if found else "none"
+    return out
 
 
 def versions(git: GitRepo) -> dict[str, str]:

@@ -6,10 +6,18 @@ Indexes (``schema.INDEXES``) are dropped before the first bulk load into an
 empty store and rebuilt after it (``ensure_indexes`` also runs at the start of
 every run, so an interrupted first load gets them back). The unique
 (repo_id, hash) index stays: prefix look-ups need it.
+
+During that first load, batches are written with SQLite's ``synchronous=OFF``
+(no fsync when the write-ahead log is checkpointed); each batch's connection goes
+back to ``synchronous=NORMAL`` when its transaction ends. A killed process loses
+nothing that was committed (the operating system still writes it out); only an
+operating-system crash or power loss during a first load could damage the new
+store, and that store holds no completed run yet.
 """
 from __future__ import annotations
 
-from typing import Iterable, Sequence
+from contextlib import contextmanager
+from typing import Iterable, Iterator, Sequence
 
 from sqlalchemy import insert, select, update
 from sqlalchemy.engine import Connection, Engine
@@ -70,3 +78,23 @@ class BulkLoad:
             for ix in s.INDEXES:
                 conn.execute(DropIndex(ix, if_exists=True))
         return True
+
+    @contextmanager
+    def _batch_transaction(self, durable: bool = True) -> Iterator[Connection]:
+        """One transaction; ``durable=False`` (a first load): SQLite skips fsyncs in it."""
+        if durable or self.engine.dialect.name != "sqlite":
+            with self.engine.begin() as conn:
+                yield conn
+            return
+        with self.engine.connect() as conn:
+            conn.exec_driver_sql("PRAGMA synchronous=OFF")   # outside any transaction
+            conn.commit()
+            try:
+                with conn.begin():
+                    yield conn
+            finally:
+                try:
+                    conn.exec_driver_sql("PRAGMA synchronous=NORMAL")
+                    conn.commit()
+                except Exception:  # noqa: BLE001 - keep the first error; never reuse it
+                    conn.invalidate()

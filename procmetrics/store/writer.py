@@ -119,12 +119,12 @@ class StoreWriter(RunBook, LinkQueries, BulkLoad):
             p = s.person
             self._persons = {(n, e): i for i, n, e in
                              conn.execute(select(p.c.person_id, p.c.name, p.c.email))}
-        missing = sorted({x for x in people if x not in self._persons})
+        missing = sorted(set(people).difference(self._persons))
         if missing:     # another miner may have added them: refresh under the write lock
             p = s.person
             self._persons = {(n, e): i for i, n, e in
                              conn.execute(select(p.c.person_id, p.c.name, p.c.email))}
-            missing = sorted({x for x in people if x not in self._persons})
+            missing = sorted(set(people).difference(self._persons))
         if missing:
             p = s.person
             rows = conn.execute(
@@ -135,16 +135,18 @@ class StoreWriter(RunBook, LinkQueries, BulkLoad):
                 self._persons[(n, e)] = i
         return self._persons
 
-    def write_batch(self, repo_id: int, run_id: int, rows: Sequence[CommitRow]) -> dict:
-        """Insert one batch of commits and their child rows in one transaction."""
+    def write_batch(self, repo_id: int, run_id: int, rows: Sequence[CommitRow], *,
+                    durable: bool = True) -> dict:
+        """Insert one batch of commits and their child rows in one transaction
+        (``durable=False`` during a first load: see :mod:`procmetrics.store.bulkload`)."""
         counts = {"n_commits": len(rows), "n_file_changes": 0, "n_trailers": 0,
                   "n_fix_refs": 0}
         if not rows:
             return counts
-        people = [r.author for r in rows] + [r.committer for r in rows]
-        people += [t.person for r in rows for t in r.trailers if t.person]
+        people = {r.author for r in rows} | {r.committer for r in rows}
+        people.update(t.person for r in rows for t in r.trailers if t.person)
         try:
-            with self.engine.begin() as conn:
+            with self._batch_transaction(durable) as conn:
                 self._write_lock(conn)      # before max(commit_id): ids stay unique
                 ids = self._person_ids(conn, people)
                 next_id = (conn.execute(select(func.max(s.commit.c.commit_id))).scalar() or 0) + 1
