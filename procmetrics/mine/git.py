@@ -20,7 +20,7 @@ import shutil
 import subprocess
 import tempfile
 import threading
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Iterable, Iterator, Sequence
 
@@ -95,6 +95,14 @@ class GitRepo:
     git_dir: Path
     is_bare: bool
     version: tuple[int, ...]
+    # Once opened, git reads the repository like a bare one: nothing in the work tree
+    # (an edited .mailmap or .gitattributes, uncommitted files) changes what is mined.
+    # Identities are mapped by the .mailmap committed at this revision (HEAD by default).
+    mailmap_rev: str | None = None
+
+    def at_revision(self, rev: str) -> "GitRepo":
+        """The same repository with identities mapped by ``rev``'s ``.mailmap``."""
+        return replace(self, mailmap_rev=rev)
 
     # -- construction -------------------------------------------------------------------
     @classmethod
@@ -129,12 +137,17 @@ class GitRepo:
                         f"{given} is inside the repository at {top}; pass its top-level folder")
             else:   # e.g. the .git folder of a work tree: read it like a bare repository
                 is_bare = True
-        return cls(top, git_dir, is_bare, version)
+        return cls(top, git_dir, is_bare, version, mailmap_rev="HEAD")
 
     # -- running ------------------------------------------------------------------------
     def argv(self, args: Sequence[str]) -> list[str]:
-        cmd = ["git", "--no-pager", "--no-replace-objects", "-C", str(self.path),
+        isolated = self.mailmap_rev is not None   # opened: no work tree, tip's .mailmap
+        cmd = ["git", "--no-pager", "--no-replace-objects",
+               "-C", str(self.git_dir if isolated else self.path),
                "-c", f"safe.directory={self.path}", "-c", f"safe.directory={self.git_dir}"]
+        if isolated:
+            cmd += ["--git-dir", str(self.git_dir), "-c", "core.bare=true",
+                    "-c", f"mailmap.blob={self.mailmap_rev}:.mailmap"]
         for item in _PINNED_CONFIG:
             cmd += ["-c", item]
         return cmd + list(args)

@@ -84,7 +84,6 @@ def mine_repository(path: str | os.PathLike[str], store: str | os.PathLike[str] 
     started = time.monotonic()
     git = GitRepo.open(path)
     tip = git.resolve_commit(opts.ref)
-    git = git.at_revision(tip)      # identities by the mined tip's .mailmap
     shallow = git.is_shallow()
     if shallow:
         warnings.warn(f"{git.path} is a shallow clone: history before the shallow boundary "
@@ -100,10 +99,14 @@ def mine_repository(path: str | os.PathLike[str], store: str | os.PathLike[str] 
         writer.ensure_indexes()
         cleaned = writer.cleanup_incomplete(repo_id)
         base = _decide_base(git, writer, repo_id, tip, opts)
+        env = environment(git, tip)
+        if base is not None and _identity_mapping_changed(writer.environments(repo_id),
+                                                          env, opts):
+            writer.delete_repository_data(repo_id, "re-mined: the .mailmap changed")
+            base = None
         run_id = writer.start_run(repo_id, ref=opts.ref, head_hash=tip, base_hash=base,
                                   is_shallow=shallow, options_json=opts.to_json(),
-                                  versions_json=json.dumps(environment(git, tip),
-                                                           sort_keys=True))
+                                  versions_json=json.dumps(env, sort_keys=True))
         try:
             with _few_collections():
                 counts = _load(git, writer, repo_id, run_id, tip, base, opts)
@@ -308,12 +311,27 @@ def build_mapper(git: GitRepo, tip: str, opts: MineOptions) -> PathMapper:
 
 def _map_paths(writer: StoreWriter, repo_id: int, run_id: int, mapper: PathMapper,
                chunk: int = 5000) -> None:
-    """Map the paths no stored mapping covers yet; everything when the mapping changed."""
+    """Map the paths no stored mapping covers yet; everything when the mapping changed.
+
+    A changed mapping (e.g. a new MAINTAINERS blob, as after most upstream merges)
+    maps every touched path again but rewrites only the paths whose subsystems
+    differ, so an incremental run does not rewrite the whole mapping table.
+    """
     if writer.mapping_of(repo_id) != (mapper.kind, mapper.source):
-        writer.clear_mapping(repo_id)
-        paths = writer.unmapped_paths(repo_id)
-    else:
-        paths = writer.unmapped_paths(repo_id, run_id)
+        old = writer.stored_mapping(repo_id)
+        paths = writer.touched_paths(repo_id)
+        for i in range(0, len(paths), chunk):
+            part = paths[i:i + chunk]
+            changed = [(p, names) for p, names in zip(part, mapper.map_many(part))
+                       if old.get(p) != names]
+            if changed:
+                writer.remap_paths(repo_id, changed)
+        gone = sorted(set(old).difference(paths))
+        if gone:
+            writer.remap_paths(repo_id, [(p, []) for p in gone])
+        writer.drop_unused_subsystems(repo_id)
+        return
+    paths = writer.unmapped_paths(repo_id, run_id)
     for i in range(0, len(paths), chunk):        # bounded memory on large histories
         part = paths[i:i + chunk]
         writer.add_path_subsystems(repo_id, list(zip(part, mapper.map_many(part))))
@@ -339,10 +357,31 @@ def redact_url(url: str | None) -> str | None:
     return urlunsplit(parts._replace(netloc=f"***@{host}"))
 
 
+def _identity_mapping_changed(previous: list[str], env: dict[str, str],
+                              opts: MineOptions) -> bool:
+    """True when the .mailmap changed and ``remine`` asks to map every commit again.
+
+    An incremental run maps only the new commits; without ``remine`` the change is
+    reported as a data-quality warning and the stored commits keep their identities.
+    """
+    seen = {json.loads(p).get("identity_mapping") for p in previous} - {None}
+    if not seen or seen == {env["identity_mapping"]}:
+        return False
+    before = ", ".join(sorted(seen))
+    if opts.rewrite_policy == "remine":
+        return True
+    warnings.warn(f"the .mailmap changed since the last run ({before} -> "
+                  f"{env['identity_mapping']}): commits stored earlier keep the old "
+                  "identities; run again with --rewrite-policy remine to map every commit "
+                  "the same way", DataQualityWarning, stacklevel=3)
+    return False
+
+
 def environment(git: GitRepo, tip: str) -> dict[str, str]:
-    """Tool versions plus the identity mapping git applied (``.mailmap`` at the tip)."""
+    """Tool versions plus the identity mapping git applied (the ``.mailmap`` committed
+    at the revision ``git.mailmap_rev``, HEAD by default; never the work tree's)."""
     out = versions(git)
-    found = git.blob_at(tip, ".mailmap")
+    found = git.blob_at(git.mailmap_rev or "HEAD", ".mailmap")
     out["identity_mapping"] = f".mailmap@{found[0]}" if found else "none"
     return out
 

@@ -84,7 +84,14 @@ def identities(data: StoreData) -> dict[str, Any]:
     row = repos.iloc[0] if len(repos) else None
     subs = data["commit_subsystems"]
     with_sub = subs["hash"].nunique() if len(subs) else 0
+    runs = data["mining_runs"]
+    done = runs[runs["status"] == "complete"]
+    mailmap = None
+    if len(done):
+        env = json.loads(done.iloc[-1]["versions_json"] or "{}")
+        mailmap = env.get("identity_mapping")       # None: mined before this was recorded
     return {
+        "identity_mapping": mailmap,
         "n_identities": int(len(pairs)),
         "n_names": int(pairs["author_name"].nunique()),
         "n_emails": int(pairs["author_email"].nunique()),

@@ -148,13 +148,15 @@ def section_quality(ctx: BuildContext) -> None:
                                 "committer dates; late-applied patches make author-date "
                                 "lifetimes longer."))
     mapping = ids["subsystem_mapping"] or "not recorded"
-    s.p(f"People are identified by name and e-mail as written in the commits: "
+    s.p(f"People are identified by name and e-mail address: "
         f"{ids['n_identities']:,} distinct pairs, {ids['n_names']:,} names and "
         f"{ids['n_emails']:,} e-mail addresses; {ids['n_names_with_several_emails']:,} names "
         f"appear with several addresses and {ids['n_emails_with_several_names']:,} addresses "
-        "with several names. No merging of identities was applied, so “independent review” "
-        "(reviewer's address differs from the author's) may count a person reviewing their "
-        f"own change under another address. Subsystems come from the mapping “{mapping}”"
+        f"with several names. {_identity_words(ids['identity_mapping'])} “Independent "
+        "review” compares the reviewer's address with the author's, so a person reviewing "
+        "their own change under an unmapped second address still counts as independent; "
+        "names in trailers are taken as written. "
+        f"Subsystems come from the mapping “{mapping}”"
         + (f" ({ids['subsystem_mapping_source']})" if ids["subsystem_mapping_source"] else "")
         + f"; {ids['n_commits_without_subsystem']:,} commits touch no mapped subsystem.")
     fu = q["first_use"]
@@ -212,3 +214,14 @@ def _unresolved_table(ctx: BuildContext, s: Any) -> None:
          ("reference", "Reference as written"), ("status", "Status")], out,
         note="Text as written in the repository. Typical causes: a hash of a commit amended "
              "before merging, a commit of another project, a typing error, or a shallow clone."))
+
+
+def _identity_words(mapping: str | None) -> str:
+    """Plain words for the identity mapping git applied while mining."""
+    if mapping is None:
+        return "Whether a .mailmap was applied was not recorded by this store's mining run."
+    if mapping == "none":
+        return "The repository has no .mailmap, so no identities were merged."
+    return (f"Author and committer identities were merged by the repository's own .mailmap "
+            f"({mapping.split('@', 1)[-1][:12]}), as git itself does.")
+

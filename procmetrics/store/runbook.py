@@ -41,6 +41,14 @@ class RunBook:
                 .order_by(m.c.run_id.desc()).limit(1)).scalar()
         return tip, opts
 
+    def environments(self, repo_id: int) -> list[str]:
+        """Environment JSON (versions, identity mapping) of every complete run whose rows
+        are in the store, oldest first."""
+        m = s.mining_run
+        with self.engine.connect() as conn:
+            return [r[0] or "{}" for r in conn.execute(select(m.c.versions_json).where(
+                m.c.repo_id == repo_id, m.c.status == "complete").order_by(m.c.run_id))]
+
     def start_run(self, repo_id: int, *, ref: str, head_hash: str, base_hash: str | None,
                   is_shallow: bool, options_json: str, versions_json: str) -> int:
         with self.engine.begin() as conn:

@@ -190,6 +190,9 @@ def test_self_and_cyclic_fix_references(tmp_path):
     w.write_batch(repo_id, run_id, [row(x, (), [y], 0), row(y, (x,), [x], 1),
                                     row(z, (y,), [z], 2)])
     resolve_links(None, w, repo_id, run_id, z)
+    w.complete_run(run_id, repo_id, tip_hash=z, tip_ref="HEAD", path=str(tmp_path),
+                   remote_url=None, is_shallow=False, mapping_kind="path-prefix",
+                   mapping_source="1", counts={}, message=None)   # tidy tables: complete runs
     fl = read_table(engine, "fix_links").set_index("fix_hash")
     assert fl.loc[x, "status"] == "resolved" and fl.loc[x, "introducer_hash"] == y
     assert fl.loc[y, "status"] == "resolved" and fl.loc[y, "introducer_hash"] == x

@@ -161,6 +161,9 @@ def test_store_round_trip_of_arbitrary_text(rows):
             [FileRow(p, None, "A", n, 0, False) for p, n in dict(files).items()],
             [TrailerRow(k, k, v, None) for k, v in trailers], [], [], []))
     w.write_batch(rid, run, batch)
+    w.complete_run(run, rid, tip_hash=rows[0][0], tip_ref="HEAD", path="/nowhere",
+                   remote_url=None, is_shallow=False, mapping_kind="path-prefix",
+                   mapping_source="1", counts={}, message=None)   # tidy tables: complete runs
     commits = read_table(engine, "commits").set_index("hash")
     fc = read_table(engine, "file_changes")
     tr = read_table(engine, "trailers")
