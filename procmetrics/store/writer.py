@@ -33,7 +33,7 @@ from sqlalchemy import delete, exists, func, insert, select
 from sqlalchemy.engine import Connection, Engine
 
 from procmetrics.store import schema as s
-from procmetrics.store.bulkload import BulkLoad, _bulk_insert
+from procmetrics.store.bulkload import BulkLoad, _bulk_insert, _chunks
 from procmetrics.store.linkstore import LinkQueries, LinkRow
 from procmetrics.store.runbook import RunBook
 
@@ -210,21 +210,64 @@ class StoreWriter(RunBook, LinkQueries, BulkLoad):
         with self.engine.connect() as conn:
             return sorted(conn.execute(stmt).scalars())
 
+    def touched_paths(self, repo_id: int) -> list[str]:
+        """Every path a stored commit of the repository touches (sorted)."""
+        g, fc = s.commit, s.file_change
+        stmt = (select(fc.c.path).distinct().select_from(fc)
+                .join(g, g.c.commit_id == fc.c.commit_id).where(g.c.repo_id == repo_id))
+        with self.engine.connect() as conn:
+            return sorted(conn.execute(stmt).scalars())
+
+    def stored_mapping(self, repo_id: int) -> dict[str, list[str]]:
+        """path -> sorted subsystem names, as stored."""
+        ps, sub = s.path_subsystem, s.subsystem
+        out: dict[str, list[str]] = {}
+        with self.engine.connect() as conn:
+            for path, name in conn.execute(
+                    select(ps.c.path, sub.c.name)
+                    .join(sub, sub.c.subsystem_id == ps.c.subsystem_id)
+                    .where(ps.c.repo_id == repo_id)):
+                out.setdefault(path, []).append(name)
+        for names in out.values():
+            names.sort()
+        return out
+
+    def remap_paths(self, repo_id: int, pairs: Sequence[tuple[str, Sequence[str]]]) -> None:
+        """Replace the subsystem rows of the given paths (no names: the path's rows go)."""
+        ps = s.path_subsystem
+        with self.engine.begin() as conn:
+            for part in _chunks([p for p, _ in pairs]):
+                conn.execute(delete(ps).where(ps.c.repo_id == repo_id, ps.c.path.in_(part)))
+            self._insert_path_subsystems(conn, repo_id, [x for x in pairs if x[1]])
+
+    def drop_unused_subsystems(self, repo_id: int) -> None:
+        """Delete subsystems no path maps to (an uncorrelated NOT IN: one pass over the
+        mapping, not one per subsystem - path_subsystem has no subsystem_id index)."""
+        ps, sub = s.path_subsystem, s.subsystem
+        used = select(ps.c.subsystem_id).where(ps.c.repo_id == repo_id).distinct()
+        with self.engine.begin() as conn:
+            conn.execute(delete(sub).where(sub.c.repo_id == repo_id,
+                                           sub.c.subsystem_id.not_in(used)))
+
     def add_path_subsystems(self, repo_id: int, pairs: Sequence[tuple[str, Sequence[str]]]
                             ) -> None:
-        sub = s.subsystem
         with self.engine.begin() as conn:
-            known = dict(conn.execute(select(sub.c.name, sub.c.subsystem_id)
-                                      .where(sub.c.repo_id == repo_id)).all())
-            new = sorted({n for _, names in pairs for n in names} - set(known))
-            if new:
-                for sid, name in conn.execute(
-                        insert(sub).returning(sub.c.subsystem_id, sub.c.name,
-                                              sort_by_parameter_order=True),
-                        [{"repo_id": repo_id, "name": n} for n in new]):
-                    known[name] = sid
-            rows = [(repo_id, p, known[n]) for p, names in pairs for n in names]
-            _bulk_insert(conn, s.path_subsystem, ("repo_id", "path", "subsystem_id"), rows)
+            self._insert_path_subsystems(conn, repo_id, pairs)
+
+    def _insert_path_subsystems(self, conn: Connection, repo_id: int,
+                                pairs: Sequence[tuple[str, Sequence[str]]]) -> None:
+        sub = s.subsystem
+        known = dict(conn.execute(select(sub.c.name, sub.c.subsystem_id)
+                                  .where(sub.c.repo_id == repo_id)).all())
+        new = sorted({n for _, names in pairs for n in names} - set(known))
+        if new:
+            for sid, name in conn.execute(
+                    insert(sub).returning(sub.c.subsystem_id, sub.c.name,
+                                          sort_by_parameter_order=True),
+                    [{"repo_id": repo_id, "name": n} for n in new]):
+                known[name] = sid
+        rows = [(repo_id, p, known[n]) for p, names in pairs for n in names]
+        _bulk_insert(conn, s.path_subsystem, ("repo_id", "path", "subsystem_id"), rows)
 
     # -- summary ------------------------------------------------------------------------
     def totals(self, repo_id: int) -> dict[str, object]:

@@ -158,3 +158,30 @@ def test_stream_stopped_early_ends_git_and_reader(tmp_path):
     assert next(chunks)
     chunks.close()      # the consumer stops: git is killed, the thread ends
     assert not [t for t in threading.enumerate() if t.name == "git-reader"]
+
+
+def test_changed_mapping_rewrites_only_what_moved(tmp_path):
+    """A new rules file between runs: the step-wise store equals a store mined once, and
+    subsystems nothing maps to any more are gone from the store."""
+    from sqlalchemy import text
+
+    from procmetrics.mine import MineOptions, mine_repository
+    from procmetrics.store import open_store
+    from procmetrics.store.tables import read_table
+    h = GitHistory.create(tmp_path / "r")
+    h.commit("init\n", files={"net/a.c": "a\n", "fs/b.c": "b\n", "fs/c.c": "c\n"})
+    first, second = tmp_path / "one.toml", tmp_path / "two.toml"
+    first.write_text('[subsystems]\nnet = "net/"\nfiles = "fs/"\n')
+    second.write_text('[subsystems]\nnet = "net/"\nfs-b = "fs/b.c"\n')
+    step, once = open_store(tmp_path / "s.sqlite"), open_store(tmp_path / "o.sqlite")
+    mine_repository(h.path, store=step, options=MineOptions(progress=False,
+                                                             subsystem_rules=first))
+    h.commit("more\n", files={"net/d.c": "d\n"})
+    opts = MineOptions(progress=False, subsystem_rules=second)
+    mine_repository(h.path, store=step, options=opts)
+    mine_repository(h.path, store=once, options=opts)
+    a, b = read_table(step, "commit_subsystems"), read_table(once, "commit_subsystems")
+    assert a.equals(b) and set(a["subsystem"]) == {"net", "fs-b", "(unmapped)"}
+    with step.connect() as conn:
+        names = set(conn.execute(text("SELECT name FROM subsystem")).scalars())
+    assert names == {"net", "fs-b", "(unmapped)"}
