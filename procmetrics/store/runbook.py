@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import time
 
-from sqlalchemy import delete, exists, insert, or_, select, update
+from sqlalchemy import delete, insert, or_, select, update
 from sqlalchemy.engine import Connection, Engine
 
 from procmetrics.store import schema as s
@@ -128,5 +128,7 @@ class RunBook:
                 .where(g.c.repo_id == repo_id))
         with self.engine.begin() as conn:
             conn.execute(delete(ps).where(ps.c.repo_id == repo_id, ps.c.path.not_in(used)))
-            conn.execute(delete(sub).where(sub.c.repo_id == repo_id, ~exists().where(
-                ps.c.subsystem_id == sub.c.subsystem_id)))
+            # uncorrelated NOT IN: one pass over the mapping, not one per subsystem
+            mapped = select(ps.c.subsystem_id).where(ps.c.repo_id == repo_id).distinct()
+            conn.execute(delete(sub).where(sub.c.repo_id == repo_id,
+                                           sub.c.subsystem_id.not_in(mapped)))
