@@ -122,12 +122,14 @@ def store_flags(quality: dict[str, Any], *, unresolved_limit: float,
             "store"))
     clock = quality["clock"]
     n = clock["n_commits"]
-    bad = clock["n_author_after_committer"] + clock["n_fix_before_introducer"]
+    bad = (clock["n_author_after_committer"] + clock["n_fix_before_introducer"]
+           + clock.get("n_before_1990", 0) + clock.get("n_after_mining", 0))
     if n and bad / n > CLOCK_SKEW_LIMIT:
         out["all"].append(Flag(
             "clock_skew", "warn", "all",
             f"{bad} commits or fix links have inconsistent dates (author after committer, "
-            f"or fix before its introducer), more than {CLOCK_SKEW_LIMIT:.0%} of {n}", "store"))
+            f"fix before its introducer, before 1990 or in the future), more than "
+            f"{CLOCK_SKEW_LIMIT:.0%} of {n}", "store"))
     return out
 
 

@@ -16,6 +16,8 @@ from procmetrics.report.data import StoreData
 
 #: author date later than committer date by more than this counts as clock skew
 SKEW_TOLERANCE = pd.Timedelta(hours=1)
+#: dates before this are implausible for a version-controlled change (common practice)
+EARLIEST_PLAUSIBLE = pd.Timestamp("1990-01-01", tz="UTC")
 #: committer date later than author date by more than this: applied late
 LATE_APPLY = pd.Timedelta(days=30)
 #: trailer keys that count as evidence of review
@@ -58,7 +60,16 @@ def clock_skew(data: StoreData) -> dict[str, Any]:
     fl = data["fix_links"]
     res = fl[fl["status"] == "resolved"]
     backwards = int((res["fix_author_date"] < res["intro_author_date"]).sum())
+    dates = c[["author_date", "committer_date"]]
+    runs = data["mining_runs"]
+    mined_at = runs["ended"].max() if len(runs) else pd.NaT
+    early = (dates < EARLIEST_PLAUSIBLE).any(axis=1)
+    future = ((dates > mined_at).any(axis=1) if pd.notna(mined_at)
+              else pd.Series(False, index=c.index))
     return {
+        "n_before_1990": int(early.sum()),
+        "n_after_mining": int(future.sum()),
+        "n_unreadable_date": int(dates.isna().any(axis=1).sum()),
         "n_commits": int(len(c)),
         "n_author_after_committer": int(ahead.sum()),
         "n_applied_late": int(late.sum()),

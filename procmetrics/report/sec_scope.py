@@ -140,6 +140,12 @@ def section_quality(ctx: BuildContext) -> None:
          "count": clock["n_applied_late"]},
         {"check": "fix dated before the commit it fixes (author dates)",
          "count": clock["n_fix_before_introducer"]},
+        {"check": "dated before 1990 (author or committer date)",
+         "count": clock["n_before_1990"]},
+        {"check": "dated after the store's last mining run ended (in the future)",
+         "count": clock["n_after_mining"]},
+        {"check": "date git could not read (stored without it)",
+         "count": clock["n_unreadable_date"]},
     ]
     rep.add_table(s, Table("date-checks", "Date consistency.", [("check", "Check"),
                                                                  ("count", "Commits")],

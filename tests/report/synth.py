@@ -87,8 +87,9 @@ def synth(*, seed: int = 1, n_commits: int = 1200, days: int = 1460,
     commits["n_fix_refs"] = commits["hash"].map(n_refs).fillna(0).astype("int64")
     commits["n_resolved_fixes"] = commits["hash"].map(n_res).fillna(0).astype("int64")
     head = hashes[-1]
-    runs = [{"repo": "synthrepo", "run_id": 1, "status": "complete", "started": START,
-             "ended": START, "ref": "HEAD", "head_hash": head, "base_hash": None,
+    mined_at = pd.to_datetime(commits["committer_date"], utc=True).max() + pd.Timedelta(days=1)
+    runs = [{"repo": "synthrepo", "run_id": 1, "status": "complete", "started": mined_at,
+             "ended": mined_at, "ref": "HEAD", "head_hash": head, "base_hash": None,
              "is_shallow": shallow, "options_json": json.dumps({"line_counts": True}),
              "versions_json": "{}", "n_commits": n_commits, "n_file_changes": n_commits,
              "n_trailers": len(trailers), "n_fix_refs": len(fix_links), "message": None}]

@@ -69,6 +69,26 @@ def test_clock_skew():
     assert "clock_skew" not in codes(sflags(data))
 
 
+@pytest.mark.parametrize("shift", [pd.Timestamp("1985-06-01", tz="UTC"), "future"])
+def test_implausible_dates_are_counted_and_flagged(shift):
+    # constructed data: 5% of commits dated before 1990, or after the mining run ended
+    data = synth(seed=13)
+    c = data["commits"].copy()
+    rows = c.index[:60]
+    if shift == "future":
+        ended = data["mining_runs"]["ended"].max()
+        c.loc[rows, "committer_date"] = ended + pd.Timedelta(days=400)
+        c.loc[rows, "author_date"] = ended + pd.Timedelta(days=400)
+    else:
+        c.loc[rows, "author_date"] = shift
+        c.loc[rows, "committer_date"] = shift
+    d2 = type(data)(data.repo, {**data.tables, "commits": c})
+    clock = ql.clock_skew(d2)
+    key = "n_after_mining" if shift == "future" else "n_before_1990"
+    assert clock[key] == 60 and ql.clock_skew(data)[key] == 0
+    assert "clock_skew" in codes(sflags(d2))
+
+
 # -- from results -----------------------------------------------------------------------
 def test_result_caveats_and_failed_checks_become_flags():
     est = Estimate("x", 1.0, 0.5, 2.0, 0.95, "m", 10, extrapolated=True)
