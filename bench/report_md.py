@@ -89,9 +89,11 @@ def render(res: dict) -> str:
     mem = res.get("memory")
     if mem:
         out += ["", "### Peak memory as the history grows (paths only)", "",
-                "| commits on the mined ref | peak RSS | mining time |", "|---|---|---|"]
+                "| commits on the mined ref | peak RSS, procmetrics + git | procmetrics process "
+                "alone | mining time |", "|---|---|---|---|"]
         for k in sorted(mem, key=int):
             out.append(f"| {int(k):,} | {_fmt(mem[k].get('peak_rss_mib'), ' MiB')} | "
+                       f"{_fmt(mem[k].get('peak_rss_main_mib'), ' MiB')} | "
                        f"{_fmt(mem[k].get('seconds'), ' s')} |")
     if an:
         out += ["", "### Analyses on the line-count store", "",

@@ -93,7 +93,7 @@ class Peak:
     """Sample the summed RSS of a process tree (procmetrics + its git children)."""
 
     def __init__(self, pid: int, interval: float = 0.05) -> None:
-        self.pid, self.interval, self.peak = pid, interval, 0
+        self.pid, self.interval, self.peak, self.peak_root = pid, interval, 0, 0
         self._stop = threading.Event()
         self._t = threading.Thread(target=self._run, daemon=True)
         self._t.start()
@@ -109,9 +109,12 @@ class Peak:
                 rss = 0
                 for p in procs:
                     try:
-                        rss += p.memory_info().rss
+                        one = p.memory_info().rss
                     except psutil.NoSuchProcess:
-                        pass
+                        continue
+                    rss += one
+                    if p.pid == self.pid:   # git's RSS includes its mapped pack files
+                        self.peak_root = max(self.peak_root, one)
                 self.peak = max(self.peak, rss)
             except psutil.NoSuchProcess:
                 return
@@ -140,6 +143,7 @@ def timed(argv: list[str], *, env: dict[str, str] | None = None,
     seconds = time.perf_counter() - start
     rss = peak.stop()
     out = {"seconds": round(seconds, 3), "peak_rss_mib": round(rss / 2**20, 1),
+           "peak_rss_main_mib": round(peak.peak_root / 2**20, 1),
            "exit_code": proc.returncode}
     if proc.returncode != 0:
         out["stderr"] = err.decode("utf-8", "replace")[-2000:]
@@ -150,6 +154,7 @@ def median_of(runs: list[dict[str, object]]) -> dict[str, object]:
     ok = [r for r in runs if r["exit_code"] == 0] or runs
     return {"seconds": round(statistics.median(r["seconds"] for r in ok), 3),
             "peak_rss_mib": round(max(r["peak_rss_mib"] for r in ok), 1),
+            "peak_rss_main_mib": round(max(r.get("peak_rss_main_mib", 0) for r in ok), 1),
             "runs": [r["seconds"] for r in runs], "exit_code": max(r["exit_code"] for r in runs),
             **({"stderr": runs[-1]["stderr"]} if "stderr" in runs[-1] else {})}
 
@@ -319,10 +324,12 @@ def main(argv: list[str] | None = None) -> int:
                 print(f"memory at {p} commits ...", file=sys.stderr)
                 r, st = mined_pair(repo, f"prefix/{p}", work, lines=False, repeats=1)
                 res["memory"][str(p)] = {"peak_rss_mib": r["peak_rss_mib"],
+                                         "peak_rss_main_mib": r["peak_rss_main_mib"],
                                          "seconds": r["seconds"]}
                 st.unlink()
                 save(args.out, n, res)
             res["memory"][str(n)] = {"peak_rss_mib": paths["peak_rss_mib"],
+                                     "peak_rss_main_mib": paths["peak_rss_main_mib"],
                                      "seconds": paths["seconds"]}
         if "incremental" not in args.skip:
             print("incremental mining of 1,000 commits ...", file=sys.stderr)
