@@ -35,7 +35,7 @@ Proportions carry Wilson intervals, counts exact Poisson intervals.
 from __future__ import annotations
 
 import re
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
@@ -44,6 +44,8 @@ import pandas as pd
 from procmetrics.analyse import intervals as iv
 from procmetrics.analyse.periods import assign_periods, period_midpoints, years_since
 from procmetrics.analyse.result import Caveat, caveat, to_plain
+from procmetrics.analyse.selection import (SubsystemSelection, select_subsystems,
+                                           subsystem_counts)
 from procmetrics.errors import InsufficientData
 
 from procmetrics.analyse.vocabulary import (  # noqa: E402 - re-exported names
@@ -66,6 +68,15 @@ class MetricConfig:
     metrics: tuple[str, ...] | None = None
     alpha: float = 0.05
     adoption_window_share: float = 0.5
+    #: subsystems on their own when none are named (see analyse/selection.py):
+    #: all when at most ``subsystem_all_up_to``, else the ``subsystem_limit``
+    #: largest with >= ``subsystem_min_commits`` commits in every segment
+    subsystem_limit: int = 12
+    subsystem_min_commits: int = 30
+    subsystem_all_up_to: int = 20
+    #: one "(all)" series per repository and subsystems keyed by (repo, subsystem);
+    #: the table then has a leading ``repo`` column
+    by_repo: bool = False
 
     def to_dict(self) -> dict[str, Any]:
         return to_plain(self)
@@ -81,14 +92,20 @@ class PeriodMetrics:
     n_merges_excluded: int
     periods: pd.DataFrame
     caveats: tuple[Caveat, ...] = field(default=())
+    #: which subsystems have rows (None when no commit_subsystems were given)
+    selection: SubsystemSelection | None = None
 
     def to_dict(self) -> dict[str, Any]:
         return to_plain(self)
 
-    def series(self, metric: str, subsystem: str = ALL) -> pd.DataFrame:
-        """Rows of one metric for one subsystem, in time order."""
+    def series(self, metric: str, subsystem: str = ALL, repo: str | None = None
+               ) -> pd.DataFrame:
+        """Rows of one metric for one subsystem (and repository when ``by_repo``)."""
         t = self.table
-        return t[(t["metric"] == metric) & (t["subsystem"] == subsystem)].reset_index(drop=True)
+        keep = (t["metric"] == metric) & (t["subsystem"] == subsystem)
+        if repo is not None:
+            keep &= t["repo"] == repo
+        return t[keep].reset_index(drop=True)
 
 
 def _true(s: pd.Series) -> np.ndarray:
@@ -152,20 +169,41 @@ def commit_flags(commits: pd.DataFrame, trailers: pd.DataFrame,
 
 
 def _expand_subsystems(flags: pd.DataFrame, commit_subsystems: pd.DataFrame | None,
-                       wanted: tuple[str, ...] | None) -> pd.DataFrame:
+                       config: MetricConfig, split_at: pd.Timestamp | None,
+                       extra: tuple[str, ...] = ()
+                       ) -> tuple[pd.DataFrame, SubsystemSelection | None]:
+    """Long table: every commit under "(all)" plus one row per chosen subsystem it touched.
+
+    Subsystems are chosen once (:func:`select_subsystems`) and joined in one
+    merge, so the cost follows the subsystems shown, not those in the store.
+    """
     parts = [flags.assign(subsystem=ALL)]
+    selection = None
     if commit_subsystems is not None and len(commit_subsystems):
-        cs = commit_subsystems[["repo", "hash", "subsystem"]].drop_duplicates()
-        if wanted is not None:
-            cs = cs[cs["subsystem"].isin(wanted)]
+        counts = subsystem_counts(flags, commit_subsystems, split_at=split_at,
+                                  by_repo=config.by_repo)
+        selection = select_subsystems(counts, named=config.subsystems,
+                                      limit=config.subsystem_limit,
+                                      min_commits=config.subsystem_min_commits,
+                                      all_up_to=config.subsystem_all_up_to)
+        chosen = selection.counts.loc[selection.counts["chosen"], ["repo", "subsystem"]
+                                      if config.by_repo else ["subsystem"]]
+        cs = commit_subsystems[["repo", "hash", "subsystem"]]
+        names = set(chosen["subsystem"]) | set(extra)
+        cs = cs[cs["subsystem"].isin(names)].drop_duplicates()
+        if config.by_repo:
+            cs = cs.merge(pd.concat([chosen, cs.loc[cs["subsystem"].isin(extra),
+                                                    ["repo", "subsystem"]]]).drop_duplicates(),
+                          on=["repo", "subsystem"], how="inner")
         parts.append(flags.merge(cs, on=["repo", "hash"], how="inner"))
-    return pd.concat(parts, ignore_index=True)
+    return pd.concat(parts, ignore_index=True), selection
 
 
 def _rows(agg: pd.DataFrame, metric: str, num: str | None, den: str | None,
           alpha: float) -> pd.DataFrame:
     kind = METRICS[metric]
-    out = agg[["period", "period_start", "period_end", "subsystem"]].copy()
+    lead = ["repo"] if "repo" in agg.columns else []
+    out = agg[lead + ["period", "period_start", "period_end", "subsystem"]].copy()
     out["metric"] = metric
     n = agg["n"].to_numpy(dtype=float)
     if kind == "proportion":
@@ -223,22 +261,32 @@ def _churn_stats(x: pd.Series, alpha: float) -> pd.Series:
 def compute_period_metrics(commits: pd.DataFrame, trailers: pd.DataFrame, *,
                            commit_subsystems: pd.DataFrame | None = None,
                            tags: pd.DataFrame | None = None,
-                           config: MetricConfig = MetricConfig()) -> PeriodMetrics:
+                           config: MetricConfig = MetricConfig(),
+                           split_at: pd.Timestamp | None = None,
+                           extra_subsystems: tuple[str, ...] = ()) -> PeriodMetrics:
     """Compute every process metric per period and subsystem.
 
     Parameters
     ----------
     commits, trailers : tidy tables (columns as in ``store.tables.COLUMNS``).
     commit_subsystems : optional tidy table; without it only ``"(all)"`` is given.
+        Which subsystems get rows follows :mod:`procmetrics.analyse.selection`
+        (the ones named in ``config.subsystems``, else all when there are at most
+        ``config.subsystem_all_up_to``, else the ``config.subsystem_limit``
+        largest with enough commits); ``selection`` on the result says which.
     tags : tidy ``tags`` table, needed for ``config.period == "release"``.
     config : :class:`MetricConfig`.
+    split_at : a policy date; the minimum-commits rule then applies to each
+        side of it (segments), not to the whole window.
+    extra_subsystems : given rows whatever the rule says (e.g. a control series).
 
     Returns
     -------
     PeriodMetrics
-        ``table`` with :data:`METRIC_COLUMNS`, sorted by subsystem, metric and
-        period start; every period in the observed range appears (proportions
-        with a zero denominator have ``value`` NaN).
+        ``table`` with :data:`METRIC_COLUMNS` (plus a leading ``repo`` column
+        when ``config.by_repo``), sorted by (repo,) subsystem, metric and period
+        start; every period in the observed range appears (proportions with a
+        zero denominator have ``value`` NaN).
 
     Raises
     ------
@@ -258,22 +306,27 @@ def compute_period_metrics(commits: pd.DataFrame, trailers: pd.DataFrame, *,
         raise InsufficientData("no (non-merge) commits with a date to measure")
     labels, frame = assign_periods(flags["date"], config.period, tags)
     flags = flags.assign(period=labels.to_numpy())
-    long = _expand_subsystems(flags, commit_subsystems, config.subsystems)
+    long, selection = _expand_subsystems(flags, commit_subsystems, config, split_at,
+                                         tuple(extra_subsystems))
     long["stable_fix"] = long["stable_request"] & long["fix_ref"]
-    g = long.groupby(["subsystem", "period"], sort=False)
+    keys = ["repo", "subsystem"] if config.by_repo else ["subsystem"]
+    g = long.groupby(keys + ["period"], sort=False)
     sums = g[["reviewed", "independent", "unreviewed_self", "fix", "fix_ref",
               "fix_heuristic", "revert", "stable_fix"]].sum()
     sums["n"] = g.size()
     sums["authors"] = g["author"].nunique()
     churn = g["churn"].apply(lambda x: _churn_stats(x, config.alpha)).unstack()
     agg = sums.join(churn).reset_index()
-    subsystems = sorted(long["subsystem"].unique(), key=lambda s: (s != ALL, s))
-    grid = pd.MultiIndex.from_product([subsystems, frame["period"]],
-                                      names=["subsystem", "period"]).to_frame(index=False)
-    agg = grid.merge(agg, on=["subsystem", "period"], how="left").merge(frame, on="period")
+    groups = long[keys].drop_duplicates()
+    groups = groups.assign(_all=groups["subsystem"] != ALL).sort_values(
+        (["repo"] if config.by_repo else []) + ["_all", "subsystem"], kind="mergesort")
+    groups = groups.drop(columns="_all").reset_index(drop=True)
+    order = groups.assign(_s=np.arange(len(groups)))
+    grid = groups.merge(frame[["period"]], how="cross")
+    agg = grid.merge(agg, on=keys + ["period"], how="left").merge(frame, on="period")
     agg = agg.fillna({c: 0 for c in agg.columns
                       if c not in ("churn_med", "churn_lo", "churn_hi", "period_start",
-                                   "period_end", "subsystem", "period")})
+                                   "period_end", "subsystem", "period", "repo")})
     wanted = [m for m in METRICS if config.metrics is None or m in config.metrics]
     if not config.heuristic_keywords:
         wanted = [m for m in wanted if m != "fix_ratio_heuristic"]
@@ -281,22 +334,29 @@ def compute_period_metrics(commits: pd.DataFrame, trailers: pd.DataFrame, *,
         wanted = [m for m in wanted if not m.startswith("churn")]
     table = pd.concat([_rows(agg, m, *_SPEC[m], config.alpha) for m in wanted],
                       ignore_index=True)
-    order = {s: i for i, s in enumerate(subsystems)}
-    table = table.assign(_s=table["subsystem"].map(order), _m=table["metric"].map(
-        {m: i for i, m in enumerate(METRICS)}))
+    table = table.merge(order, on=keys, how="left").assign(_m=table["metric"].map(
+        {m: i for i, m in enumerate(METRICS)}).to_numpy())
     table = table.sort_values(["_s", "_m", "period_start"], kind="mergesort")
-    table = table.drop(columns=["_s", "_m"]).reset_index(drop=True)[METRIC_COLUMNS]
+    columns = (["repo"] if config.by_repo else []) + METRIC_COLUMNS
+    table = table.drop(columns=["_s", "_m"]).reset_index(drop=True)[columns]
     cavs: list[Caveat] = []
     if "fix_ratio_heuristic" in wanted:
         cavs.append(caveat("heuristic_classification",
                            "fix_ratio_heuristic classifies commits by subject keywords "
                            f"({', '.join(config.heuristic_keywords or ())}), not by an "
                            "explicit Fixes: link"))
-    adoption = fixes_adoption_rising(table, window_share=config.adoption_window_share)
-    if adoption is not None:
-        cavs.append(adoption)
+    if config.by_repo:
+        for repo, part in table[table["subsystem"] == ALL].groupby("repo", sort=True):
+            adoption = fixes_adoption_rising(part, window_share=config.adoption_window_share)
+            if adoption is not None:
+                cavs.append(replace(adoption, message=f"{repo}: {adoption.message}"))
+    else:
+        adoption = fixes_adoption_rising(table, window_share=config.adoption_window_share)
+        if adoption is not None:
+            cavs.append(adoption)
     return PeriodMetrics(table=table, config=config, n_commits=len(flags),
-                         n_merges_excluded=n_merges, periods=frame, caveats=tuple(cavs))
+                         n_merges_excluded=n_merges, periods=frame, caveats=tuple(cavs),
+                         selection=selection)
 
 
 def fixes_adoption_rising(table: pd.DataFrame, *, window_share: float = 0.5,

@@ -6,7 +6,10 @@ used):
 * an interrupted time series per metric for ``"(all)"`` (level and slope
   change, placebo dates, optional control subsystem);
 * the same per subsystem, with Benjamini-Hochberg / Benjamini-Yekutieli
-  adjusted p-values of the level change over the family of subsystems;
+  adjusted p-values of the level change over the family of tests actually
+  run; which subsystems are tested follows :mod:`procmetrics.analyse.selection`
+  with the minimum-commits rule applied to each side of the date (recorded in
+  ``selection``);
 * per-commit distributions before vs after (lines changed per commit, distinct
   reviewers per commit) and proportions before vs after (review coverage,
   independent review, fix ratio);
@@ -31,6 +34,7 @@ from procmetrics.analyse.its import (ChangeVsDate, ITSResult, interrupted_time_s
 from procmetrics.analyse.metrics import ALL, MetricConfig, commit_flags, compute_period_metrics
 from procmetrics.analyse.multiplicity import MultiplicityResult, adjust_pvalues
 from procmetrics.analyse.result import Caveat, to_plain
+from procmetrics.analyse.selection import SubsystemSelection
 from procmetrics.analyse.twosample import (DistributionComparison, ProportionComparison,
                                            compare_distributions, compare_proportions)
 from procmetrics.errors import ConfigError, InsufficientData
@@ -63,6 +67,8 @@ class PolicyComparison:
                                   metadata={"json": False})
     skipped: tuple[str, ...] = field(default=())
     caveats: tuple[Caveat, ...] = field(default=())
+    #: which subsystems were tested on their own, and how many were left out
+    selection: SubsystemSelection | None = None
 
     def to_dict(self) -> dict[str, Any]:
         return to_plain(self)
@@ -107,22 +113,29 @@ def compare_policy(commits: pd.DataFrame, trailers: pd.DataFrame, *, at: pd.Time
     Wagner et al. (2002); Benjamini & Hochberg (1995); Benjamini & Yekutieli (2001).
     """
     pm = compute_period_metrics(commits, trailers, commit_subsystems=commit_subsystems,
-                                tags=tags, config=replace(config, alpha=alpha))
+                                tags=tags, config=replace(config, alpha=alpha), split_at=at,
+                                extra_subsystems=(control_subsystem,) if control_subsystem
+                                else ())
     table = pm.table
+    # one pass over the table: each subsystem's rows, kept apart once
+    parts = dict(tuple(table.groupby("subsystem", sort=False)))
     skipped: list[str] = []
     its: list[ITSResult] = []
+    main = parts.get(ALL, table.iloc[:0])
+    if control_subsystem is not None and control_subsystem in parts:
+        main = pd.concat([main, parts[control_subsystem]], ignore_index=True)
     for m in metrics:
         try:
-            its.append(interrupted_time_series(table, m, at, control_subsystem=control_subsystem,
+            its.append(interrupted_time_series(main, m, at, control_subsystem=control_subsystem,
                                                alpha=alpha))
         except InsufficientData as exc:
             skipped.append(f"ITS {m}: {exc}")
     rows = []
-    subs = [s for s in table["subsystem"].unique() if s != ALL]
+    subs = [s for s in parts if s != ALL]
     for s in subs:
         for m in metrics:
             try:
-                r = interrupted_time_series(table, m, at, subsystem=s, alpha=alpha,
+                r = interrupted_time_series(parts[s], m, at, subsystem=s, alpha=alpha,
                                             placebo_shifts=0)
             except InsufficientData as exc:
                 skipped.append(f"ITS {m} [{s}]: {exc}")
@@ -189,7 +202,8 @@ def compare_policy(commits: pd.DataFrame, trailers: pd.DataFrame, *, at: pd.Time
     return PolicyComparison(at=at, period=config.period, its=tuple(its), subsystems=sub,
                             multiplicity=mult, distributions=tuple(dists),
                             proportions=tuple(props), change_points=tuple(cps),
-                            samples=samples, skipped=tuple(skipped), caveats=tuple(_dedupe(cavs)))
+                            samples=samples, skipped=tuple(skipped), caveats=tuple(_dedupe(cavs)),
+                            selection=pm.selection)
 
 
 def _dedupe(cavs: list[Caveat]) -> list[Caveat]:
