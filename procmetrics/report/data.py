@@ -3,24 +3,41 @@
 The store checksum is a SHA-256 over a canonical text dump of the tidy tables
 that carry mined data (every table of ``COLUMNS`` except ``mining_runs`` and
 ``repositories``, whose run times, ids and local paths differ between two
-stores that hold the same history). Rows are sorted, values written in one
-fixed format, so a SQLite and a PostgreSQL store with the same data agree.
+stores that hold the same history). Each row becomes one line (values in one
+fixed format, tab-separated); each table contributes its name, row count,
+column names and the sum modulo 2**256 of the SHA-256 of its lines (a
+multiset hash: independent of row order, so it can be computed in batches in
+whatever order the database returns them, in constant memory). A SQLite and a
+PostgreSQL store with the same data agree.
+
+The report does not hold ``file_changes`` in memory (millions of rows at
+kernel scale; churn comes from ``commits.lines_added``/``lines_deleted``): its
+lines are built by the database and hashed batch by batch.
+
+References
+----------
+Clarke, D. et al. (2003). Incremental multiset hash functions and their
+application to memory integrity checking. ASIACRYPT 2003 (the additive
+multiset hash).
 """
 from __future__ import annotations
 
 import hashlib
 import math
 from dataclasses import dataclass
-from typing import Any, Iterable, Mapping
+from typing import Any, Iterable, Iterator, Mapping
 
+import numpy as np
 import pandas as pd
 from sqlalchemy.engine import Engine
 
 from procmetrics.errors import ProcmetricsError
-from procmetrics.store.tables import COLUMNS, read_table, read_tables
+from procmetrics.store.tables import COLUMNS, file_change_lines, read_table, snapshot
 
 CHECKSUM_TABLES: tuple[str, ...] = tuple(
     sorted(t for t in COLUMNS if t not in ("mining_runs", "repositories")))
+#: the tables the report reads into memory (file_changes is only fingerprinted)
+REPORT_TABLES: tuple[str, ...] = tuple(t for t in COLUMNS if t != "file_changes")
 
 
 @dataclass(frozen=True)
@@ -29,6 +46,8 @@ class StoreData:
 
     repo: str
     tables: Mapping[str, pd.DataFrame]
+    #: checksum computed while loading (same snapshot); "" = compute from ``tables``
+    checksum: str = ""
 
     def __getitem__(self, name: str) -> pd.DataFrame:
         return self.tables[name]
@@ -52,9 +71,19 @@ def choose_repo(engine: Engine, repo: str | None) -> str:
 
 
 def load_store_data(engine: Engine, repo: str) -> StoreData:
-    """Every tidy table for ``repo``."""
-    # one snapshot: a miner writing at the same time is never seen half-way
-    return StoreData(repo, read_tables(engine, COLUMNS, repo))
+    """The tidy tables the report needs for ``repo`` and the store checksum.
+
+    One snapshot: a miner writing at the same time is never seen half-way, and
+    the checksum describes exactly the data the report was built from.
+    """
+    with snapshot(engine) as conn:
+        tables = {name: read_table(conn, name, repo) for name in REPORT_TABLES}
+        parts = {name: (len(tables[name]), multiset_digest([canonical_column_lines(
+            tables[name], COLUMNS[name])])) for name in CHECKSUM_TABLES
+            if name != "file_changes"}
+        n_fc, fc = _count_and_digest(file_change_lines(conn, repo))
+        parts["file_changes"] = (n_fc, fc)
+    return StoreData(repo, tables, checksum=_combine(parts))
 
 
 def _canon(value: Any) -> str:
@@ -85,13 +114,67 @@ def canonical_lines(df: pd.DataFrame, columns: Iterable[str]) -> list[str]:
     return lines
 
 
-def store_checksum(data: StoreData) -> str:
-    """SHA-256 (hex) over the canonical dump of the mined-data tables."""
+def _canon_column(col: pd.Series) -> pd.Series:
+    """Vectorised :func:`_canon` for one column (falls back to it for mixed types)."""
+    na = col.isna().to_numpy()
+    dt = col.dtype
+    if isinstance(dt, pd.DatetimeTZDtype) or pd.api.types.is_datetime64_any_dtype(dt):
+        ns = pd.to_datetime(col, utc=True).array.asi8
+        out = pd.Series(ns // 1_000_000_000, index=col.index).astype(str)
+    elif pd.api.types.is_bool_dtype(dt):
+        out = pd.Series(np.where(col.fillna(False).to_numpy(dtype=bool), "t", "f"),
+                        index=col.index)
+    elif pd.api.types.is_integer_dtype(dt):
+        out = col.astype("Int64").astype(str)
+    elif pd.api.types.infer_dtype(col, skipna=True) in ("string", "empty"):
+        out = (col.astype(object).where(~na, "").astype(str).str.replace("\\", "\\\\", regex=False)
+               .str.replace("\t", "\\t", regex=False).str.replace("\n", "\\n", regex=False))
+    else:
+        return col.astype(object).map(_canon)
+    return out.where(~na, "\\N")
+
+
+def canonical_column_lines(df: pd.DataFrame, columns: Iterable[str]) -> list[str]:
+    """The lines of :func:`canonical_lines`, built column-wise, in row order (not sorted)."""
+    cols = [_canon_column(df[c]) if c in df.columns
+            else pd.Series("\\N", index=df.index) for c in columns]
+    if not len(df):
+        return []
+    return cols[0].str.cat(cols[1:], sep="\t").tolist() if len(cols) > 1 \
+        else cols[0].tolist()
+
+
+def multiset_digest(batches: Iterable[list[str]]) -> str:
+    """Sum modulo 2**256 of the SHA-256 of each line, as 64 hex digits."""
+    return _count_and_digest(iter(batches))[1]
+
+
+def _count_and_digest(batches: Iterator[list[str]]) -> tuple[int, str]:
+    total, n, sha, frm = 0, 0, hashlib.sha256, int.from_bytes
+    for batch in batches:
+        n += len(batch)
+        total += sum(frm(sha(line.encode("utf-8", "surrogatepass")).digest(), "big")
+                     for line in batch)
+    return n, format(total % (1 << 256), "064x")
+
+
+def _combine(parts: Mapping[str, tuple[int, str]]) -> str:
     h = hashlib.sha256()
     for name in CHECKSUM_TABLES:
-        cols = COLUMNS[name]
-        h.update(f"# {name}\t{len(data[name])}\n".encode())
-        h.update(("\t".join(cols) + "\n").encode())
-        for line in canonical_lines(data[name], cols):
-            h.update(line.encode("utf-8", "surrogatepass") + b"\n")
+        n, digest = parts[name]
+        h.update(f"# {name}\t{n}\n".encode())
+        h.update(("\t".join(COLUMNS[name]) + "\n").encode())
+        h.update(f"{digest}\n".encode())
     return h.hexdigest()
+
+
+def store_checksum(data: StoreData) -> str:
+    """SHA-256 (hex) over the canonical dump of the mined-data tables.
+
+    The value computed while loading when there is one; otherwise from the
+    tables in ``data`` (which must then include ``file_changes``).
+    """
+    if data.checksum:
+        return data.checksum
+    return _combine({name: (len(data[name]), multiset_digest([canonical_column_lines(
+        data[name], COLUMNS[name])])) for name in CHECKSUM_TABLES})

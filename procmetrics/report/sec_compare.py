@@ -155,6 +155,12 @@ def _distributions(ctx: BuildContext, s: Any, pc: Any) -> None:
 
 def _subsystems(ctx: BuildContext, s: Any, pc: Any) -> None:
     t = pc.subsystems
+    sel = pc.selection
+    if sel is not None and sel.n_left_out:
+        s.p(f"Subsystems tested on their own: {sel.reason}. {sel.n_left_out} of "
+            f"{sel.n_available} subsystems with commits were left out (they remain in the "
+            "whole-project series); the false-discovery correction below counts only the "
+            "tests actually run.")
     if t is None or t.empty:
         return
     m = pc.multiplicity

@@ -270,6 +270,53 @@ def repositories(engine: Engine, repo: str | None = None) -> pd.DataFrame:
     return _read(engine, _repo_filter(stmt, repo), "repositories")
 
 
+def _canon_sql(expr, kind: str):
+    """SQL for one value in the checksum's canonical text (same rules as
+    ``report.data``): NULL -> ``\\N``, booleans ``t``/``f``, integers in decimal,
+    text with backslash, tab and newline escaped."""
+    from sqlalchemy import String, cast, literal
+
+    null = literal("\\N")
+    if kind == "bool":
+        return case((expr.is_(None), null), (expr == True, literal("t")),  # noqa: E712
+                    else_=literal("f"))
+    text = cast(expr, String)
+    if kind == "text":
+        text = func.replace(func.replace(func.replace(
+            text, "\\", "\\\\"), "\t", "\\t"), "\n", "\\n")
+    return func.coalesce(text, null)
+
+
+def file_change_lines(conn: Connection, repo: str | None = None, *,
+                      batch: int = 100_000) -> Iterator[list[str]]:
+    """The ``file_changes`` tidy table as canonical tab-separated lines, in batches.
+
+    The text is built by the database, so the report can fingerprint millions
+    of rows without holding them as a DataFrame; the order of the batches is
+    not part of the contract (the checksum sums a hash per line).
+    """
+    from sqlalchemy import literal
+
+    g, fc = s.commit, s.file_change
+    parts = [_canon_sql(s.repository.c.name, "text"), _canon_sql(g.c.hash, "text"),
+             _canon_sql(fc.c.path, "text"), _canon_sql(fc.c.old_path, "text"),
+             _canon_sql(fc.c.change_type, "text"), _canon_sql(fc.c.lines_added, "int"),
+             _canon_sql(fc.c.lines_deleted, "int"), _canon_sql(fc.c.is_binary, "bool")]
+    line = parts[0]
+    for p in parts[1:]:
+        line = line.op("||")(literal("\t")).op("||")(p)
+    stmt = (select(line.label("line")).select_from(fc)
+            .join(g, g.c.commit_id == fc.c.commit_id)
+            .join(s.repository, s.repository.c.repo_id == g.c.repo_id))
+    stmt = _repo_filter(stmt.where(g.c.run_id.in_(_complete_runs())), repo)
+    result = conn.execution_options(stream_results=True).execute(stmt)
+    while True:
+        rows = result.fetchmany(batch)
+        if not rows:
+            return
+        yield [r[0] for r in rows]
+
+
 READERS: dict[str, Callable[..., pd.DataFrame]] = {
     "commits": commits, "commit_subsystems": commit_subsystems,
     "file_changes": file_changes, "trailers": trailers, "fix_links": fix_links,
