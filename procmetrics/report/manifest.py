@@ -62,8 +62,10 @@ def build_manifest(*, out: Path, written: list[str], options: ReportOptions, sto
         "mining_runs": mining_runs,
         "store": {"url": store_url, "dialect": dialect, "schema_version": schema_version,
                   "checksum_sha256": store_checksum,
-                  "checksum_method": "SHA-256 over a sorted, canonical dump of the tidy "
-                                     "tables except mining_runs and repositories"},
+                  "checksum_method": "SHA-256 over the tidy tables except mining_runs "
+                                     "and repositories: per table name, row count, columns "
+                                     "and the sum mod 2^256 of SHA-256 of each canonical "
+                                     "row line (order-free)"},
         "report_options": {**options.to_dict(), "pdf_engine": options.pdf_engine},
         "claims_file": claims,
         "pdf": pdf,
