@@ -168,3 +168,52 @@ def test_pooled_defect_windows_use_each_repositorys_end(two_repo_store) -> None:
         mine = pooled[pooled["repo"] == name].sort_values("introducer_hash")
         np.testing.assert_allclose(mine["window"].to_numpy(float),
                                    alone["window"].to_numpy(float))
+
+
+def test_by_repo_gives_one_all_series_per_repository(two_repo_store) -> None:
+    repos, t = two_repo_store
+    pm = compute_period_metrics(t["commits"], t["trailers"],
+                                commit_subsystems=t["commit_subsystems"],
+                                config=MetricConfig(period="year", by_repo=True,
+                                                    subsystem_all_up_to=10_000))
+    assert list(pm.table.columns[:2]) == ["repo", "period"]
+    for name, path in repos.items():
+        # oracle: git's own count of non-merge commits on the mined ref
+        n_git = int(_git(path, "rev-list", "--count", "--no-merges", "main").strip())
+        commits = pm.series("commits", ALL, repo=name)
+        assert int(commits["value"].sum()) == n_git
+        # subsystem rows keyed by (repo, subsystem) equal a run on that repository alone
+        alone = compute_period_metrics(_only(t["commits"], name), _only(t["trailers"], name),
+                                       commit_subsystems=_only(t["commit_subsystems"], name),
+                                       config=MetricConfig(period="year",
+                                                           subsystem_all_up_to=10_000))
+        mine = pm.table[(pm.table["repo"] == name) & (pm.table["subsystem"] != ALL)]
+        theirs = alone.table[alone.table["subsystem"] != ALL]
+        assert len(mine) and set(mine["subsystem"]) == set(theirs["subsystem"])
+        a = mine[mine["metric"] == "review_coverage"].groupby("subsystem")["numerator"].sum()
+        b = theirs[theirs["metric"] == "review_coverage"].groupby("subsystem")["numerator"].sum()
+        pd.testing.assert_series_equal(a.sort_index(), b.sort_index(), check_names=False)
+
+
+def test_subsystem_selection_rule(two_repo_store) -> None:
+    """Above ``subsystem_all_up_to`` subsystems, the K largest with >= M commits each side."""
+    _repos, t = two_repo_store
+    commits, cs = _only(t["commits"], "south"), _only(t["commit_subsystems"], "south")
+    at = commits["committer_date"].quantile(0.5)
+    cfg = MetricConfig(period="year", subsystem_limit=3, subsystem_min_commits=40,
+                       subsystem_all_up_to=2)
+    pm = compute_period_metrics(commits, _only(t["trailers"], "south"), commit_subsystems=cs,
+                                config=cfg, split_at=at)
+    # expected straight from the tidy tables (common practice: count, filter, rank)
+    nm = commits[~commits["is_merge"].astype(bool)][["hash", "committer_date"]]
+    m = cs.merge(nm, on="hash")
+    side = m.groupby(["subsystem", m["committer_date"] >= at]).size().unstack(fill_value=0)
+    ok = side[side.min(axis=1) >= 40].sum(axis=1)
+    expect = sorted(ok.index, key=lambda s: (-ok[s], s))[:3]
+    assert list(pm.selection.chosen) == expect
+    assert sorted(set(pm.table["subsystem"]) - {ALL}) == sorted(expect)
+    assert pm.selection.n_left_out == cs["subsystem"].nunique() - len(expect)
+    # naming the same subsystems gives the same rows (the rule only chooses)
+    named = compute_period_metrics(commits, _only(t["trailers"], "south"), commit_subsystems=cs,
+                                   config=MetricConfig(period="year", subsystems=tuple(expect)))
+    pd.testing.assert_frame_equal(pm.table, named.table)
