@@ -34,6 +34,11 @@ class ReportOptions:
     min_n: int = 20
     seed: int = 20240601
     pdf_engine: str = "auto"
+    #: subsystems tested on their own in the before/after section when none are
+    #: named and more than 20 have commits: the K largest with >= M commits on
+    #: each side of the date (procmetrics.analyse.selection)
+    subsystem_limit: int = 12
+    subsystem_min_commits: int = 30
 
     def to_dict(self) -> dict[str, Any]:
         """Options that change figures (no local paths: those go in the manifest)."""
@@ -42,6 +47,8 @@ class ReportOptions:
             "period": self.period, "level": self.level,
             "unresolved_share_limit": self.unresolved_share_limit,
             "min_n": self.min_n, "seed": self.seed,
+            "subsystem_limit": self.subsystem_limit,
+            "subsystem_min_commits": self.subsystem_min_commits,
         }
 
 

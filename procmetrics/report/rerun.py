@@ -71,7 +71,9 @@ def _options(man: dict[str, Any]) -> ReportOptions:
                          level=float(o.get("level", 0.95)),
                          unresolved_share_limit=float(o.get("unresolved_share_limit", 0.10)),
                          min_n=int(o.get("min_n", 20)), seed=int(o.get("seed", 20240601)),
-                         pdf_engine=o.get("pdf_engine", "auto"))
+                         pdf_engine=o.get("pdf_engine", "auto"),
+                         subsystem_limit=int(o.get("subsystem_limit", 12)),
+                         subsystem_min_commits=int(o.get("subsystem_min_commits", 30)))
 
 
 def _store_still_matches(url: str, repo: str | None, checksum: str) -> bool:

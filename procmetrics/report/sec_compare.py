@@ -32,7 +32,11 @@ def run_compare(ctx: BuildContext) -> Any:
     period = ctx.options.period
     return compare_policy(d["commits"], d["trailers"], at=ctx.policy_date,
                           commit_subsystems=d["commit_subsystems"], tags=d["tags"],
-                          config=MetricConfig(period=period, alpha=ctx.alpha),
+                          config=MetricConfig(
+                              period=period, alpha=ctx.alpha,
+                              subsystems=tuple(ctx.options.subsystems) or None,
+                              subsystem_limit=ctx.options.subsystem_limit,
+                              subsystem_min_commits=ctx.options.subsystem_min_commits),
                           alpha=ctx.alpha, rng=ctx.rng(31))
 
 
