@@ -117,3 +117,42 @@ def test_newcombe_worked_example():
 def test_proportions_without_difference():
     r = compare_proportions(30, 100, 31, 100)
     assert "absence_of_evidence" in {c.code for c in r.caveats}
+
+
+def test_delong_interval_for_cliffs_delta_against_brute_force_and_bootstrap():
+    # DeLong, DeLong & Clarke-Pearson (1988): Var(AUC) from placement values. Oracle 1:
+    # the placements computed by brute force over all pairs (tied data). Oracle 2: the
+    # bootstrap percentile interval on the same data agrees to within 0.03.
+    from scipy import stats as st
+
+    from procmetrics.analyse.twosample import cliffs_delta_delong
+    rng = np.random.default_rng(8)
+    a, b = rng.integers(0, 12, 60).astype(float), rng.integers(2, 14, 50).astype(float)
+    gt = (b[:, None] > a[None, :]) + 0.5 * (b[:, None] == a[None, :])
+    v_b, v_a = gt.mean(axis=1), gt.mean(axis=0)
+    var = v_b.var(ddof=1) / len(b) + v_a.var(ddof=1) / len(a)
+    d = 2 * gt.mean() - 1
+    half = st.norm.ppf(0.975) * 2 * np.sqrt(var)
+    lo, hi = cliffs_delta_delong(a, b)
+    assert (lo, hi) == pytest.approx((d - half, d + half), abs=1e-12)
+    assert d == pytest.approx(cliffs_delta(a, b), abs=1e-12)
+    x, y = rng.lognormal(0, 1, 400), rng.lognormal(0.3, 1, 300)
+    boot = [cliffs_delta(rng.choice(x, 400), rng.choice(y, 300)) for _ in range(2000)]
+    blo, bhi = np.quantile(boot, [0.025, 0.975])
+    lo, hi = cliffs_delta_delong(x, y)
+    assert abs(lo - blo) < 0.03 and abs(hi - bhi) < 0.03
+
+
+def test_large_samples_switch_to_asymptotic_methods_and_say_so():
+    from procmetrics.analyse.twosample import LARGE_SAMPLE, compare_distributions
+    rng = np.random.default_rng(9)
+    a = rng.poisson(10, LARGE_SAMPLE + 1).astype(float)
+    b = rng.poisson(10.4, LARGE_SAMPLE + 2).astype(float)
+    r = compare_distributions(a, b, rng=np.random.default_rng(1))
+    ad = next(t for t in r.tests if t.name == "anderson_darling")
+    assert "asymptotic" in ad.method and "DeLong" in r.cliffs_delta.method
+    assert r.cliffs_delta.low < r.cliffs_delta.value < r.cliffs_delta.high
+    # the same data below the threshold use permutations and the bootstrap
+    small = compare_distributions(a[:300], b[:300], n_resamples=99, n_boot=99,
+                                  rng=np.random.default_rng(1))
+    assert "permutation" in next(t for t in small.tests if t.name == "anderson_darling").method
