@@ -24,6 +24,7 @@ import warnings
 from typing import Iterable, Iterator, NamedTuple, Sequence
 
 from procmetrics.errors import DataQualityWarning, GitFailed
+from procmetrics.store.writer import FileRow
 
 FIELDS = ("%H", "%P", "%aN", "%aE", "%ad", "%cN", "%cE", "%cd", "%e", "%s", "%B")
 LOG_FORMAT = "%x01" + "%x00".join(FIELDS)
@@ -35,16 +36,8 @@ _HASH_RB = rb"(?:[0-9a-f]{64}|[0-9a-f]{40})"
 _HASHES_RE = re.compile(rb"^" + _HASH_RB + rb"(?: " + _HASH_RB + rb")*$")
 
 
-class FileEntry(NamedTuple):
-    """One path a commit touches (same fields, in the same order, as the store's
-    ``FileRow``)."""
-
-    path: str
-    old_path: str | None
-    change_type: str
-    lines_added: int | None
-    lines_deleted: int | None
-    is_binary: bool | None
+# One path a commit touches: the store's own row type, so rows pass through unchanged.
+FileEntry = FileRow
 
 
 class LogCommit(NamedTuple):

@@ -56,7 +56,7 @@ from procmetrics.mine.git import GitRepo
 from procmetrics.mine.logstream import LogCommit, date_filter_args, log_args, parse_log
 from procmetrics.mine.options import CONTENT_OPTIONS, MineOptions, MiningSummary
 from procmetrics.mine.references import scan_message
-from procmetrics.mine.resolve import RESOLVED, SELF, classify, find_candidates, subject_match
+from procmetrics.mine.resolve import classify, find_candidates, subject_match
 from procmetrics.mine.subsystems import (
     PathMapper, maintainers_mapper, prefix_mapper, rules_mapper,
 )
@@ -191,7 +191,6 @@ def commit_row(c: LogCommit) -> CommitRow:
                            split_person(t.value) if (t.key.endswith("-by")
                                                      or t.key in _PERSON_KEYS) else None)
                 for t in block.trailers]
-    # FileEntry and FixRef carry FileRow's and FixRow's fields in the same order
     return CommitRow(
         c.hash, c.parents, (c.author_name, c.author_email),
         (c.committer_name, c.committer_email), c.author_time, c.author_offset_min,

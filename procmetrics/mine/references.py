@@ -22,6 +22,7 @@ import re
 from typing import NamedTuple
 
 from procmetrics.mine.trailers import TrailerBlock
+from procmetrics.store.writer import FixRow
 
 HEX_MIN, HEX_MAX = 7, 64
 
@@ -35,11 +36,9 @@ _STABLE = re.compile(r"^[ \t]*cc[ \t]*:.*(?<![\w.+-])stable@", re.I | re.M)
 _MAX_JOIN = 3
 
 
-class FixRef(NamedTuple):
-    ref_hash: str               # lower-case hex, as many digits as written
-    cited_subject: str | None
-    in_trailer_block: bool
-    raw_text: str               # the whole Fixes line (continuation lines joined)
+# A parsed Fixes: reference (ref_hash as written, lower-case; raw_text = the whole
+# line): the store's own row type, so references pass through unchanged.
+FixRef = FixRow
 
 
 class MessageRefs(NamedTuple):
