@@ -27,7 +27,7 @@ def test_nile_change_between_1898_and_1899(nile):
                        config=ChangePointConfig(n_boot=100), rng=np.random.default_rng(1))
     assert [c.period for c in r.changes] == ["1899"]
     c = r.changes[0]
-    assert c.position.low <= 28 <= c.position.high
+    assert c.position.low <= 28 <= c.position.high   # index 28 is 1899 (series starts 1871)
     assert c.level_before.value > c.level_after.value
     assert not c.tuning_sensitive and c.support > 0.8
 

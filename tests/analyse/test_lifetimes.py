@@ -111,6 +111,7 @@ def test_bootstrap_band_and_quantile_intervals_cover_the_point():
     for e in quantile_estimates(L, W, n_boot=100, rng=np.random.default_rng(1)):
         assert e.low <= e.value <= e.high
     naive = quantile_estimates(L)
+    # oracle: numpy's inverted-CDF sample quantile (Hyndman & Fan 1996, definition 1)
     assert naive[1].value == np.quantile(L, 0.5, method="inverted_cdf")
 
 

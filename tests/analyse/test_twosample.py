@@ -23,6 +23,7 @@ def test_tests_match_scipy():
     a, b = rng.lognormal(0, 1, 40), rng.lognormal(0.4, 1, 35)
     r = compare_distributions(a, b, n_resamples=299, n_boot=200, rng=np.random.default_rng(5))
     t = {x.name: x for x in r.tests}
+    # oracles: scipy.stats mannwhitneyu, ks_2samp and anderson_ksamp on the same data
     mw = stats.mannwhitneyu(b, a, alternative="two-sided")
     ks = stats.ks_2samp(a, b)
     ad = stats.anderson_ksamp([a, b], variant="midrank", method=stats.PermutationMethod(
