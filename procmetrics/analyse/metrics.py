@@ -263,7 +263,8 @@ def compute_period_metrics(commits: pd.DataFrame, trailers: pd.DataFrame, *,
                            tags: pd.DataFrame | None = None,
                            config: MetricConfig = MetricConfig(),
                            split_at: pd.Timestamp | None = None,
-                           extra_subsystems: tuple[str, ...] = ()) -> PeriodMetrics:
+                           extra_subsystems: tuple[str, ...] = (),
+                           flags: pd.DataFrame | None = None) -> PeriodMetrics:
     """Compute every process metric per period and subsystem.
 
     Parameters
@@ -279,6 +280,8 @@ def compute_period_metrics(commits: pd.DataFrame, trailers: pd.DataFrame, *,
     split_at : a policy date; the minimum-commits rule then applies to each
         side of it (segments), not to the whole window.
     extra_subsystems : given rows whatever the rule says (e.g. a control series).
+    flags : ``commit_flags(commits, trailers, config)`` when the caller already has it
+        (it is the costly per-commit pass; callers needing it too compute it once).
 
     Returns
     -------
@@ -298,7 +301,8 @@ def compute_period_metrics(commits: pd.DataFrame, trailers: pd.DataFrame, *,
     Wilson (1927) score interval; Garwood (1936) exact Poisson interval;
     Conover (1999) order-statistic interval for the median.
     """
-    flags = commit_flags(commits, trailers, config)
+    if flags is None:
+        flags = commit_flags(commits, trailers, config)
     n_merges = int(_true(commits["is_merge"]).sum()) \
         if not config.include_merges else 0
     flags = flags[flags["date"].notna()]

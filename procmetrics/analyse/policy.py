@@ -112,10 +112,12 @@ def compare_policy(commits: pd.DataFrame, trailers: pd.DataFrame, *, at: pd.Time
     ----------
     Wagner et al. (2002); Benjamini & Hochberg (1995); Benjamini & Yekutieli (2001).
     """
+    # the per-commit pass, once: for the per-period series and the distributions below
+    flags = commit_flags(commits, trailers, config)
     pm = compute_period_metrics(commits, trailers, commit_subsystems=commit_subsystems,
                                 tags=tags, config=replace(config, alpha=alpha), split_at=at,
                                 extra_subsystems=(control_subsystem,) if control_subsystem
-                                else ())
+                                else (), flags=flags)
     table = pm.table
     # one pass over the table: each subsystem's rows, kept apart once
     parts = dict(tuple(table.groupby("subsystem", sort=False)))
@@ -159,7 +161,6 @@ def compare_policy(commits: pd.DataFrame, trailers: pd.DataFrame, *, at: pd.Time
         for col in ("p_bh", "reject_bh", "p_by", "reject_by"):
             sub[col] = adj[col].to_numpy()
     sub = sub.reindex(columns=SUBSYSTEM_COLUMNS)
-    flags = commit_flags(commits, trailers, config)
     before, after = flags[flags["date"] < at], flags[flags["date"] >= at]
     dists = []
     for col, label in _PER_COMMIT.items():
