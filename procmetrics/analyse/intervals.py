@@ -65,3 +65,20 @@ def median_ci(values: np.ndarray, alpha: float = 0.05) -> tuple[float, float, fl
     if r < 1:
         return med, np.nan, np.nan
     return med, float(x[r - 1]), float(x[n - r])
+
+
+def median_difference_ci(a: np.ndarray, b: np.ndarray, level: float = 0.95
+                         ) -> tuple[float, float, float, float]:
+    """``median(b) - median(a)`` with a conservative distribution-free interval.
+
+    Each median gets its order-statistic interval at level ``sqrt(level)``; both
+    cover together with probability >= ``level`` (independent samples), so the
+    difference of their ends covers the difference of medians with >= ``level``.
+    Returns ``(difference, low, high, per_sample_level)``; NaN ends when a sample is
+    too small for its interval.
+    """
+    lev = float(np.sqrt(level))
+    ma, la, ha = median_ci(a, 1 - lev)
+    mb, lb, hb = median_ci(b, 1 - lev)
+    return mb - ma, lb - ha, hb - la, lev
+

@@ -292,10 +292,8 @@ def compare_distributions(a, b, *, quantity: str = "value", label_a: str = "befo
         mdiff = Estimate("median_difference", mb - ma, float(dlo), float(dhi), level,
                          f"bootstrap percentile ({n_boot} replicates)", m + n)
     else:
-        lev = np.sqrt(level)  # both order-statistic intervals cover jointly with >= level
-        _, la2, ha2 = iv.median_ci(a, 1 - lev)
-        _, lb2, hb2 = iv.median_ci(b, 1 - lev)
-        mdiff = Estimate("median_difference", mb - ma, _n(lb2 - ha2), _n(hb2 - la2), level,
+        _, dlo, dhi, lev = iv.median_difference_ci(a, b, level)
+        mdiff = Estimate("median_difference", mb - ma, _n(dlo), _n(dhi), level,
                          "conservative: difference of order-statistic intervals at "
                          f"level {lev:.4f} each ({'large' if large else 'small'} sample)",
                          m + n)

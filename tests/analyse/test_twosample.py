@@ -157,3 +157,26 @@ def test_large_samples_switch_to_asymptotic_methods_and_say_so():
     small = compare_distributions(a[:300], b[:300], n_resamples=99, n_boot=99,
                                   rng=np.random.default_rng(1))
     assert "permutation" in next(t for t in small.tests if t.name == "anderson_darling").method
+
+
+def test_median_intervals_against_scipy_quantile_test_and_coverage():
+    # Oracle: scipy.stats.quantile_test(...).confidence_interval() is the same
+    # distribution-free order-statistic interval for the median (Conover 1999, 3.2).
+    from scipy import stats as st
+
+    from procmetrics.analyse.intervals import median_ci, median_difference_ci
+    rng = np.random.default_rng(12)
+    for n in (15, 40, 201):
+        x = rng.lognormal(3, 1, n)
+        _, lo, hi = median_ci(x, 0.05)
+        ref = st.quantile_test(x, q=np.median(x), p=0.5).confidence_interval(0.95)
+        assert (lo, hi) == pytest.approx((ref.low, ref.high))
+    # simulation with a known truth: the conservative difference interval covers the
+    # true difference of medians (ln 2 * (80 - 50) for exponentials) in >= 95% of draws
+    true = np.log(2) * (80 - 50)
+    hits = 0
+    for _ in range(300):
+        a, b = rng.exponential(50, 60), rng.exponential(80, 60)
+        d, lo, hi, lev = median_difference_ci(a, b, 0.95)
+        hits += lo <= true <= hi
+    assert lev == pytest.approx(np.sqrt(0.95)) and hits / 300 >= 0.95
