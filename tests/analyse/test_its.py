@@ -111,3 +111,26 @@ def test_share_of_zero_before_the_date_is_flagged_not_estimable():
     # and an ordinary change is not flagged that way
     r2 = interrupted_time_series(_table(1, 0.4, 0.7), "review_coverage", AT)
     assert not any("not estimable" in c.message for c in r2.caveats)
+
+
+def test_level_and_slope_change_equal_a_direct_statsmodels_fit():
+    # Oracle: statsmodels' binomial GLM on the segmented-regression design of Wagner
+    # et al. (2002) (intercept, time, post, post x time), built here from the metric
+    # table itself: period midpoints in years from the date.
+    import statsmodels.api as sm
+    table = _table(1, 0.4, 0.7)
+    r = interrupted_time_series(table, "review_coverage", AT)
+    assert r.cov_type == "nonrobust" and "quasi" not in r.model   # plain binomial here
+    s = table[(table.metric == "review_coverage") & (table.subsystem == "(all)")]
+    s = s[(s.period_end <= AT) | (s.period_start >= AT)].sort_values("period_start")
+    mid = s.period_start + (s.period_end - s.period_start) / 2
+    t = ((mid - AT).dt.total_seconds() / (365.25 * 86400)).to_numpy()
+    np.testing.assert_allclose(t, r.fitted["time_years"].to_numpy(), atol=2e-3)
+    post = (s.period_start >= AT).to_numpy(float)
+    X = np.column_stack([np.ones(len(t)), t, post, post * t])
+    y, n = s.numerator.to_numpy(), s.denominator.to_numpy()
+    ref = sm.GLM(np.column_stack([y, n - y]), X, family=sm.families.Binomial()).fit()
+    ci = ref.conf_int(0.05)
+    assert r.level_change.value == pytest.approx(ref.params[2], rel=1e-3)
+    assert (r.level_change.low, r.level_change.high) == pytest.approx(tuple(ci[2]), rel=1e-2)
+    assert r.slope_change.value == pytest.approx(ref.params[3], rel=1e-2)
