@@ -84,6 +84,15 @@ def test_cox_rossi_published_efron_fit():
     assert c["prio"] == pytest.approx(0.0915, abs=1e-3)
     assert c["mar"] == pytest.approx(-0.434, abs=1e-3)
     assert r.ties == "efron"
+    # standard errors and hazard-ratio intervals: oracle lifelines' CoxPHFitter summary
+    full = CoxPHFitter().fit(rossi, "week", "arrest").summary
+    s = r.summary.set_index("term")
+    for term in full.index:
+        assert s.loc[term, "se"] == pytest.approx(full.loc[term, "se(coef)"], rel=1e-6)
+        assert s.loc[term, "hr_low"] == pytest.approx(
+            full.loc[term, "exp(coef) lower 95%"], rel=1e-6)
+        assert s.loc[term, "hr_high"] == pytest.approx(
+            full.loc[term, "exp(coef) upper 95%"], rel=1e-6)
     # The same appendix reports non-proportional hazards for age and wexp (recalled from
     # memory). Oracle: lifelines' own Schoenfeld test (rank transform) on the same fit.
     ref = proportional_hazard_test(CoxPHFitter().fit(rossi, "week", "arrest"), rossi,
