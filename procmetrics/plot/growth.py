@@ -36,7 +36,11 @@ def plot_growth(result: Any, *, ax: Axes | None = None) -> Axes:
     end = (result.end_date - result.origin).total_seconds() / 86400
     ax.axvline(end, color="gray", ls=":", lw=0.8)
     refused = [m.model for m in result.models if not m.fitted]
-    ax.set_title("Cumulative fixes" + (f" (refused: {', '.join(refused)})" if refused else ""))
+    levels = [e.level for m in result.models if m.fit is not None for e in m.fit.params]
+    how = (f"NHPP maximum likelihood\nshaded: {levels[0]:.0%} parametric-bootstrap band "
+           "of the mean value" if levels else "no model fitted")
+    ax.set_title(f"Cumulative fixes (n={result.n}; {how})"
+                 + (f"\nrefused: {', '.join(refused)}" if refused else ""), fontsize="medium")
     if result.trend is not None:
         lines = [f"{t.name}: {t.direction} (p_growth={t.p_growth:.2g})"
                  for t in (result.trend.laplace, result.trend.power_law)]

@@ -54,7 +54,10 @@ def plot_survival(analysis: Any, *, group: str = "(all)", ax: Axes | None = None
     ax.set_xlabel(f"lifetime ({analysis.unit}, {analysis.basis} basis)")
     ax.set_ylabel("share of defects not yet fixed")
     ax.set_ylim(0, 1.02)
-    ax.set_title(f"Defect lifetimes: {group}")
+    lv = analysis.summary["level"].dropna()
+    ax.set_title(f"Defect lifetimes: {group}"
+                 + (f"\nshaded: {lv.iloc[0]:.0%} pointwise bands (Greenwood log-log; "
+                    "bootstrap for Lynden-Bell)" if len(lv) else ""), fontsize="medium")
     ax.legend(fontsize="small")
     return ax
 
