@@ -25,7 +25,7 @@ from procmetrics.errors import InsufficientData
 
 
 def _defects(ctx: ClaimContext, cuts: list[pd.Timestamp] | None = None):
-    from procmetrics.analyse.defects import build_defects
+    from procmetrics.analyse.lifetimes.defects import build_defects
 
     share = cl.unresolved_share(ctx.fix_links)
     if share is not None and share > ctx.unresolved_limit:
@@ -38,8 +38,8 @@ def _defects(ctx: ClaimContext, cuts: list[pd.Timestamp] | None = None):
 
 
 def eval_median_lifetime(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
-    from procmetrics.analyse.defects import lifetimes_for_estimation
-    from procmetrics.analyse.lifetimes import quantile_estimates
+    from procmetrics.analyse.lifetimes.defects import lifetimes_for_estimation
+    from procmetrics.analyse.lifetimes.estimators import quantile_estimates
 
     p = claim.params
     after, before = _window(ctx, p)
@@ -69,8 +69,8 @@ def eval_median_lifetime(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
 
 
 def eval_lifetimes_shorter(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
-    from procmetrics.analyse.cox import fit_cox
-    from procmetrics.analyse.lifetime_analysis import restrict_to_horizon
+    from procmetrics.analyse.lifetimes.cox import fit_cox
+    from procmetrics.analyse.lifetimes.analysis import restrict_to_horizon
 
     p = claim.params
     date = cl.resolve_date(p["date"], ctx, "date")
@@ -100,7 +100,7 @@ def eval_lifetimes_shorter(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
         ordered = _ordered_after_below(d, claim, ctx)
         if ordered is not None:
             return ordered
-        from procmetrics.analyse.survival_tests import logrank
+        from procmetrics.analyse.lifetimes.comparisons import logrank
 
         lr = logrank(d["lifetime"], d["after"])
         cav.append(caveat("diagnostic_failed", "the hazards before and after are not "
@@ -132,8 +132,8 @@ def _ordered_after_below(d: pd.DataFrame, claim: Claim, ctx: ClaimContext
     ----------
     Peto & Peto (1972) (log-rank); Kaplan & Meier (1958).
     """
-    from procmetrics.analyse.lifetimes import kaplan_meier
-    from procmetrics.analyse.survival_tests import logrank
+    from procmetrics.analyse.lifetimes.estimators import kaplan_meier
+    from procmetrics.analyse.lifetimes.comparisons import logrank
 
     a = kaplan_meier(d.loc[d["after"] == 1, "lifetime"].to_numpy(float), level=claim.level)
     b = kaplan_meier(d.loc[d["after"] == 0, "lifetime"].to_numpy(float), level=claim.level)
@@ -143,7 +143,7 @@ def _ordered_after_below(d: pd.DataFrame, claim: Claim, ctx: ClaimContext
     if (sa > sb + 0.05).any() or not (sa < sb).any():
         return None
     lr = logrank(d["lifetime"], d["after"])
-    from procmetrics.analyse.intervals import median_difference_ci
+    from procmetrics.analyse.measures.intervals import median_difference_ci
 
     after_t = d.loc[d["after"] == 1, "lifetime"].to_numpy(float)
     before_t = d.loc[d["after"] == 0, "lifetime"].to_numpy(float)
@@ -172,8 +172,8 @@ def _ordered_after_below(d: pd.DataFrame, claim: Claim, ctx: ClaimContext
 
 
 def eval_fix_rate(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
-    from procmetrics.analyse.nhpp import fit_power_law
-    from procmetrics.analyse.trendtests import trend_tests
+    from procmetrics.analyse.growth.nhpp import fit_power_law
+    from procmetrics.analyse.growth.trendtests import trend_tests
 
     after, before = _window(ctx, claim.params)
     c = ctx.commits[~ctx.commits["is_merge"].fillna(False).astype(bool)]

@@ -3,7 +3,7 @@
 Every kind names the method of the analysis layer it uses; the decision rule
 is :func:`procmetrics.analyse.claims.decide` (interval entirely on the claimed
 side). Share metrics are the proportion metrics of
-:mod:`procmetrics.analyse.metrics` (``review_coverage``, ``fix_ratio``, ...).
+:mod:`procmetrics.analyse.measures.metrics` (``review_coverage``, ``fix_ratio``, ...).
 
 References
 ----------
@@ -61,14 +61,14 @@ SPECS: dict[str, KindSpec] = {
                         "pooled share from an intercept-only " + GLM_METHOD),
     "declining": KindSpec("the share falls over time in the window",
                           {"metric": _METRIC, "after": _AFTER, "before": _BEFORE,
-                           "subsystem": _SUB}, "time trend (procmetrics.analyse.trend)"),
+                           "subsystem": _SUB}, "time trend (procmetrics.analyse.change.trend)"),
     "rising": KindSpec("the share rises over time in the window",
                        {"metric": _METRIC, "after": _AFTER, "before": _BEFORE,
-                        "subsystem": _SUB}, "time trend (procmetrics.analyse.trend)"),
+                        "subsystem": _SUB}, "time trend (procmetrics.analyse.change.trend)"),
     "fix_ratio_declining": KindSpec(
         "the share of commits that fix an earlier commit falls over time",
         {"after": _AFTER, "before": _BEFORE, "subsystem": _SUB},
-        "time trend (procmetrics.analyse.trend)"),
+        "time trend (procmetrics.analyse.change.trend)"),
     "median_lifetime_below": KindSpec(
         "half of the defects are fixed within the threshold",
         {"threshold_days": Param("days", True), "after": _AFTER, "before": _BEFORE,
@@ -121,7 +121,7 @@ def _flag_column(metric: str) -> tuple[str, str | None]:
 
 
 def _flags(ctx: ClaimContext, metric: str, subsystem: str | None) -> pd.DataFrame:
-    from procmetrics.analyse.metrics import MetricConfig, commit_flags
+    from procmetrics.analyse.measures.metrics import MetricConfig, commit_flags
 
     f = commit_flags(_commits(ctx, subsystem), ctx.trailers, MetricConfig(period=ctx.period))
     num, den = _flag_column(metric)
@@ -134,7 +134,7 @@ def _flags(ctx: ClaimContext, metric: str, subsystem: str | None) -> pd.DataFram
 def _adoption_caveat(ctx: ClaimContext, metric: str) -> list[Caveat]:
     if metric not in _FIX_METRICS or metric == "fixes_tag_adoption":
         return []
-    from procmetrics.analyse.metrics import MetricConfig, compute_period_metrics
+    from procmetrics.analyse.measures.metrics import MetricConfig, compute_period_metrics
 
     pm = compute_period_metrics(ctx.commits, ctx.trailers, tags=ctx.tags, config=MetricConfig(
         period=ctx.period, metrics=("fixes_tag_adoption",)))
@@ -144,7 +144,7 @@ def _adoption_caveat(ctx: ClaimContext, metric: str) -> list[Caveat]:
 def _per_period(f: pd.DataFrame, ctx: ClaimContext, split: pd.Timestamp | None = None
                 ) -> pd.DataFrame:
     """Successes and trials per period (and side of ``split``), in time order."""
-    from procmetrics.analyse.periods import assign_periods
+    from procmetrics.analyse.measures.periods import assign_periods
 
     labels, frame = assign_periods(f["date"], ctx.period, ctx.tags)
     d = f.assign(period=labels.to_numpy(),
@@ -274,8 +274,8 @@ def eval_level(claim: Claim, ctx: ClaimContext, side: str) -> ClaimVerdict:
 
 
 def eval_trend(claim: Claim, ctx: ClaimContext, side: str) -> ClaimVerdict:
-    from procmetrics.analyse.metrics import ALL, MetricConfig, compute_period_metrics
-    from procmetrics.analyse.trend import fit_trend
+    from procmetrics.analyse.measures.metrics import ALL, MetricConfig, compute_period_metrics
+    from procmetrics.analyse.change.trend import fit_trend
 
     p = claim.params
     metric = p.get("metric", "fix_ratio")

@@ -1,7 +1,7 @@
 """Fit one regression with the right family, dispersion handling and diagnostics.
 
-Shared by the trend (:mod:`procmetrics.analyse.trend`) and the interrupted time
-series (:mod:`procmetrics.analyse.its`). ``kind`` chooses the family:
+Shared by the trend (:mod:`procmetrics.analyse.change.trend`) and the interrupted time
+series (:mod:`procmetrics.analyse.change.its`). ``kind`` chooses the family:
 
 * ``"proportion"``: binomial GLM (logit) on successes out of trials; when the
   Pearson dispersion exceeds ``dispersion_threshold`` the same GLM is refitted

@@ -12,8 +12,8 @@ from procmetrics.cli import add_store_argument
 
 def add_series_arguments(p: argparse.ArgumentParser) -> None:
     """--store, --repo, --period, --subsystem, --metric, --include-merges, --out."""
-    from procmetrics.analyse.vocabulary import METRICS
-    from procmetrics.analyse.periods import PERIODS
+    from procmetrics.analyse.measures.vocabulary import METRICS
+    from procmetrics.analyse.measures.periods import PERIODS
 
     add_store_argument(p)
     p.add_argument("--repo", help="repository name in the store (needed when it holds several)")
@@ -42,7 +42,7 @@ def load(args: argparse.Namespace) -> tuple[dict[str, pd.DataFrame], str]:
 
 def metric_config(args: argparse.Namespace, tables: dict[str, pd.DataFrame]) -> Any:
     """MetricConfig from the options; ``subsystems`` None means whole project only."""
-    from procmetrics.analyse.metrics import (DEFAULT_FIX_KEYWORDS, DEFAULT_REVIEW_KEYS,
+    from procmetrics.analyse.measures.metrics import (DEFAULT_FIX_KEYWORDS, DEFAULT_REVIEW_KEYS,
                                              MetricConfig)
 
     subs: tuple[str, ...] | None = None
@@ -58,7 +58,7 @@ def metric_config(args: argparse.Namespace, tables: dict[str, pd.DataFrame]) -> 
 
 def compute(args: argparse.Namespace, tables: dict[str, pd.DataFrame]) -> Any:
     """PeriodMetrics for the options (per subsystem only when asked)."""
-    from procmetrics.analyse.metrics import compute_period_metrics
+    from procmetrics.analyse.measures.metrics import compute_period_metrics
 
     cfg = metric_config(args, tables)
     cs = tables["commit_subsystems"] if cfg.subsystems else None

@@ -25,7 +25,7 @@ def run(args: argparse.Namespace) -> int:
     import numpy as np
     import pandas as pd
 
-    from procmetrics.analyse.changepoints import ChangePointConfig, changes_for_metric
+    from procmetrics.analyse.change.changepoints import ChangePointConfig, changes_for_metric
     from procmetrics.errors import InsufficientData
 
     tables, name = common.load(args)

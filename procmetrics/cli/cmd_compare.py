@@ -25,7 +25,7 @@ def register(sub: argparse._SubParsersAction) -> None:
 def run(args: argparse.Namespace) -> int:
     import numpy as np
 
-    from procmetrics.analyse.policy import DEFAULT_METRICS, compare_policy, resolve_date
+    from procmetrics.analyse.change.policy import DEFAULT_METRICS, compare_policy, resolve_date
 
     tables, name = common.load(args)
     at = resolve_date(args.at, tables["commits"])

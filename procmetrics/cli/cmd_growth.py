@@ -37,8 +37,8 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from procmetrics.analyse.defects import build_defects
-    from procmetrics.analyse.growth import analyse_growth, select_fix_times
+    from procmetrics.analyse.lifetimes.defects import build_defects
+    from procmetrics.analyse.growth.analysis import analyse_growth, select_fix_times
 
     tables, name = load_tables(args.store, args.repo)
     # every linked fix is an event, whatever the age of its introducer ...

@@ -93,7 +93,7 @@ def containment(tables: dict[str, pd.DataFrame], commits: list[str],
 
 
 def links_from(value: str | None) -> Any:
-    """``--links-from`` as :func:`procmetrics.analyse.defects.build_defects` takes it."""
+    """``--links-from`` as :func:`procmetrics.analyse.lifetimes.defects.build_defects` takes it."""
     if value is None or value == "first":
         return "first_link"
     if value == "all":
@@ -105,8 +105,8 @@ def links_from(value: str | None) -> Any:
 
 
 def run(args: argparse.Namespace) -> int:
-    from procmetrics.analyse.defects import build_defects
-    from procmetrics.analyse.lifetime_analysis import analyse_lifetimes
+    from procmetrics.analyse.lifetimes.defects import build_defects
+    from procmetrics.analyse.lifetimes.analysis import analyse_lifetimes
     from procmetrics.report.command_outputs import write_lifetime_outputs
 
     tables, name = load_tables(args.store, args.repo)
@@ -164,10 +164,10 @@ def _print_analysis(res: Any, horizon: float | None, indent: str = "  ") -> None
 def _heuristic(args: argparse.Namespace, tables: dict[str, pd.DataFrame],
                name: str) -> dict[str, Any]:
     """Blame-based (SZZ) links for fixes without a Fixes: link, analysed apart."""
-    from procmetrics.analyse.defects import build_defects
-    from procmetrics.analyse.lifetime_analysis import analyse_lifetimes
-    from procmetrics.analyse.metrics import DEFAULT_FIX_KEYWORDS
-    from procmetrics.analyse.szz import (
+    from procmetrics.analyse.lifetimes.defects import build_defects
+    from procmetrics.analyse.lifetimes.analysis import analyse_lifetimes
+    from procmetrics.analyse.measures.metrics import DEFAULT_FIX_KEYWORDS
+    from procmetrics.analyse.lifetimes.szz import (
         FAILURE_MODES, as_fix_links, sample_linked_fixes, select_unlinked_fixes,
         szz_candidates,
     )

@@ -20,7 +20,7 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from procmetrics.analyse.trend import fit_trend
+    from procmetrics.analyse.change.trend import fit_trend
     from procmetrics.errors import InsufficientData
 
     tables, name = common.load(args)

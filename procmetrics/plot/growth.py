@@ -17,7 +17,7 @@ def plot_growth(result: Any, *, ax: Axes | None = None) -> Axes:
 
     The part of a fitted curve beyond the end of the history is dashed
     (extrapolation). Refused models are named in the title.
-    ``result`` is a :class:`procmetrics.analyse.growth.GrowthResult`.
+    ``result`` is a :class:`procmetrics.analyse.growth.analysis.GrowthResult`.
     """
     ax = ax if ax is not None else Figure(figsize=(6.4, 4.0)).subplots()
     c = result.curve

@@ -49,8 +49,8 @@ def plot_series(rows: pd.DataFrame, *, trend: Any = None, changes: Any = None,
     Parameters
     ----------
     rows : rows of the tidy metric table for one metric and subsystem.
-    trend : optional :class:`~procmetrics.analyse.trend.TrendResult` (line + band).
-    changes : optional :class:`~procmetrics.analyse.changepoints.ChangePointResult`
+    trend : optional :class:`~procmetrics.analyse.change.trend.TrendResult` (line + band).
+    changes : optional :class:`~procmetrics.analyse.change.changepoints.ChangePointResult`
         (vertical line at each change, shaded position interval, segment levels).
     policy_date : optional date drawn as a dashed black line.
     """
@@ -105,7 +105,7 @@ def plot_series(rows: pd.DataFrame, *, trend: Any = None, changes: Any = None,
 def plot_its(result: Any, *, ax: Axes | None = None) -> Axes:
     """Interrupted time series: observed, fitted segments, counterfactual, the date.
 
-    ``result`` is an :class:`~procmetrics.analyse.its.ITSResult`. The
+    ``result`` is an :class:`~procmetrics.analyse.change.its.ITSResult`. The
     counterfactual (pre-date trend continued) is dashed: it is an extrapolation.
     """
     ax = ax if ax is not None else Figure(figsize=(7.0, 3.8)).subplots()

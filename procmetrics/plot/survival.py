@@ -42,7 +42,7 @@ def _step(ax: Axes, tab: Any, color: str, ls: str, label: str) -> None:
 def plot_survival(analysis: Any, *, group: str = "(all)", ax: Axes | None = None) -> Axes:
     """Naive and truncation-aware survival curves with bands for one group.
 
-    ``analysis`` is a :class:`procmetrics.analyse.lifetime_analysis.LifetimeAnalysis`.
+    ``analysis`` is a :class:`procmetrics.analyse.lifetimes.analysis.LifetimeAnalysis`.
     """
     ax = ax if ax is not None else Figure(figsize=(6.4, 4.0)).subplots()
     cur = analysis.curves[analysis.curves["group"] == group]

@@ -18,12 +18,12 @@ from typing import Any
 import pandas as pd
 
 from procmetrics.errors import ConfigError, ProcmetricsError
-from procmetrics.report import quality as ql
+from procmetrics.analyse.measures import quality as ql
 from procmetrics.report import sec_claims, sec_compare, sec_defects, sec_process, sec_scope
 from procmetrics.report.claimsfile import ClaimsFile, load_claims
 from procmetrics.report.context import BuildContext, apply_store_flags
 from procmetrics.report.csvout import write_csvs
-from procmetrics.report.data import StoreData, choose_repo, load_store_data, store_checksum
+from procmetrics.store.repodata import StoreData, choose_repo, load_store_data, store_checksum
 from procmetrics.report.flags import store_flags
 from procmetrics.report.html import render_html
 from procmetrics.report.jsonout import write_json

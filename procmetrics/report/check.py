@@ -8,9 +8,9 @@ from typing import Sequence
 from procmetrics.analyse.claim_kinds import SPECS
 from procmetrics.analyse.claims import ClaimVerdict, evaluate_claims
 from procmetrics.errors import ProcmetricsError
-from procmetrics.report import quality as ql
+from procmetrics.analyse.measures import quality as ql
 from procmetrics.report.claimsfile import load_claims
-from procmetrics.report.data import choose_repo, load_store_data
+from procmetrics.store.repodata import choose_repo, load_store_data
 from procmetrics.report.html import evidence_line
 
 

@@ -70,10 +70,10 @@ def write_lifetime_outputs(out: Path | str, table: Any, analysis: Any, *,
                            heuristic: Any = None) -> list[Path]:
     """Write the ``lifetimes`` files (see module docstring).
 
-    ``table`` is a :class:`procmetrics.analyse.defects.DefectTable`, ``analysis``
-    a :class:`procmetrics.analyse.lifetime_analysis.LifetimeAnalysis`;
+    ``table`` is a :class:`procmetrics.analyse.lifetimes.defects.DefectTable`, ``analysis``
+    a :class:`procmetrics.analyse.lifetimes.analysis.LifetimeAnalysis`;
     ``heuristic`` (optional) is a mapping with ``szz`` (an
-    :class:`procmetrics.analyse.szz.SZZResult`), ``table`` and ``analysis`` for
+    :class:`procmetrics.analyse.lifetimes.szz.SZZResult`), ``table`` and ``analysis`` for
     the blame-based defects and ``selection`` (how the fix commits were chosen).
     """
     from procmetrics.plot.survival import plot_survival, plot_survival_by_group
@@ -107,7 +107,7 @@ def write_lifetime_outputs(out: Path | str, table: Any, analysis: Any, *,
 
 def write_growth_outputs(out: Path | str, result: Any, *,
                          options: dict[str, Any] | None = None) -> list[Path]:
-    """Write the ``growth`` files for a :class:`procmetrics.analyse.growth.GrowthResult`."""
+    """Write the ``growth`` files for a :class:`procmetrics.analyse.growth.analysis.GrowthResult`."""
     from procmetrics.plot.growth import plot_growth, plot_u_plot
 
     out = _out_dir(out)

@@ -9,7 +9,7 @@ import pandas as pd
 
 from procmetrics.errors import InsufficientData, ProcmetricsError
 from procmetrics.report import flags as fl
-from procmetrics.report.data import StoreData
+from procmetrics.store.repodata import StoreData
 from procmetrics.report.model import Figure, Flag, Report, ReportOptions, Section
 
 

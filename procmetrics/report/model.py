@@ -36,7 +36,7 @@ class ReportOptions:
     pdf_engine: str = "auto"
     #: subsystems tested on their own in the before/after section when none are
     #: named and more than 20 have commits: the K largest with >= M commits on
-    #: each side of the date (procmetrics.analyse.selection)
+    #: each side of the date (procmetrics.analyse.measures.selection)
     subsystem_limit: int = 12
     subsystem_min_commits: int = 30
 

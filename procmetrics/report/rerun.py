@@ -77,7 +77,7 @@ def _options(man: dict[str, Any]) -> ReportOptions:
 
 
 def _store_still_matches(url: str, repo: str | None, checksum: str) -> bool:
-    from procmetrics.report.data import choose_repo, load_store_data, store_checksum
+    from procmetrics.store.repodata import choose_repo, load_store_data, store_checksum
     from procmetrics.store import open_store
 
     if "***" in url:       # a password was hidden in the manifest: cannot reconnect

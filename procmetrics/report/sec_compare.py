@@ -25,8 +25,8 @@ def _ci(e: Any, fmt: str = ".2f") -> str:
 
 
 def run_compare(ctx: BuildContext) -> Any:
-    from procmetrics.analyse.metrics import MetricConfig
-    from procmetrics.analyse.policy import compare_policy
+    from procmetrics.analyse.measures.metrics import MetricConfig
+    from procmetrics.analyse.change.policy import compare_policy
 
     d = ctx.data
     period = ctx.options.period
@@ -123,7 +123,7 @@ def _proportions(ctx: BuildContext, s: Any, pc: Any) -> None:
 
 
 def _distributions(ctx: BuildContext, s: Any, pc: Any) -> None:
-    from procmetrics.analyse.metrics import MetricConfig, commit_flags
+    from procmetrics.analyse.measures.metrics import MetricConfig, commit_flags
 
     if not pc.distributions:
         return

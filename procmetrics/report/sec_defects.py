@@ -16,7 +16,7 @@ MIN_AT_RISK = 10
 
 
 def compute_defects(ctx: BuildContext) -> Any:
-    from procmetrics.analyse.defects import build_defects
+    from procmetrics.analyse.lifetimes.defects import build_defects
 
     d = ctx.data
     cuts = [ctx.policy_date] if ctx.policy_date is not None else None
@@ -34,7 +34,7 @@ def horizon_days(ctx: BuildContext) -> float | None:
 
 
 def section_lifetimes(ctx: BuildContext) -> None:
-    from procmetrics.analyse.lifetime_analysis import analyse_lifetimes
+    from procmetrics.analyse.lifetimes.analysis import analyse_lifetimes
 
     rep = ctx.report
     s = rep.add_section("lifetimes", "Defect lifetimes")
@@ -60,7 +60,7 @@ def section_lifetimes(ctx: BuildContext) -> None:
         dt, by=by, horizon=H, level=ctx.options.level, min_at_risk=MIN_AT_RISK, rng=ctx.rng(11)))
     if la is None:
         return
-    from procmetrics.analyse.metrics import ALL
+    from procmetrics.analyse.measures.metrics import ALL
 
     curves = la.curves[la.curves["group"] == ALL].reset_index(drop=True)
     fig = Figure(
@@ -106,7 +106,7 @@ def section_lifetimes(ctx: BuildContext) -> None:
 
 
 def section_growth(ctx: BuildContext) -> None:
-    from procmetrics.analyse.growth import analyse_growth, select_fix_times
+    from procmetrics.analyse.growth.analysis import analyse_growth, select_fix_times
 
     rep = ctx.report
     s = rep.add_section("growth", "Reliability growth and its limits")
@@ -195,7 +195,7 @@ _METHOD_WORDS = {"truncation_aware": "truncation-aware", "naive": "naive",
 
 def quantile_table(summary: pd.DataFrame) -> pd.DataFrame:
     """One row per (group, estimator); each quantile as "estimate (low–high)" text."""
-    from procmetrics.analyse.metrics import ALL
+    from procmetrics.analyse.measures.metrics import ALL
 
     def cell(r: pd.Series) -> str:
         if pd.isna(r["value"]):

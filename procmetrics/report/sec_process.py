@@ -5,7 +5,7 @@ from typing import Any
 
 import pandas as pd
 
-from procmetrics.analyse.changepoints import STATED_FALSE_POSITIVE_RATE
+from procmetrics.analyse.change.changepoints import STATED_FALSE_POSITIVE_RATE
 from procmetrics.report import flags as fl
 from procmetrics.report import plots
 from procmetrics.report.context import BuildContext, date_text
@@ -25,7 +25,7 @@ KINDS = {"review_coverage": ("history", "review"), "independent_review": ("histo
 
 
 def compute_metrics(ctx: BuildContext) -> Any:
-    from procmetrics.analyse.metrics import MetricConfig, compute_period_metrics
+    from procmetrics.analyse.measures.metrics import MetricConfig, compute_period_metrics
 
     d = ctx.data
     cfg = MetricConfig(period=ctx.options.period, alpha=ctx.alpha,
@@ -41,9 +41,9 @@ def _series_rows(ctx: BuildContext, metric: str, subsystem: str) -> pd.DataFrame
 
 
 def section_process(ctx: BuildContext) -> None:
-    from procmetrics.analyse.changepoints import ChangePointConfig, changes_for_metric
-    from procmetrics.analyse.metrics import ALL
-    from procmetrics.analyse.trend import fit_trend
+    from procmetrics.analyse.change.changepoints import ChangePointConfig, changes_for_metric
+    from procmetrics.analyse.measures.metrics import ALL
+    from procmetrics.analyse.change.trend import fit_trend
 
     rep = ctx.report
     s = rep.add_section("process-series", "Process series and change points")

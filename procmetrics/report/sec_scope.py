@@ -175,7 +175,7 @@ def section_quality(ctx: BuildContext) -> None:
 
 def adoption_figure(ctx: BuildContext, s: Any) -> None:
     """Share of commits carrying a Fixes: line, and a review trailer, per period."""
-    from procmetrics.analyse.metrics import ALL
+    from procmetrics.analyse.measures.metrics import ALL
 
     if ctx.metrics is None:
         return

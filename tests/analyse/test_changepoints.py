@@ -7,9 +7,9 @@ import ruptures as rpt
 import statsmodels.api as sm
 from scipy import stats
 
-from procmetrics.analyse.changepoints import (STATED_FALSE_POSITIVE_RATE, ChangePointConfig,
+from procmetrics.analyse.change.changepoints import (STATED_FALSE_POSITIVE_RATE, ChangePointConfig,
                                               CostWeightedL2, detect_changes)
-from procmetrics.analyse.its import relate_changes_to_date
+from procmetrics.analyse.change.its import relate_changes_to_date
 
 import pandas as pd
 

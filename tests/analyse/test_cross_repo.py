@@ -18,10 +18,10 @@ import pandas as pd
 import pytest
 from lifelines import KaplanMeierFitter
 
-from procmetrics.analyse.defects import build_defects
-from procmetrics.analyse.lifetime_analysis import analyse_lifetimes
-from procmetrics.analyse.metrics import ALL, MetricConfig, compute_period_metrics
-from procmetrics.analyse.twosample import compare_distributions
+from procmetrics.analyse.lifetimes.defects import build_defects
+from procmetrics.analyse.lifetimes.analysis import analyse_lifetimes
+from procmetrics.analyse.measures.metrics import ALL, MetricConfig, compute_period_metrics
+from procmetrics.analyse.change.twosample import compare_distributions
 from procmetrics.mine import MineOptions
 from procmetrics.mine.multi import mine_many
 from procmetrics.store import open_store

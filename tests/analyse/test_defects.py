@@ -7,7 +7,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from procmetrics.analyse.defects import DEFECT_COLUMNS, build_defects
+from procmetrics.analyse.lifetimes.defects import DEFECT_COLUMNS, build_defects
 from procmetrics.errors import InsufficientData
 
 T0 = pd.Timestamp("2022-01-01", tz="UTC")
@@ -136,7 +136,7 @@ def test_link_era_removes_left_truncation_bias_simulation():
     lifetimes (they enter only when long); the link-era restriction recovers the truth."""
     from scipy import stats
 
-    from procmetrics.analyse.lifetimes import quantile_estimates
+    from procmetrics.analyse.lifetimes.estimators import quantile_estimates
 
     rng = np.random.default_rng(31)
     n = 3000

@@ -8,9 +8,9 @@ import pandas as pd
 import pytest
 from scipy import optimize, stats
 
-from procmetrics.analyse.growth import FixTimes, analyse_growth, select_fix_times
-from procmetrics.analyse.growth_checks import prequential_u, predictions
-from procmetrics.analyse.nhpp import (
+from procmetrics.analyse.growth.analysis import FixTimes, analyse_growth, select_fix_times
+from procmetrics.analyse.growth.checks import prequential_u, predictions
+from procmetrics.analyse.growth.nhpp import (
     fit_goel_okumoto, fit_power_law, go_loglik, pl_loglik, simulate_nhpp,
 )
 
@@ -155,8 +155,8 @@ def test_go_total_unbounded_when_a_constant_rate_fits_as_well():
     # against the constant-rate limit, computed here directly, is below chi2(1, 0.95)
     from scipy import stats
 
-    from procmetrics.analyse.growth_checks import predictions
-    from procmetrics.analyse.nhpp import go_residual_profile
+    from procmetrics.analyse.growth.checks import predictions
+    from procmetrics.analyse.growth.nhpp import go_residual_profile
 
     rng = np.random.default_rng(2)
     T = 100.0

@@ -6,8 +6,8 @@ import pandas as pd
 import pytest
 from scipy import stats
 
-from procmetrics.analyse.its import interrupted_time_series
-from procmetrics.analyse.metrics import MetricConfig, compute_period_metrics
+from procmetrics.analyse.change.its import interrupted_time_series
+from procmetrics.analyse.measures.metrics import MetricConfig, compute_period_metrics
 from procmetrics.errors import InsufficientData
 from tests.analyse.series_data import simulated_commits
 

@@ -8,9 +8,9 @@ import pandas as pd
 import pytest
 from lifelines import KaplanMeierFitter
 
-from procmetrics.analyse.defects import build_defects
-from procmetrics.analyse.lifetime_analysis import analyse_lifetimes, restrict_to_horizon
-from procmetrics.analyse.lifetimes import (
+from procmetrics.analyse.lifetimes.defects import build_defects
+from procmetrics.analyse.lifetimes.analysis import analyse_lifetimes, restrict_to_horizon
+from procmetrics.analyse.lifetimes.estimators import (
     curve_quantile, kaplan_meier, order_statistic_interval, quantile_estimates,
     truncated_product_limit,
 )

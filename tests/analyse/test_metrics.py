@@ -7,8 +7,8 @@ import pytest
 from scipy import stats
 from statsmodels.stats.proportion import proportion_confint
 
-from procmetrics.analyse.metrics import ALL, METRIC_COLUMNS, MetricConfig, compute_period_metrics
-from procmetrics.analyse.periods import UNRELEASED, assign_periods
+from procmetrics.analyse.measures.metrics import ALL, METRIC_COLUMNS, MetricConfig, compute_period_metrics
+from procmetrics.analyse.measures.periods import UNRELEASED, assign_periods
 from tests.analyse.series_data import commits_frame, simulated_commits, trailers_frame
 
 
@@ -153,7 +153,7 @@ def test_wilson_bounds_are_exact_at_zero_and_all_successes():
     # Wilson (1927): with 0 successes the lower bound is 0 and with n successes the
     # upper bound is 1 (the score interval's closed form); the upper bound at 0/n is
     # z^2 / (n + z^2), here checked for n = 358.
-    from procmetrics.analyse.intervals import wilson
+    from procmetrics.analyse.measures.intervals import wilson
     z = 1.959963984540054
     lo, hi = wilson(np.array([0, 358]), np.array([358, 358]))
     assert lo[0] == 0.0 and hi[1] == 1.0

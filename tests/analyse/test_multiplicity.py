@@ -5,7 +5,7 @@ import numpy as np
 import pytest
 from statsmodels.stats.multitest import multipletests
 
-from procmetrics.analyse.multiplicity import adjust_pvalues
+from procmetrics.analyse.change.multiplicity import adjust_pvalues
 
 # Benjamini & Hochberg (1995) JRSS B 57:289, the 15 p-values of their example; BH at
 # q = 0.05 rejects the four smallest (recalled from memory).

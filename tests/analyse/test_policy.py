@@ -4,7 +4,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from procmetrics.analyse.policy import compare_policy
+from procmetrics.analyse.change.policy import compare_policy
 from tests.analyse.series_data import simulated_commits
 
 AT = pd.Timestamp("2021-01-01", tz="UTC")

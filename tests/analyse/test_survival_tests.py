@@ -11,10 +11,10 @@ from lifelines import CoxPHFitter
 from lifelines.statistics import multivariate_logrank_test, proportional_hazard_test
 from statsmodels.duration.survfunc import survdiff
 
-from procmetrics.analyse.cox import (
+from procmetrics.analyse.lifetimes.cox import (
     categorical_groups, fit_cox, fit_lifetime_cox, lifetime_design,
 )
-from procmetrics.analyse.survival_tests import logrank, stratified_logrank
+from procmetrics.analyse.lifetimes.comparisons import logrank, stratified_logrank
 from procmetrics.errors import InsufficientData
 
 # Freireich et al. (1963), as in Klein & Moeschberger (2003) sec. 1.2.

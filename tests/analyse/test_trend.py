@@ -10,8 +10,8 @@ from statsmodels.discrete.discrete_model import Poisson
 
 from procmetrics.analyse import diagnostics as dg
 from procmetrics.analyse.glmfit import estimate_nb_alpha, fit_model
-from procmetrics.analyse.metrics import MetricConfig, compute_period_metrics
-from procmetrics.analyse.trend import fit_trend, predict_trend
+from procmetrics.analyse.measures.metrics import MetricConfig, compute_period_metrics
+from procmetrics.analyse.change.trend import fit_trend, predict_trend
 from tests.analyse.series_data import simulated_commits
 
 

@@ -7,7 +7,7 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from procmetrics.analyse.trendtests import laplace_test, power_law_trend_test, trend_tests
+from procmetrics.analyse.growth.trendtests import laplace_test, power_law_trend_test, trend_tests
 from procmetrics.errors import InsufficientData
 
 # NTDS interfailure times in days (Jelinski & Moranda 1972; the 26 production-phase

@@ -8,7 +8,7 @@ import pytest
 from scipy import stats
 from statsmodels.stats.proportion import confint_proportions_2indep
 
-from procmetrics.analyse.twosample import (_kth_difference, _moses_k, cliffs_delta,
+from procmetrics.analyse.change.twosample import (_kth_difference, _moses_k, cliffs_delta,
                                            compare_distributions, compare_proportions,
                                            hodges_lehmann, mwu_null_cdf, newcombe_interval)
 
@@ -126,7 +126,7 @@ def test_delong_interval_for_cliffs_delta_against_brute_force_and_bootstrap():
     # bootstrap percentile interval on the same data agrees to within 0.03.
     from scipy import stats as st
 
-    from procmetrics.analyse.twosample import cliffs_delta_delong
+    from procmetrics.analyse.change.twosample import cliffs_delta_delong
     rng = np.random.default_rng(8)
     a, b = rng.integers(0, 12, 60).astype(float), rng.integers(2, 14, 50).astype(float)
     gt = (b[:, None] > a[None, :]) + 0.5 * (b[:, None] == a[None, :])
@@ -145,7 +145,7 @@ def test_delong_interval_for_cliffs_delta_against_brute_force_and_bootstrap():
 
 
 def test_large_samples_switch_to_asymptotic_methods_and_say_so():
-    from procmetrics.analyse.twosample import LARGE_SAMPLE, compare_distributions
+    from procmetrics.analyse.change.twosample import LARGE_SAMPLE, compare_distributions
     rng = np.random.default_rng(9)
     a = rng.poisson(10, LARGE_SAMPLE + 1).astype(float)
     b = rng.poisson(10.4, LARGE_SAMPLE + 2).astype(float)
@@ -164,7 +164,7 @@ def test_median_intervals_against_scipy_quantile_test_and_coverage():
     # distribution-free order-statistic interval for the median (Conover 1999, 3.2).
     from scipy import stats as st
 
-    from procmetrics.analyse.intervals import median_ci, median_difference_ci
+    from procmetrics.analyse.measures.intervals import median_ci, median_difference_ci
     rng = np.random.default_rng(12)
     for n in (15, 40, 201):
         x = rng.lognormal(3, 1, n)

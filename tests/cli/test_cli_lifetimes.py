@@ -10,7 +10,7 @@ from pathlib import Path
 import pandas as pd
 import pytest
 
-from procmetrics.analyse.szz import FAILURE_MODES
+from procmetrics.analyse.lifetimes.szz import FAILURE_MODES
 from procmetrics.cli import main
 from tests.git_support import BOB, when
 

@@ -10,7 +10,7 @@ from pathlib import Path
 import pandas as pd
 import pytest
 
-from procmetrics.analyse.metrics import METRIC_COLUMNS
+from procmetrics.analyse.measures.metrics import METRIC_COLUMNS
 from procmetrics.cli import main
 
 ROOT = Path(__file__).resolve().parents[2]

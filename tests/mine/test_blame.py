@@ -9,8 +9,8 @@ from pathlib import Path
 import pandas as pd
 import pytest
 
-from procmetrics.analyse.defects import build_defects
-from procmetrics.analyse.szz import FAILURE_MODES, as_fix_links, szz_candidates
+from procmetrics.analyse.lifetimes.defects import build_defects
+from procmetrics.analyse.lifetimes.szz import FAILURE_MODES, as_fix_links, szz_candidates
 from procmetrics.mine.ancestry import tag_containment
 from procmetrics.mine.blame import blame_fixes
 

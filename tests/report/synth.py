@@ -11,7 +11,7 @@ import json
 import numpy as np
 import pandas as pd
 
-from procmetrics.report.data import StoreData
+from procmetrics.store.repodata import StoreData
 from procmetrics.store.tables import COLUMNS
 
 START = pd.Timestamp("2020-01-01", tz="UTC")

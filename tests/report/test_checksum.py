@@ -5,7 +5,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from procmetrics.report.data import (CHECKSUM_TABLES, StoreData, canonical_column_lines,
+from procmetrics.store.repodata import (CHECKSUM_TABLES, StoreData, canonical_column_lines,
                                      canonical_lines, load_store_data, store_checksum)
 from procmetrics.store import open_store
 from procmetrics.store.tables import COLUMNS, read_tables

@@ -4,10 +4,10 @@ from __future__ import annotations
 import pandas as pd
 import pytest
 
-from procmetrics.analyse.metrics import MetricConfig, compute_period_metrics
+from procmetrics.analyse.measures.metrics import MetricConfig, compute_period_metrics
 from procmetrics.analyse.result import CAVEAT_CODES, Caveat, Diagnostic, Estimate
-from procmetrics.analyse.twosample import compare_proportions
-from procmetrics.report import quality as ql
+from procmetrics.analyse.change.twosample import compare_proportions
+from procmetrics.analyse.measures import quality as ql
 from procmetrics.report.build import build_report
 from procmetrics.report.flags import from_result, rule_flags, store_flags
 from procmetrics.report.jsonout import schema

@@ -5,8 +5,8 @@ Reference: git itself (``git log --format=%aE`` with and without the .mailmap).
 from __future__ import annotations
 
 from procmetrics.mine import MineOptions, mine_repository
-from procmetrics.report.data import load_store_data
-from procmetrics.report.quality import identities
+from procmetrics.store.repodata import load_store_data
+from procmetrics.analyse.measures.quality import identities
 from procmetrics.report.sec_scope import _identity_words
 from procmetrics.store import open_store
 from tests.git_support import when

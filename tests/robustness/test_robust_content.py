@@ -198,7 +198,7 @@ def test_self_and_cyclic_fix_references(tmp_path):
     assert fl.loc[y, "status"] == "resolved" and fl.loc[y, "introducer_hash"] == x
     assert fl.loc[z, "status"] == "self"
     # the defect table built from these links terminates and keeps every link visible
-    from procmetrics.analyse.defects import build_defects
+    from procmetrics.analyse.lifetimes.defects import build_defects
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         table = build_defects(read_table(engine, "fix_links"),

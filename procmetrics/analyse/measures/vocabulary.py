@@ -1,7 +1,7 @@
 """Names shared by the metric code and the command line (no heavy imports).
 
 The command line builds its option choices from these without importing the
-statistics stack; :mod:`procmetrics.analyse.metrics` re-exports them.
+statistics stack; :mod:`procmetrics.analyse.measures.metrics` re-exports them.
 """
 from __future__ import annotations
 

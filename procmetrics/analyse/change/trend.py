@@ -26,8 +26,8 @@ import numpy as np
 import pandas as pd
 
 from procmetrics.analyse.glmfit import ModelFit, fit_model
-from procmetrics.analyse.metrics import ALL, METRICS
-from procmetrics.analyse.periods import period_midpoints, years_since
+from procmetrics.analyse.measures.metrics import ALL, METRICS
+from procmetrics.analyse.measures.periods import period_midpoints, years_since
 from procmetrics.analyse.result import Caveat, Diagnostic, Estimate, caveat, to_plain
 from procmetrics.errors import InsufficientData
 
@@ -107,7 +107,7 @@ def fit_trend(table: pd.DataFrame, metric: str, subsystem: str = ALL, *,
 
     Parameters
     ----------
-    table : the ``table`` of :func:`~procmetrics.analyse.metrics.compute_period_metrics`.
+    table : the ``table`` of :func:`~procmetrics.analyse.measures.metrics.compute_period_metrics`.
     metric, subsystem : which series.
     kind : override the model kind; ``"count"`` on a proportion metric models
         the numerator as a count with offset ``log(denominator)``.

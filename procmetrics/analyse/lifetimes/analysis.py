@@ -1,6 +1,6 @@
 """Defect-lifetime analysis per group: curves, quantile summaries, comparisons.
 
-This module turns a :class:`~procmetrics.analyse.defects.DefectTable` into
+This module turns a :class:`~procmetrics.analyse.lifetimes.defects.DefectTable` into
 what a report shows:
 
 * for the whole history and per group (``subsystem`` or ``period``): the naive
@@ -28,7 +28,7 @@ Table columns
 ``low``, ``high``, ``level``, ``n``, ``unit``.
 
 ``LifetimeAnalysis.curves`` (:data:`CURVES_COLUMNS`): ``group``, ``method`` and
-the curve columns of :data:`procmetrics.analyse.lifetimes.CURVE_COLUMNS`.
+the curve columns of :data:`procmetrics.analyse.lifetimes.estimators.CURVE_COLUMNS`.
 
 ``LifetimeAnalysis.groups`` (:data:`GROUP_COLUMNS`): ``group``, ``method``,
 ``n``, ``cut_time``, ``band_method``, ``population``.
@@ -41,12 +41,12 @@ from typing import Any, Literal
 import numpy as np
 import pandas as pd
 
-from procmetrics.analyse.defects import DefectTable, lifetimes_for_estimation
-from procmetrics.analyse.lifetimes import (
+from procmetrics.analyse.lifetimes.defects import DefectTable, lifetimes_for_estimation
+from procmetrics.analyse.lifetimes.estimators import (
     CURVE_COLUMNS, kaplan_meier, quantile_estimates, truncated_product_limit,
 )
 from procmetrics.analyse.result import Caveat, caveat, to_plain
-from procmetrics.analyse.survival_tests import TestResult, logrank, stratified_logrank
+from procmetrics.analyse.lifetimes.comparisons import TestResult, logrank, stratified_logrank
 
 SUMMARY_COLUMNS = ["group", "method", "quantile", "value", "low", "high", "level", "n", "unit"]
 CURVES_COLUMNS = ["group", "method"] + CURVE_COLUMNS
@@ -139,7 +139,7 @@ def analyse_lifetimes(
 
     Parameters
     ----------
-    table : the defect table (:func:`procmetrics.analyse.defects.build_defects`).
+    table : the defect table (:func:`procmetrics.analyse.lifetimes.defects.build_defects`).
     by : ``"subsystem"`` or ``"period"`` for per-group results, or None.
     horizon : common follow-up horizon (basis units) for the ``horizon``
         summaries and for the comparison; without it, no comparison is made

@@ -41,14 +41,14 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from procmetrics.analyse import intervals as iv
-from procmetrics.analyse.periods import assign_periods, period_midpoints, years_since
+from procmetrics.analyse.measures import intervals as iv
+from procmetrics.analyse.measures.periods import assign_periods, period_midpoints, years_since
 from procmetrics.analyse.result import Caveat, caveat, to_plain
-from procmetrics.analyse.selection import (SubsystemSelection, select_subsystems,
+from procmetrics.analyse.measures.selection import (SubsystemSelection, select_subsystems,
                                            subsystem_counts)
 from procmetrics.errors import InsufficientData
 
-from procmetrics.analyse.vocabulary import (  # noqa: E402 - re-exported names
+from procmetrics.analyse.measures.vocabulary import (  # noqa: E402 - re-exported names
     ALL, DEFAULT_FIX_KEYWORDS, DEFAULT_REVIEW_KEYS, METRIC_COLUMNS, METRICS,
 )
 
@@ -271,7 +271,7 @@ def compute_period_metrics(commits: pd.DataFrame, trailers: pd.DataFrame, *,
     ----------
     commits, trailers : tidy tables (columns as in ``store.tables.COLUMNS``).
     commit_subsystems : optional tidy table; without it only ``"(all)"`` is given.
-        Which subsystems get rows follows :mod:`procmetrics.analyse.selection`
+        Which subsystems get rows follows :mod:`procmetrics.analyse.measures.selection`
         (the ones named in ``config.subsystems``, else all when there are at most
         ``config.subsystem_all_up_to``, else the ``config.subsystem_limit``
         largest with enough commits); ``selection`` on the result says which.

@@ -43,7 +43,7 @@ from typing import Any
 import numpy as np
 from scipy import stats
 
-from procmetrics.analyse import intervals as iv
+from procmetrics.analyse.measures import intervals as iv
 from procmetrics.analyse.result import Caveat, Estimate, caveat, to_plain
 from procmetrics.errors import InsufficientData
 

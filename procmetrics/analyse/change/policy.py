@@ -7,7 +7,7 @@ used):
   change, placebo dates, optional control subsystem);
 * the same per subsystem, with Benjamini-Hochberg / Benjamini-Yekutieli
   adjusted p-values of the level change over the family of tests actually
-  run; which subsystems are tested follows :mod:`procmetrics.analyse.selection`
+  run; which subsystems are tested follows :mod:`procmetrics.analyse.measures.selection`
   with the minimum-commits rule applied to each side of the date (recorded in
   ``selection``);
 * per-commit distributions before vs after (lines changed per commit, distinct
@@ -17,8 +17,8 @@ used):
 
 References
 ----------
-See :mod:`procmetrics.analyse.its`, :mod:`procmetrics.analyse.twosample`,
-:mod:`procmetrics.analyse.multiplicity`, :mod:`procmetrics.analyse.changepoints`.
+See :mod:`procmetrics.analyse.change.its`, :mod:`procmetrics.analyse.change.twosample`,
+:mod:`procmetrics.analyse.change.multiplicity`, :mod:`procmetrics.analyse.change.changepoints`.
 """
 from __future__ import annotations
 
@@ -28,14 +28,14 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from procmetrics.analyse.changepoints import ChangePointConfig, changes_for_metric
-from procmetrics.analyse.its import (ChangeVsDate, ITSResult, interrupted_time_series,
+from procmetrics.analyse.change.changepoints import ChangePointConfig, changes_for_metric
+from procmetrics.analyse.change.its import (ChangeVsDate, ITSResult, interrupted_time_series,
                                      relate_changes_to_date)
-from procmetrics.analyse.metrics import ALL, MetricConfig, commit_flags, compute_period_metrics
-from procmetrics.analyse.multiplicity import MultiplicityResult, adjust_pvalues
+from procmetrics.analyse.measures.metrics import ALL, MetricConfig, commit_flags, compute_period_metrics
+from procmetrics.analyse.change.multiplicity import MultiplicityResult, adjust_pvalues
 from procmetrics.analyse.result import Caveat, to_plain
-from procmetrics.analyse.selection import SubsystemSelection
-from procmetrics.analyse.twosample import (DistributionComparison, ProportionComparison,
+from procmetrics.analyse.measures.selection import SubsystemSelection
+from procmetrics.analyse.change.twosample import (DistributionComparison, ProportionComparison,
                                            compare_distributions, compare_proportions)
 from procmetrics.errors import ConfigError, InsufficientData
 

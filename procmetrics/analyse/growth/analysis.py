@@ -44,12 +44,12 @@ from typing import Any, Literal, Sequence
 import numpy as np
 import pandas as pd
 
-from procmetrics.analyse.growth_checks import (
+from procmetrics.analyse.growth.checks import (
     Prediction, holdout_check, predictions, u_plot_check, uniformity_checks,
 )
-from procmetrics.analyse.nhpp import FITTERS, NHPPFit, mean_value
+from procmetrics.analyse.growth.nhpp import FITTERS, NHPPFit, mean_value
 from procmetrics.analyse.result import Caveat, Diagnostic, caveat, to_plain
-from procmetrics.analyse.trendtests import TrendTests, trend_tests
+from procmetrics.analyse.growth.trendtests import TrendTests, trend_tests
 from procmetrics.errors import InsufficientData
 
 CURVE_COLUMNS = ["model", "time", "observed", "fitted", "low", "high", "extrapolated"]

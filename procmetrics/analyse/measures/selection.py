@@ -3,8 +3,8 @@
 A kernel-scale MAINTAINERS file names thousands of subsystems; fitting a model
 to each costs time and memory in proportion to all of them while a reader looks
 at a dozen, and most are too small to carry a model. The rule (one place, used
-by :func:`~procmetrics.analyse.metrics.compute_period_metrics` and
-:func:`~procmetrics.analyse.policy.compare_policy`):
+by :func:`~procmetrics.analyse.measures.metrics.compute_period_metrics` and
+:func:`~procmetrics.analyse.change.policy.compare_policy`):
 
 1. Subsystems named by the user (``MetricConfig.subsystems``): exactly those.
 2. Otherwise, when at most ``all_up_to`` subsystems have commits in the window

@@ -372,7 +372,7 @@ def fit_lifetime_cox(defects: pd.DataFrame, *, covariates: Sequence[str] = LIFET
     """Cox model of defect lifetime on subsystem, period, review and change size.
 
     Pass horizon-restricted defects
-    (:func:`procmetrics.analyse.lifetime_analysis.restrict_to_horizon`) so the
+    (:func:`procmetrics.analyse.lifetimes.analysis.restrict_to_horizon`) so the
     cohorts had equal chance to show long lifetimes; otherwise a
     ``truncation_bias`` caveat is attached.
 

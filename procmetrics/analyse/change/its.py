@@ -40,10 +40,10 @@ import numpy as np
 import pandas as pd
 
 from procmetrics.analyse.glmfit import ModelFit, fit_model
-from procmetrics.analyse.metrics import ALL
-from procmetrics.analyse.periods import period_midpoints, years_since
+from procmetrics.analyse.measures.metrics import ALL
+from procmetrics.analyse.measures.periods import period_midpoints, years_since
 from procmetrics.analyse.result import Caveat, Diagnostic, Estimate, caveat, to_plain
-from procmetrics.analyse.trend import metric_kind, select_series
+from procmetrics.analyse.change.trend import metric_kind, select_series
 from procmetrics.errors import InsufficientData
 
 MIN_PERIODS_PER_SEGMENT = 12
@@ -141,7 +141,7 @@ def interrupted_time_series(table: pd.DataFrame, metric: str, at: pd.Timestamp |
     table : the tidy metric table.
     metric, subsystem : which series.
     at : the policy date (UTC if naive).
-    kind : override the model kind (see :func:`~procmetrics.analyse.trend.fit_trend`).
+    kind : override the model kind (see :func:`~procmetrics.analyse.change.trend.fit_trend`).
     control_subsystem : a subsystem the policy did not target (sensitivity check).
     placebo_shifts : placebo dates at +-1..placebo_shifts periods; a placebo is
         fitted only when it leaves >= 6 periods on both sides within its half.
@@ -280,7 +280,7 @@ def relate_changes_to_date(result, at: pd.Timestamp | str, *,
     ``status`` is ``"at declared date"`` when a change's first period is within
     ``tolerance_periods`` of the first period starting on or after ``at``,
     ``"elsewhere"`` when there are changes but none that close, and ``"none"``.
-    ``result`` is a :class:`~procmetrics.analyse.changepoints.ChangePointResult`
+    ``result`` is a :class:`~procmetrics.analyse.change.changepoints.ChangePointResult`
     computed on a dated series.
     """
     at = pd.Timestamp(at)

@@ -7,12 +7,13 @@ constants so the report can state them.
 from __future__ import annotations
 
 import json
-from typing import Any
+from typing import Any, Mapping
 
 import numpy as np
 import pandas as pd
 
-from procmetrics.report.data import StoreData
+#: the tidy tables of one repository (a StoreData or any mapping of table name to frame)
+StoreData = Mapping[str, pd.DataFrame]
 
 #: author date later than committer date by more than this counts as clock skew
 SKEW_TOLERANCE = pd.Timedelta(hours=1)

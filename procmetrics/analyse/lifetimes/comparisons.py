@@ -4,7 +4,7 @@
 ``group``, ``n``, ``observed``, ``expected`` (events observed and expected
 under equal hazards).
 
-The Cox model and its fallbacks live in :mod:`procmetrics.analyse.cox`.
+The Cox model and its fallbacks live in :mod:`procmetrics.analyse.lifetimes.cox`.
 """
 from __future__ import annotations
 

@@ -369,7 +369,7 @@ def changes_for_metric(table: pd.DataFrame, metric: str, subsystem: str = "(all)
     Proportions use numerator/denominator (empty periods dropped), counts the
     numerator, medians/totals the value.
     """
-    from procmetrics.analyse.trend import metric_kind, select_series
+    from procmetrics.analyse.change.trend import metric_kind, select_series
 
     kind = kind or metric_kind(metric)
     s = select_series(table, metric, subsystem, kind)

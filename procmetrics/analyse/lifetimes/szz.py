@@ -13,12 +13,12 @@ table. ``SZZResult.links`` columns (:data:`SZZ_COLUMNS`): ``repo``,
 ``fix_hash``, ``introducer_hash``, ``n_lines``, ``share``, ``intro_date``,
 ``fix_date``. :func:`as_fix_links` turns them into rows shaped like the tidy
 ``fix_links`` table (``raw_text = "szz-blame"``) so
-:func:`procmetrics.analyse.defects.build_defects` can use them.
+:func:`procmetrics.analyse.lifetimes.defects.build_defects` can use them.
 
 Which commits are blamed (:func:`select_unlinked_fixes`): non-merge commits
 that have **no resolved** ``Fixes:`` link (those already name their
 introducer), and either whose subject contains a fix keyword (a second
-heuristic, :data:`procmetrics.analyse.metrics.DEFAULT_FIX_KEYWORDS`, matched at
+heuristic, :data:`procmetrics.analyse.measures.metrics.DEFAULT_FIX_KEYWORDS`, matched at
 the start of a word, case-insensitive), or that the user lists explicitly.
 The keyword rule misses fixes described otherwise and includes commits that
 only mention a fix; both heuristics are named in the caveats.
@@ -34,7 +34,7 @@ from typing import Iterable, Sequence
 import numpy as np
 import pandas as pd
 
-from procmetrics.analyse.metrics import DEFAULT_FIX_KEYWORDS
+from procmetrics.analyse.measures.metrics import DEFAULT_FIX_KEYWORDS
 from procmetrics.analyse.result import Caveat, caveat, to_plain
 
 SZZ_COLUMNS = ["repo", "fix_hash", "introducer_hash", "n_lines", "share", "intro_date",

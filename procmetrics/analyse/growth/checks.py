@@ -25,7 +25,7 @@ from typing import Any
 import numpy as np
 from scipy import stats
 
-from procmetrics.analyse.nhpp import (
+from procmetrics.analyse.growth.nhpp import (
     FITTERS, NHPPFit, go_residual_profile, inverse_mean_value, mean_value,
 )
 from procmetrics.analyse.result import Diagnostic, Estimate, to_plain

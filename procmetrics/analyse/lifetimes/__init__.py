@@ -1,0 +1,38 @@
+"""How long do defects live: the defect table from fix links, naive and
+truncation-aware estimators, comparisons (log-rank, Cox), and blame-based
+(SZZ) candidate links.
+
+May import: ``procmetrics.analyse.measures``, the shared modules and ``errors``.
+"""
+from __future__ import annotations
+
+from importlib import import_module
+from typing import Any
+
+#: public name -> the module (in this package) that defines it; loaded on first use,
+#: so importing one module of the package does not load the others
+_EXPORTS: dict[str, str] = {
+    "DefectTable": "defects",
+    "build_defects": "defects",
+    "lifetimes_for_estimation": "defects",
+    "SurvivalCurve": "estimators",
+    "kaplan_meier": "estimators",
+    "truncated_product_limit": "estimators",
+    "quantile_estimates": "estimators",
+    "logrank": "comparisons",
+    "stratified_logrank": "comparisons",
+    "CoxResult": "cox",
+    "fit_cox": "cox",
+    "LifetimeAnalysis": "analysis",
+    "analyse_lifetimes": "analysis",
+    "restrict_to_horizon": "analysis",
+    "szz_candidates": "szz",
+    "select_unlinked_fixes": "szz",
+}
+__all__ = sorted(_EXPORTS)
+
+
+def __getattr__(name: str) -> Any:
+    if name in _EXPORTS:
+        return getattr(import_module(f"{__name__}.{_EXPORTS[name]}"), name)
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
