@@ -30,8 +30,8 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 def run(args: argparse.Namespace) -> int:
     # heavy analysis imports happen only when the command runs
-    from procmetrics.analyse.claims import exit_code
-    from procmetrics.report.check import check_claims, list_kinds, render_verdicts, write_text
+    from procmetrics.claims.base import exit_code
+    from procmetrics.claims.check import check_claims, list_kinds, render_verdicts, write_text
     from procmetrics.report.jsonout import dumps
 
     if args.list_kinds:

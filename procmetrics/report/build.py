@@ -10,7 +10,6 @@ from __future__ import annotations
 
 import datetime as dt
 import json
-import re
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -20,7 +19,7 @@ import pandas as pd
 from procmetrics.errors import ConfigError, ProcmetricsError
 from procmetrics.analyse.measures import quality as ql
 from procmetrics.report import sec_claims, sec_compare, sec_defects, sec_process, sec_scope
-from procmetrics.report.claimsfile import ClaimsFile, load_claims
+from procmetrics.claims.reader import ClaimsFile, load_claims
 from procmetrics.report.context import BuildContext, apply_store_flags
 from procmetrics.report.csvout import write_csvs
 from procmetrics.store.repodata import StoreData, choose_repo, load_store_data, store_checksum
@@ -30,41 +29,7 @@ from procmetrics.report.jsonout import write_json
 from procmetrics.report.manifest import build_manifest, read_manifest, write_manifest
 from procmetrics.report.model import PERIODS, Report, ReportOptions
 from procmetrics.report.pdf import write_pdf
-
-_HEX = re.compile(r"^[0-9a-fA-F]{4,64}$")
-
-
-def resolve_policy(data: StoreData, policy: str | None) -> pd.Timestamp | None:
-    """The policy date: an ISO date, a tag name, or a commit hash (prefix) in the store.
-
-    A tag or commit gives its committer date (the day the change landed).
-    """
-    if policy is None:
-        return None
-    text = policy.strip()
-    try:
-        day = dt.date.fromisoformat(text)
-        return pd.Timestamp(day.isoformat(), tz="UTC")
-    except ValueError:
-        pass
-    tags = data["tags"]
-    hit = tags[tags["name"] == text]
-    if len(hit):
-        commit = hit.iloc[0]["commit_hash"]
-        c = data["commits"]
-        row = c[c["hash"] == commit]
-        return row.iloc[0]["committer_date"] if len(row) else hit.iloc[0]["tag_date"]
-    if _HEX.match(text):
-        c = data["commits"]
-        rows = c[c["hash"].str.startswith(text.lower())]
-        if len(rows) == 1:
-            return rows.iloc[0]["committer_date"]
-        if len(rows) > 1:
-            raise ConfigError(f"--policy-date {text!r} matches {len(rows)} commits; give more "
-                              "digits", key="--policy-date")
-    raise ConfigError(f"--policy-date {text!r} is neither a date (YYYY-MM-DD) nor a tag or "
-                      "commit in the store", key="--policy-date")
-
+from procmetrics.analyse.measures.periods import resolve_policy
 
 def build_report(data: StoreData, options: ReportOptions, *,
                  claims: ClaimsFile | None = None) -> Report:

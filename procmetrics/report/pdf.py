@@ -26,7 +26,8 @@ from typing import Any
 
 from procmetrics.errors import ProcmetricsError
 from procmetrics.report.flags import describe
-from procmetrics.report.html import evidence_line, fmt_value
+from procmetrics.claims.render import evidence_line
+from procmetrics.report.html import fmt_value
 from procmetrics.report.model import Report
 
 CHROMIUM_FLAGS = ("--headless", "--no-sandbox", "--disable-gpu",

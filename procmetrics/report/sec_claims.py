@@ -3,7 +3,8 @@ from __future__ import annotations
 
 from collections import Counter
 
-from procmetrics.analyse.claims import VERDICT_LABELS, ClaimContext, evaluate_claims
+from procmetrics.claims.base import VERDICT_LABELS, ClaimContext
+from procmetrics.claims.registry import evaluate_claims
 from procmetrics.analyse.result import CAVEAT_CODES
 from procmetrics.report.context import BuildContext
 from procmetrics.report.flags import describe

@@ -6,11 +6,12 @@ import pandas as pd
 import pytest
 import statsmodels.api as sm
 
-from procmetrics.analyse.claim_kinds import share_shift
-from procmetrics.analyse.claims import (
+from procmetrics.claims.shares import share_shift
+from procmetrics.claims.base import (
     NOT_SUPPORTABLE, NOT_SUPPORTED, SUPPORTED, UNDECIDABLE, Claim, ClaimContext, ClaimVerdict,
-    evaluate_claim, exit_code,
+    exit_code,
 )
+from procmetrics.claims.registry import evaluate_claim
 
 from tests.report.synth import synth
 

@@ -6,9 +6,9 @@ import datetime as dt
 import pytest
 from hypothesis import given, settings, strategies as st
 
-from procmetrics.analyse.claim_kinds import SPECS
+from procmetrics.claims.registry import SPECS
 from procmetrics.errors import ConfigError
-from procmetrics.report.claimsfile import load_claims, parse_claims
+from procmetrics.claims.reader import load_claims, parse_claims
 
 GOOD = """\
 format = 1

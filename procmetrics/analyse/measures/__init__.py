@@ -24,6 +24,7 @@ _EXPORTS: dict[str, str] = {
     "assign_periods": "periods",
     "period_midpoints": "periods",
     "years_since": "periods",
+    "resolve_policy": "periods",
     "SubsystemSelection": "selection",
     "select_subsystems": "selection",
     "history_state": "quality",

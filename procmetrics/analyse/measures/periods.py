@@ -15,12 +15,14 @@ the later ones get empty periods, which are dropped.
 """
 from __future__ import annotations
 
-from typing import Literal
+import datetime as dt
+import re
+from typing import Literal, Mapping
 
 import numpy as np
 import pandas as pd
 
-from procmetrics.errors import InsufficientData
+from procmetrics.errors import ConfigError, InsufficientData
 
 Period = Literal["month", "quarter", "year", "release"]
 PERIODS: tuple[str, ...] = ("month", "quarter", "year", "release")
@@ -134,3 +136,38 @@ def years_since(ts: pd.Series | pd.Timestamp, origin: pd.Timestamp) -> np.ndarra
     if isinstance(delta, pd.Timedelta):
         return np.asarray(delta / pd.Timedelta(days=365.25), dtype=float)
     return np.asarray(delta / pd.Timedelta(days=365.25), dtype=float)
+
+
+_HEX = re.compile(r"^[0-9a-fA-F]{4,64}$")
+
+
+def resolve_policy(data: Mapping[str, pd.DataFrame], policy: str | None) -> pd.Timestamp | None:
+    """The policy date: an ISO date, a tag name, or a commit hash (prefix) in the store.
+
+    A tag or commit gives its committer date (the day the change landed).
+    """
+    if policy is None:
+        return None
+    text = policy.strip()
+    try:
+        day = dt.date.fromisoformat(text)
+        return pd.Timestamp(day.isoformat(), tz="UTC")
+    except ValueError:
+        pass
+    tags = data["tags"]
+    hit = tags[tags["name"] == text]
+    if len(hit):
+        commit = hit.iloc[0]["commit_hash"]
+        c = data["commits"]
+        row = c[c["hash"] == commit]
+        return row.iloc[0]["committer_date"] if len(row) else hit.iloc[0]["tag_date"]
+    if _HEX.match(text):
+        c = data["commits"]
+        rows = c[c["hash"].str.startswith(text.lower())]
+        if len(rows) == 1:
+            return rows.iloc[0]["committer_date"]
+        if len(rows) > 1:
+            raise ConfigError(f"--policy-date {text!r} matches {len(rows)} commits; give more "
+                              "digits", key="--policy-date")
+    raise ConfigError(f"--policy-date {text!r} is neither a date (YYYY-MM-DD) nor a tag or "
+                      "commit in the store", key="--policy-date")

@@ -1,4 +1,4 @@
-"""Read a claims file (TOML) into :class:`~procmetrics.analyse.claims.Claim` objects.
+"""Read a claims file (TOML) into :class:`~procmetrics.claims.base.Claim` objects.
 
 Format (version 1)::
 
@@ -14,7 +14,7 @@ Format (version 1)::
     level = 0.9             # optional, this claim only
 
 Kinds and their parameters are listed by ``procmetrics check --list-kinds``
-(and in :data:`procmetrics.analyse.claim_kinds.SPECS`). Every error names the
+(and in :data:`procmetrics.claims.registry.SPECS`). Every error names the
 file, the line and the key.
 """
 from __future__ import annotations
@@ -27,8 +27,8 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-from procmetrics.analyse.claim_kinds import SHARE_METRICS, SPECS
-from procmetrics.analyse.claims import POLICY, Claim
+from procmetrics.claims.base import POLICY, Claim
+from procmetrics.claims.registry import SHARE_METRICS, SPECS
 from procmetrics.errors import ConfigError
 
 TOP_KEYS = {"format", "level", "claim"}

@@ -5,20 +5,20 @@ import textwrap
 from pathlib import Path
 from typing import Sequence
 
-from procmetrics.analyse.claim_kinds import SPECS
-from procmetrics.analyse.claims import ClaimVerdict, evaluate_claims
+from procmetrics.claims.base import ClaimVerdict
+from procmetrics.claims.registry import SPECS, evaluate_claims
 from procmetrics.errors import ProcmetricsError
 from procmetrics.analyse.measures import quality as ql
-from procmetrics.report.claimsfile import load_claims
+from procmetrics.claims.reader import load_claims
 from procmetrics.store.repodata import choose_repo, load_store_data
-from procmetrics.report.html import evidence_line
+from procmetrics.claims.render import evidence_line
 
 
 def check_claims(claims_path: str, *, store: str | None, repo: str | None = None,
                  policy: str | None = None, period: str = "quarter") -> list[ClaimVerdict]:
     """Parse the claims file, read the store and judge every claim."""
-    from procmetrics.analyse.claims import ClaimContext
-    from procmetrics.report.build import resolve_policy
+    from procmetrics.analyse.measures.periods import resolve_policy
+    from procmetrics.claims.base import ClaimContext
     from procmetrics.store import open_store
 
     claims = load_claims(claims_path)

@@ -246,26 +246,6 @@ def unresolved_share(fix_links: pd.DataFrame) -> float | None:
     return None if st.empty else float((st != "resolved").mean())
 
 
-def evaluate_claim(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
-    """Judge one claim (see the module docstring for the verdicts)."""
-    from procmetrics.analyse.claim_kinds import EVALUATORS, SPECS
-
-    spec = SPECS[claim.kind]
-    if claim.kind in NOT_SUPPORTABLE_KINDS:
-        return EVALUATORS[claim.kind](claim, ctx)
-    blockers = history_blockers(ctx)
-    if blockers:
-        return ClaimVerdict(claim, UNDECIDABLE, tuple(blockers), spec.method)
-    try:
-        return EVALUATORS[claim.kind](claim, ctx)
-    except Undecidable as exc:
-        return undecidable(claim, spec.method, str(exc))
-
-
-def evaluate_claims(claims: Sequence[Claim], ctx: ClaimContext) -> list[ClaimVerdict]:
-    return [evaluate_claim(c, ctx) for c in claims]
-
-
 def exit_code(verdicts: Sequence[ClaimVerdict]) -> int:
     """Exit status for a pipeline gate.
 
@@ -283,4 +263,4 @@ NOT_SUPPORTABLE_KINDS = ("residual_defects_below", "no_defects_remain")
 
 __all__ = ["Claim", "ClaimContext", "ClaimVerdict", "KindSpec", "Param", "VERDICTS",
            "VERDICT_LABELS", "SUPPORTED", "NOT_SUPPORTED", "UNDECIDABLE", "NOT_SUPPORTABLE",
-           "evaluate_claim", "evaluate_claims", "exit_code", "decide"]
+           "exit_code", "decide"]

@@ -1,27 +1,33 @@
-"""Claim evaluators about defects: lifetimes, fix rates, and residual defects.
-
-Split from :mod:`procmetrics.analyse.claim_kinds` (which holds the kind
-specifications and the share-metric evaluators); the decision rule is
-:func:`procmetrics.analyse.claims.decide`.
+"""Claim kinds about defect lifetimes: the median, and shorter lifetimes after a date.
 
 References
 ----------
 Lynden-Bell (1971) (right-truncated lifetimes); Cox (1972) (hazard ratio);
-Crow (1974), MIL-HDBK-189C (power-law NHPP); Cox & Lewis (1966) (Laplace test);
-Littlewood & Strigini (1993) (limits of evidence for residual-defect claims).
+Peto & Peto (1972) (log-rank); Kaplan & Meier (1958).
 """
 from __future__ import annotations
 
 import numpy as np
 import pandas as pd
 
-from procmetrics.analyse import claims as cl
-from procmetrics.analyse.claim_kinds import SPECS, _window, _adoption_caveat
-from procmetrics.analyse.claims import (
-    NOT_SUPPORTABLE, Claim, ClaimContext, ClaimVerdict, Undecidable,
-)
+from procmetrics.claims import base as cl
+from procmetrics.claims.base import Claim, ClaimContext, ClaimVerdict, KindSpec, Param, Undecidable
+from procmetrics.claims.common import AFTER, BEFORE, SUBSYSTEM, window
 from procmetrics.analyse.result import Estimate, caveat
 from procmetrics.errors import InsufficientData
+
+SPECS: dict[str, KindSpec] = {
+    "median_lifetime_below": KindSpec(
+        "half of the defects are fixed within the threshold",
+        {"threshold_days": Param("days", True), "after": AFTER, "before": BEFORE,
+         "subsystem": SUBSYSTEM},
+        "median of the truncation-aware (Lynden-Bell) lifetime distribution, "
+        "percentile bootstrap interval"),
+    "lifetimes_shorter_after": KindSpec(
+        "defects introduced after the date are fixed sooner than those before",
+        {"date": Param("date", True), "horizon_days": Param("days"), "subsystem": SUBSYSTEM},
+        "Cox hazard ratio of fixing (after/before) within a common follow-up horizon"),
+}
 
 
 def _defects(ctx: ClaimContext, cuts: list[pd.Timestamp] | None = None):
@@ -42,7 +48,7 @@ def eval_median_lifetime(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
     from procmetrics.analyse.lifetimes.estimators import quantile_estimates
 
     p = claim.params
-    after, before = _window(ctx, p)
+    after, before = window(ctx, p)
     table = _defects(ctx)
     d, n_neg = lifetimes_for_estimation(table.defects)
     if after is not None:
@@ -171,49 +177,7 @@ def _ordered_after_below(d: pd.DataFrame, claim: Claim, ctx: ClaimContext
         test=test)
 
 
-def eval_fix_rate(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
-    from procmetrics.analyse.growth.nhpp import fit_power_law
-    from procmetrics.analyse.growth.trendtests import trend_tests
-
-    after, before = _window(ctx, claim.params)
-    c = ctx.commits[~ctx.commits["is_merge"].fillna(False).astype(bool)]
-    start = after if after is not None else c["committer_date"].min()
-    end = before if before is not None else c["committer_date"].max()
-    fixes = c.loc[(c["n_resolved_fixes"] > 0) & (c["committer_date"] > start)
-                  & (c["committer_date"] <= end), "committer_date"]
-    if len(fixes) < ctx.min_n:
-        raise Undecidable(f"only {len(fixes)} fixing commits in the window "
-                          f"(at least {ctx.min_n} needed)")
-    t = np.sort(((fixes - start).dt.total_seconds() / 86400.0).to_numpy(float))
-    T = float((end - start).total_seconds() / 86400.0)
-    fit = fit_power_law(t, T, level=claim.level)
-    beta = next(e for e in fit.params if e.name == "beta")
-    tests = trend_tests(t, T, alpha=round(1 - claim.level, 10))
-    cav = _adoption_caveat(ctx, "fix_ratio")
-    extra = [tests.message, "a falling fix rate is consistent with fewer defects, but "
-             "equally with less testing, less use or a smaller team"]
-    return cl.decide(claim, beta, side="below", threshold=1.0, what="power-law shape beta",
-                     method=SPECS[claim.kind].method, n=len(t),
-                     test={"name": "Laplace test (growth, one-sided)",
-                           "p_value": float(tests.laplace.p_growth)}, caveats=cav, extra=extra)
-
-
-def eval_not_supportable(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
-    what = ("that fewer than {} defects remain".format(claim.params["threshold"])
-            if claim.kind == "residual_defects_below" else "that no defects remain")
-    reasons = (
-        f"A commit history records the defects that were found and fixed; it holds no "
-        f"trace of those still hidden, so it cannot show {what}.",
-        "Models that project a falling fix rate to a number of remaining defects "
-        "(reliability growth) rest on assumptions this data cannot check: constant "
-        "testing effort and use, every defect fixed with a link, no new code; their "
-        "projection is an extrapolation.",
-        "A falling rate of fixes is equally consistent with less testing, less use or a "
-        "smaller team.",
-        "Evidence of this kind must come from elsewhere (verification and validation "
-        "records, field data, the safety case) and be judged by the assessor.",
-    )
-    cav = (caveat("not_identifiable", "the number of undiscovered defects cannot be "
-                  "identified from fix records", "fail"),)
-    return ClaimVerdict(claim, NOT_SUPPORTABLE, reasons, SPECS[claim.kind].method,
-                        caveats=cav)
+EVALUATORS = {
+    "median_lifetime_below": eval_median_lifetime,
+    "lifetimes_shorter_after": eval_lifetimes_shorter,
+}
