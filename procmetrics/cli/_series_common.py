@@ -35,7 +35,7 @@ def add_series_arguments(p: argparse.ArgumentParser) -> None:
 
 
 def load(args: argparse.Namespace) -> tuple[dict[str, pd.DataFrame], str]:
-    from procmetrics.cli.cmd_lifetimes import load_tables
+    from procmetrics.session import load_tables
 
     return load_tables(args.store, args.repo)
 

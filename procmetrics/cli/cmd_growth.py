@@ -5,7 +5,7 @@ import argparse
 import numpy as np
 
 from procmetrics.cli import add_store_argument
-from procmetrics.cli.cmd_lifetimes import containment, links_from, load_tables
+from procmetrics.session import containment, links_from, load_tables
 
 
 def register(sub: argparse._SubParsersAction) -> None:
