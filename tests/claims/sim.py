@@ -15,6 +15,7 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
+from procmetrics.analyse.measures.vocabulary import METRIC_COLUMNS
 from procmetrics.claims.base import ClaimContext
 from procmetrics.store.tables import COLUMNS
 
@@ -52,6 +53,37 @@ def _empty(name: str) -> pd.DataFrame:
     return pd.DataFrame(columns=COLUMNS[name])
 
 
+def _share_counts(rng, n_periods, per_period, intercept, slope_per_year, step, change_at, rho):
+    months = pd.date_range(START, periods=n_periods + 1, freq="MS")
+    at = months[change_at]
+    m = rng.poisson(per_period, n_periods)
+    mid = months[:-1] + (months[1:] - months[:-1]) / 2
+    t = np.asarray((mid - at) / pd.Timedelta(days=365.25), float)
+    p = 1 / (1 + np.exp(-(intercept + slope_per_year * t
+                          + step * (np.arange(n_periods) >= change_at))))
+    if rho > 0:
+        ab = (1 - rho) / rho
+        p = rng.beta(p * ab, (1 - p) * ab)
+    return months, at, m, p
+
+
+def share_table(rng: np.random.Generator, *, n_periods: int = 48, per_period: int = 120,
+                intercept: float = -1.0, slope_per_year: float = 0.0, step: float = 0.0,
+                change_at: int = 24, rho: float = 0.0) -> tuple[pd.DataFrame, pd.Timestamp]:
+    """The per-month review-coverage table (columns of ``METRIC_COLUMNS``) that
+    :func:`share_history` would give, drawn directly as binomial counts (fast)."""
+    months, at, m, p = _share_counts(rng, n_periods, per_period, intercept, slope_per_year,
+                                     step, change_at, rho)
+    x = rng.binomial(m, p)
+    tab = pd.DataFrame({"period": [f"{d:%Y-%m}" for d in months[:-1]],
+                        "period_start": months[:-1], "period_end": months[1:],
+                        "subsystem": "(all)", "metric": "review_coverage",
+                        "numerator": x.astype(float), "denominator": m.astype(float),
+                        "value": x / m, "ci_low": np.nan, "ci_high": np.nan,
+                        "ci_method": "none", "n": m})
+    return tab.reindex(columns=METRIC_COLUMNS), at
+
+
 def share_history(rng: np.random.Generator, *, n_periods: int = 48, per_period: int = 120,
                   intercept: float = -1.0, slope_per_year: float = 0.0, step: float = 0.0,
                   change_at: int = 24, rho: float = 0.0) -> tuple[ClaimContext, pd.Timestamp]:
@@ -62,16 +94,8 @@ def share_history(rng: np.random.Generator, *, n_periods: int = 48, per_period: 
     about 1 + (m - 1) rho for m commits a month). Returns the context and the
     date of the change (first day of month ``change_at``).
     """
-    months = pd.date_range(START, periods=n_periods + 1, freq="MS")
-    at = months[change_at]
-    m = rng.poisson(per_period, n_periods)
-    mid = months[:-1] + (months[1:] - months[:-1]) / 2
-    t = np.asarray((mid - at) / pd.Timedelta(days=365.25), float)
-    p = 1 / (1 + np.exp(-(intercept + slope_per_year * t + step * (np.arange(n_periods)
-                                                                    >= change_at))))
-    if rho > 0:
-        ab = (1 - rho) / rho
-        p = rng.beta(p * ab, (1 - p) * ab)
+    months, at, m, p = _share_counts(rng, n_periods, per_period, intercept, slope_per_year,
+                                     step, change_at, rho)
     month = np.repeat(np.arange(n_periods), m)
     span = np.asarray((months[1:] - months[:-1]).total_seconds(), float)[month]
     dates = months[:-1][month] + pd.to_timedelta(rng.uniform(0, 1, len(month)) * span, "s")
@@ -134,3 +158,38 @@ def lifetime_history(rng: np.random.Generator, *, n_visible: int, median_before:
     ctx = ClaimContext(commits=commits, trailers=_empty("trailers"), fix_links=links,
                        period="quarter")
     return ctx, START + pd.to_timedelta(date_day, "D")
+
+
+def defect_table(rng: np.random.Generator, *, n_visible: int, median_before: float = 120.0,
+                 factor_after: float = 1.0, sigma: float = 1.0, years: float = 10.0):
+    """The defect table :func:`lifetime_history` would give after ``build_defects``,
+    drawn directly (fast), with dates at whole days (lifetimes in whole days, ties
+    broken by Efron's method in the Cox fit). Returns the table and the change date."""
+    from procmetrics.analyse.lifetimes.defects import DEFECT_COLUMNS, DefectTable
+
+    T = np.floor(years * 365.25)
+    date_day = np.floor(T / 2)
+    vis = _visible_share(rng, T, date_day, median_before, factor_after, sigma)
+    n = rng.poisson(n_visible / vis)
+    u = np.floor(rng.uniform(0, T, n))
+    life = np.ceil(np.exp(np.log(median_before * np.where(u >= date_day, factor_after, 1.0))
+                          + sigma * rng.standard_normal(n)))
+    keep = u + life <= T
+    u, life = u[keep], life[keep]
+    intro = START + pd.to_timedelta(u, "D")
+    d = pd.DataFrame({"repo": REPO, "introducer_hash": np.char.mod("a%039x", np.arange(len(u))),
+                      "intro_date": intro, "fix_date": intro + pd.to_timedelta(life, "D"),
+                      "lifetime_days": life, "lifetime": life, "window": T - u,
+                      "negative": np.zeros(len(u), bool), "subsystem": "(none)",
+                      "subsystems": "", "basis": "committer"}).reindex(columns=DEFECT_COLUMNS)
+    end = START + pd.to_timedelta(T, "D")
+    table = DefectTable(d, "committer", "days", end, {"resolved": len(d)}, 0, 0, 0,
+                        "simulated defects")
+    return table, START + pd.to_timedelta(date_day, "D")
+
+
+def _visible_share(rng, T, date_day, median_before, factor_after, sigma) -> float:
+    u0 = rng.uniform(0, T, 20000)
+    l0 = np.exp(np.log(median_before * np.where(u0 >= date_day, factor_after, 1.0))
+                + sigma * rng.standard_normal(20000))
+    return float(np.mean(u0 + l0 <= T))
