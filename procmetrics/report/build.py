@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import datetime as dt
 import json
+import os
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -26,7 +27,9 @@ from procmetrics.store.repodata import StoreData, choose_repo, load_store_data, 
 from procmetrics.report.flags import store_flags
 from procmetrics.report.html import render_html
 from procmetrics.report.jsonout import write_json
-from procmetrics.report.manifest import build_manifest, read_manifest, write_manifest
+from procmetrics.report.manifest import (build_manifest, read_manifest, sha256_file,
+                                         write_manifest)
+from procmetrics.report.meta import check_commit_url, copy_input, input_record, load_meta
 from procmetrics.report.model import PERIODS, Report, ReportOptions
 from procmetrics.report.pdf import write_pdf
 from procmetrics.analyse.measures.periods import resolve_policy
@@ -92,11 +95,54 @@ def _clear_previous(out: Path) -> None:
     old.unlink()
 
 
+def _copy_inputs(report: Report, out: Path, info: dict[str, Any]) -> list[str]:
+    """Copy the claims, rules and metadata files into ``out/inputs``; point the manifest there.
+
+    Paths in the manifest are relative to the manifest's folder; the absolute
+    path each file had when the report was made is kept as provenance only.
+    """
+    written: list[str] = []
+    opts = report.options
+    if opts.claims_path and info.get("claims") is not None:
+        rel = copy_input(opts.claims_path, out, "claims.toml")
+        info["claims"] = input_record(opts.claims_path, rel, info["claims"]["sha256"],
+                                      n_claims=info["claims"].get("n_claims"))
+        written.append(rel)
+    inputs: dict[str, Any] = {}
+    if opts.meta_path:
+        rel = copy_input(opts.meta_path, out, "report-meta.toml")
+        inputs["report_meta"] = input_record(opts.meta_path, rel, sha256_file(out / rel))
+        written.append(rel)
+    for run in info.get("mining_runs", []):
+        o = run.get("options_json") or {}
+        rules = o.get("subsystem_rules") if isinstance(o, dict) else None
+        if rules and Path(rules).is_file() and "subsystem_rules" not in inputs:
+            rel = copy_input(rules, out, "subsystem-rules" + (Path(rules).suffix or ".txt"))
+            inputs["subsystem_rules"] = input_record(rules, rel, sha256_file(out / rel),
+                                                     run_id=run.get("run_id"))
+            written.append(rel)
+        elif rules and "subsystem_rules" not in inputs:
+            inputs["subsystem_rules"] = {"path": None, "original_path": str(rules),
+                                         "note": "the rules file was gone when the report "
+                                                 "was made; not copied"}
+    info["inputs"] = inputs
+    url = str(info.get("store_url") or "")
+    if url.startswith("sqlite:///"):
+        info["store_path"] = Path(os.path.relpath(url[len("sqlite:///"):],
+                                                  out.resolve())).as_posix()
+    repo_path = (info.get("repository") or {}).get("path")
+    if repo_path:
+        info["repository_path"] = Path(os.path.relpath(repo_path, out.resolve())).as_posix()
+    return written
+
+
 def write_report(report: Report, out: Path, *, manifest_info: dict[str, Any]) -> ReportFiles:
     """Write the audit folder; ``manifest_info`` carries store URL, dialect, mining runs."""
     out.mkdir(parents=True, exist_ok=True)
     _clear_previous(out)
     prepared = dt.datetime.now(dt.timezone.utc).replace(microsecond=0)
+    info = dict(manifest_info)
+    inputs_written = _copy_inputs(report, out, info)
     csv_names = write_csvs(report, out)
     json_path = write_json(report, out / "report.json", csv_names)
     html_path = out / "report.html"
@@ -106,10 +152,11 @@ def write_report(report: Report, out: Path, *, manifest_info: dict[str, Any]) ->
     pdf = write_pdf(report, html_path, pdf_path, csv_names=csv_names,
                     prepared=f"{prepared:%Y-%m-%d}", engine=report.options.pdf_engine)
     written = sorted(set(csv_names.values()) | {"report.json", "report.html"}
+                     | set(inputs_written)
                      | ({"report.pdf"} if pdf["engine"] != "none" else set()))
     manifest = build_manifest(out=out, written=written, options=report.options,
                               store_checksum=report.store_checksum, pdf=pdf,
-                              prepared=prepared.isoformat(), **manifest_info)
+                              prepared=prepared.isoformat(), **info)
     man_path = write_manifest(manifest, out)
     return ReportFiles(out, html_path, pdf_path if pdf["engine"] != "none" else None,
                        json_path, man_path, tuple(out / n for n in sorted(csv_names.values())),
@@ -123,6 +170,8 @@ def make_report(store: str | None, out: str | Path, options: ReportOptions) -> R
     from procmetrics.store.schema import SCHEMA_VERSION
 
     claims = load_claims(options.claims_path) if options.claims_path else None
+    meta = load_meta(options.meta_path)
+    check_commit_url(options.commit_url)
     engine = open_store(store, create=False, readonly=True)
     try:
         repo = choose_repo(engine, options.repo)
@@ -133,6 +182,9 @@ def make_report(store: str | None, out: str | Path, options: ReportOptions) -> R
     opts = options if options.repo == repo else ReportOptions(
         **{**options.__dict__, "repo": repo})
     report = build_report(data, opts, claims=claims)
+    report.meta = meta
+    if meta.title:
+        report.title = meta.title
     repos = data["repositories"]
     runs = data["mining_runs"].sort_values("run_id")
     info = {

@@ -39,6 +39,10 @@ class ReportOptions:
     #: each side of the date (procmetrics.analyse.measures.selection)
     subsystem_limit: int = 12
     subsystem_min_commits: int = 30
+    #: report metadata file (TOML; :mod:`procmetrics.report.meta`): printed, copied, not analysed
+    meta_path: str | None = None
+    #: URL template with ``{hash}`` that turns every commit hash into a link
+    commit_url: str | None = None
 
     def to_dict(self) -> dict[str, Any]:
         """Options that change figures (no local paths: those go in the manifest)."""
@@ -152,6 +156,8 @@ class Report:
     claims: list[dict[str, Any]] = field(default_factory=list)
     store_checksum: str = ""
     provenance: dict[str, Any] = field(default_factory=dict)
+    #: document control data (:class:`procmetrics.report.meta.ReportMeta`), or None
+    meta: Any = None
 
     def add_figure(self, section: Section, fig: Figure) -> Figure:
         fig.number = len(self.figures) + 1
