@@ -22,7 +22,7 @@ from procmetrics.analyse.measures import quality as ql
 from procmetrics.report import sec_claims, sec_compare, sec_defects, sec_process, sec_scope
 from procmetrics.claims.reader import ClaimsFile, load_claims
 from procmetrics.report.context import BuildContext, apply_store_flags
-from procmetrics.report.csvout import write_csvs
+from procmetrics.report.csvout import write_csvs, write_evidence
 from procmetrics.store.repodata import StoreData, choose_repo, load_store_data, store_checksum
 from procmetrics.report.flags import store_flags
 from procmetrics.report.html import render_html
@@ -63,9 +63,30 @@ def build_report(data: StoreData, options: ReportOptions, *,
                    (ctx.metrics.caveats if ctx.metrics is not None else ()))
     apply_store_flags(report, store_flags(quality, unresolved_limit=options.unresolved_share_limit,
                                           adoption_rising=adoption))
+    _evidence_for_figures(ctx)
     sec_claims.section_limitations(ctx)
     sec_claims.section_use(ctx)
     return report
+
+
+COMMIT_FIGURES = ("trailer-adoption", "series-", "its-", "ecdf-")
+
+
+def _evidence_for_figures(ctx: BuildContext) -> None:
+    """The commit ledger behind the headline figures, and each figure's left-out commits."""
+    from procmetrics.analyse.measures.metrics import MetricConfig, commit_flags
+    from procmetrics.report.evidence import commit_ledger, denominator_note
+
+    d = ctx.data
+    flags = commit_flags(d["commits"], d["trailers"], MetricConfig(period=ctx.options.period))
+    ledger = commit_ledger(d["commits"], d["trailers"], d["fix_links"], flags)
+    ctx.report.evidence["evidence/commits.csv"] = ledger
+    for fig in ctx.report.figures.values():
+        if fig.key.startswith(COMMIT_FIGURES) and "subsystem" not in fig.key:
+            fig.denominator = denominator_note(fig.n, ledger,
+                                               lines=fig.key == "ecdf-lines")
+            if fig.denominator:
+                fig.values = {**fig.values, "denominator": fig.denominator}
 
 
 @dataclass(frozen=True)
@@ -144,6 +165,7 @@ def write_report(report: Report, out: Path, *, manifest_info: dict[str, Any]) ->
     info = dict(manifest_info)
     inputs_written = _copy_inputs(report, out, info)
     csv_names = write_csvs(report, out)
+    evidence_names = write_evidence(report, out)
     json_path = write_json(report, out / "report.json", csv_names)
     html_path = out / "report.html"
     html_path.write_text(render_html(report, csv_names=csv_names,
@@ -152,7 +174,7 @@ def write_report(report: Report, out: Path, *, manifest_info: dict[str, Any]) ->
     pdf = write_pdf(report, html_path, pdf_path, csv_names=csv_names,
                     prepared=f"{prepared:%Y-%m-%d}", engine=report.options.pdf_engine)
     written = sorted(set(csv_names.values()) | {"report.json", "report.html"}
-                     | set(inputs_written)
+                     | set(inputs_written) | set(evidence_names)
                      | ({"report.pdf"} if pdf["engine"] != "none" else set()))
     manifest = build_manifest(out=out, written=written, options=report.options,
                               store_checksum=report.store_checksum, pdf=pdf,

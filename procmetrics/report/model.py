@@ -95,6 +95,8 @@ class Figure:
     alt: str = ""
     #: what the figure rests on ("history", "trailers", "defects"): store-level flags use it
     kinds: tuple[str, ...] = ("history",)
+    #: plain words for the commits its n leaves out (merges, empty commits), or ""
+    denominator: str = ""
 
     def caption_line(self) -> str:
         n = "n not applicable" if self.n is None else f"n = {self.n:,}"
@@ -158,6 +160,8 @@ class Report:
     provenance: dict[str, Any] = field(default_factory=dict)
     #: document control data (:class:`procmetrics.report.meta.ReportMeta`), or None
     meta: Any = None
+    #: evidence files to write: path relative to the folder -> rows
+    evidence: dict[str, pd.DataFrame] = field(default_factory=dict)
 
     def add_figure(self, section: Section, fig: Figure) -> Figure:
         fig.number = len(self.figures) + 1

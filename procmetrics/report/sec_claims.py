@@ -8,14 +8,46 @@ from procmetrics.claims.registry import evaluate_claims
 from procmetrics.analyse.result import CAVEAT_CODES
 from procmetrics.report.context import BuildContext
 from procmetrics.report.flags import describe
-from procmetrics.report.model import Block
+from procmetrics.report.evidence import EVIDENCE_DIR, claim_pack
+from procmetrics.report.model import Block, Report
+from procmetrics.report.summary import CAUTION  # noqa: F401 - re-exported
 
-CAUTION = (
-    "The figures in this document are statistical evidence about the development process "
-    "as recorded in the repository's history. They support, and never replace, the "
-    "requirements of the applicable safety standard and the judgement of the assessor. A "
-    "history shows what was recorded: work that left no trace in commits and trailers is "
-    "invisible to it, and nothing here shows that defects are absent.")
+#: figures and tables that show the quantity each claim kind judges (keys; absent ones skipped)
+_RELATED = {
+    "review_coverage": ("series-review-coverage", "its-review-coverage", "before-after-shares"),
+    "independent_review": ("series-independent-review", "its-independent-review",
+                           "before-after-shares"),
+    "fix_ratio": ("series-fix-ratio", "its-fix-ratio", "trends", "trailer-adoption"),
+    "fixes_tag_adoption": ("trailer-adoption",),
+    "lifetimes": ("lifetime-curves", "lifetime-before-after", "lifetime-quantiles",
+                  "fix-references"),
+    "growth": ("growth-curve", "growth-trend-tests", "growth-models", "fix-references"),
+}
+
+
+def related_items(rep: Report, claim: object) -> list[dict[str, str]]:
+    """The report's figures and tables that show what a claim judges, in plain words."""
+    kind, p = getattr(claim, "kind", ""), dict(getattr(claim, "params", {}) or {})
+    if "lifetime" in kind:
+        group = "lifetimes"
+    elif kind == "fix_rate_declining":
+        group = "growth"
+    elif kind == "fix_ratio_declining":
+        group = "fix_ratio"
+    elif kind == "review_coverage_rose":
+        group = "review_coverage"
+    else:
+        group = str(p.get("metric", ""))
+    out = []
+    for key in _RELATED.get(group, ()):
+        if key in rep.figures:
+            f = rep.figures[key]
+            out.append({"ref": key, "label": f"Figure {f.number}", "title": f.title})
+        elif key in rep.tables:
+            t = rep.tables[key]
+            out.append({"ref": key, "label": f"Table {t.number}",
+                        "title": t.title.rstrip(". ")})
+    return out
 
 CAUTION_SHORT = (
     "Read this document as statistical evidence about the recorded history: it supports, and "
@@ -42,8 +74,15 @@ def section_claims(ctx: BuildContext) -> None:
         s.p("No claims file was given. Claims are checked with “procmetrics check” or by "
             "passing --claims to “procmetrics report”.")
         return
-    verdicts = evaluate_claims(ctx.claims.claims, claim_context(ctx))
+    cctx = claim_context(ctx)
+    verdicts = evaluate_claims(ctx.claims.claims, cctx)
     rep.claims = [v.to_dict() for v in verdicts]
+    for claim, c in zip(ctx.claims.claims, rep.claims):
+        pack = claim_pack(claim, cctx, c)
+        for name, rows in pack.files.items():
+            rep.evidence[f"{EVIDENCE_DIR}/{claim.id}/{name}"] = rows
+        c["evidence_pack"] = pack.to_dict()
+        c["see"] = related_items(rep, claim)
     counts = Counter(v.verdict for v in verdicts)
     s.p(f"{len(verdicts)} claims were checked against the data (claims file SHA-256 "
         f"{ctx.claims.sha256[:16]}…). Each claim is judged by one method, named with its "
