@@ -117,22 +117,30 @@ def _css_string(text: str) -> str:
     """A CSS string literal that cannot end early: every character outside a safe set is
     written as a six-digit hex escape (repository names are untrusted)."""
     safe = set("abcdefghijklmnopqrstuvwxyzABCDEFGHIJKLMNOPQRSTUVWXYZ0123456789 .,:;_-()/")
-    return '"' + "".join(ch if ch in safe else f"\\{ord(ch):06x}" for ch in text) + '"'
+    return '"' + "".join(ch if ch in safe else f"\\{ord(ch):06x} " for ch in text) + '"'
 
 
-def page_css(report: Any, meta: Any, prepared: str) -> str:
-    """The running header and footer of every printed page (CSS paged media)."""
+def running_texts(report: Any, prepared: str) -> tuple[tuple[str, str], str]:
+    """((header left, header right), footer left) of every page; the page number is added
+    by the renderer ("page n of N")."""
+    meta = report.meta
     scope = report.scope or {}
     title = report.title if len(report.title) <= 90 else report.title[:89] + "…"
     head = str(scope.get("head_hash") or "")[:12]
     repo = f"{scope.get('repo', '')}" + (f" at {head}" if head else "")
     ident = meta.identity() if meta is not None else ""
-    left_foot = " · ".join(x for x in (ident, meta.date or prepared if meta else prepared,
-                                        meta.organisation if meta else "") if x)
+    date = (meta.date if meta is not None and meta.date else "") or prepared
+    org = meta.organisation if meta is not None else ""
+    return (title, repo), " · ".join(x for x in (ident, date, org) if x)
+
+
+def page_css(report: Any, meta: Any, prepared: str) -> str:
+    """The running header and footer of every printed page (CSS paged media)."""
+    (title, repo), foot = running_texts(report, prepared)
     box = "font-family: serif; font-size: 7.5pt; color: #5a5a55;"
     return ("@page { "
             f"@top-left {{ content: {_css_string(title)}; {box} }} "
             f"@top-right {{ content: {_css_string(repo)}; {box} }} "
-            f"@bottom-left {{ content: {_css_string(left_foot)}; {box} }} "
+            f"@bottom-left {{ content: {_css_string(foot)}; {box} }} "
             "@bottom-right { content: \"page \" counter(page) \" of \" counter(pages); "
             f"{box} }} }}")
