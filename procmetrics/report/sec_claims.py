@@ -77,7 +77,7 @@ def section_claims(ctx: BuildContext) -> None:
     cctx = claim_context(ctx)
     verdicts = evaluate_claims(ctx.claims.claims, cctx)
     rep.claims = [v.to_dict() for v in verdicts]
-    for claim, c in zip(ctx.claims.claims, rep.claims):
+    for claim, c in zip(ctx.claims.claims, rep.claims, strict=True):
         pack = claim_pack(claim, cctx, c)
         for name, rows in pack.files.items():
             rep.evidence[f"{EVIDENCE_DIR}/{claim.id}/{name}"] = rows
