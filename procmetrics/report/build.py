@@ -11,6 +11,7 @@ from __future__ import annotations
 import datetime as dt
 import json
 import os
+import warnings
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -36,16 +37,32 @@ from procmetrics.analyse.measures.periods import resolve_policy
 
 def build_report(data: StoreData, options: ReportOptions, *,
                  claims: ClaimsFile | None = None) -> Report:
-    """Run every analysis and assemble the :class:`Report` (no files written)."""
+    """Run every analysis and assemble the :class:`Report` (no files written).
+
+    Warnings raised by the numerical libraries while the analyses run are
+    captured (never printed), counted and reported as a table in the
+    limitations section; convergence failures are counted on their own.
+    """
     if options.period not in PERIODS:
         raise ConfigError(f"unknown period {options.period!r}; choose one of "
                           + ", ".join(PERIODS), key="--period")
     policy_date = resolve_policy(data, options.policy)
-    quality = ql.summary(data, options.period)
-    report = Report(title=f"Development-process evidence for {data.repo}", options=options,
-                    scope={}, store_checksum=store_checksum(data))
-    ctx = BuildContext(data=data, options=options, report=report, quality=quality,
-                       policy_date=policy_date, seed=options.seed, claims=claims)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        quality = ql.summary(data, options.period)
+        report = Report(title=f"Development-process evidence for {data.repo}",
+                        options=options, scope={}, store_checksum=store_checksum(data))
+        ctx = BuildContext(data=data, options=options, report=report, quality=quality,
+                           policy_date=policy_date, seed=options.seed, claims=claims)
+        _analyses(ctx)
+    ctx.numerical = numerical_warnings(caught)
+    sec_claims.section_limitations(ctx)
+    sec_claims.section_use(ctx)
+    return report
+
+
+def _analyses(ctx: BuildContext) -> None:
+    report = ctx.report
     report.scope = sec_scope.scope(ctx)
     report.provenance = sec_scope.provenance(ctx)
     sec_scope.section_scope(ctx)
@@ -61,12 +78,31 @@ def build_report(data: StoreData, options: ReportOptions, *,
     sec_claims.section_claims(ctx)
     adoption = any(c.code == "tag_adoption_rising" for c in
                    (ctx.metrics.caveats if ctx.metrics is not None else ()))
-    apply_store_flags(report, store_flags(quality, unresolved_limit=options.unresolved_share_limit,
+    apply_store_flags(report, store_flags(ctx.quality,
+                                          unresolved_limit=ctx.options.unresolved_share_limit,
                                           adoption_rising=adoption))
     _evidence_for_figures(ctx)
-    sec_claims.section_limitations(ctx)
-    sec_claims.section_use(ctx)
-    return report
+
+
+def numerical_warnings(caught: list[warnings.WarningMessage]) -> pd.DataFrame:
+    """Captured warnings grouped by kind, place and message, with counts.
+
+    Columns ``category``, ``where`` (module file), ``message`` (first line),
+    ``count``, ``convergence`` (the warning says a fit did not converge).
+    """
+    rows: dict[tuple[str, str, str], int] = {}
+    for w in caught:
+        if issubclass(w.category, (DeprecationWarning, PendingDeprecationWarning,
+                                   ImportWarning)):
+            continue      # about our code, not the numbers; and raised once per process
+        key = (w.category.__name__, Path(str(w.filename)).name,
+               str(w.message).strip().splitlines()[0][:200] if str(w.message).strip() else "")
+        rows[key] = rows.get(key, 0) + 1
+    out = pd.DataFrame([{"category": c, "where": f, "message": m, "count": n}
+                        for (c, f, m), n in sorted(rows.items())],
+                       columns=["category", "where", "message", "count"])
+    return out.assign(convergence=out["category"].str.contains("Convergence")
+                      | out["message"].str.contains("converge", case=False))
 
 
 COMMIT_FIGURES = ("trailer-adoption", "series-", "its-", "ecdf-")

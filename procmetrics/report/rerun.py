@@ -28,7 +28,7 @@ from procmetrics.report.model import ReportOptions
 #: exit status of ``procmetrics rerun`` when the regenerated figures differ
 EXIT_DIFFERENT = EXIT_FIGURES_DIFFER
 #: tables and JSON parts that describe how the data was obtained, not the figures
-PROVENANCE_TABLES = ("scope-facts", "mining-runs")
+PROVENANCE_TABLES = ("scope-facts", "mining-runs", "numerical-warnings")
 PROVENANCE_PARTS = ("scope", "provenance")
 
 

@@ -9,7 +9,7 @@ from procmetrics.analyse.result import CAVEAT_CODES
 from procmetrics.report.context import BuildContext
 from procmetrics.report.flags import describe
 from procmetrics.report.evidence import EVIDENCE_DIR, claim_pack
-from procmetrics.report.model import Block, Report
+from procmetrics.report.model import Block, Flag, Report
 from procmetrics.report.summary import CAUTION  # noqa: F401 - re-exported
 
 #: figures and tables that show the quantity each claim kind judges (keys; absent ones skipped)
@@ -124,9 +124,34 @@ def section_limitations(ctx: BuildContext) -> None:
     if ctx.skipped:
         s.p("Analyses that could not be run on this data:")
         s.bullets(ctx.skipped)
+    _numerical(ctx, s)
     codes = sorted(CAVEAT_CODES)
     s.p("Flag kinds this report can raise: " + "; ".join(
         f"{c.replace('_', ' ')} ({CAVEAT_CODES[c]})" for c in codes) + ".")
+
+
+def _numerical(ctx: BuildContext, s: object) -> None:
+    """Numerical warnings captured while building: counted, and convergence failures apart."""
+    w = ctx.numerical
+    if w is None or not len(w):
+        s.p("No numerical warning was raised by the statistical libraries while this "
+            "report was built.")
+        return
+    total, conv = int(w["count"].sum()), int(w.loc[w["convergence"], "count"].sum())
+    s.p(f"The statistical libraries raised {total:,} numerical warnings while this report "
+        f"was built ({len(w)} kinds, listed below); {conv:,} of them say that a fit did not "
+        "converge. Warnings from placebo and bootstrap fits concern those replicates only; "
+        "a figure whose own fit failed carries a flag.")
+    if conv:
+        ctx.report.flags.append(Flag("diagnostic_failed", "warn", "report",
+                                     f"{conv:,} model fits did not converge while this report "
+                                     "was built (see the limitations section)", "report"))
+    from procmetrics.report.model import Table
+
+    ctx.report.add_table(s, Table(
+        "numerical-warnings", "Numerical warnings raised while building this report.",
+        [("category", "Kind"), ("where", "Raised in"), ("message", "Message"),
+         ("count", "Count"), ("convergence", "Fit did not converge")], w.copy()))
 
 
 def section_use(ctx: BuildContext) -> None:

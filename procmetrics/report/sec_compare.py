@@ -141,10 +141,16 @@ def _distributions(ctx: BuildContext, s: Any, pc: Any) -> None:
         hl, cd = c.hodges_lehmann, c.cliffs_delta
         p = min(t.p_value for t in c.tests)
         key = "ecdf-" + ("lines" if col == "churn" else "reviewers")
+        shown = (f"Empirical distribution functions of {c.quantity}, before and from "
+                 f"{ctx.policy_date:%Y-%m-%d} (ECDF: no binning; shaded: "
+                 f"{ctx.options.level:.0%} Dvoretzky–Kiefer–Wolfowitz band)"
+                 if col == "churn" else
+                 f"Share of commits with 0, 1, 2, … {c.quantity.replace(' per commit', '')}, "
+                 f"before and from {ctx.policy_date:%Y-%m-%d}, with {ctx.options.level:.0%} "
+                 "Wilson intervals (a small count reads better as bars than as an ECDF)")
         fig = Figure(
             key, f"{c.quantity.capitalize()} before and after",
-            f"Empirical distribution functions of {c.quantity}, before and from "
-            f"{ctx.policy_date:%Y-%m-%d} (ECDF: no binning). Medians {_ci(c.median_a, '.1f')} "
+            f"{shown}. Medians {_ci(c.median_a, '.1f')} "
             f"before and {_ci(c.median_b, '.1f')} after; Hodges–Lehmann shift "
             f"{_ci(hl, '.2f')}; Cliff's delta {_ci(cd, '.2f')} ({c.magnitude}); smallest "
             f"test p = {p:.3g} ({', '.join(t.name.replace('_', '-') for t in c.tests)})",
