@@ -23,7 +23,7 @@ from procmetrics.claims.render import evidence_line
 from procmetrics.report.flags import describe
 from procmetrics.report.meta import ReportMeta, commit_link
 from procmetrics.report.model import Report, Table
-from procmetrics.report.summary import (CAUTION, HASH_COLUMNS, page_css, robustness_text,
+from procmetrics.report.summary import (CAUTION, sig, HASH_COLUMNS, page_css, robustness_text,
                                         summary_rows, warned_diagnostics)
 
 #: rendering resolution of the PNG figures (dots per CSS inch)
@@ -55,7 +55,7 @@ def data_uri(png: bytes) -> str:
     return "data:image/png;base64," + base64.b64encode(png).decode("ascii")
 
 
-def fmt_value(key: str, v: Any) -> str:
+def fmt_value(key: str, v: Any, percent: bool = False) -> str:
     """Table cell text: integers with separators, shares as percent, p-values bounded."""
     if v is None or v is pd.NA or v is pd.NaT:
         return "–"
@@ -73,15 +73,14 @@ def fmt_value(key: str, v: Any) -> str:
             return "∞" if x > 0 else "−∞"
         if key.startswith("p_") or key == "p" or key.endswith("_p"):
             return "< 0.001" if x < 0.001 else f"{x:.3f}"
-        if key.startswith("share") or key.endswith("_share") or key.startswith("pct"):
-            return f"{100 * x:.1f}"
+        if percent or key.startswith("share") or key.endswith("_share") \
+                or key.startswith("pct"):
+            return f"{100 * x:.1f}".replace("-", "−")
         if x.is_integer() and abs(x) < 1e15:
             return f"{int(x):,}"
         if abs(x) >= 100:
             return f"{x:,.0f}"
-        if abs(x) >= 1:
-            return f"{x:.2f}"
-        return f"{x:.3g}"
+        return sig(x).replace("-", "−")
     return str(v)
 
 
@@ -108,7 +107,7 @@ def render_html(report: Report, *, csv_names: dict[str, str], prepared: str) -> 
         if fig.png:
             images[key] = data_uri(fig.png)
             widths[key] = round(png_size(fig.png)[0] * 96 / PNG_DPI)
-    rows = {k: [{c: fmt_value(c, v) for c, v in r.items()}
+    rows = {k: [{c: fmt_value(c, v, c in t.percent_columns) for c, v in r.items()}
                 for r in t.data.reindex(columns=[c for c, _ in t.columns])
                 .astype(object).to_dict(orient="records")]
             for k, t in report.tables.items()}

@@ -114,6 +114,8 @@ class Table:
     note: str = ""
     flags: list[Flag] = field(default_factory=list)
     number: int = 0
+    #: columns holding shares (fractions in JSON and CSV) that the document shows in percent
+    percent_columns: tuple[str, ...] = ()
 
 
 @dataclass

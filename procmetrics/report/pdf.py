@@ -123,7 +123,7 @@ def _text_lines(report: Report, csv_names: dict[str, str], prepared: str) -> lis
                 out.extend(("p", x) for x in textwrap.wrap(f"Table {t.number}. {t.title}", _WIDTH))
                 cols = [k for k, _ in t.columns]
                 rows = [[h for _, h in t.columns]] + [
-                    [fmt_value(k, r.get(k)) for k in cols]
+                    [fmt_value(k, r.get(k), k in t.percent_columns) for k in cols]
                     for r in t.data.reindex(columns=cols).astype(object).to_dict("records")]
                 widths = [min(28, max(len(str(r[i])) for r in rows)) for i in range(len(cols))]
                 for r in rows:

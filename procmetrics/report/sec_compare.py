@@ -112,14 +112,16 @@ def _proportions(ctx: BuildContext, s: Any, pc: Any) -> None:
         f"{ctx.policy_date:%Y-%m-%d}.",
         [("quantity", "Measure"), ("n_before", "Commits before"),
          ("share_before", "Share before (%)"), ("n_after", "Commits after"),
-         ("share_after", "Share after (%)"), ("difference", "Difference"),
+         ("share_after", "Share after (%)"), ("difference", "Difference (points)"),
          ("low", f"{ctx.options.level:.0%} interval from"), ("high", "to"),
          ("p_value", "p (smallest of Fisher, χ²)")], pd.DataFrame(rows),
-        note="Difference = share after minus share before, as a fraction (0.10 = 10 "
-             "percentage points), Newcombe hybrid score interval. Commits are treated as "
-             "independent here; the time series above allows for variation between periods. "
-             "A difference whose interval lies within ±0.02 is treated as negligible.",
-        flags=fl.dedupe(flags)))
+        note="Difference = share after minus share before, in percentage points, with the "
+             "Newcombe hybrid score interval (the CSV and JSON hold fractions: 0.10 = 10 "
+             "points). Commits are treated as independent here; the time series above allows "
+             "for variation between periods. A difference whose interval lies within ±2 "
+             "percentage points is treated as negligible.",
+        flags=fl.dedupe(flags),
+        percent_columns=("share_before", "share_after", "difference", "low", "high")))
 
 
 def _distributions(ctx: BuildContext, s: Any, pc: Any) -> None:

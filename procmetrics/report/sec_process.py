@@ -118,7 +118,7 @@ def section_process(ctx: BuildContext) -> None:
                    [("metric", "Series"), ("subsystem", "Subsystem"),
                     ("period", "First period after the change"),
                     ("date_low", "Position interval from"), ("date_high", "to"),
-                    ("level_before", "Share before"), ("level_after", "Share after"),
+                    ("level_before", "Share before (%)"), ("level_after", "Share after (%)"),
                     ("support", "Bootstrap support"), ("tuning_sensitive", "Moves with penalty")],
                    pd.DataFrame(cp_rows, columns=["metric", "subsystem", "period", "date_low",
                                                   "date_high", "level_before", "level_after",
@@ -129,7 +129,8 @@ def section_process(ctx: BuildContext) -> None:
                          "(shorter series are flagged), so among "
                          f"{n_series} series about {STATED_FALSE_POSITIVE_RATE * n_series:.1f} "
                          "false changes are to be expected; no further correction is applied. "
-                         if n_series > 1 else "") + "Shares are fractions (0 to 1).")
+                         if n_series > 1 else "") + "Shares in percent (the CSV and JSON hold "
+                   "fractions, 0 to 1).", percent_columns=("level_before", "level_after"))
     cp_tab.flags = fl.dedupe(fl.retarget(cp_flags, "change-points")
                              + fl.rule_flags("change-points", n=None, min_n=None,
                                              n_tests=n_series, corrected=False))
