@@ -29,15 +29,14 @@ BEFORE_USE = "#d9d9d9"
 
 #: metric -> (label for axes and legends, unit in the label, drawn as percent)
 QUANTITIES: dict[str, tuple[str, str, bool]] = {
-    "review_coverage": ("Review coverage", "% of commits with a review trailer", True),
-    "independent_review": ("Independent review", "% of commits reviewed by someone other "
-                                                 "than the author", True),
+    "review_coverage": ("Review coverage", "% of commits", True),
+    "independent_review": ("Independent review", "% of commits", True),
     "unreviewed_self_commits": ("Unreviewed self-committed", "% of commits", True),
-    "fix_ratio": ("Fix ratio", "% of commits with a resolved Fixes: link", True),
+    "fix_ratio": ("Fix ratio", "% of commits", True),
     "fix_ratio_heuristic": ("Fix ratio (subject keywords)", "% of commits", True),
-    "revert_ratio": ("Revert ratio", "% of commits that revert another", True),
+    "revert_ratio": ("Revert ratio", "% of commits", True),
     "stable_request_share": ("Stable backport requests", "% of fixing commits", True),
-    "fixes_tag_adoption": ("Fixes: trailer use", "% of commits with a Fixes: reference", True),
+    "fixes_tag_adoption": ("Fixes: trailer use", "% of commits", True),
     "commits": ("Commits", "commits per period", False),
     "active_authors": ("Active authors", "authors per period", False),
     "churn_lines": ("Lines changed", "lines per period", False),

@@ -82,12 +82,15 @@ def section_process(ctx: BuildContext) -> None:
                 key=key, title=words.split(":")[0] + f" ({label})",
                 caption=f"{words}, per {ctx.options.period}, {label}, with the fitted "
                         "trend and its band"
-                        + ("; red lines: detected change points, shaded: their position "
-                           "intervals, red steps: segment levels" if cp is not None
+                        + ("; vermillion dash-dot lines: detected change points, shaded: "
+                           "their position intervals, vermillion steps: segment levels"
+                           if cp is not None
                            and cp.changes else "; no change point detected"
                            if cp is not None else "")
                         + ("; dashed black line: the policy date"
-                           if ctx.policy_date is not None else ""),
+                           if ctx.policy_date is not None else "")
+                        + "; open markers: periods the history covers only in part; grey: "
+                          "before the trailer was first used",
                 n=n, method=("Wilson score interval per period; change points: PELT on "
                              "arcsine-square-root values" if cp is not None else
                              "Wilson score interval per period"),

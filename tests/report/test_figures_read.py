@@ -42,7 +42,7 @@ def test_series_in_percent_with_units_partial_periods_and_pre_use_shading():
     span = (pd.Timestamp("2020-02-15", tz="UTC"), pd.Timestamp("2021-11-20", tz="UTC"))
     ax = plot_series(rows, span=span, first_use=pd.Timestamp("2020-05-01", tz="UTC"),
                      first_use_what="review trailer")
-    assert ax.get_ylabel() == "Review coverage (% of commits with a review trailer)"
+    assert ax.get_ylabel() == "Review coverage (% of commits)"
     labels = [t.get_text() for t in ax.get_legend().get_texts()]
     assert any(lab.startswith("partial period") for lab in labels)
     assert any("before the first review trailer (2020-05-01)" in lab for lab in labels)
