@@ -182,3 +182,55 @@ def plot_its(result: Any, *, ax: Axes | None = None) -> Axes:
     ax.set_ylabel(st.axis_label(result.metric), fontsize="small")
     st.legend_below(ax)
     return ax
+
+
+def plot_series_facets(panels: list[tuple[str, pd.DataFrame, Any]], *,
+                       policy_date: Any = None, span: Any = None, first_use: Any = None,
+                       first_use_what: str = "", ncol: int = 3,
+                       level: float = 0.95) -> Figure:
+    """Small multiples: one panel per subsystem, one shared y axis.
+
+    ``panels`` holds (label, rows, trend or None) per subsystem, rows of one metric.
+    Reading across panels compares levels directly, where separate figures would
+    each fit their own axis.
+    """
+    panels = [p for p in panels if p[1]["value"].notna().any()]
+    ncol = max(1, min(ncol, len(panels)))
+    nrow = max(1, int(np.ceil(len(panels) / ncol)))
+    fig = Figure(figsize=(3.2 * ncol + 0.6, 2.5 * nrow + 0.9))
+    axes = np.atleast_1d(fig.subplots(nrow, ncol, squeeze=False, sharex=True,
+                                      sharey=True)).ravel()
+    metric = str(panels[0][1]["metric"].iloc[0]) if panels else ""
+    legend: dict[str, Any] = {}
+    for ax, (label, rows, trend) in zip(axes, panels):
+        plot_series(rows, trend=trend, policy_date=policy_date, span=span,
+                    first_use=first_use, first_use_what=first_use_what, ax=ax)
+        n = int(rows["n"].sum())
+        ax.set_title(f"{label} (n = {n:,})", fontsize="small")
+        ax.set_xlabel("")
+        ax.set_ylabel("")
+        ax.tick_params(labelsize="x-small", labelbottom=True)
+        handles, labels = ax.get_legend_handles_labels()
+        for h, lab in zip(handles, labels):
+            lab = ("per period (n in each panel's title)" if lab.startswith("per period")
+                   else "fitted trend (per subsystem)" if lab.startswith("trend:") else lab)
+            legend.setdefault(lab, h)
+        if ax.get_legend() is not None:
+            ax.get_legend().remove()
+    for ax in axes[len(panels):]:
+        ax.set_visible(False)
+    if panels:
+        k = st.scale(metric)
+        lows = np.concatenate([p[1]["ci_low"].to_numpy(float) * k for p in panels])
+        highs = np.concatenate([p[1]["ci_high"].to_numpy(float) * k for p in panels])
+        st.fit_axis_to_intervals(axes[0], lows, highs, floor=-2.0 if k == 100 else None,
+                                 ceiling=102.0 if k == 100 else None)
+        fig.supylabel(st.axis_label(metric), fontsize="small")
+        fig.supxlabel("period (midpoint, UTC)", fontsize="small", y=0.075)
+        fig.suptitle(f"{st.quantity(metric)[0]} by subsystem (shared axis); bars: {level:.0%} "
+                     f"{panels[0][1]['ci_method'].iloc[0]} interval", fontsize="medium")
+        fig.tight_layout(rect=(0, 0.1, 1, 1))
+        fig.legend(list(legend.values()), list(legend), loc="lower center", ncol=3,
+                   fontsize="x-small",
+                   frameon=False, bbox_to_anchor=(0.5, -0.03))
+    return fig

@@ -62,6 +62,20 @@ def series_png(ctx: Any, rows: pd.DataFrame, cp: Any, tr: Any, metric: str,
                   first_use_what=words, title=f"{quantity(metric)[0]}: {label}")
 
 
+def facets_png(ctx: Any, metric: str, panels: list[tuple[str, pd.DataFrame, Any]]
+               ) -> bytes | None:
+    from procmetrics.plot.series import plot_series_facets
+
+    panels = [(label, _bounded(rows), tr) for label, rows, tr in panels
+              if rows["value"].notna().any()]
+    if not panels:
+        return None
+    first, words = _first_use(ctx, metric)
+    return render(ctx, plot_series_facets, panels, policy_date=ctx.policy_date,
+                  span=_span(ctx), first_use=first, first_use_what=words,
+                  level=ctx.options.level)
+
+
 def adoption_png(ctx: Any, rows: pd.DataFrame) -> bytes | None:
     from procmetrics.plot.series import plot_series
 

@@ -90,3 +90,19 @@ def test_numerical_warnings_are_counted_not_printed():
     assert int(t["count"].sum()) == 3
     assert int(t.loc[t["convergence"], "count"].sum()) == 1
     assert "DeprecationWarning" not in set(t["category"])
+
+
+def test_subsystems_are_small_multiples_on_one_shared_axis():
+    from procmetrics.plot.series import plot_series_facets
+
+    a, b = _rows(), _rows()
+    b = b.assign(subsystem="net", value=b["value"] / 2, ci_low=b["ci_low"] / 2,
+                 ci_high=b["ci_high"] / 2)
+    fig = plot_series_facets([("drivers", a, None), ("net", b, None)])
+    visible = [ax for ax in fig.axes if ax.get_visible()]
+    assert len(visible) == 2
+    assert visible[0].get_ylim() == visible[1].get_ylim()          # one shared axis
+    assert visible[0].get_title().startswith("drivers (n = ")
+    assert "(% of commits)" in fig.get_supylabel()
+    labels = [t.get_text() for t in fig.legends[0].get_texts()]
+    assert "per period (n in each panel's title)" in labels
