@@ -92,6 +92,22 @@ def _commit_rows(f: pd.DataFrame, cctx: Any, metric: str, keys: tuple[str, ...]
     return rows
 
 
+def _left_out(pack: ClaimPack, cctx: Any, kept: int) -> None:
+    """Say which commits of the store the claim's denominator leaves out, and why."""
+    c = cctx.commits
+    total = int(c["hash"].nunique())
+    merges = int(c["is_merge"].astype("boolean").fillna(False).astype(bool).sum())
+    other = total - kept - merges
+    parts = [f"{merges:,} merge commits (the measures count non-merge commits)"] if merges \
+        else []
+    if other > 0:
+        parts.append(f"{other:,} commits outside the claim's window, subsystem or "
+                     "denominator (e.g. only commits with a Fixes: reference)")
+    if parts:
+        pack.notes.append(f"n = {kept:,} of the {total:,} commits in the store; left out: "
+                          + "; ".join(parts))
+
+
 def _shares(pack: ClaimPack, claim: Any, cctx: Any) -> None:
     from procmetrics.analyse.measures.vocabulary import DEFAULT_REVIEW_KEYS
     from procmetrics.claims import base as cl
@@ -116,6 +132,7 @@ def _shares(pack: ClaimPack, claim: Any, cctx: Any) -> None:
              " denominator; in_numerator marks those counted in the share, with the "
              "trailers or Fixes: references that made them so")
     pack.counted = int(rows["counted"].sum())
+    _left_out(pack, cctx, pack.counted)
     pack.add("periods.csv", per_period(f, cctx, split).rename(
         columns={"x": "in_numerator", "n": "commits", "t": "first_commit"}),
         f"the {cctx.period}s the model was fitted on: commits and numerator per period"
@@ -144,6 +161,7 @@ def _trend(pack: ClaimPack, claim: Any, cctx: Any) -> None:
     pack.add("commits.csv", rows, f"the {len(rows):,} commits of the window; in_numerator "
              f"marks those counted in {metric.replace('_', ' ')}")
     pack.counted = int(rows["counted"].sum())
+    _left_out(pack, cctx, pack.counted)
     pack.add("periods.csv", per_period(f, cctx).rename(
         columns={"x": "in_numerator", "n": "commits", "t": "first_commit"}),
         f"the {cctx.period}s the trend was fitted on")

@@ -194,18 +194,26 @@ def _subsystems(ctx: BuildContext, s: Any, pc: Any) -> None:
 
 def _change_points(ctx: BuildContext, s: Any, pc: Any) -> None:
     rows = []
+    cpt = ctx.report.tables.get("change-points")
+    known = {} if cpt is None or cpt.data.empty else {
+        (r["metric"], r["period"]): r["tuning_sensitive"]
+        for r in cpt.data[cpt.data["subsystem"] == "(all)"].to_dict("records")}
     for metric, rel in pc.change_points:
         rows.append({"metric": _words(metric), "status": rel.status,
                      "nearest": rel.nearest_period or "–",
                      "distance": rel.distance_periods,
-                     "tolerance": rel.tolerance_periods})
+                     "tolerance": rel.tolerance_periods,
+                     "tuning_sensitive": known.get((metric, rel.nearest_period))})
     if not rows:
         return
     ctx.report.add_table(s, Table(
         "changes-vs-date", "Where the detected change points lie relative to the date.",
         [("metric", "Measure"), ("status", "Change point"), ("nearest", "Nearest change "
           "(first period)"), ("distance", f"Distance ({ctx.options.period}s)"),
-         ("tolerance", f"Tolerance ({ctx.options.period}s)")], pd.DataFrame(rows),
+         ("tolerance", f"Tolerance ({ctx.options.period}s)"),
+         ("tuning_sensitive", "Moves with penalty")], pd.DataFrame(rows),
         note=f"“at declared date”: a change within the tolerance of the first "
              f"{ctx.options.period} from {date_text(ctx.policy_date)}; “elsewhere”: changes, "
-             "none that close; “none”: no change detected (not evidence of no change)."))
+             "none that close; “none”: no change detected (not evidence of no change). "
+             "“Moves with penalty” repeats the change-point table's judgement for the "
+             "nearest change (– when there is none)."))
