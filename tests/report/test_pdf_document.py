@@ -51,6 +51,7 @@ def test_every_page_has_its_number_and_the_running_header(pdf_text, built):
         assert f"page {i} of {n}" in text, (i, text[:200])
         assert "Development-process evidence for" in text, i
         assert "AUR-QA-0007 rev. C" in text, i                    # document identity
+        assert 'Aurora <Avionics> & "Sons"' in text, i            # escaped into the footer
         m = re.search(r"aurora-fw at ([0-9a-f]{12})", text)
         assert m, i
         head = head or m.group(1)
@@ -63,3 +64,14 @@ def test_page_one_has_the_control_block_scope_caution_and_verdicts(pdf_text):
                  "Store checksum", "never replace", "review-rose", "few-left"):
         assert word in first, word
     assert "not supportable" in first
+
+
+def test_running_header_text_cannot_break_out_of_its_css_string():
+    from procmetrics.report.summary import _css_string
+
+    evil = 'x"; } body { display: none } @page { @top-left { content: "y'
+    out = _css_string(evil)
+    assert out.startswith('"') and out.endswith('"')
+    inner = out[1:-1]
+    assert '"' not in inner and "{" not in inner and "}" not in inner and "<" not in inner
+    assert inner.startswith("x\\000022 ")        # the quote as a hex escape
