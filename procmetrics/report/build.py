@@ -119,8 +119,11 @@ def _evidence_for_figures(ctx: BuildContext) -> None:
     ctx.report.evidence["evidence/commits.csv"] = ledger
     for fig in ctx.report.figures.values():
         if fig.key.startswith(COMMIT_FIGURES) and "subsystem" not in fig.key:
-            fig.denominator = denominator_note(fig.n, ledger,
-                                               lines=fig.key == "ecdf-lines")
+            fig.denominator = denominator_note(
+                fig.n, ledger, lines=fig.key == "ecdf-lines",
+                rest_reason=("commits in the period that straddles the policy date (a "
+                             "transition period the interrupted time series leaves out)"
+                             if fig.key.startswith("its-") else "other commits"))
             if fig.denominator:
                 fig.values = {**fig.values, "denominator": fig.denominator}
 

@@ -313,7 +313,8 @@ def commit_ledger(commits: pd.DataFrame, trailers: pd.DataFrame, fix_links: pd.D
     return out.sort_values(["date", "hash"], kind="mergesort").reset_index(drop=True)
 
 
-def denominator_note(n: int | None, ledger: pd.DataFrame, *, lines: bool = False) -> str:
+def denominator_note(n: int | None, ledger: pd.DataFrame, *, lines: bool = False,
+                     rest_reason: str = "other commits") -> str:
     """Plain words for the commits a figure's n leaves out ("" when none are).
 
     ``ledger`` is :func:`commit_ledger`; ``lines`` for figures of lines changed,
@@ -328,19 +329,24 @@ def denominator_note(n: int | None, ledger: pd.DataFrame, *, lines: bool = False
         return ""
     merges = int(ledger["merge"].sum())
     nodate = int((~ledger["merge"] & ~ledger["in_share_denominators"]).sum())
-    nolines = int((ledger["in_share_denominators"] & ledger["lines_changed"].isna()).sum()) \
-        if lines else 0
+    noline = ledger["in_share_denominators"] & ledger["lines_changed"].isna()
+    empty = noline & (ledger["files_changed"].fillna(-1) == 0)
+    n_empty = int(empty.sum()) if lines else 0
+    nolines = int((noline & ~empty).sum()) if lines else 0
     parts = []
     if merges:
         parts.append(f"{merges:,} merge commits (the measures count non-merge commits)")
     if nodate:
         parts.append(f"{nodate:,} commits without a committer date")
+    if n_empty:
+        parts.append(f"{n_empty:,} empty commits (no file changed, so no line count; they "
+                     "still count as commits, e.g. as unreviewed in review coverage)")
     if nolines:
         parts.append(f"{nolines:,} commits without a line count (binary files only, or line "
                      "counts not mined)")
-    rest = missing - merges - nodate - nolines
+    rest = missing - merges - nodate - n_empty - nolines
     if rest > 0:
-        parts.append(f"{rest:,} other commits")
+        parts.append(f"{rest:,} {rest_reason}")
     return (f"n = {int(n):,} of {total:,} commits in the store; left out: "
             + "; ".join(parts) + ". Every commit and why it was left out: "
             "evidence/commits.csv.")
