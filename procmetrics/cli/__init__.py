@@ -16,8 +16,8 @@ from procmetrics import __version__
 from procmetrics.errors import ProcmetricsError
 
 # Order is the order shown in --help.
-COMMANDS: list[str] = ["mine", "export", "report", "check", "rerun", "series", "changes", "compare",
-                       "lifetimes", "growth"]
+COMMANDS: list[str] = ["mine", "export", "report", "check", "rerun", "diff", "series",
+                       "changes", "compare", "lifetimes", "growth"]
 
 
 def build_parser() -> argparse.ArgumentParser:

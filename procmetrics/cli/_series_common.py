@@ -92,3 +92,41 @@ def out_dir(args: argparse.Namespace) -> Any:
     except OSError as exc:
         raise StoreError(f"cannot create {out}: {exc}") from exc
     return out
+
+
+#: metrics whose numerator is a resolved ``Fixes:`` link (unresolved references bias them low)
+FIX_LINK_METRICS = ("fix_ratio", "stable_request_share")
+#: share of unresolved or ambiguous fix references above which the commands warn
+#: (the report's default ``--unresolved-share-limit``)
+UNRESOLVED_LIMIT = 0.10
+
+
+def data_quality_warnings(tables: dict[str, pd.DataFrame], metrics: Any) -> list[str]:
+    """The store-level data-quality flags that apply to these metrics, as the report words
+    them: a shallow clone, and (for fix metrics) fix references naming no commit of this
+    history."""
+    out = []
+    repos = tables.get("repositories")
+    if repos is not None and "is_shallow" in repos and \
+            bool(repos["is_shallow"].astype("boolean").fillna(False).any()):
+        out.append("warning [shallow_history] the clone is shallow: commits before the cut are "
+                   "missing, so early periods, fix targets and lifetimes are incomplete")
+    fl = tables.get("fix_links")
+    if fl is not None and len(fl) and any(m in FIX_LINK_METRICS for m in metrics):
+        st = fl["status"].astype(str)
+        st = st[st != "self"]
+        bad = int((st != "resolved").sum())
+        if len(st) and bad / len(st) > UNRESOLVED_LIMIT:
+            unres, amb = int((st == "unresolved").sum()), int((st == "ambiguous").sum())
+            out.append(
+                f"warning [unresolved_fix_references] {bad / len(st):.0%} of fix references "
+                f"({unres} unresolved, {amb} ambiguous of {len(st)}) name no single commit of "
+                f"this history, above the {UNRESOLVED_LIMIT:.0%} limit; fix ratios count only "
+                "resolved links, so they understate how often commits fix earlier ones")
+    return out
+
+
+def print_data_quality(tables: dict[str, pd.DataFrame], metrics: Any) -> None:
+    """Print the warnings first, before any number they qualify."""
+    for line in data_quality_warnings(tables, metrics):
+        print(line)

@@ -34,6 +34,7 @@ def run(args: argparse.Namespace) -> int:
     rng = np.random.default_rng(args.seed)
     print(f"{name}: change points per {args.period}; {cfg.method.upper()}, c={cfg.c:g}, "
           f"min_size={cfg.min_size}, jump=1, {cfg.n_boot} bootstrap replicates")
+    common.print_data_quality(tables, args.metric or DEFAULT)
     rows = []
     for sub in pm.table["subsystem"].unique():
         for metric in args.metric or DEFAULT:

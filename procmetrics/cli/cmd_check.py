@@ -27,7 +27,11 @@ def register(sub: argparse._SubParsersAction) -> None:
                    help="what date = \"policy\" means in the claims file")
     p.add_argument("--period", choices=PERIODS, default="quarter",
                    help="period used by the per-period models (default: quarter)")
-    p.add_argument("--json", metavar="FILE", help="also write the verdicts as JSON ('-' = stdout)")
+    p.add_argument("--json", metavar="FILE", help="also write the verdicts as JSON with their "
+                   "provenance (repository, HEAD, store checksum, policy date, options, "
+                   "version) ('-' = stdout)")
+    p.add_argument("--junit", metavar="FILE", help="also write JUnit XML: one test case per "
+                   "claim; not supported, undecidable and not supportable are failures")
     p.add_argument("--list-kinds", action="store_true", help="list the claim kinds and exit")
     p.set_defaults(func=run)
 
@@ -46,11 +50,28 @@ def run(args: argparse.Namespace) -> int:
         return 2
     verdicts = check_claims(args.claims, store=args.store, repo=args.repo, policy=args.policy,
                             period=args.period)
-    doc = dumps([v.to_dict() for v in verdicts])
+    code = exit_code(verdicts)
+    plain = [v.to_dict() for v in verdicts]
+    prov = None
+    if args.json or args.junit:
+        from procmetrics.claims.reader import load_claims
+        from procmetrics.report.gate import check_provenance
+
+        prov = check_provenance(args.store, repo=args.repo, policy=args.policy,
+                                period=args.period, claims_path=args.claims,
+                                claims_sha256=load_claims(args.claims).sha256)
+    if args.json:
+        from procmetrics.report.gate import check_document
+
+        doc = dumps(check_document(plain, prov, code))
     if args.json == "-":
         sys.stdout.write(doc)
     else:
         print(render_verdicts(verdicts))
         if args.json:
             write_text(args.json, doc)
-    return exit_code(verdicts)
+    if args.junit:
+        from procmetrics.report.gate import junit_xml
+
+        write_text(args.junit, junit_xml(plain, prov))
+    return code

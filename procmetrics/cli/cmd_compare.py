@@ -30,6 +30,8 @@ def run(args: argparse.Namespace) -> int:
     tables, name = common.load(args)
     at = resolve_date(args.at, tables["commits"])
     cfg = common.metric_config(args, tables)
+    print(f"{name}: before/after {at:%Y-%m-%d %H:%M} UTC, per {args.period}")
+    common.print_data_quality(tables, args.metric or DEFAULT_METRICS)
     res = compare_policy(tables["commits"], tables["trailers"], at=at, tags=tables["tags"],
                          commit_subsystems=tables["commit_subsystems"] if cfg.subsystems
                          or args.control else None, config=cfg,
@@ -37,7 +39,6 @@ def run(args: argparse.Namespace) -> int:
                          control_subsystem=args.control, n_resamples=args.resamples,
                          n_boot=args.boot, rng=np.random.default_rng(args.seed))
     f = common.fmt
-    print(f"{name}: before/after {at:%Y-%m-%d %H:%M} UTC, per {args.period}")
     for r in res.its:
         lv, sl = r.level_change, r.slope_change
         print(f"\nITS {r.metric}: {r.n_before} periods before, {r.n_after} after; {r.model}; "

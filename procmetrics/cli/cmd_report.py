@@ -33,6 +33,12 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--pdf-engine", choices=["auto", "chromium", "fallback", "none"],
                    default="auto", help="auto: headless chromium when found, else a plain "
                    "PDF drawn with matplotlib (default)")
+    p.add_argument("--meta", metavar="FILE", help="report metadata (TOML: document_id, "
+                   "revision, title, author, reviewer, approver, organisation, date) printed "
+                   "in the control block and the running header; copied into the folder")
+    p.add_argument("--commit-url", metavar="TEMPLATE", help="URL template with {hash}, e.g. "
+                   "'https://git.example.org/fw/commit/{hash}': every commit hash becomes a "
+                   "link (http/https only)")
     p.set_defaults(func=run)
 
 
@@ -40,7 +46,8 @@ def run(args: argparse.Namespace) -> int:
     opts = ReportOptions(repo=args.repo, policy=args.policy,
                          subsystems=tuple(dict.fromkeys(args.subsystems)), period=args.period,
                          claims_path=args.claims, level=args.level, seed=args.seed,
-                         pdf_engine=args.pdf_engine)
+                         pdf_engine=args.pdf_engine, meta_path=args.meta,
+                         commit_url=args.commit_url)
     from procmetrics.report.build import make_report  # heavy: imported when run
 
     files = make_report(args.store, args.out, opts)

@@ -14,7 +14,9 @@ def register(sub: argparse._SubParsersAction) -> None:
         "moved), write the report with the recorded options into a new folder, and compare "
         "report.json and tables/*.csv by SHA-256. Exit 0 when they match, "
         f"{EXIT_DIFFERENT} when they differ.")
-    p.add_argument("manifest", metavar="MANIFEST", help="manifest.json of an earlier report")
+    p.add_argument("manifest", metavar="MANIFEST", help="manifest.json of an earlier report, or its folder (paths in it are read "
+                   "relative to the manifest, so a moved or copied folder reruns from any "
+                   "working directory)")
     p.add_argument("--out", metavar="DIR",
                    help="folder for the new report (default: the old folder's name + '-rerun')")
     p.set_defaults(func=run)

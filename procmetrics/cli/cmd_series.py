@@ -29,6 +29,7 @@ def run(args: argparse.Namespace) -> int:
     out = common.out_dir(args)
     print(f"{name}: {pm.n_commits} commits ({pm.n_merges_excluded} merges excluded), "
           f"per {args.period}")
+    common.print_data_quality(tables, metrics)
     trends = []
     for (sub, metric), rows in pm.table.groupby(["subsystem", "metric"], sort=False):
         if metric not in metrics:

@@ -12,6 +12,8 @@ import pandas as pd
 from matplotlib.axes import Axes
 from matplotlib.figure import Figure
 
+from procmetrics.plot import style as st
+
 
 def _ecdf(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     x = np.sort(values[np.isfinite(values)])
@@ -19,29 +21,90 @@ def _ecdf(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return x, y
 
 
+def dkw_epsilon(n: int, level: float = 0.95) -> float:
+    """Half-width of the Dvoretzky–Kiefer–Wolfowitz band: sqrt(ln(2/alpha) / (2n)).
+
+    The band ECDF ± epsilon holds the whole true distribution function with
+    probability at least ``level`` (Massart 1990 tight constant).
+    """
+    if n <= 0:
+        return float("nan")
+    return float(np.sqrt(np.log(2.0 / (1.0 - level)) / (2.0 * n)))
+
+
 def plot_ecdf(samples: Mapping[str, Sequence[float]], *, quantity: str = "value",
-              log_x: bool = False, title: str | None = None, ax: Axes | None = None) -> Axes:
+              log_x: bool = False, title: str | None = None, level: float | None = 0.95,
+              ax: Axes | None = None) -> Axes:
     """Overlay the empirical distribution functions of several samples.
 
     ``samples`` maps a label (e.g. "before", "after", or a period) to values;
-    the legend gives each sample's n.
+    the legend gives each sample's n. With ``level`` each curve carries its
+    simultaneous DKW confidence band (Dvoretzky, Kiefer & Wolfowitz 1956;
+    Massart 1990); ``level=None`` draws the bare curves. Each sample has its own
+    colour and dash (Okabe–Ito), so the curves are told apart without colour.
     """
-    ax = ax if ax is not None else Figure(figsize=(5.5, 3.8)).subplots()
+    ax = ax if ax is not None else Figure(figsize=(6.0, 4.2)).subplots()
     total = 0
-    for label, vals in samples.items():
+    for i, (label, vals) in enumerate(samples.items()):
+        colour, dash, _ = st.GROUP_STYLES[i % len(st.GROUP_STYLES)]
         v = np.asarray(vals, dtype=float)
         x, y = _ecdf(v)
         total += len(x)
-        if len(x):
-            ax.step(np.r_[x[0], x], np.r_[0.0, y], where="post", label=f"{label} (n={len(x)})")
+        if not len(x):
+            continue
+        xs, ys = np.r_[x[0], x], np.r_[0.0, y]
+        ax.step(xs, 100 * ys, where="post", color=colour, ls=dash,
+                label=f"{label} (n = {len(x):,})")
+        if level is not None:
+            eps = dkw_epsilon(len(x), level)
+            ax.fill_between(xs, 100 * np.clip(ys - eps, 0, 1), 100 * np.clip(ys + eps, 0, 1),
+                            step="post", color=colour, alpha=0.15, lw=0)
     if log_x:
         ax.set_xscale("symlog", linthresh=1.0)
-    ax.set_xlabel(quantity)
-    ax.set_ylabel("share of values <= x (ECDF)")
-    ax.set_ylim(0, 1.02)
-    ax.set_title(title or f"{quantity}: empirical distribution functions (n={total}; "
-                 "no interval: raw data)", fontsize="medium")
-    ax.legend(fontsize="x-small", loc="lower right")
+    ax.set_xlabel(quantity + (", symmetric log scale" if log_x else ""), fontsize="small")
+    ax.set_ylabel("% of commits with at most x", fontsize="small")
+    ax.set_ylim(0, 101)
+    band = (f"shaded: {level:.0%} DKW confidence band" if level is not None
+            else "no interval: raw data")
+    ax.set_title(title or f"{quantity}: empirical distribution functions\n(n = {total:,}; "
+                 f"{band})", fontsize="medium")
+    st.legend_below(ax)
+    return ax
+
+
+def plot_count_shares(table: pd.DataFrame, *, quantity: str = "value", level: float = 0.95,
+                      ax: Axes | None = None) -> Axes:
+    """Grouped bars: the share of observations with each small count, with interval bars.
+
+    ``table`` has columns ``group``, ``value`` (category label, in order), ``n``,
+    ``share``, ``ci_low``, ``ci_high`` (shares 0–1; drawn in percent).
+    """
+    ax = ax if ax is not None else Figure(figsize=(6.0, 4.2)).subplots()
+    cats = list(dict.fromkeys(table["value"]))
+    groups = list(dict.fromkeys(table["group"]))
+    width = 0.8 / max(len(groups), 1)
+    pos = {c: i for i, c in enumerate(cats)}
+    hatches = ("", "//", "..", "xx")
+    for j, g in enumerate(groups):
+        part = table[table["group"] == g]
+        colour = st.GROUP_STYLES[j % len(st.GROUP_STYLES)][0]
+        xs = np.array([pos[c] for c in part["value"]]) + (j - (len(groups) - 1) / 2) * width
+        y = 100 * part["share"].to_numpy(float)
+        err = np.vstack([y - 100 * part["ci_low"].to_numpy(float),
+                         100 * part["ci_high"].to_numpy(float) - y])
+        n = int(part["n"].iloc[0]) if len(part) else 0
+        ax.bar(xs, y, width=width, color=colour, alpha=0.85, hatch=hatches[j % 4],
+               edgecolor="white", label=f"{g} (n = {n:,})")
+        ax.errorbar(xs, y, yerr=err, fmt="none", ecolor="black", lw=0.9, capsize=2)
+    ax.set_xticks(range(len(cats)))
+    ax.set_xticklabels(cats)
+    ax.set_xlabel(quantity, fontsize="small")
+    ax.set_ylabel("% of commits", fontsize="small")
+    top = float(np.nanmax(100 * table["ci_high"].to_numpy(float))) if len(table) else 100
+    ax.set_ylim(0, min(100, top * 1.08) if top > 0 else 1)
+    ax.set_title(f"{quantity}: share of commits per count, bars: {level:.0%} Wilson interval",
+                 fontsize="medium")
+    st.legend_below(ax)
     return ax
 
 
@@ -64,7 +127,7 @@ def plot_ecdf_facets(frame: pd.DataFrame, *, value: str, group: str, facet: str,
         samples = {str(g): part.loc[part[group] == g, value].to_numpy(float)
                    for g in sorted(part[group].dropna().unique(), key=str)}
         plot_ecdf(samples, quantity=quantity or value, log_x=log_x, ax=ax,
-                  title=f"{key} (n={int(part[value].notna().sum())})")
+                  title=f"{key} (n = {int(part[value].notna().sum()):,})")
     for ax in axes[len(keep):]:
         ax.set_visible(False)
     left = len(sizes) - len(keep)

@@ -10,6 +10,8 @@ from __future__ import annotations
 
 import datetime as dt
 import json
+import os
+import warnings
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -22,32 +24,50 @@ from procmetrics.report import sec_claims, sec_compare, sec_defects, sec_process
 from procmetrics.claims.reader import ClaimsFile, load_claims
 from procmetrics.claims.registry import check_usable
 from procmetrics.report.context import BuildContext, apply_store_flags
-from procmetrics.report.csvout import write_csvs
+from procmetrics.report.csvout import write_csvs, write_evidence
 from procmetrics.store.repodata import StoreData, choose_repo, load_store_data, store_checksum
 from procmetrics.report.flags import store_flags
 from procmetrics.report.html import render_html
 from procmetrics.report.jsonout import write_json
-from procmetrics.report.manifest import build_manifest, read_manifest, write_manifest
+from procmetrics.report.manifest import (build_manifest, read_manifest, sha256_file,
+                                         write_manifest)
+from procmetrics.report.meta import check_commit_url, copy_input, input_record, load_meta
 from procmetrics.report.model import PERIODS, Report, ReportOptions
 from procmetrics.report.pdf import write_pdf
 from procmetrics.analyse.measures.periods import resolve_policy
 
 def build_report(data: StoreData, options: ReportOptions, *,
                  claims: ClaimsFile | None = None) -> Report:
-    """Run every analysis and assemble the :class:`Report` (no files written)."""
+    """Run every analysis and assemble the :class:`Report` (no files written).
+
+    Warnings raised by the numerical libraries while the analyses run are
+    captured (never printed), counted and reported as a table in the
+    limitations section; convergence failures are counted on their own.
+    """
     if options.period not in PERIODS:
         raise ConfigError(f"unknown period {options.period!r}; choose one of "
                           + ", ".join(PERIODS), key="--period")
     policy_date = resolve_policy(data, options.policy)
-    quality = ql.summary(data, options.period)
-    report = Report(title=f"Development-process evidence for {data.repo}", options=options,
-                    scope={}, store_checksum=store_checksum(data))
-    ctx = BuildContext(data=data, options=options, report=report, quality=quality,
-                       policy_date=policy_date, seed=options.seed, claims=claims)
-    # usage mistakes stop the report at once (exit 2), before any analysis runs
-    _check_subsystems(data, options.subsystems)
-    if claims is not None:
-        check_usable(claims.claims, sec_claims.claim_context(ctx))
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        quality = ql.summary(data, options.period)
+        report = Report(title=f"Development-process evidence for {data.repo}",
+                        options=options, scope={}, store_checksum=store_checksum(data))
+        ctx = BuildContext(data=data, options=options, report=report, quality=quality,
+                           policy_date=policy_date, seed=options.seed, claims=claims)
+        # usage mistakes stop the report at once (exit 2), before any analysis runs
+        _check_subsystems(data, options.subsystems)
+        if claims is not None:
+            check_usable(claims.claims, sec_claims.claim_context(ctx))
+        _analyses(ctx)
+    ctx.numerical = numerical_warnings(caught)
+    sec_claims.section_limitations(ctx)
+    sec_claims.section_use(ctx)
+    return report
+
+
+def _analyses(ctx: BuildContext) -> None:
+    report = ctx.report
     report.scope = sec_scope.scope(ctx)
     report.provenance = sec_scope.provenance(ctx)
     sec_scope.section_scope(ctx)
@@ -63,11 +83,54 @@ def build_report(data: StoreData, options: ReportOptions, *,
     sec_claims.section_claims(ctx)
     adoption = any(c.code == "tag_adoption_rising" for c in
                    (ctx.metrics.caveats if ctx.metrics is not None else ()))
-    apply_store_flags(report, store_flags(quality, unresolved_limit=options.unresolved_share_limit,
+    apply_store_flags(report, store_flags(ctx.quality,
+                                          unresolved_limit=ctx.options.unresolved_share_limit,
                                           adoption_rising=adoption))
-    sec_claims.section_limitations(ctx)
-    sec_claims.section_use(ctx)
-    return report
+    _evidence_for_figures(ctx)
+
+
+def numerical_warnings(caught: list[warnings.WarningMessage]) -> pd.DataFrame:
+    """Captured warnings grouped by kind, place and message, with counts.
+
+    Columns ``category``, ``where`` (module file), ``message`` (first line),
+    ``count``, ``convergence`` (the warning says a fit did not converge).
+    """
+    rows: dict[tuple[str, str, str], int] = {}
+    for w in caught:
+        if issubclass(w.category, (DeprecationWarning, PendingDeprecationWarning,
+                                   ImportWarning)):
+            continue      # about our code, not the numbers; and raised once per process
+        key = (w.category.__name__, Path(str(w.filename)).name,
+               str(w.message).strip().splitlines()[0][:200] if str(w.message).strip() else "")
+        rows[key] = rows.get(key, 0) + 1
+    out = pd.DataFrame([{"category": c, "where": f, "message": m, "count": n}
+                        for (c, f, m), n in sorted(rows.items())],
+                       columns=["category", "where", "message", "count"])
+    return out.assign(convergence=out["category"].str.contains("Convergence")
+                      | out["message"].str.contains("converge", case=False))
+
+
+COMMIT_FIGURES = ("trailer-adoption", "series-", "its-", "ecdf-")
+
+
+def _evidence_for_figures(ctx: BuildContext) -> None:
+    """The commit ledger behind the headline figures, and each figure's left-out commits."""
+    from procmetrics.analyse.measures.metrics import MetricConfig, commit_flags
+    from procmetrics.report.evidence import commit_ledger, denominator_note
+
+    d = ctx.data
+    flags = commit_flags(d["commits"], d["trailers"], MetricConfig(period=ctx.options.period))
+    ledger = commit_ledger(d["commits"], d["trailers"], d["fix_links"], flags)
+    ctx.report.evidence["evidence/commits.csv"] = ledger
+    for fig in ctx.report.figures.values():
+        if fig.key.startswith(COMMIT_FIGURES) and "subsystem" not in fig.key:
+            fig.denominator = denominator_note(
+                fig.n, ledger, lines=fig.key == "ecdf-lines",
+                rest_reason=("commits in the period that straddles the policy date (a "
+                             "transition period the interrupted time series leaves out)"
+                             if fig.key.startswith("its-") else "other commits"))
+            if fig.denominator:
+                fig.values = {**fig.values, "denominator": fig.denominator}
 
 
 def _check_subsystems(data: StoreData, names: Any) -> None:
@@ -109,12 +172,56 @@ def _clear_previous(out: Path) -> None:
     old.unlink()
 
 
+def _copy_inputs(report: Report, out: Path, info: dict[str, Any]) -> list[str]:
+    """Copy the claims, rules and metadata files into ``out/inputs``; point the manifest there.
+
+    Paths in the manifest are relative to the manifest's folder; the absolute
+    path each file had when the report was made is kept as provenance only.
+    """
+    written: list[str] = []
+    opts = report.options
+    if opts.claims_path and info.get("claims") is not None:
+        rel = copy_input(opts.claims_path, out, "claims.toml")
+        info["claims"] = input_record(opts.claims_path, rel, info["claims"]["sha256"],
+                                      n_claims=info["claims"].get("n_claims"))
+        written.append(rel)
+    inputs: dict[str, Any] = {}
+    if opts.meta_path:
+        rel = copy_input(opts.meta_path, out, "report-meta.toml")
+        inputs["report_meta"] = input_record(opts.meta_path, rel, sha256_file(out / rel))
+        written.append(rel)
+    for run in info.get("mining_runs", []):
+        o = run.get("options_json") or {}
+        rules = o.get("subsystem_rules") if isinstance(o, dict) else None
+        if rules and Path(rules).is_file() and "subsystem_rules" not in inputs:
+            rel = copy_input(rules, out, "subsystem-rules" + (Path(rules).suffix or ".txt"))
+            inputs["subsystem_rules"] = input_record(rules, rel, sha256_file(out / rel),
+                                                     run_id=run.get("run_id"))
+            written.append(rel)
+        elif rules and "subsystem_rules" not in inputs:
+            inputs["subsystem_rules"] = {"path": None, "original_path": str(rules),
+                                         "note": "the rules file was gone when the report "
+                                                 "was made; not copied"}
+    info["inputs"] = inputs
+    url = str(info.get("store_url") or "")
+    if url.startswith("sqlite:///"):
+        info["store_path"] = Path(os.path.relpath(url[len("sqlite:///"):],
+                                                  out.resolve())).as_posix()
+    repo_path = (info.get("repository") or {}).get("path")
+    if repo_path:
+        info["repository_path"] = Path(os.path.relpath(repo_path, out.resolve())).as_posix()
+    return written
+
+
 def write_report(report: Report, out: Path, *, manifest_info: dict[str, Any]) -> ReportFiles:
     """Write the audit folder; ``manifest_info`` carries store URL, dialect, mining runs."""
     out.mkdir(parents=True, exist_ok=True)
     _clear_previous(out)
     prepared = dt.datetime.now(dt.timezone.utc).replace(microsecond=0)
+    info = dict(manifest_info)
+    inputs_written = _copy_inputs(report, out, info)
     csv_names = write_csvs(report, out)
+    evidence_names = write_evidence(report, out)
     json_path = write_json(report, out / "report.json", csv_names)
     html_path = out / "report.html"
     html_path.write_text(render_html(report, csv_names=csv_names,
@@ -123,10 +230,11 @@ def write_report(report: Report, out: Path, *, manifest_info: dict[str, Any]) ->
     pdf = write_pdf(report, html_path, pdf_path, csv_names=csv_names,
                     prepared=f"{prepared:%Y-%m-%d}", engine=report.options.pdf_engine)
     written = sorted(set(csv_names.values()) | {"report.json", "report.html"}
+                     | set(inputs_written) | set(evidence_names)
                      | ({"report.pdf"} if pdf["engine"] != "none" else set()))
     manifest = build_manifest(out=out, written=written, options=report.options,
                               store_checksum=report.store_checksum, pdf=pdf,
-                              prepared=prepared.isoformat(), **manifest_info)
+                              prepared=prepared.isoformat(), **info)
     man_path = write_manifest(manifest, out)
     return ReportFiles(out, html_path, pdf_path if pdf["engine"] != "none" else None,
                        json_path, man_path, tuple(out / n for n in sorted(csv_names.values())),
@@ -140,6 +248,8 @@ def make_report(store: str | None, out: str | Path, options: ReportOptions) -> R
     from procmetrics.store.schema import SCHEMA_VERSION
 
     claims = load_claims(options.claims_path) if options.claims_path else None
+    meta = load_meta(options.meta_path)
+    check_commit_url(options.commit_url)
     engine = open_store(store, create=False, readonly=True)
     try:
         repo = choose_repo(engine, options.repo)
@@ -150,6 +260,9 @@ def make_report(store: str | None, out: str | Path, options: ReportOptions) -> R
     opts = options if options.repo == repo else ReportOptions(
         **{**options.__dict__, "repo": repo})
     report = build_report(data, opts, claims=claims)
+    report.meta = meta
+    if meta.title:
+        report.title = meta.title
     repos = data["repositories"]
     runs = data["mining_runs"].sort_values("run_id")
     info = {

@@ -27,6 +27,8 @@ class BuildContext:
     defects: Any = None               # DefectTable
     claims: Any = None                # ClaimsFile
     skipped: list[str] = field(default_factory=list)
+    #: warnings of the numerical libraries captured during the build (see build.py)
+    numerical: Any = None
 
     @property
     def alpha(self) -> float:

@@ -75,3 +75,21 @@ def write_csvs(report: Report, out: Path) -> dict[str, str]:
         df = tab.data.reindex(columns=[k for k, _ in tab.columns])
         (out / names[tab.key]).write_text(frame_to_csv(df), encoding="utf-8", newline="")
     return names
+
+
+def write_evidence(report: Report, out: Path) -> list[str]:
+    """Write the evidence pack (``report.evidence``); return the relative names written.
+
+    Names come from our own keys and claim ids (checked by the claims reader:
+    letters, digits, '-', '_', '.'), never from repository text.
+    """
+    names = []
+    for rel, df in sorted(report.evidence.items()):
+        parts = rel.split("/")
+        if parts[0] != "evidence" or any(p in ("", ".", "..") for p in parts):
+            raise ValueError(f"evidence path {rel!r} is not a safe file name")
+        path = out.joinpath(*parts)
+        path.parent.mkdir(parents=True, exist_ok=True)
+        path.write_text(frame_to_csv(df), encoding="utf-8", newline="")
+        names.append(rel)
+    return names

@@ -21,7 +21,10 @@ import pandas as pd
 from procmetrics import __version__
 from procmetrics.claims.render import evidence_line
 from procmetrics.report.flags import describe
+from procmetrics.report.meta import ReportMeta, commit_link
 from procmetrics.report.model import Report, Table
+from procmetrics.report.summary import (CAUTION, sig, HASH_COLUMNS, page_css, robustness_text,
+                                        summary_rows, warned_diagnostics)
 
 #: rendering resolution of the PNG figures (dots per CSS inch)
 PNG_DPI = 150
@@ -31,10 +34,13 @@ def stylesheet() -> str:
     return resources.files("procmetrics.report").joinpath("report.css").read_text("utf-8")
 
 
-def csp_for(css: str) -> str:
-    digest = base64.b64encode(hashlib.sha256(css.encode("utf-8")).digest()).decode()
+def csp_for(*css: str) -> str:
+    """The Content-Security-Policy allowing exactly our style blocks (by SHA-256)."""
+    digests = " ".join(
+        "'sha256-" + base64.b64encode(hashlib.sha256(c.encode("utf-8")).digest()).decode()
+        + "'" for c in css)
     return ("default-src 'none'; img-src data:; "
-            f"style-src 'sha256-{digest}'; base-uri 'none'; form-action 'none'")
+            f"style-src {digests}; base-uri 'none'; form-action 'none'")
 
 
 def png_size(png: bytes) -> tuple[int, int]:
@@ -49,7 +55,7 @@ def data_uri(png: bytes) -> str:
     return "data:image/png;base64," + base64.b64encode(png).decode("ascii")
 
 
-def fmt_value(key: str, v: Any) -> str:
+def fmt_value(key: str, v: Any, percent: bool = False) -> str:
     """Table cell text: integers with separators, shares as percent, p-values bounded."""
     if v is None or v is pd.NA or v is pd.NaT:
         return "–"
@@ -67,15 +73,14 @@ def fmt_value(key: str, v: Any) -> str:
             return "∞" if x > 0 else "−∞"
         if key.startswith("p_") or key == "p" or key.endswith("_p"):
             return "< 0.001" if x < 0.001 else f"{x:.3f}"
-        if key.startswith("share") or key.endswith("_share") or key.startswith("pct"):
-            return f"{100 * x:.1f}"
+        if percent or key.startswith("share") or key.endswith("_share") \
+                or key.startswith("pct"):
+            return f"{100 * x:.1f}".replace("-", "−")
         if x.is_integer() and abs(x) < 1e15:
             return f"{int(x):,}"
         if abs(x) >= 100:
             return f"{x:,.0f}"
-        if abs(x) >= 1:
-            return f"{x:.2f}"
-        return f"{x:.3g}"
+        return sig(x).replace("-", "−")
     return str(v)
 
 
@@ -95,18 +100,30 @@ def render_html(report: Report, *, csv_names: dict[str, str], prepared: str) -> 
         autoescape=True, undefined=jinja2.StrictUndefined,
         trim_blocks=False, lstrip_blocks=False)
     css = stylesheet()
+    meta = report.meta if report.meta is not None else ReportMeta()
+    running = page_css(report, meta, prepared)
     images, widths = {}, {}
     for key, fig in report.figures.items():
         if fig.png:
             images[key] = data_uri(fig.png)
             widths[key] = round(png_size(fig.png)[0] * 96 / PNG_DPI)
-    rows = {k: [{c: fmt_value(c, v) for c, v in r.items()}
+    rows = {k: [{c: fmt_value(c, v, c in t.percent_columns) for c, v in r.items()}
                 for r in t.data.reindex(columns=[c for c, _ in t.columns])
                 .astype(object).to_dict(orient="records")]
             for k, t in report.tables.items()}
     numeric = {k: _numeric(t) for k, t in report.tables.items()}
+    url = report.options.commit_url
+    links = {k: [{c: (commit_link(url, str(v)) if c in HASH_COLUMNS and isinstance(v, str)
+                      else None) for c, v in r.items()}
+                 for r in t.data.reindex(columns=[c for c, _ in t.columns])
+                 .astype(object).to_dict(orient="records")]
+             for k, t in report.tables.items()}
+    head = report.scope.get("head_hash") or ""
     return env.get_template("report.html.j2").render(
-        report=report, scope=report.scope, csp=csp_for(css), css=Markup(css),
-        version=__version__, prepared=prepared, images=images, widths=widths,
-        csv_names=csv_names, rows=rows, numeric=numeric, describe=describe,
-        evidence_line=evidence_line)
+        report=report, scope=report.scope, csp=csp_for(css, running), css=Markup(css),
+        running_css=Markup(running), meta=meta, control=meta.control_rows(),
+        version=__version__, prepared=meta.date or prepared, images=images, widths=widths,
+        csv_names=csv_names, rows=rows, links=links, numeric=numeric, describe=describe,
+        evidence_line=evidence_line, summary=summary_rows(report.claims),
+        head_link=commit_link(url, head), warned=warned_diagnostics,
+        caution=CAUTION, robustness_text=robustness_text)

@@ -54,20 +54,27 @@ def output_checksums(out: Path, names: list[str]) -> dict[str, str]:
 def build_manifest(*, out: Path, written: list[str], options: ReportOptions, store_url: str, dialect: str,
                    schema_version: int, store_checksum: str, repository: dict[str, Any],
                    mining_runs: list[dict[str, Any]], pdf: dict[str, Any], prepared: str,
-                   claims: dict[str, Any] | None) -> dict[str, Any]:
+                   claims: dict[str, Any] | None, inputs: dict[str, Any] | None = None,
+                   store_path: str | None = None, repository_path: str | None = None
+                   ) -> dict[str, Any]:
+    """The manifest; ``store_path``, ``repository_path`` and input paths are relative
+    to the manifest's folder (the absolute ``url``/``path``/``original_path`` are kept as
+    provenance, and used by ``rerun`` only when the relative path finds nothing)."""
     return {
         "format": MANIFEST_FORMAT,
         "prepared_utc": prepared,
-        "repository": repository,
+        "repository": {**repository, "path_relative": repository_path},
         "mining_runs": mining_runs,
-        "store": {"url": store_url, "dialect": dialect, "schema_version": schema_version,
+        "store": {"url": store_url, "path": store_path, "dialect": dialect, "schema_version": schema_version,
                   "checksum_sha256": store_checksum,
                   "checksum_method": "SHA-256 over the tidy tables except mining_runs "
                                      "and repositories: per table name, row count, columns "
                                      "and the sum mod 2^256 of SHA-256 of each canonical "
                                      "row line (order-free)"},
-        "report_options": {**options.to_dict(), "pdf_engine": options.pdf_engine},
+        "report_options": {**options.to_dict(), "pdf_engine": options.pdf_engine,
+                           "commit_url": options.commit_url},
         "claims_file": claims,
+        "inputs": inputs or {},
         "pdf": pdf,
         "versions": versions(),
         "outputs": output_checksums(out, written),

@@ -39,6 +39,10 @@ class ReportOptions:
     #: each side of the date (procmetrics.analyse.measures.selection)
     subsystem_limit: int = 12
     subsystem_min_commits: int = 30
+    #: report metadata file (TOML; :mod:`procmetrics.report.meta`): printed, copied, not analysed
+    meta_path: str | None = None
+    #: URL template with ``{hash}`` that turns every commit hash into a link
+    commit_url: str | None = None
 
     def to_dict(self) -> dict[str, Any]:
         """Options that change figures (no local paths: those go in the manifest)."""
@@ -91,6 +95,8 @@ class Figure:
     alt: str = ""
     #: what the figure rests on ("history", "trailers", "defects"): store-level flags use it
     kinds: tuple[str, ...] = ("history",)
+    #: plain words for the commits its n leaves out (merges, empty commits), or ""
+    denominator: str = ""
 
     def caption_line(self) -> str:
         n = "n not applicable" if self.n is None else f"n = {self.n:,}"
@@ -108,6 +114,8 @@ class Table:
     note: str = ""
     flags: list[Flag] = field(default_factory=list)
     number: int = 0
+    #: columns holding shares (fractions in JSON and CSV) that the document shows in percent
+    percent_columns: tuple[str, ...] = ()
 
 
 @dataclass
@@ -152,6 +160,10 @@ class Report:
     claims: list[dict[str, Any]] = field(default_factory=list)
     store_checksum: str = ""
     provenance: dict[str, Any] = field(default_factory=dict)
+    #: document control data (:class:`procmetrics.report.meta.ReportMeta`), or None
+    meta: Any = None
+    #: evidence files to write: path relative to the folder -> rows
+    evidence: dict[str, pd.DataFrame] = field(default_factory=dict)
 
     def add_figure(self, section: Section, fig: Figure) -> Figure:
         fig.number = len(self.figures) + 1

@@ -28,7 +28,11 @@ from procmetrics.errors import ProcmetricsError
 from procmetrics.report.flags import describe
 from procmetrics.claims.render import evidence_line
 from procmetrics.report.html import fmt_value
+from procmetrics import __version__
+from procmetrics.report.meta import ReportMeta
 from procmetrics.report.model import Report
+from procmetrics.report.summary import (CAUTION, robustness_text, running_texts,
+                                        summary_rows, warned_diagnostics)
 
 CHROMIUM_FLAGS = ("--headless", "--no-sandbox", "--disable-gpu",
                   "--disable-background-networking", "--disable-component-update",
@@ -73,10 +77,34 @@ _WIDTH = 92
 
 def _text_lines(report: Report, csv_names: dict[str, str], prepared: str) -> list[Any]:
     """The document as a flat list of (style, text) lines and ('figure', key) items."""
-    out: list[Any] = [("title", report.title),
-                      ("p", f"Repository {report.scope.get('repo')} at "
-                            f"{str(report.scope.get('head_hash') or '')[:12]}. "
-                            f"Prepared on {prepared}."), ("gap", "")]
+    meta = report.meta if report.meta is not None else ReportMeta()
+    sc = report.scope
+    out: list[Any] = [("mono", f"{label:<14}{value}") for label, value in meta.control_rows()]
+    out += [("mono", f"{'Date':<14}{meta.date or prepared}"), ("gap", ""),
+            ("title", report.title),
+            ("p", f"Repository {sc.get('repo')} at {str(sc.get('head_hash') or '')[:12]}. "
+                  f"Prepared on {meta.date or prepared} by procmetrics {__version__}."),
+            ("gap", ""), ("h", "Summary")]
+    facts = [("Repository", str(sc.get("repo"))), ("Ref analysed", str(sc.get("ref") or "–")),
+             ("HEAD commit", str(sc.get("head_hash") or "–")),
+             ("Range", f"{str(sc.get('first_commit') or '')[:10]} to "
+                       f"{str(sc.get('last_commit') or '')[:10]}: {sc.get('n_commits', 0):,} "
+                       f"commits, {sc.get('n_analysed', 0):,} not merges"),
+             ("Process change", str(sc.get("policy_date") or "none given")[:10]),
+             ("Store checksum", report.store_checksum), ("Tool", f"procmetrics {__version__}")]
+    out += [("mono", f"{k:<16}{v}") for k, v in facts] + [("gap", "")]
+    out += [("b", x) for x in textwrap.wrap(CAUTION, _WIDTH)] + [("gap", "")]
+    if report.claims:
+        out.append(("b", "Claims at a glance"))
+        for r in summary_rows(report.claims):
+            line = (f"{r['number']}. [{r['label']}] {r['id']}: {r['estimate']}"
+                    + (f"; n = {r['n']:,}" if r["n"] is not None else "")
+                    + f"; robustness: {r['robustness']}"
+                    + (f"; rows: {r['evidence']}" if r["evidence"] else ""))
+            w = textwrap.wrap(line, _WIDTH - 3)
+            out.extend(("p", ("" if i == 0 else "   ") + t) for i, t in enumerate(w))
+    out += [("page", ""), ("h", "Contents")]
+    out += [("p", f"{s.number}. {s.title}") for s in report.sections] + [("page", "")]
     for s in report.sections:
         out.append(("h", f"{s.number}. {s.title}"))
         for b in s.blocks:
@@ -95,7 +123,7 @@ def _text_lines(report: Report, csv_names: dict[str, str], prepared: str) -> lis
                 out.extend(("p", x) for x in textwrap.wrap(f"Table {t.number}. {t.title}", _WIDTH))
                 cols = [k for k, _ in t.columns]
                 rows = [[h for _, h in t.columns]] + [
-                    [fmt_value(k, r.get(k)) for k in cols]
+                    [fmt_value(k, r.get(k), k in t.percent_columns) for k in cols]
                     for r in t.data.reindex(columns=cols).astype(object).to_dict("records")]
                 widths = [min(28, max(len(str(r[i])) for r in rows)) for i in range(len(cols))]
                 for r in rows:
@@ -112,6 +140,19 @@ def _text_lines(report: Report, csv_names: dict[str, str], prepared: str) -> lis
                         out.extend(("p", x) for x in textwrap.wrap("–  " + r, _WIDTH))
                     out.extend(("p", x) for x in
                                textwrap.wrap("Evidence: " + evidence_line(c), _WIDTH))
+                    files = (c.get("evidence_pack") or {}).get("files") or []
+                    out.extend(("p", x) for x in textwrap.wrap(
+                        "Rows behind this verdict: " + ("; ".join(
+                            f"{f['path']} ({f['rows']:,} rows)" for f in files) or "none"),
+                        _WIDTH))
+                    see = "; ".join(f"{x['label']} ({x['title']})" for x in c.get("see") or [])
+                    if see:
+                        out.extend(("p", x) for x in textwrap.wrap("Shown in: " + see, _WIDTH))
+                    warned = "; ".join(warned_diagnostics(c)) or "none"
+                    out.extend(("p", x) for x in textwrap.wrap(
+                        "Diagnostics that warned: " + warned, _WIDTH))
+                    out.extend(("p", x) for x in textwrap.wrap(
+                        "Robustness: " + robustness_text(c), _WIDTH))
                     out.append(("gap", ""))
     out.append(("p", f"Store checksum {report.store_checksum}."))
     return out
@@ -127,13 +168,14 @@ def fallback_pdf(report: Report, pdf: Path, *, csv_names: dict[str, str], prepar
              "b": (10, "bold", "serif"), "p": (9.5, "normal", "serif"),
              "mono": (7.5, "normal", "monospace"), "flag": (8.5, "normal", "serif"),
              "gap": (6, "normal", "serif")}
+    done: list[Any] = []
     with PdfPages(pdf, metadata={"Title": report.title, "Creator": "procmetrics",
                                  "CreationDate": None, "ModDate": None}) as pages:
         fig, y = None, 0.0
 
         def new_page() -> tuple[Any, float]:
             if fig is not None:
-                pages.savefig(fig)
+                done.append(fig)
             return MplFigure(figsize=_A4), 0.94
 
         fig, y = new_page()
@@ -164,6 +206,9 @@ def fallback_pdf(report: Report, pdf: Path, *, csv_names: dict[str, str], prepar
                     y -= step
                 y -= step
                 continue
+            if kind == "page":
+                fig, y = new_page()
+                continue
             size, weight, family = style[kind]
             lines = 2 if kind in ("title", "h") else 1
             if y - step * lines < 0.05:
@@ -172,7 +217,15 @@ def fallback_pdf(report: Report, pdf: Path, *, csv_names: dict[str, str], prepar
                 fig.text(0.08, y, text, fontsize=size, fontweight=weight, family=family,
                          va="top", color="#8a5a00" if kind == "flag" else "#1d1d1b")
             y -= step * (lines if kind != "gap" else 0.6)
-        pages.savefig(fig)
+        done.append(fig)
+        head, foot = running_texts(report, prepared)
+        for i, page in enumerate(done, 1):
+            grey = dict(fontsize=7, family="serif", color="#5a5a55")
+            page.text(0.08, 0.975, head[0], va="top", **grey)
+            page.text(0.92, 0.975, head[1], va="top", ha="right", **grey)
+            page.text(0.08, 0.025, foot, va="bottom", **grey)
+            page.text(0.92, 0.025, f"page {i} of {len(done)}", va="bottom", ha="right", **grey)
+            pages.savefig(page)
 
 
 def write_pdf(report: Report, html: Path, pdf: Path, *, csv_names: dict[str, str],

@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import datetime as dt
 import json
+import shutil
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -27,7 +28,7 @@ from procmetrics.report.model import ReportOptions
 #: exit status of ``procmetrics rerun`` when the regenerated figures differ
 EXIT_DIFFERENT = EXIT_FIGURES_DIFFER
 #: tables and JSON parts that describe how the data was obtained, not the figures
-PROVENANCE_TABLES = ("scope-facts", "mining-runs")
+PROVENANCE_TABLES = ("scope-facts", "mining-runs", "numerical-warnings")
 PROVENANCE_PARTS = ("scope", "provenance")
 
 
@@ -62,9 +63,9 @@ class RerunResult:
         return "\n".join(lines)
 
 
-def _options(man: dict[str, Any]) -> ReportOptions:
+def _options(man: dict[str, Any], *, claims: str | None = None,
+             meta: str | None = None) -> ReportOptions:
     o = dict(man.get("report_options") or {})
-    claims = (man.get("claims_file") or {}).get("path")
     return ReportOptions(repo=o.get("repo"), policy=o.get("policy"),
                          subsystems=tuple(o.get("subsystems") or ()),
                          period=o.get("period", "quarter"), claims_path=claims,
@@ -73,7 +74,47 @@ def _options(man: dict[str, Any]) -> ReportOptions:
                          min_n=int(o.get("min_n", 20)), seed=int(o.get("seed", 20240601)),
                          pdf_engine=o.get("pdf_engine", "auto"),
                          subsystem_limit=int(o.get("subsystem_limit", 12)),
-                         subsystem_min_commits=int(o.get("subsystem_min_commits", 30)))
+                         subsystem_min_commits=int(o.get("subsystem_min_commits", 30)),
+                         meta_path=meta, commit_url=o.get("commit_url"))
+
+
+def _input_file(rec: dict[str, Any] | None, folder: Path, what: str, key: str,
+                notes: list[str]) -> str | None:
+    """An input recorded in the manifest: the copy in the folder, else the original.
+
+    A copy is found relative to the manifest's folder, wherever the folder now is
+    and whatever the working directory; the original path is only a fallback
+    (older manifests recorded it relative to where ``report`` ran).
+    """
+    if not rec:
+        return None
+    rel = rec.get("path")
+    candidates = []
+    if rel:
+        candidates.append(folder / rel)
+    if rec.get("original_path"):
+        candidates.append(Path(rec["original_path"]))
+    elif rel:
+        candidates.append(Path(rel))
+    for c in candidates:
+        if c.is_file():
+            if rec.get("sha256") and sha256_file(c) != rec["sha256"]:
+                notes.append(f"the {what} {c} changed since the report was made")
+            return str(c.resolve())
+    raise ConfigError(f"the {what} recorded in the manifest is gone (looked for "
+                      + " and ".join(str(c) for c in candidates) + ")", key=key)
+
+
+def _store_candidates(store: dict[str, Any], folder: Path) -> list[str]:
+    """The recorded store: relative to the manifest first, then the absolute URL."""
+    out = []
+    if store.get("path"):
+        p = (folder / store["path"])
+        if p.is_file():
+            out.append("sqlite:///" + str(p.resolve()))
+    if store.get("url"):
+        out.append(store["url"])
+    return list(dict.fromkeys(out))
 
 
 def _store_still_matches(url: str, repo: str | None, checksum: str) -> bool:
@@ -95,7 +136,7 @@ def _store_still_matches(url: str, repo: str | None, checksum: str) -> bool:
         engine.dispose()
 
 
-def _mine_options(run: dict[str, Any], ref: str) -> Any:
+def _mine_options(run: dict[str, Any], ref: str, rules_copy: Path | None = None) -> Any:
     from procmetrics.mine import MineOptions
 
     o = run.get("options_json") or {}
@@ -108,7 +149,9 @@ def _mine_options(run: dict[str, Any], ref: str) -> Any:
     return MineOptions(ref=ref, since=when(o.get("since")), until=when(o.get("until")),
                        line_counts=bool(o.get("line_counts", True)),
                        merge_files=o.get("merge_files", "none"),
-                       subsystem_rules=o.get("subsystem_rules"),
+                       subsystem_rules=(str(rules_copy) if rules_copy is not None
+                                        and rules_copy.is_file()
+                                        else o.get("subsystem_rules")),
                        use_maintainers=bool(o.get("use_maintainers", True)),
                        prefix_depth=int(o.get("prefix_depth", 1)),
                        repo_name=o.get("repo_name"), batch_size=int(o.get("batch_size", 5000)),
@@ -136,45 +179,70 @@ def _json_differences(old: Path | None, new: Path) -> list[str]:
 
 
 def rerun(manifest_path: str | Path, out: str | Path | None = None) -> RerunResult:
-    """Regenerate the report described by a manifest (see the module docstring)."""
-    from procmetrics.report.build import make_report
+    """Regenerate the report described by a manifest (see the module docstring).
 
+    Works from any working directory and on a folder moved or copied elsewhere:
+    every path is first looked up relative to the manifest. A folder this call
+    creates is removed again when the rerun fails, so a failure leaves nothing.
+    """
     mpath = Path(manifest_path)
+    if mpath.is_dir():
+        mpath = mpath / "manifest.json"
     man = read_manifest(mpath)
-    old_dir = mpath.parent
-    repo = man.get("repository") or {}
+    old_dir = mpath.parent.resolve()
     runs = man.get("mining_runs") or []
     if not runs:
         raise ConfigError("the manifest records no mining run", path=str(mpath),
                           key="mining_runs")
+    new_dir = Path(out) if out is not None else old_dir.with_name(old_dir.name + "-rerun")
+    if new_dir.resolve() == old_dir:
+        raise ConfigError("the rerun folder must differ from the original report folder",
+                          key="--out")
+    notes: list[str] = []
+    claims = _input_file(man.get("claims_file"), old_dir, "claims file", "claims_file", notes)
+    inputs = man.get("inputs") or {}
+    meta = _input_file(inputs.get("report_meta"), old_dir, "report metadata file",
+                       "inputs.report_meta", notes)
+    created = not new_dir.exists()
+    try:
+        return _rerun_into(man, mpath, old_dir, new_dir, _options(man, claims=claims, meta=meta),
+                           notes, runs)
+    except BaseException:
+        if created and new_dir.exists():
+            shutil.rmtree(new_dir, ignore_errors=True)
+        raise
+
+
+def _repository_path(man: dict[str, Any], folder: Path) -> str | None:
+    repo = man.get("repository") or {}
+    for cand in (repo.get("path"), repo.get("path_relative")):
+        if not cand:
+            continue
+        p = Path(cand) if Path(cand).is_absolute() else folder / cand
+        if p.exists():
+            return str(p)
+    return repo.get("path")
+
+
+def _rerun_into(man: dict[str, Any], mpath: Path, old_dir: Path, new_dir: Path,
+                opts: ReportOptions, notes: list[str], runs: list[dict[str, Any]]
+                ) -> RerunResult:
+    from procmetrics.report.build import make_report
+
     last = [r for r in runs if r.get("status") == "complete"][-1:] or runs[-1:]
     run = last[0]
     head, ref = run.get("head_hash"), run.get("ref") or "HEAD"
-    new_dir = Path(out) if out is not None else old_dir.with_name(old_dir.name + "-rerun")
-    if new_dir.resolve() == old_dir.resolve():
-        raise ConfigError("the rerun folder must differ from the original report folder",
-                          key="--out")
-    new_dir.mkdir(parents=True, exist_ok=True)
-    opts = _options(man)
-    notes: list[str] = []
-    claims = man.get("claims_file")
-    if claims and claims.get("path"):
-        cp = Path(claims["path"])
-        if not cp.exists():
-            raise ConfigError("the claims file recorded in the manifest is gone",
-                              path=str(cp), key="claims_file")
-        if sha256_file(cp) != claims.get("sha256"):
-            notes.append(f"the claims file {cp} changed since the report was made")
     store = man["store"]
     head_moved = None
     remined = False
-    if _store_still_matches(store["url"], opts.repo, store["checksum_sha256"]):
-        store_url = store["url"]
-    else:
+    store_url = next((u for u in _store_candidates(store, old_dir)
+                      if _store_still_matches(u, opts.repo, store["checksum_sha256"])), None)
+    new_dir.mkdir(parents=True, exist_ok=True)
+    if store_url is None:
         from procmetrics.mine import mine_repository
         from procmetrics.mine.git import GitRepo
 
-        path = repo.get("path")
+        path = _repository_path(man, old_dir)
         if not path:
             raise ConfigError("the manifest records no repository path", path=str(mpath),
                               key="repository.path")
@@ -188,8 +256,10 @@ def rerun(manifest_path: str | Path, out: str | Path | None = None) -> RerunResu
         notes.append("the recorded store is gone or holds different data")
         store_url = str(new_dir / "procmetrics.sqlite")
         Path(store_url).unlink(missing_ok=True)
+        rules = (man.get("inputs") or {}).get("subsystem_rules") or {}
+        rules_copy = old_dir / rules["path"] if rules.get("path") else None
         mine_repository(path, store=store_url,
-                        options=_mine_options(run, mine_ref))
+                        options=_mine_options(run, mine_ref, rules_copy))
         remined = True
     files = make_report(store_url, new_dir, opts)
     new_man = json.loads(files.manifest.read_text("utf-8"))

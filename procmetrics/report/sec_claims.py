@@ -8,14 +8,46 @@ from procmetrics.claims.registry import evaluate_claims
 from procmetrics.analyse.result import CAVEAT_CODES
 from procmetrics.report.context import BuildContext
 from procmetrics.report.flags import describe
-from procmetrics.report.model import Block
+from procmetrics.report.evidence import EVIDENCE_DIR, claim_pack
+from procmetrics.report.model import Block, Flag, Report
+from procmetrics.report.summary import CAUTION  # noqa: F401 - re-exported
 
-CAUTION = (
-    "The figures in this document are statistical evidence about the development process "
-    "as recorded in the repository's history. They support, and never replace, the "
-    "requirements of the applicable safety standard and the judgement of the assessor. A "
-    "history shows what was recorded: work that left no trace in commits and trailers is "
-    "invisible to it, and nothing here shows that defects are absent.")
+#: figures and tables that show the quantity each claim kind judges (keys; absent ones skipped)
+_RELATED = {
+    "review_coverage": ("series-review-coverage", "its-review-coverage", "before-after-shares"),
+    "independent_review": ("series-independent-review", "its-independent-review",
+                           "before-after-shares"),
+    "fix_ratio": ("series-fix-ratio", "its-fix-ratio", "trends", "trailer-adoption"),
+    "fixes_tag_adoption": ("trailer-adoption",),
+    "lifetimes": ("lifetime-curves", "lifetime-before-after", "lifetime-quantiles",
+                  "fix-references"),
+    "growth": ("growth-curve", "growth-trend-tests", "growth-models", "fix-references"),
+}
+
+
+def related_items(rep: Report, claim: object) -> list[dict[str, str]]:
+    """The report's figures and tables that show what a claim judges, in plain words."""
+    kind, p = getattr(claim, "kind", ""), dict(getattr(claim, "params", {}) or {})
+    if "lifetime" in kind:
+        group = "lifetimes"
+    elif kind == "fix_rate_declining":
+        group = "growth"
+    elif kind == "fix_ratio_declining":
+        group = "fix_ratio"
+    elif kind == "review_coverage_rose":
+        group = "review_coverage"
+    else:
+        group = str(p.get("metric", ""))
+    out = []
+    for key in _RELATED.get(group, ()):
+        if key in rep.figures:
+            f = rep.figures[key]
+            out.append({"ref": key, "label": f"Figure {f.number}", "title": f.title})
+        elif key in rep.tables:
+            t = rep.tables[key]
+            out.append({"ref": key, "label": f"Table {t.number}",
+                        "title": t.title.rstrip(". ")})
+    return out
 
 CAUTION_SHORT = (
     "Read this document as statistical evidence about the recorded history: it supports, and "
@@ -42,12 +74,21 @@ def section_claims(ctx: BuildContext) -> None:
         s.p("No claims file was given. Claims are checked with “procmetrics check” or by "
             "passing --claims to “procmetrics report”.")
         return
-    verdicts = evaluate_claims(ctx.claims.claims, claim_context(ctx))
+    cctx = claim_context(ctx)
+    verdicts = evaluate_claims(ctx.claims.claims, cctx)
     rep.claims = [v.to_dict() for v in verdicts]
+    for claim, c in zip(ctx.claims.claims, rep.claims, strict=True):
+        pack = claim_pack(claim, cctx, c)
+        for name, rows in pack.files.items():
+            rep.evidence[f"{EVIDENCE_DIR}/{claim.id}/{name}"] = rows
+        c["evidence_pack"] = pack.to_dict()
+        c["see"] = related_items(rep, claim)
     counts = Counter(v.verdict for v in verdicts)
     s.p(f"{len(verdicts)} claims were checked against the data (claims file SHA-256 "
         f"{ctx.claims.sha256[:16]}…). Each claim is judged by one method, named with its "
-        "evidence. A claim is supported when the whole interval lies on the claimed side; "
+        "evidence. A claim is supported when the whole two-sided interval (level 1 − α) lies "
+        "on the claimed side, which is a one-sided test in the claimed direction at level "
+        "α/2 (2.5% for 95% intervals); "
         "not supported when it does not (which is not proof of the opposite); undecidable "
         "when this data cannot answer; and not supportable when no commit data could.")
     s.bullets([f"{VERDICT_LABELS[k]}: {counts[k]}" for k in VERDICT_LABELS if counts[k]])
@@ -85,9 +126,34 @@ def section_limitations(ctx: BuildContext) -> None:
     if ctx.skipped:
         s.p("Analyses that could not be run on this data:")
         s.bullets(ctx.skipped)
+    _numerical(ctx, s)
     codes = sorted(CAVEAT_CODES)
     s.p("Flag kinds this report can raise: " + "; ".join(
         f"{c.replace('_', ' ')} ({CAVEAT_CODES[c]})" for c in codes) + ".")
+
+
+def _numerical(ctx: BuildContext, s: object) -> None:
+    """Numerical warnings captured while building: counted, and convergence failures apart."""
+    w = ctx.numerical
+    if w is None or not len(w):
+        s.p("No numerical warning was raised by the statistical libraries while this "
+            "report was built.")
+        return
+    total, conv = int(w["count"].sum()), int(w.loc[w["convergence"], "count"].sum())
+    s.p(f"The statistical libraries raised {total:,} numerical warnings while this report "
+        f"was built ({len(w)} kinds, listed below); {conv:,} of them say that a fit did not "
+        "converge. Warnings from placebo and bootstrap fits concern those replicates only; "
+        "a figure whose own fit failed carries a flag.")
+    if conv:
+        ctx.report.flags.append(Flag("diagnostic_failed", "warn", "report",
+                                     f"{conv:,} model fits did not converge while this report "
+                                     "was built (see the limitations section)", "report"))
+    from procmetrics.report.model import Table
+
+    ctx.report.add_table(s, Table(
+        "numerical-warnings", "Numerical warnings raised while building this report.",
+        [("category", "Kind"), ("where", "Raised in"), ("message", "Message"),
+         ("count", "Count"), ("convergence", "Fit did not converge")], w.copy()))
 
 
 def section_use(ctx: BuildContext) -> None:

@@ -112,14 +112,16 @@ def _proportions(ctx: BuildContext, s: Any, pc: Any) -> None:
         f"{ctx.policy_date:%Y-%m-%d}.",
         [("quantity", "Measure"), ("n_before", "Commits before"),
          ("share_before", "Share before (%)"), ("n_after", "Commits after"),
-         ("share_after", "Share after (%)"), ("difference", "Difference"),
+         ("share_after", "Share after (%)"), ("difference", "Difference (points)"),
          ("low", f"{ctx.options.level:.0%} interval from"), ("high", "to"),
          ("p_value", "p (smallest of Fisher, χ²)")], pd.DataFrame(rows),
-        note="Difference = share after minus share before, as a fraction (0.10 = 10 "
-             "percentage points), Newcombe hybrid score interval. Commits are treated as "
-             "independent here; the time series above allows for variation between periods. "
-             "A difference whose interval lies within ±0.02 is treated as negligible.",
-        flags=fl.dedupe(flags)))
+        note="Difference = share after minus share before, in percentage points, with the "
+             "Newcombe hybrid score interval (the CSV and JSON hold fractions: 0.10 = 10 "
+             "points). Commits are treated as independent here; the time series above allows "
+             "for variation between periods. A difference whose interval lies within ±2 "
+             "percentage points is treated as negligible.",
+        flags=fl.dedupe(flags),
+        percent_columns=("share_before", "share_after", "difference", "low", "high")))
 
 
 def _distributions(ctx: BuildContext, s: Any, pc: Any) -> None:
@@ -141,10 +143,16 @@ def _distributions(ctx: BuildContext, s: Any, pc: Any) -> None:
         hl, cd = c.hodges_lehmann, c.cliffs_delta
         p = min(t.p_value for t in c.tests)
         key = "ecdf-" + ("lines" if col == "churn" else "reviewers")
+        shown = (f"Empirical distribution functions of {c.quantity}, before and from "
+                 f"{ctx.policy_date:%Y-%m-%d} (ECDF: no binning; shaded: "
+                 f"{ctx.options.level:.0%} Dvoretzky–Kiefer–Wolfowitz band)"
+                 if col == "churn" else
+                 f"Share of commits with 0, 1, 2, … {c.quantity.replace(' per commit', '')}, "
+                 f"before and from {ctx.policy_date:%Y-%m-%d}, with {ctx.options.level:.0%} "
+                 "Wilson intervals (a small count reads better as bars than as an ECDF)")
         fig = Figure(
             key, f"{c.quantity.capitalize()} before and after",
-            f"Empirical distribution functions of {c.quantity}, before and from "
-            f"{ctx.policy_date:%Y-%m-%d} (ECDF: no binning). Medians {_ci(c.median_a, '.1f')} "
+            f"{shown}. Medians {_ci(c.median_a, '.1f')} "
             f"before and {_ci(c.median_b, '.1f')} after; Hodges–Lehmann shift "
             f"{_ci(hl, '.2f')}; Cliff's delta {_ci(cd, '.2f')} ({c.magnitude}); smallest "
             f"test p = {p:.3g} ({', '.join(t.name.replace('_', '-') for t in c.tests)})",
@@ -186,18 +194,26 @@ def _subsystems(ctx: BuildContext, s: Any, pc: Any) -> None:
 
 def _change_points(ctx: BuildContext, s: Any, pc: Any) -> None:
     rows = []
+    cpt = ctx.report.tables.get("change-points")
+    known = {} if cpt is None or cpt.data.empty else {
+        (r["metric"], r["period"]): r["tuning_sensitive"]
+        for r in cpt.data[cpt.data["subsystem"] == "(all)"].to_dict("records")}
     for metric, rel in pc.change_points:
         rows.append({"metric": _words(metric), "status": rel.status,
                      "nearest": rel.nearest_period or "–",
                      "distance": rel.distance_periods,
-                     "tolerance": rel.tolerance_periods})
+                     "tolerance": rel.tolerance_periods,
+                     "tuning_sensitive": known.get((metric, rel.nearest_period))})
     if not rows:
         return
     ctx.report.add_table(s, Table(
         "changes-vs-date", "Where the detected change points lie relative to the date.",
         [("metric", "Measure"), ("status", "Change point"), ("nearest", "Nearest change "
           "(first period)"), ("distance", f"Distance ({ctx.options.period}s)"),
-         ("tolerance", f"Tolerance ({ctx.options.period}s)")], pd.DataFrame(rows),
+         ("tolerance", f"Tolerance ({ctx.options.period}s)"),
+         ("tuning_sensitive", "Moves with penalty")], pd.DataFrame(rows),
         note=f"“at declared date”: a change within the tolerance of the first "
              f"{ctx.options.period} from {date_text(ctx.policy_date)}; “elsewhere”: changes, "
-             "none that close; “none”: no change detected (not evidence of no change)."))
+             "none that close; “none”: no change detected (not evidence of no change). "
+             "“Moves with penalty” repeats the change-point table's judgement for the "
+             "nearest change (– when there is none)."))

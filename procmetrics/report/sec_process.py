@@ -64,6 +64,7 @@ def section_process(ctx: BuildContext) -> None:
     tr_rows: list[dict[str, Any]] = []
     cp_flags: list = []
     for metric, words in SERIES.items():
+        panels: list[tuple[str, Any, Any, Any]] = []
         for sub in groups:
             rows = _series_rows(ctx, metric, sub)
             if rows.empty or rows["denominator"].sum() == 0:
@@ -75,6 +76,8 @@ def section_process(ctx: BuildContext) -> None:
             tr = ctx.attempt(f"Trend of {metric} ({label})", s,
                              lambda: fit_trend(ctx.metrics.table, metric, sub, alpha=ctx.alpha))
             n = int(rows["denominator"].sum())
+            if sub != ALL:       # subsystems: small multiples on a shared axis, below
+                panels.append((sub, rows, cp, tr))
             key = f"series-{metric.replace('_', '-')}" + ("" if sub == ALL else
                                                            f"-{slug(sub)}")
             data = rows.copy()
@@ -82,12 +85,15 @@ def section_process(ctx: BuildContext) -> None:
                 key=key, title=words.split(":")[0] + f" ({label})",
                 caption=f"{words}, per {ctx.options.period}, {label}, with the fitted "
                         "trend and its band"
-                        + ("; red lines: detected change points, shaded: their position "
-                           "intervals, red steps: segment levels" if cp is not None
+                        + ("; vermillion dash-dot lines: detected change points, shaded: "
+                           "their position intervals, vermillion steps: segment levels"
+                           if cp is not None
                            and cp.changes else "; no change point detected"
                            if cp is not None else "")
                         + ("; dashed black line: the policy date"
-                           if ctx.policy_date is not None else ""),
+                           if ctx.policy_date is not None else "")
+                        + "; open markers: periods the history covers only in part; grey: "
+                          "before the trailer was first used",
                 n=n, method=("Wilson score interval per period; change points: PELT on "
                              "arcsine-square-root values" if cp is not None else
                              "Wilson score interval per period"),
@@ -96,9 +102,10 @@ def section_process(ctx: BuildContext) -> None:
                 values={"metric": metric, "subsystem": sub,
                         "change_points": None if cp is None else cp.to_dict(),
                         "trend": None if tr is None else _trend_dict(tr)},
-                png=plots.series_png(ctx, rows, cp, tr, metric, label))
-            ctx.add_figure(s, fig, result={"change points": cp, "trend model": tr},
-                           min_n=ctx.options.min_n)
+                png=plots.series_png(ctx, rows, cp, tr, metric, label) if sub == ALL else None)
+            if sub == ALL:
+                ctx.add_figure(s, fig, result={"change points": cp, "trend model": tr},
+                               min_n=ctx.options.min_n)
             if cp is not None:
                 cp_flags += fl.from_result(cp, "change-points", prefix=f"{metric} ({label})")
                 for c in cp.changes:
@@ -114,11 +121,13 @@ def section_process(ctx: BuildContext) -> None:
                                 "ratio": None if r is None else r.value,
                                 "low": None if r is None else r.low,
                                 "high": None if r is None else r.high})
+        if panels:
+            _facets(ctx, s, metric, words, panels)
     cp_tab = Table("change-points", "Change points found in the process series.",
                    [("metric", "Series"), ("subsystem", "Subsystem"),
                     ("period", "First period after the change"),
                     ("date_low", "Position interval from"), ("date_high", "to"),
-                    ("level_before", "Share before"), ("level_after", "Share after"),
+                    ("level_before", "Share before (%)"), ("level_after", "Share after (%)"),
                     ("support", "Bootstrap support"), ("tuning_sensitive", "Moves with penalty")],
                    pd.DataFrame(cp_rows, columns=["metric", "subsystem", "period", "date_low",
                                                   "date_high", "level_before", "level_after",
@@ -129,7 +138,8 @@ def section_process(ctx: BuildContext) -> None:
                          "(shorter series are flagged), so among "
                          f"{n_series} series about {STATED_FALSE_POSITIVE_RATE * n_series:.1f} "
                          "false changes are to be expected; no further correction is applied. "
-                         if n_series > 1 else "") + "Shares are fractions (0 to 1).")
+                         if n_series > 1 else "") + "Shares in percent (the CSV and JSON hold "
+                   "fractions, 0 to 1).", percent_columns=("level_before", "level_after"))
     cp_tab.flags = fl.dedupe(fl.retarget(cp_flags, "change-points")
                              + fl.rule_flags("change-points", n=None, min_n=None,
                                              n_tests=n_series, corrected=False))
@@ -147,6 +157,28 @@ def section_process(ctx: BuildContext) -> None:
             pd.DataFrame(tr_rows),
             note="An odds ratio per year above 1 means the share rises over time. A trend "
                  "describes the observed window only; it is not extrapolated."))
+
+
+def _facets(ctx: BuildContext, s: Any, metric: str, words: str,
+            panels: list[tuple[str, Any, Any, Any]]) -> None:
+    """One figure of small multiples for the subsystems shown on their own."""
+    data = pd.concat([p[1] for p in panels], ignore_index=True)
+    n = int(data["denominator"].sum())
+    key = f"series-{metric.replace('_', '-')}-by-subsystem"
+    fig = Figure(
+        key=key, title=words.split(":")[0] + " by subsystem",
+        caption=f"{words}, per {ctx.options.period}, one panel per subsystem on a shared "
+                "axis, each with its fitted trend and band; open markers: periods the "
+                "history covers only in part; grey: before the trailer was first used"
+                + ("; dashed black line: the policy date" if ctx.policy_date is not None
+                   else "") + ". Change points per subsystem are in the change-point table",
+        n=n, method="Wilson score interval per period; trend per subsystem",
+        interval=f"{ctx.options.level:.0%} Wilson interval", data=data, kinds=KINDS[metric],
+        values={"metric": metric, "subsystems": [p[0] for p in panels],
+                "trends": {p[0]: None if p[3] is None else _trend_dict(p[3]) for p in panels}},
+        png=plots.facets_png(ctx, metric, [(p[0], p[1], p[3]) for p in panels]))
+    ctx.add_figure(s, fig, result={f"{p[0]}: trend model": p[3] for p in panels},
+                   min_n=ctx.options.min_n)
 
 
 def _trend_dict(tr: Any) -> dict[str, Any]:

@@ -54,6 +54,40 @@ def provenance(ctx: BuildContext) -> dict[str, Any]:
     return {"mining_runs": runs}
 
 
+def mining_options_text(opts: dict[str, Any]) -> str:
+    """The mining options in words ("whole history; line counts mined; ..."), not raw
+    key/value text; options left at their default say what the default means."""
+    def day(epoch: Any) -> str:
+        try:
+            return date_text(pd.Timestamp(int(epoch), unit="s", tz="UTC"))
+        except (TypeError, ValueError):
+            return str(epoch)
+
+    since, until = opts.get("since"), opts.get("until")
+    parts = [f"ref {opts.get('ref') or 'HEAD'}",
+             "whole history" if since is None and until is None else
+             "commits " + (f"from {day(since)}" if since is not None else "")
+             + (" " if since is not None and until is not None else "")
+             + (f"until {day(until)}" if until is not None else ""),
+             "line counts mined" if opts.get("line_counts", True) else "no line counts",
+             {"none": "files of merge commits not recorded",
+              "first-parent": "files of merge commits against their first parent"}.get(
+                  str(opts.get("merge_files", "none")),
+                  f"merge files: {opts.get('merge_files')}"),
+             (f"subsystems from the rules file {opts['subsystem_rules']}"
+              if opts.get("subsystem_rules") else
+              "subsystems from MAINTAINERS where present" if opts.get("use_maintainers", True)
+              else f"subsystems from the top {opts.get('prefix_depth', 1)} path level(s)"),
+             ]
+    if opts.get("repo_name"):
+        parts.append(f"stored as “{opts['repo_name']}”")
+    known = {"ref", "since", "until", "line_counts", "merge_files", "subsystem_rules",
+             "use_maintainers", "prefix_depth", "repo_name", "batch_size", "rewrite_policy"}
+    parts += [f"{k.replace('_', ' ')}: {json.dumps(v, sort_keys=True)}"
+              for k, v in sorted(opts.items()) if k not in known and v is not None]
+    return "; ".join(parts)
+
+
 def section_scope(ctx: BuildContext) -> None:
     rep, sc = ctx.report, ctx.report.scope
     s = rep.add_section("scope", "Scope and provenance")
@@ -96,9 +130,7 @@ def section_scope(ctx: BuildContext) -> None:
                                     "in manifest.json."))
     opts = sc["mining_options"]
     if opts:
-        s.p("Mining options of the last run: " + "; ".join(
-            f"{k.replace('_', ' ')} {json.dumps(v, sort_keys=True)}"
-            for k, v in sorted(opts.items())) + ".")
+        s.p("Mining options of the last run: " + mining_options_text(opts) + ".")
     from procmetrics.report.sec_claims import CAUTION_SHORT
     s.blocks.append(Block("caution", text=CAUTION_SHORT))
 

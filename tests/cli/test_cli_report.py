@@ -36,7 +36,7 @@ def test_check_exit_code_reflects_verdicts(mined, tmp_path, capsys):
     js = tmp_path / "v.json"
     assert main(args + ["--json", str(js)]) == 12
     doc = json.loads(js.read_text())
-    assert [d["verdict"] for d in doc] == ["supported", "not_supportable"]
+    assert [d["verdict"] for d in doc["verdicts"]] == ["supported", "not_supportable"]
 
 
 def test_check_claims_error_names_file_line_and_key(mined, tmp_path, capsys):

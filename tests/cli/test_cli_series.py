@@ -100,7 +100,7 @@ def test_distribution_figures_state_n_and_bin_width(tmp_path):
     ax = plot_ecdf({"before": rng.normal(size=30), "after": rng.normal(size=20)},
                    quantity="lines per commit")
     labels = [t.get_text() for t in ax.get_legend().get_texts()]
-    assert labels == ["before (n=30)", "after (n=20)"]
+    assert labels == ["before (n = 30)", "after (n = 20)"]
     ax = plot_histogram(rng.poisson(5, 100), bin_width=2, sqrt_counts=True)
     assert "bin width 2" in ax.get_xlabel() and "square-root" in ax.get_ylabel()
     frame = pd.DataFrame({"v": rng.normal(size=60), "period": ["a", "b"] * 30,

@@ -1,0 +1,352 @@
+"""The evidence pack: the exact rows behind every claim, as CSV under ``evidence/<claim id>/``.
+
+For each claim the rows are selected the way its claim kind selects them
+(:mod:`procmetrics.claims`): the commits counted (with the trailers that made
+them reviewed, or the ``Fixes:`` references that made them fixes), the periods
+the model was fitted on, the fix links with their resolution, the defects with
+the reason each one was left out. A row column ``counted`` marks the rows that
+make up the claim's n; :func:`claim_pack` checks that their number equals the
+n the verdict states, and the pack says so either way (``reproduces_n``).
+
+``evidence/commits.csv`` lists every commit of the store with what the headline
+figures counted it as and, for commits left out of a denominator (merges,
+commits without a date or line count), why; so "n = 3,880 of 4,000 commits"
+can be checked row by row.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any
+
+import pandas as pd
+
+from procmetrics.errors import ProcmetricsError
+
+SHARE_KINDS = ("rose_after", "fell_after", "review_coverage_rose", "at_least", "at_most")
+TREND_KINDS = ("declining", "rising", "fix_ratio_declining")
+EVIDENCE_DIR = "evidence"
+
+
+@dataclass
+class ClaimPack:
+    """The files of one claim's evidence (name -> rows) and what they show."""
+
+    claim_id: str
+    files: dict[str, pd.DataFrame] = field(default_factory=dict)
+    described: dict[str, str] = field(default_factory=dict)
+    counted: int | None = None
+    claim_n: int | None = None
+    notes: list[str] = field(default_factory=list)
+
+    @property
+    def reproduces_n(self) -> bool | None:
+        if self.counted is None or self.claim_n is None:
+            return None
+        return self.counted == self.claim_n
+
+    def add(self, name: str, rows: pd.DataFrame, what: str) -> None:
+        self.files[name] = rows.reset_index(drop=True)
+        self.described[name] = what
+
+    def to_dict(self) -> dict[str, Any]:
+        base = f"{EVIDENCE_DIR}/{self.claim_id}/"
+        return {"folder": base,
+                "files": [{"path": base + n, "rows": int(len(df)), "what": self.described[n]}
+                          for n, df in self.files.items()],
+                "counted_rows": self.counted, "claim_n": self.claim_n,
+                "reproduces_n": self.reproduces_n, "notes": list(self.notes)}
+
+
+# ------------------------------------------------------------------ row makers
+def review_trailers(trailers: pd.DataFrame, keys: tuple[str, ...]) -> pd.Series:
+    """hash -> "Reviewed-by: A <a@x>; Acked-by: B" (the trailers that count as review)."""
+    t = trailers[trailers["key"].astype(str).str.casefold().isin({k.casefold() for k in keys})]
+    if t.empty:
+        return pd.Series(dtype=object)
+    text = t["key"].astype(str) + ": " + t["value"].astype(str)
+    return text.groupby(t["hash"]).agg(lambda s: "; ".join(s))
+
+
+def fix_references(fix_links: pd.DataFrame) -> pd.Series:
+    """hash -> "abc123456789 resolved; def0 unresolved" (each Fixes: reference, resolution)."""
+    if fix_links.empty:
+        return pd.Series(dtype=object)
+    text = fix_links["ref_hash"].astype(str) + " " + fix_links["status"].astype(str)
+    return text.groupby(fix_links["fix_hash"]).agg(lambda s: "; ".join(s))
+
+
+def _commit_rows(f: pd.DataFrame, cctx: Any, metric: str, keys: tuple[str, ...]
+                 ) -> pd.DataFrame:
+    from procmetrics.analyse.measures.periods import assign_periods
+
+    labels, _ = assign_periods(f["date"], cctx.period, cctx.tags)
+    rows = pd.DataFrame({"hash": f["hash"].to_numpy(), "date": f["date"].to_numpy(),
+                         "period": labels.to_numpy(), "counted": True,
+                         "in_numerator": f["hit"].to_numpy(bool)})
+    if "fix" in metric or "stable" in metric:
+        why = fix_references(cctx.fix_links)
+        rows["fixes_references"] = rows["hash"].map(why).fillna("")
+    else:
+        why = review_trailers(cctx.trailers, keys)
+        rows["review_trailers"] = rows["hash"].map(why).fillna("")
+    return rows
+
+
+def _left_out(pack: ClaimPack, cctx: Any, kept: int) -> None:
+    """Say which commits of the store the claim's denominator leaves out, and why."""
+    c = cctx.commits
+    total = int(c["hash"].nunique())
+    merges = int(c["is_merge"].astype("boolean").fillna(False).astype(bool).sum())
+    other = total - kept - merges
+    parts = [f"{merges:,} merge commits (the measures count non-merge commits)"] if merges \
+        else []
+    if other > 0:
+        parts.append(f"{other:,} commits outside the claim's window, subsystem or "
+                     "denominator (e.g. only commits with a Fixes: reference)")
+    if parts:
+        pack.notes.append(f"n = {kept:,} of the {total:,} commits in the store; left out: "
+                          + "; ".join(parts))
+
+
+def _shares(pack: ClaimPack, claim: Any, cctx: Any) -> None:
+    from procmetrics.analyse.measures.vocabulary import DEFAULT_REVIEW_KEYS
+    from procmetrics.claims import base as cl
+    from procmetrics.claims.common import per_period, share_flags, window
+
+    p = claim.params
+    metric = p.get("metric", "review_coverage")
+    f = share_flags(cctx, metric, p.get("subsystem"))
+    split = None
+    if "date" in p:
+        split = cl.resolve_date(p["date"], cctx, "date")
+    else:
+        after, before = window(cctx, p)
+        if after is not None:
+            f = f[f["date"] >= after]
+        if before is not None:
+            f = f[f["date"] < before]
+    rows = _commit_rows(f, cctx, metric, DEFAULT_REVIEW_KEYS)
+    if split is not None:
+        rows.insert(3, "side", ["after" if d >= split else "before" for d in f["date"]])
+    pack.add("commits.csv", rows, f"the {len(rows):,} commits in the {metric.replace('_', ' ')}"
+             " denominator; in_numerator marks those counted in the share, with the "
+             "trailers or Fixes: references that made them so")
+    pack.counted = int(rows["counted"].sum())
+    _left_out(pack, cctx, pack.counted)
+    pack.add("periods.csv", per_period(f, cctx, split).rename(
+        columns={"x": "in_numerator", "n": "commits", "t": "first_commit"}),
+        f"the {cctx.period}s the model was fitted on: commits and numerator per period"
+        + (" and side of the date" if split is not None else ""))
+
+
+def _trend(pack: ClaimPack, claim: Any, cctx: Any) -> None:
+    from procmetrics.analyse.measures.vocabulary import DEFAULT_REVIEW_KEYS
+    from procmetrics.analyse.measures.metrics import MetricConfig, commit_flags
+    from procmetrics.claims.common import flag_column, per_period, subsystem_commits, window
+
+    p = claim.params
+    metric = p.get("metric", "fix_ratio")
+    after, before = window(cctx, p)
+    c = subsystem_commits(cctx, p.get("subsystem"))
+    if after is not None:
+        c = c[c["committer_date"] >= after]
+    if before is not None:
+        c = c[c["committer_date"] < before]
+    f = commit_flags(c, cctx.trailers, MetricConfig(period=cctx.period))
+    num, den = flag_column(metric)
+    if den is not None:
+        f = f[f[den]]
+    f = f[f["date"].notna()].assign(hit=lambda x: x[num].astype(bool))
+    rows = _commit_rows(f, cctx, metric, DEFAULT_REVIEW_KEYS)
+    pack.add("commits.csv", rows, f"the {len(rows):,} commits of the window; in_numerator "
+             f"marks those counted in {metric.replace('_', ' ')}")
+    pack.counted = int(rows["counted"].sum())
+    _left_out(pack, cctx, pack.counted)
+    pack.add("periods.csv", per_period(f, cctx).rename(
+        columns={"x": "in_numerator", "n": "commits", "t": "first_commit"}),
+        f"the {cctx.period}s the trend was fitted on")
+
+
+def _defect_table(cctx: Any) -> Any:
+    from procmetrics.analyse.lifetimes.defects import build_defects
+
+    return build_defects(cctx.fix_links, commits=cctx.commits,
+                         commit_subsystems=cctx.commit_subsystems, trailers=cctx.trailers)
+
+
+def _defect_rows(d: pd.DataFrame) -> pd.DataFrame:
+    cols = [c for c in ("introducer_hash", "fix_hash", "intro_date", "fix_date",
+                        "lifetime_days", "lifetime", "window", "subsystems", "negative")
+            if c in d.columns]
+    return d[cols].copy()
+
+
+def _lifetimes(pack: ClaimPack, claim: Any, cctx: Any) -> None:
+    from procmetrics.claims import base as cl
+    from procmetrics.claims.common import window
+
+    p = claim.params
+    table = _defect_table(cctx)
+    d = table.defects
+    rows = _defect_rows(d)
+    reason = pd.Series("", index=d.index, dtype=object)
+    neg = d["negative"].astype(bool) | d["lifetime"].isna()
+    reason[neg] = "fix dated before the introducer (negative lifetime) or no lifetime"
+    sub = p.get("subsystem")
+    if sub:
+        out = ~d["subsystems"].astype(str).str.split(";").apply(lambda s: sub in s)
+        reason[(reason == "") & out] = f"does not touch subsystem {sub}"
+    if claim.kind == "median_lifetime_below":
+        after, before = window(cctx, p)
+        if after is not None:
+            reason[(reason == "") & (d["intro_date"] < after)] = "introduced before the window"
+        if before is not None:
+            reason[(reason == "") & (d["intro_date"] >= before)] = "introduced after the window"
+    else:
+        date = cl.resolve_date(p["date"], cctx, "date")
+        end = table.end_date
+        horizon = float(p.get("horizon_days") or min(365.0, (end - date).days / 2))
+        reason[(reason == "") & (d["window"] < horizon)] = (
+            f"introduced less than the {horizon:.0f}-day horizon before the end of the history")
+        reason[(reason == "") & (d["lifetime"] > horizon)] = (
+            f"fixed after the {horizon:.0f}-day horizon")
+        rows.insert(2, "side", ["after" if t >= date else "before" for t in d["intro_date"]])
+        pack.notes.append(f"common follow-up horizon {horizon:.0f} days, date {date:%Y-%m-%d}")
+    rows["counted"] = (reason == "").to_numpy()
+    rows["exclusion_reason"] = reason.to_numpy()
+    pack.add("defects.csv", rows, "every defect with a resolved fix link; counted marks those "
+             "in the estimate, exclusion_reason says why the others are not")
+    pack.counted = int(rows["counted"].sum())
+    _links(pack, cctx)
+
+
+def _links(pack: ClaimPack, cctx: Any, hashes: pd.Series | None = None) -> None:
+    fl = cctx.fix_links
+    if hashes is not None:
+        fl = fl[fl["fix_hash"].isin(hashes)]
+    cols = [c for c in ("fix_hash", "ref_hash", "status", "introducer_hash",
+                        "in_trailer_block", "fix_committer_date", "intro_committer_date")
+            if c in fl.columns]
+    pack.add("fix-links.csv", fl[cols], "the Fixes: references with their resolution "
+             "(resolved: names one commit of this history; otherwise no defect is formed)")
+
+
+def _growth(pack: ClaimPack, claim: Any, cctx: Any) -> None:
+    from procmetrics.claims.common import window
+
+    after, before = window(cctx, claim.params)
+    c = cctx.commits[~cctx.commits["is_merge"].astype("boolean").fillna(False).astype(bool)]
+    start = after if after is not None else c["committer_date"].min()
+    end = before if before is not None else c["committer_date"].max()
+    fixing = c["n_resolved_fixes"].fillna(0) > 0
+    inside = (c["committer_date"] > start) & (c["committer_date"] <= end)
+    rows = c.loc[fixing, ["hash", "committer_date", "n_resolved_fixes"]].rename(
+        columns={"committer_date": "date"})
+    rows["counted"] = inside[fixing].to_numpy()
+    rows["exclusion_reason"] = ["" if k else "outside the window (the first commit's time is "
+                                "the origin, t = 0, and is not an event)" for k in rows["counted"]]
+    rows = rows.sort_values("date", kind="mergesort")
+    pack.add("fixing-commits.csv", rows, "the commits with at least one resolved Fixes: "
+             "link; counted marks the fix times of the growth model")
+    pack.counted = int(rows["counted"].sum())
+    _links(pack, cctx, rows["hash"])
+
+
+def claim_pack(claim: Any, cctx: Any, verdict: dict[str, Any]) -> ClaimPack:
+    """The evidence rows of one claim (never raises for a data problem: says so instead)."""
+    pack = ClaimPack(claim.id, claim_n=(verdict.get("evidence") or {}).get("n"))
+    kind = claim.kind
+    makers = {**{k: _shares for k in SHARE_KINDS}, **{k: _trend for k in TREND_KINDS},
+              "median_lifetime_below": _lifetimes, "lifetimes_shorter_after": _lifetimes,
+              "fix_rate_declining": _growth}
+    maker = makers.get(kind)
+    if maker is None:
+        pack.notes.append("no rows: no commit data can support this kind of claim, so none "
+                          "were used" if verdict.get("verdict") == "not_supportable" else
+                          f"no evidence rows are defined for the claim kind {kind!r} yet")
+        return pack
+    from procmetrics.claims.base import Undecidable
+
+    try:
+        maker(pack, claim, cctx)
+    except (Undecidable, ProcmetricsError, KeyError, ValueError) as exc:
+        pack.notes.append(f"the rows could not be selected: {exc}")
+    if pack.reproduces_n is False:
+        pack.notes.append(f"the counted rows ({pack.counted:,}) differ from the claim's n "
+                          f"({pack.claim_n:,}): the claim's method selects differently than "
+                          "this evidence pack; read the rows with care")
+    return pack
+
+
+def commit_ledger(commits: pd.DataFrame, trailers: pd.DataFrame, fix_links: pd.DataFrame,
+                  flags: pd.DataFrame) -> pd.DataFrame:
+    """Every commit of the store with what each headline figure counted it as.
+
+    ``flags`` is :func:`procmetrics.analyse.measures.metrics.commit_flags` of the commits.
+    """
+    from procmetrics.analyse.measures.vocabulary import DEFAULT_REVIEW_KEYS
+
+    c = commits.drop_duplicates(subset=["hash"])
+    merge = c["is_merge"].astype("boolean").fillna(False).astype(bool)
+    files = pd.to_numeric(c["n_files"], errors="coerce")
+    out = pd.DataFrame({"hash": c["hash"].to_numpy(), "date": c["committer_date"].to_numpy(),
+                        "merge": merge.to_numpy(), "files_changed": files.to_numpy()})
+    f = flags.drop_duplicates(subset=["hash"]).set_index("hash")
+    out["in_share_denominators"] = out["hash"].isin(f.index[f["date"].notna()])
+    reason = pd.Series("", index=out.index, dtype=object)
+    reason[out["merge"]] = "merge commit (the measures count non-merge commits)"
+    reason[(reason == "") & ~out["in_share_denominators"]] = "no committer date"
+    out["excluded_because"] = reason.to_numpy()
+    for col in ("reviewed", "independent", "n_reviewers", "fix", "fix_ref", "churn"):
+        out[col] = out["hash"].map(f[col]) if col in f.columns else pd.NA
+    out = out.rename(columns={"fix": "fix_resolved", "fix_ref": "any_fixes_reference",
+                              "churn": "lines_changed"})
+    out["line_count_note"] = [
+        "" if m or pd.notna(lc) else
+        "no file changed (empty commit): left out of lines-changed figures" if fc == 0 else
+        "no line count (binary files only, or line counts not mined): left out of "
+        "lines-changed figures"
+        for m, lc, fc in zip(out["merge"], out["lines_changed"], out["files_changed"].fillna(-1))]
+    out["review_trailers"] = out["hash"].map(review_trailers(trailers, DEFAULT_REVIEW_KEYS)
+                                             ).fillna("")
+    out["fixes_references"] = out["hash"].map(fix_references(fix_links)).fillna("")
+    return out.sort_values(["date", "hash"], kind="mergesort").reset_index(drop=True)
+
+
+def denominator_note(n: int | None, ledger: pd.DataFrame, *, lines: bool = False,
+                     rest_reason: str = "other commits") -> str:
+    """Plain words for the commits a figure's n leaves out ("" when none are).
+
+    ``ledger`` is :func:`commit_ledger`; ``lines`` for figures of lines changed,
+    which also leave out commits without a line count (binary files only, or
+    line counts not mined).
+    """
+    if n is None:
+        return ""
+    total = int(len(ledger))
+    missing = total - int(n)
+    if missing <= 0:
+        return ""
+    merges = int(ledger["merge"].sum())
+    nodate = int((~ledger["merge"] & ~ledger["in_share_denominators"]).sum())
+    noline = ledger["in_share_denominators"] & ledger["lines_changed"].isna()
+    empty = noline & (ledger["files_changed"].fillna(-1) == 0)
+    n_empty = int(empty.sum()) if lines else 0
+    nolines = int((noline & ~empty).sum()) if lines else 0
+    parts = []
+    if merges:
+        parts.append(f"{merges:,} merge commits (the measures count non-merge commits)")
+    if nodate:
+        parts.append(f"{nodate:,} commits without a committer date")
+    if n_empty:
+        parts.append(f"{n_empty:,} empty commits (no file changed, so no line count; they "
+                     "still count as commits, e.g. as unreviewed in review coverage)")
+    if nolines:
+        parts.append(f"{nolines:,} commits without a line count (binary files only, or line "
+                     "counts not mined)")
+    rest = missing - merges - nodate - n_empty - nolines
+    if rest > 0:
+        parts.append(f"{rest:,} {rest_reason}")
+    return (f"n = {int(n):,} of {total:,} commits in the store; left out: "
+            + "; ".join(parts) + ". Every commit and why it was left out: "
+            "evidence/commits.csv.")

@@ -1,0 +1,140 @@
+"""The evidence pack: follow every claim's links from the HTML and recount the claim's n
+from the CSV rows; page one carries the summary; hashes become links when asked."""
+from __future__ import annotations
+
+import csv
+import json
+import subprocess
+from html.parser import HTMLParser
+from pathlib import Path
+
+import pytest
+
+from procmetrics.report.build import make_report
+from procmetrics.report.model import ReportOptions
+
+ROOT = Path(__file__).resolve().parents[2]
+URL = "https://git.example.org/aurora/commit/{hash}"
+
+
+class Links(HTMLParser):
+    """hrefs per claim block (div.claim id=claim-N), and the order of top-level ids."""
+
+    def __init__(self) -> None:
+        super().__init__()
+        self.claim: str | None = None
+        self.depth = 0
+        self.by_claim: dict[str, list[str]] = {}
+        self.ids: list[str] = []
+        self.all_hrefs: list[str] = []
+
+    def handle_starttag(self, tag, attrs):
+        a = dict(attrs)
+        if a.get("id"):
+            self.ids.append(a["id"])
+        if tag == "div" and a.get("class") == "claim":
+            self.claim, self.depth = a["id"], 0
+        if tag == "div" and self.claim:
+            self.depth += 1
+        if tag == "a" and a.get("href"):
+            self.all_hrefs.append(a["href"])
+            if self.claim:
+                self.by_claim.setdefault(self.claim, []).append(a["href"])
+
+    def handle_endtag(self, tag):
+        if tag == "div" and self.claim:
+            self.depth -= 1
+            if self.depth == 0:
+                self.claim = None
+
+
+@pytest.fixture(scope="module")
+def demo(built, tmp_path_factory):
+    out = tmp_path_factory.mktemp("evidence") / "rep"
+    make_report(str(built.store), out, ReportOptions(
+        policy=built.policy, claims_path=str(ROOT / "sample_repos" / "demo_claims.toml"),
+        pdf_engine="none", commit_url=URL))
+    html = (out / "report.html").read_text("utf-8")
+    parser = Links()
+    parser.feed(html)
+    return out, json.loads((out / "report.json").read_text("utf-8")), html, parser
+
+
+def _rows(path: Path) -> list[dict[str, str]]:
+    with open(path, encoding="utf-8", newline="") as fh:
+        return list(csv.DictReader(fh))
+
+
+def test_every_claim_links_its_evidence_and_the_rows_reproduce_its_n(demo):
+    out, doc, _, parser = demo
+    checked = 0
+    for i, claim in enumerate(doc["claims"], 1):
+        hrefs = parser.by_claim.get(f"claim-{i}", [])
+        files = [h for h in hrefs if h.startswith("evidence/")]
+        n = claim["evidence"]["n"]
+        if claim["verdict"] == "not_supportable":
+            assert not files, claim["id"]       # no data can carry it: none is offered
+            continue
+        assert files, f"claim {claim['id']} links no evidence"
+        assert all(f.startswith(f"evidence/{claim['id']}/") for f in files)
+        for f in files:
+            assert (out / f).is_file(), f
+        if n is None:
+            continue
+        main = out / files[0]
+        counted = sum(r["counted"] == "true" for r in _rows(main))
+        print(f"{claim['id']}: n = {n}, counted rows in {files[0]} = {counted}")
+        assert counted == n, claim["id"]
+        assert claim["evidence_pack"]["reproduces_n"] is True
+        checked += 1
+    assert checked >= 3            # shares, trends and lifetimes at least
+
+
+def test_share_rows_recount_numerator_and_denominator(demo):
+    """review-rose: the counted commits with a review trailer give the shares in its reason."""
+    out, doc, _, _ = demo
+    claim = next(c for c in doc["claims"] if c["id"] == "review-rose")
+    if claim["verdict"] == "undecidable":
+        pytest.skip("too little data in this history for the step model")
+    rows = _rows(out / "evidence" / "review-rose" / "commits.csv")
+    before = [r for r in rows if r["side"] == "before"]
+    hits = sum(r["in_numerator"] == "true" for r in before)
+    assert f"{100 * hits / len(before):.1f}% of {len(before):,} commits before" in \
+        " ".join(claim["reasons"])
+    # every commit counted as reviewed names the trailer that made it so
+    assert all(r["review_trailers"] for r in rows if r["in_numerator"] == "true")
+    assert not any(r["review_trailers"] for r in rows if r["in_numerator"] == "false")
+
+
+def test_commit_ledger_matches_git_and_explains_left_out_commits(demo, built):
+    out, doc, _, _ = demo
+    rows = _rows(out / "evidence" / "commits.csv")
+    merges = subprocess.run(["git", "-C", str(built.repo), "rev-list", "--merges", "--count",
+                             "HEAD"], capture_output=True, text=True, check=True).stdout
+    total = subprocess.run(["git", "-C", str(built.repo), "rev-list", "--count", "HEAD"],
+                           capture_output=True, text=True, check=True).stdout
+    assert len(rows) == int(total)                                    # oracle: git plumbing
+    assert sum(r["merge"] == "true" for r in rows) == int(merges)
+    assert all(r["excluded_because"] for r in rows if r["in_share_denominators"] == "false")
+    fig = next(f for f in doc["figures"] if f["key"] == "series-review-coverage")
+    if fig["n"] < int(total):
+        assert f"{int(merges):,} merge commits" in fig["values"]["denominator"]
+
+
+def test_page_one_is_the_summary_then_the_contents(demo):
+    _, doc, html, parser = demo
+    ids = parser.ids
+    assert ids.index("summary") < ids.index("claims-summary") < ids.index("scope")
+    front = html[:html.index('<nav class="toc"')]
+    for c in doc["claims"]:
+        assert c["id"] in front and c["verdict_label"] in front
+    assert "never replace" in front and doc["store_checksum"] in front
+    assert "Robustness" in front and "interval" in front
+
+
+def test_commit_hashes_become_links(demo, built):
+    _, doc, html, parser = demo
+    head = doc["scope"]["head_hash"]
+    assert URL.format(hash=head) in parser.all_hrefs
+    links = [h for h in parser.all_hrefs if h.startswith("https://git.example.org/")]
+    assert all(h[len(URL) - len("{hash}"):].isalnum() for h in links)
