@@ -91,16 +91,21 @@ def test_every_claim_links_its_evidence_and_the_rows_reproduce_its_n(demo):
 
 
 def test_share_rows_recount_numerator_and_denominator(demo):
-    """review-rose: the counted commits with a review trailer give the shares in its reason."""
+    """review-rose: the counted commits recount n and the per-period counts the model used."""
     out, doc, _, _ = demo
     claim = next(c for c in doc["claims"] if c["id"] == "review-rose")
     if claim["verdict"] == "undecidable":
         pytest.skip("too little data in this history for the step model")
     rows = _rows(out / "evidence" / "review-rose" / "commits.csv")
-    before = [r for r in rows if r["side"] == "before"]
-    hits = sum(r["in_numerator"] == "true" for r in before)
-    assert f"{100 * hits / len(before):.1f}% of {len(before):,} commits before" in \
-        " ".join(claim["reasons"])
+    counted = [r for r in rows if r["counted"] == "true"]
+    assert len(counted) == claim["evidence"]["n"]
+    # the per-period counts the model was fitted on are the counted commits, recounted
+    periods = _rows(out / "evidence" / "review-rose" / "periods.csv")
+    for per in periods:
+        mine = [r for r in counted if r["period"] == per["period"]
+                and (r["side"] == "after") == (per["after"] == "true")]
+        assert (len(mine), sum(r["in_numerator"] == "true" for r in mine)) == \
+            (int(per["commits"]), int(per["in_numerator"])), per["period"]
     # every commit counted as reviewed names the trailer that made it so
     assert all(r["review_trailers"] for r in rows if r["in_numerator"] == "true")
     assert not any(r["review_trailers"] for r in rows if r["in_numerator"] == "false")
