@@ -1,0 +1,130 @@
+"""Where the link era starts: the month from which `Fixes:` linking has settled.
+
+Defects are seen only through fix links. When a project adopts the ``Fixes:``
+trailer slowly, the defects fixed in the early years are rarely linked, so the
+first linked fix is a poor start for the link era: the early introducers that
+do show up are mostly the long-lived ones (their fixes came later, when
+linking was common), and lifetime estimates drift upward.
+
+The *settled* rule, stated once and used by default:
+
+* per calendar month (UTC, on the chosen clock), the share of non-merge
+  commits that carry at least one resolved fix link (the *linked-fix share*);
+* the *later level* is the pooled share over the second half of the months
+  from the first linked fix to the end of the history;
+* the *rolling share* of a month is the pooled share over that month and the
+  ``window_months - 1`` months after it (default 6 months: single months of a
+  small project are too noisy);
+* the link era starts at the first month from which every rolling share (with
+  a full window inside the history) stays at or above ``fraction`` (default
+  one half) of the later level.
+
+Why one half: from that month on the chance that a fix is linked varies by at
+most a factor of about two, the same threshold the ``tag_adoption_rising``
+caveat uses; horizon-conditional lifetime figures are insensitive to a
+constant linking probability, and a factor-of-two drift inside the era is then
+checked by the sensitivity table (later start dates), not assumed away.
+
+``LinkEra.monthly`` columns (:data:`MONTHLY_COLUMNS`): ``month`` (first day,
+UTC), ``commits``, ``linked_fixes``, ``share``, ``rolling_share``,
+``settled`` (month is at or after the start).
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from procmetrics.analyse.result import to_plain
+
+MONTHLY_COLUMNS = ["month", "commits", "linked_fixes", "share", "rolling_share", "settled"]
+SETTLED_FRACTION = 0.5
+SETTLED_WINDOW_MONTHS = 6
+
+
+@dataclass(frozen=True)
+class LinkEra:
+    """The start of the link era and how it was chosen."""
+
+    start: pd.Timestamp | None
+    rule: str
+    first_link: pd.Timestamp | None
+    reference_share: float | None
+    fraction: float
+    window_months: int
+    monthly: pd.DataFrame = field(default_factory=lambda: pd.DataFrame(columns=MONTHLY_COLUMNS))
+
+    def to_dict(self) -> dict[str, Any]:
+        return to_plain(self)
+
+
+def rule_text(fraction: float = SETTLED_FRACTION,
+              window_months: int = SETTLED_WINDOW_MONTHS) -> str:
+    return (f"settled: first month from which the share of non-merge commits carrying a "
+            f"resolved fix link, pooled over {window_months} months, stays at or above "
+            f"{fraction:g} x its later level (pooled share over the second half of the "
+            "months since the first linked fix)")
+
+
+def settled_link_start(fix_links: pd.DataFrame, commits: pd.DataFrame, *,
+                       clock: str = "committer", fraction: float = SETTLED_FRACTION,
+                       window_months: int = SETTLED_WINDOW_MONTHS) -> LinkEra:
+    """Start of the link era by the *settled* rule (see module docstring).
+
+    Falls back to the first linked fix (saying so in ``rule``) when the history
+    after it is shorter than two windows.
+
+    References
+    ----------
+    Kalbfleisch & Lawless (1989), JASA 84 (the observation window must be
+    known for truncated data to be analysed); common practice for the
+    pooled-window smoothing.
+    """
+    rule = rule_text(fraction, window_months)
+    ok = fix_links[(fix_links["status"] == "resolved") & fix_links["introducer_hash"].notna()]
+    fx = pd.to_datetime(ok.drop_duplicates("fix_hash")[f"fix_{clock}_date"], utc=True).dropna()
+    if fx.empty or commits is None or not len(commits):
+        return LinkEra(None, rule + "; no linked fix or no commits: no start found", None,
+                       None, fraction, window_months)
+    first = fx.min()
+    c = commits
+    if "is_merge" in c:
+        c = c[~c["is_merge"].fillna(False).astype(bool)]
+    cd = pd.to_datetime(c[f"{clock}_date"], utc=True).dropna()
+    month = (lambda s: s.dt.tz_localize(None).dt.to_period("M"))
+    p0, p1 = first.tz_localize(None).to_period("M"), cd.max().tz_localize(None).to_period("M")
+    months = pd.period_range(p0, p1, freq="M")
+    n_c = month(cd).value_counts().reindex(months, fill_value=0).to_numpy(float)
+    n_f = month(fx).value_counts().reindex(months, fill_value=0).to_numpy(float)
+    m = len(months)
+    share = np.divide(n_f, n_c, out=np.full(m, np.nan), where=n_c > 0)
+    w = window_months
+    roll = np.full(m, np.nan)
+    if m >= w:
+        cf, cc = np.cumsum(np.r_[0, n_f]), np.cumsum(np.r_[0, n_c])
+        num, den = cf[w:] - cf[:-w], cc[w:] - cc[:-w]
+        roll[: m - w + 1] = np.divide(num, den, out=np.full(len(num), np.nan), where=den > 0)
+    half = m // 2
+    ref = float(n_f[half:].sum() / n_c[half:].sum()) if n_c[half:].sum() else None
+    start_i = 0
+    if m < 2 * w or ref is None or ref <= 0:
+        rule += f"; the history after the first linked fix is shorter than {2 * w} months: " \
+                "the first linked fix starts the era"
+        start = first
+    else:
+        full = np.isfinite(roll)
+        below = full & (roll < fraction * ref)
+        start_i = int(np.flatnonzero(below)[-1] + 1) if below.any() else 0
+        if start_i >= m - w + 1:      # never settles within the history
+            start_i = 0
+            rule += "; linking never settled by this rule: the first linked fix starts the era"
+            start = first
+        else:
+            start = max(first, pd.Timestamp(months[start_i].start_time, tz="UTC"))
+    monthly = pd.DataFrame({
+        "month": [pd.Timestamp(p.start_time, tz="UTC") for p in months],
+        "commits": n_c.astype(int), "linked_fixes": n_f.astype(int), "share": share,
+        "rolling_share": roll, "settled": np.arange(m) >= start_i})
+    return LinkEra(start, rule, first, ref, fraction, window_months, monthly[MONTHLY_COLUMNS])
