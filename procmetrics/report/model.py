@@ -108,6 +108,9 @@ class Table:
     note: str = ""
     flags: list[Flag] = field(default_factory=list)
     number: int = 0
+    #: long listings (the defect ledger): rows go to the CSV and JSON only; HTML and
+    #: PDF show the caption, the row count and the file name
+    csv_only: bool = False
 
 
 @dataclass

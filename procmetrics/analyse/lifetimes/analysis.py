@@ -179,8 +179,8 @@ def analyse_lifetimes(
         (2,000: 200 gave upper bounds that moved by a factor of two between seeds).
     min_cohort : the headline horizon is the longest grid horizon at which every
         group's horizon cohort holds this many defects
-        (:func:`procmetrics.analyse.lifetimes.horizon.choose_horizon`); with
-        ``horizon`` given, that horizon is used instead.
+        (:func:`procmetrics.analyse.lifetimes.horizon.choose_horizon`); the
+        comparison ``horizon`` does not change it.
     min_group_size : groups with fewer usable defects get no curve/summary.
     rng : random generator (bootstrap); a fixed seed is used when None.
     stratify : with ``by`` and ``horizon``, also run the log-rank test
@@ -272,11 +272,6 @@ def analyse_lifetimes(
         dh["intro_date"].min() if len(dh) else None)
     choice = choose_horizon(dh, by, min_cohort=min_cohort, unit=unit,
                             start=start if unit == "days" else None)
-    if horizon is not None:
-        choice = HorizonChoice(float(horizon), f"H = {horizon:g} {unit}, as given",
-                               {k: int(len(g[(g["lifetime"] <= horizon)
-                                             & (g["window"] >= horizon)]))
-                                for k, g in _group_keys(dh, by)}, choice.candidates)
     H = choice.horizon
     heads = []
     if H is not None:

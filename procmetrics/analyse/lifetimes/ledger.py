@@ -86,6 +86,9 @@ def defect_ledger(table: Any) -> pd.DataFrame:
     parts = [p[LEDGER_COLUMNS] for p in (used, ex) if len(p)]
     if not parts:
         return pd.DataFrame(columns=LEDGER_COLUMNS)
-    return pd.concat(parts, ignore_index=True)[LEDGER_COLUMNS]
+    out = pd.concat(parts, ignore_index=True)[LEDGER_COLUMNS]
+    for c in ("intro_date", "fix_date"):
+        out[c] = pd.to_datetime(out[c], utc=True)
+    return out
 
 
