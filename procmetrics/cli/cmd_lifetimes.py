@@ -34,8 +34,9 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--links-from", metavar="DATE|settled|first|all", default="settled",
                    help="start of the fix-linking era: defects introduced earlier are left "
                    "out (they are seen only when long-lived). 'settled' (default) = the first "
-                   "month from which the share of commits carrying a resolved fix link stays "
-                   "at or above half its later level (6-month pooled); 'first' = the first "
+                   "month from which the share of commits carrying a resolved fix link (pooled over "
+                   "the 12 months ending there) stays at or above 0.8 x its later level; "
+                   "'first' = the first "
                    "linked fix; 'all' keeps every introducer (both-ends truncation, "
                    "Efron-Petrosian estimator)")
     p.add_argument("--min-cohort", type=int, default=30, metavar="N", help="the headline "

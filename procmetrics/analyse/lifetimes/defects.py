@@ -252,9 +252,12 @@ def build_defects(
     first = grp.head(1).copy()
     n_fixes = grp["fix_hash"].transform("size")
     first["n_fixes"] = n_fixes.loc[first.index].astype("int64")
-    follow = grp["fix_hash"].agg(lambda s: " ".join(s.iloc[1:]))
-    first["follow_up_fixes"] = [follow.loc[(r, h)] for r, h in
-                                zip(first["repo"], first["introducer_hash"])]
+    later = links[grp.cumcount() > 0]
+    follow = later.groupby(["repo", "introducer_hash"], sort=False)["fix_hash"].agg(" ".join)
+    first["follow_up_fixes"] = (pd.MultiIndex.from_arrays([first["repo"],
+                                                           first["introducer_hash"]])
+                                .map(lambda k: follow.get(k, "")) if len(follow)
+                                else "")
     n_follow = int(len(links) - len(first))
     # the first linked fix of each repository (histories adopt Fixes: at different times)
     first_by_repo = links.groupby(links["repo"].astype(str))["_fix"].min()
@@ -360,8 +363,13 @@ def build_defects(
     if commits is not None and len(commits):
         c = commits.set_index(["repo", "hash"])
         la = c["lines_added"].astype("Float64") + c["lines_deleted"].astype("Float64")
-        d["intro_lines"] = pd.array([la.get(k, pd.NA) for k in keys], dtype="Float64").round().astype("Int64")
-        d["intro_files"] = pd.array([c["n_files"].get(k, pd.NA) for k in keys], dtype="Int64")
+        kidx = pd.MultiIndex.from_tuples(keys, names=["repo", "hash"]) if keys else None
+        la = la[~la.index.duplicated()]
+        nf = c["n_files"][~c.index.duplicated()]
+        d["intro_lines"] = (pd.array(la.reindex(kidx).to_numpy(), dtype="Float64").round()
+                            .astype("Int64") if keys else pd.array([], dtype="Int64"))
+        d["intro_files"] = (pd.array(nf.reindex(kidx).to_numpy(), dtype="Int64") if keys
+                            else pd.array([], dtype="Int64"))
     else:
         d["intro_lines"] = pd.array([pd.NA] * len(d), dtype="Int64")
         d["intro_files"] = pd.array([pd.NA] * len(d), dtype="Int64")
