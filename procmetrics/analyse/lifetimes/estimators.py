@@ -304,14 +304,18 @@ def quantile_estimates(lifetimes: Any, windows: Any | None = None, *,
         g = np.unique(x[i])
         if double:
             from procmetrics.analyse.lifetimes.double import (
-                NOT_CONVERGED, NotIdentifiable, efron_petrosian,
+                BOOT_TOL, NOT_CONVERGED, NotIdentifiable, check_support, efron_petrosian,
             )
 
-            fit = efron_petrosian(x[i], U[i], W[i])  # type: ignore[index]
+            point = isinstance(i, slice)
+            fit = efron_petrosian(x[i], U[i], W[i],  # type: ignore[index]
+                                  **({} if point else {"tol": BOOT_TOL}))
             if not fit.converged:
-                if isinstance(i, slice):
+                if point:
                     raise NotIdentifiable(NOT_CONVERGED.format(it=fit.iterations))
                 failed[0] += 1
+            elif point:
+                check_support(fit, x, W, min_at_risk)
             return fit.cdf_at(g), g
         return _lynden_bell(x[i], W[i], g)[0], g
 
