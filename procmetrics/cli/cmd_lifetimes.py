@@ -35,7 +35,7 @@ def register(sub: argparse._SubParsersAction) -> None:
                    help="start of the fix-linking era: defects introduced earlier are left "
                    "out (they are seen only when long-lived). 'settled' (default) = the first "
                    "month from which the share of commits carrying a resolved fix link (pooled over "
-                   "the 12 months ending there) stays at or above 0.8 x its later level; "
+                   "the 12 months ending there) first reaches 0.8 x its later level; "
                    "'first' = the first "
                    "linked fix; 'all' keeps every introducer (both-ends truncation, "
                    "Efron-Petrosian estimator)")

@@ -16,8 +16,11 @@ The *settled* rule, stated once and used by default:
   ``window_months - 1`` months before it (default 12: single months of a
   small project are too noisy, and a trailing window reaches the level only
   once linking has been there for most of a year);
-* the link era starts at the first month from which every rolling share stays
-  at or above ``fraction`` (default 0.8) of the later level.
+* the link era starts at the first month whose rolling share reaches
+  ``fraction`` (default 0.8) of the later level (later dips below it are
+  counted in the rule text: on a real history linking rose for five years and
+  then fell back a little, and a rule requiring the share to *stay* above the
+  level then found no start at all).
 
 Why 0.8 and 12 months: inside the era the chance that a fix is linked then
 varies by at most a factor of about 1.25. Linking that still rises inside the
@@ -68,9 +71,9 @@ class LinkEra:
 
 def rule_text(fraction: float = SETTLED_FRACTION,
               window_months: int = SETTLED_WINDOW_MONTHS) -> str:
-    return (f"settled: first month from which the share of non-merge commits carrying a "
+    return (f"settled: first month in which the share of non-merge commits carrying a "
             f"resolved fix link, pooled over it and the {window_months - 1} months before, "
-            f"stays at or above "
+            f"reaches "
             f"{fraction:g} x its later level (pooled share over the second half of the "
             "months since the first linked fix)")
 
@@ -123,14 +126,18 @@ def settled_link_start(fix_links: pd.DataFrame, commits: pd.DataFrame, *,
         start = first
     else:
         full = np.isfinite(roll)
-        below = full & (roll < fraction * ref)
-        start_i = int(np.flatnonzero(below)[-1] + 1) if below.any() else w - 1
-        if start_i >= m - w:          # never settles within the history
+        above = full & (roll >= fraction * ref)
+        if not above.any():           # never reaches the level within the history
             start_i = 0
-            rule += "; linking never settled by this rule: the first linked fix starts the era"
+            rule += "; linking never reached that level: the first linked fix starts the era"
             start = first
         else:
+            start_i = int(np.flatnonzero(above)[0])
             start = max(first, pd.Timestamp(months[start_i].start_time, tz="UTC"))
+            dips = int((full & ~above)[start_i:].sum())
+            if dips:
+                rule += (f"; after the start the share falls below that level in {dips} "
+                         "month(s) (see the sensitivity table)")
     monthly = pd.DataFrame({
         "month": [pd.Timestamp(p.start_time, tz="UTC") for p in months],
         "commits": n_c.astype(int), "linked_fixes": n_f.astype(int), "share": share,
