@@ -272,6 +272,9 @@ def analyse_lifetimes(
         dh["intro_date"].min() if len(dh) else None)
     choice = choose_horizon(dh, by, min_cohort=min_cohort, unit=unit,
                             start=start if unit == "days" else None)
+    if unit != "days":
+        choice = HorizonChoice(None, f"headline figures are given in days only (basis "
+                               f"{table.basis}: lifetimes in {unit})", {}, choice.candidates)
     H = choice.horizon
     heads = []
     if H is not None:
@@ -279,7 +282,7 @@ def analyse_lifetimes(
             heads.append(headline_figures(g, H, group=group, quantiles=quantiles, level=level,
                                           min_at_risk=min_at_risk, min_cohort=min_cohort,
                                           unit=unit))
-    else:
+    elif unit == "days":
         cav.append(caveat("too_few_observations", "no headline horizon: " + choice.rule,
                           "warn"))
     headline = (pd.concat(heads, ignore_index=True)[HEADLINE_COLUMNS] if heads

@@ -121,30 +121,6 @@ def _utc(x: Any) -> pd.Timestamp:
     return ts.tz_localize("UTC") if ts.tzinfo is None else ts.tz_convert("UTC")
 
 
-def _adoption_caveat(fixes: pd.Series, commits: pd.DataFrame | None, start: pd.Timestamp,
-                     tau: pd.Timestamp, clock: str) -> Caveat | None:
-    """Warn when the first year after ``start`` has far fewer linked fixes per commit."""
-    if commits is None or not len(commits) or pd.isna(tau) or (tau - start).days < 730:
-        return None
-    c = commits
-    if "is_merge" in c:
-        c = c[~c["is_merge"].fillna(False).astype(bool)]
-    cd = pd.to_datetime(c[f"{clock}_date"], utc=True)
-    cut = start + pd.Timedelta(days=365)
-    n1, n2 = int(((cd >= start) & (cd < cut)).sum()), int(((cd >= cut) & (cd <= tau)).sum())
-    f1 = int(((fixes >= start) & (fixes < cut)).sum())
-    f2 = int(((fixes >= cut) & (fixes <= tau)).sum())
-    if not (n1 and n2 and f2):
-        return None
-    s1, s2 = f1 / n1, f2 / n2
-    if s1 >= 0.5 * s2:
-        return None
-    return caveat("tag_adoption_rising", f"fix links were rare in the first year after "
-                  f"{start:%Y-%m-%d} ({f1} linked fixes in {n1} commits, {s1:.1%}) compared "
-                  f"with later ({s2:.1%}): defects fixed in that year are under-represented; "
-                  "choose a later links_from date (CLI: --links-from) where linking had settled")
-
-
 def _periods(dates: pd.Series, cuts: Sequence[Any] | None, freq: str) -> pd.Series:
     if not cuts:
         return dates.dt.tz_convert("UTC").dt.tz_localize(None).dt.to_period(freq).astype(str)
@@ -264,24 +240,10 @@ def build_defects(
     era_rule = ""
     era_info: Any = None
     if isinstance(links_from, str) and links_from in ("first_link", "settled"):
-        era_by_repo = first_by_repo
-        era_rule = "first: the first linked fix starts the link era"
-        if links_from == "settled":
-            if commits is None or not len(commits):
-                era_rule += " (the settled rule needs the commits table; none given)"
-            else:
-                from procmetrics.analyse.lifetimes.linkera import settled_link_start
+        from procmetrics.analyse.lifetimes.linkera import era_by_repository
 
-                eras = {}
-                for r in first_by_repo.index:
-                    sub_l = fix_links[fix_links["repo"].astype(str) == r]
-                    sub_c = commits[commits["repo"].astype(str) == r]
-                    eras[r] = settled_link_start(sub_l, sub_c, clock=clock)
-                era_by_repo = pd.Series({r: e.start if e.start is not None
-                                         else first_by_repo[r] for r, e in eras.items()},
-                                        dtype=first_by_repo.dtype)
-                era_info = eras[first_by_repo.index[0]] if len(eras) == 1 else None
-                era_rule = next(iter(eras.values())).rule if eras else era_rule
+        era_by_repo, era_rule, era_info = era_by_repository(
+            first_by_repo, fix_links, commits, clock=clock, settled=links_from == "settled")
         era = era_by_repo.min() if len(era_by_repo) else pd.NaT
         era_row = first["repo"].astype(str).map(era_by_repo)
         before = (first["_intro"] < era_row).fillna(False).astype(bool)
@@ -412,7 +374,9 @@ def build_defects(
                           f"{link_source}s found by a heuristic, not links written by the "
                           "developers; introducers and lifetimes may be wrong"))
     if pd.notna(era) and not heuristic:
-        adopt = _adoption_caveat(links.drop_duplicates("fix_hash")["_fix"], commits, era,
+        from procmetrics.analyse.lifetimes.linkera import adoption_caveat
+
+        adopt = adoption_caveat(links.drop_duplicates("fix_hash")["_fix"], commits, era,
                                  tau, clock)
         if adopt is not None:
             cav.append(adopt)

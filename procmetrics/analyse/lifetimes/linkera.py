@@ -46,7 +46,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from procmetrics.analyse.result import to_plain
+from procmetrics.analyse.result import Caveat, caveat, to_plain
 
 MONTHLY_COLUMNS = ["month", "commits", "linked_fixes", "share", "rolling_share", "settled"]
 SETTLED_FRACTION = 0.8
@@ -143,3 +143,50 @@ def settled_link_start(fix_links: pd.DataFrame, commits: pd.DataFrame, *,
         "commits": n_c.astype(int), "linked_fixes": n_f.astype(int), "share": share,
         "rolling_share": roll, "settled": np.arange(m) >= start_i})
     return LinkEra(start, rule, first, ref, fraction, window_months, monthly[MONTHLY_COLUMNS])
+
+
+def era_by_repository(first_by_repo: pd.Series, fix_links: pd.DataFrame,
+                      commits: pd.DataFrame | None, *, clock: str = "committer",
+                      settled: bool = True) -> tuple[pd.Series, str, LinkEra | None]:
+    """Start of each repository's link era: its first linked fix, or by the settled rule.
+
+    Returns the start per repository, the rule in words and (for one repository)
+    the :class:`LinkEra` with its monthly shares.
+    """
+    rule = "first: the first linked fix starts the link era"
+    if not settled:
+        return first_by_repo, rule, None
+    if commits is None or not len(commits):
+        return first_by_repo, rule + " (the settled rule needs the commits table; none given)", None
+    eras = {}
+    for r in first_by_repo.index:
+        eras[r] = settled_link_start(fix_links[fix_links["repo"].astype(str) == r],
+                                     commits[commits["repo"].astype(str) == r], clock=clock)
+    starts = pd.Series({r: e.start if e.start is not None else first_by_repo[r]
+                        for r, e in eras.items()}, dtype=first_by_repo.dtype)
+    info = eras[first_by_repo.index[0]] if len(eras) == 1 else None
+    return starts, next(iter(eras.values())).rule if eras else rule, info
+
+
+def adoption_caveat(fixes: pd.Series, commits: pd.DataFrame | None, start: pd.Timestamp,
+                     tau: pd.Timestamp, clock: str) -> Caveat | None:
+    """Warn when the first year after ``start`` has far fewer linked fixes per commit."""
+    if commits is None or not len(commits) or pd.isna(tau) or (tau - start).days < 730:
+        return None
+    c = commits
+    if "is_merge" in c:
+        c = c[~c["is_merge"].fillna(False).astype(bool)]
+    cd = pd.to_datetime(c[f"{clock}_date"], utc=True)
+    cut = start + pd.Timedelta(days=365)
+    n1, n2 = int(((cd >= start) & (cd < cut)).sum()), int(((cd >= cut) & (cd <= tau)).sum())
+    f1 = int(((fixes >= start) & (fixes < cut)).sum())
+    f2 = int(((fixes >= cut) & (fixes <= tau)).sum())
+    if not (n1 and n2 and f2):
+        return None
+    s1, s2 = f1 / n1, f2 / n2
+    if s1 >= 0.5 * s2:
+        return None
+    return caveat("tag_adoption_rising", f"fix links were rare in the first year after "
+                  f"{start:%Y-%m-%d} ({f1} linked fixes in {n1} commits, {s1:.1%}) compared "
+                  f"with later ({s2:.1%}): defects fixed in that year are under-represented; "
+                  "choose a later links_from date (CLI: --links-from) where linking had settled")
