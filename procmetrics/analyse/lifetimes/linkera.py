@@ -137,7 +137,8 @@ def settled_link_start(fix_links: pd.DataFrame, commits: pd.DataFrame, *,
             dips = int((full & ~above)[start_i:].sum())
             if dips:
                 rule += (f"; after the start the share falls below that level in {dips} "
-                         "month(s) (see the sensitivity table)")
+                         "month(s); the sensitivity table, where shown, re-estimates the figures "
+                         "for later starts")
     monthly = pd.DataFrame({
         "month": [pd.Timestamp(p.start_time, tz="UTC") for p in months],
         "commits": n_c.astype(int), "linked_fixes": n_f.astype(int), "share": share,
