@@ -230,3 +230,17 @@ def test_ledger_lists_every_exclusion_with_its_reason():
     assert led.loc["f5", "excluded_reason"] == "unresolved reference (unresolved)"
     assert led.loc["f7", "excluded_reason"] == "" and bool(led.loc["f7", "used"])
     assert int(led["used"].sum()) == 1
+
+
+def test_small_groups_do_not_take_the_headline_away():
+    """Groups with fewer than min_cohort defects get no headline (said in a caveat)."""
+    import dataclasses
+
+    links, commits = simulate(np.random.default_rng(16), n_defects=2000)
+    t = build_defects(links, commits=commits, links_from="settled")
+    rng = np.random.default_rng(2)
+    sub = np.where(rng.uniform(size=len(t.defects)) < 0.03, "tiny", "big")
+    t = dataclasses.replace(t, defects=t.defects.assign(subsystem=sub))
+    res = analyse_lifetimes(t, by="subsystem", n_boot=20, rng=np.random.default_rng(1))
+    assert set(res.headline["group"]) == {"(all)", "big"}
+    assert any("fewer than 30 defects: tiny" in c.message for c in res.caveats)

@@ -270,8 +270,31 @@ def analyse_lifetimes(
     dh = d[d["window_low"] <= 0] if double else d
     start = table.links_from if table.links_from is not None else (
         dh["intro_date"].min() if len(dh) else None)
-    choice = choose_horizon(dh, by, min_cohort=min_cohort, unit=unit,
+    # groups compared: those with at least min_cohort usable defects (a handful of tiny
+    # subsystems must not take the headline away from everyone)
+    small: list[str] = []
+    dsel = dh
+    if by and len(dh):
+        size = dh.groupby(by)[by].transform("size")
+        dsel = dh[size >= min_cohort]
+        small = sorted(set(dh[by].astype(str)) - set(dsel[by].astype(str)))
+        if small:
+            cav.append(caveat("too_few_observations", f"no headline figures for {by} groups "
+                              f"with fewer than {min_cohort} defects: " + ", ".join(small),
+                              "info"))
+    choice = choose_horizon(dsel, by, min_cohort=min_cohort, unit=unit,
                             start=start if unit == "days" else None)
+    all_only = False
+    if by and choice.horizon is None and len(dh):
+        # no horizon serves every group: the headline of all defects alone, said so
+        alone = choose_horizon(dh, None, min_cohort=min_cohort, unit=unit,
+                               start=start if unit == "days" else None)
+        if alone.horizon is not None:
+            all_only = True
+            choice = HorizonChoice(alone.horizon, alone.rule + f"; no horizon serves every "
+                                   f"{by} group ({choice.rule.split(': ')[-1]}), so only "
+                                   "all defects together get headline figures",
+                                   alone.sizes, alone.candidates)
     if unit != "days":
         choice = HorizonChoice(None, f"headline figures are given in days only (basis "
                                f"{table.basis}: lifetimes in {unit})", {}, choice.candidates)
@@ -279,6 +302,8 @@ def analyse_lifetimes(
     heads = []
     if H is not None:
         for group, g in _group_keys(dh, by):
+            if group in small or (all_only and group != ALL):
+                continue
             heads.append(headline_figures(g, H, group=group, quantiles=quantiles, level=level,
                                           min_at_risk=min_at_risk, min_cohort=min_cohort,
                                           unit=unit))

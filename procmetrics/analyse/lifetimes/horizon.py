@@ -17,7 +17,8 @@ Lynden-Bell estimator at H, ``R(H) = #{L_i <= H <= W_i}``.
 
 **The horizon rule.** ``H`` is the longest horizon on a fixed grid (90, 180
 days, then whole years: :data:`HORIZON_GRID`) at which the cohort of *every*
-group compared (and of all defects) holds at least ``min_cohort`` defects,
+group compared (groups with at least ``min_cohort`` defects; and of all of
+them together) holds at least ``min_cohort`` defects,
 also when the link era starts a year later (so that the link-era sensitivity
 check of :mod:`procmetrics.analyse.lifetimes.sensitivity` has at least one
 later start to compare with).
