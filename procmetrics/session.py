@@ -51,9 +51,12 @@ def links_from(value: str | None) -> Any:
     """``--links-from`` as :func:`procmetrics.analyse.lifetimes.defects.build_defects` takes it."""
     if value is None or value == "first":
         return "first_link"
+    if value == "settled":
+        return "settled"
     if value == "all":
         return None
     try:
         return pd.Timestamp(value)
     except ValueError as exc:
-        raise ProcmetricsError(f"--links-from: not a date, 'first' or 'all': {value!r}") from exc
+        raise ProcmetricsError(f"--links-from: not a date, 'settled', 'first' or 'all': "
+                               f"{value!r}") from exc

@@ -40,6 +40,7 @@ CAVEAT_CODES: dict[str, str] = {
     "clock_skew": "some dates are inconsistent (clock skew, rebases)",
     "not_identifiable": "the quantity cannot be identified from this data",
     "model_refused": "the model was not fitted or its prediction was refused",
+    "link_era_sensitive": "the figure moves beyond its interval when the link era starts later",
 }
 
 

@@ -22,8 +22,10 @@ SPECS: dict[str, KindSpec] = {
         "half of the defects are fixed within the threshold",
         {"threshold_days": Param("days", True), "after": AFTER, "before": BEFORE,
          "subsystem": SUBSYSTEM},
-        "median of the truncation-aware (Lynden-Bell) lifetime distribution, "
-        "percentile bootstrap interval", "down: median < threshold",
+        "median of the truncation-aware (Lynden-Bell) lifetime distribution, link era by "
+        "the settled rule, percentile bootstrap interval (2,000 resamples); undecidable "
+        "beyond the support (< 10 at risk) or when it moves with the link-era start",
+        "down: median < threshold",
         ("section:lifetimes", "table:lifetime-quantiles", "figure:lifetime-curves")),
     "lifetimes_shorter_after": KindSpec(
         "defects introduced after the date are fixed sooner than those before",
@@ -49,13 +51,30 @@ def _defects(ctx: ClaimContext, cuts: list[pd.Timestamp] | None = None):
                          period_cuts=cuts)
 
 
+#: a quantile is reported only where at least this many defects are at risk
+MEDIAN_MIN_AT_RISK = 10
+LEDGER_NOTE = ("the defects behind this figure, and every fix link left out with the reason, "
+               "are listed in the defect ledger (report table 'defect-ledger'; "
+               "defect_ledger.csv from 'procmetrics lifetimes --out')")
+
+
 def eval_median_lifetime(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
-    from procmetrics.analyse.lifetimes.defects import lifetimes_for_estimation
+    """Truncation-aware median, decided only within the support and when it does not
+    move with the start of the link era (settled rule; later starts re-estimated)."""
+    from procmetrics.analyse.lifetimes.defects import build_defects, lifetimes_for_estimation
     from procmetrics.analyse.lifetimes.estimators import quantile_estimates
+    from procmetrics.analyse.lifetimes.sensitivity import LB_MEDIAN, link_era_sensitivity
 
     p = claim.params
     after, before = window(ctx, p)
-    table = _defects(ctx)
+    share = cl.unresolved_share(ctx.fix_links)
+    if share is not None and share > ctx.unresolved_limit:
+        raise Undecidable(f"{share:.0%} of fix references are unresolved or ambiguous, above "
+                          f"the {ctx.unresolved_limit:.0%} limit: the defects seen may not "
+                          "represent the defects fixed")
+    table = build_defects(ctx.fix_links, commits=ctx.commits,
+                          commit_subsystems=ctx.commit_subsystems, trailers=ctx.trailers,
+                          links_from="settled")
     d, n_neg = lifetimes_for_estimation(table.defects)
     if after is not None:
         d = d[d["intro_date"] >= after]
@@ -68,15 +87,45 @@ def eval_median_lifetime(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
                           f"(at least {ctx.min_n} needed)")
     rng = np.random.default_rng(ctx.seed)
     (q50,) = quantile_estimates(d["lifetime"].to_numpy(float), d["window"].to_numpy(float),
-                                quantiles=(0.5,), level=claim.level, rng=rng)
-    est = Estimate("median lifetime", q50.value, q50.low, q50.high, q50.level, q50.method,
-                   q50.n, "days")
-    extra = ["this is the median among defects found and fixed with a Fixes: link, "
-             "corrected for right truncation; defects never found are not covered"]
+                                quantiles=(0.5,), level=claim.level, rng=rng,
+                                min_at_risk=MEDIAN_MIN_AT_RISK)
+    era = table.links_from
+    extra = [f"link era from {era:%Y-%m-%d} ({table.link_era_rule})" if era is not None
+             else f"link era: {table.link_era_rule}",
+             "this is the median among defects found and fixed with a Fixes: link, "
+             "corrected for right truncation (conditional on lifetime <= the longest "
+             "observed); defects never found are not covered",
+             f"support: {q50.at_risk} defects at risk at the median; the estimate covers "
+             f"lifetimes of {q50.range_low:.0f} to {q50.range_high:.0f} days"
+             if q50.range_low is not None and q50.range_high is not None else
+             "support: none", LEDGER_NOTE]
     if n_neg:
         extra.append(f"{n_neg} defect(s) with a fix dated before the introducer were excluded")
+    method = SPECS[claim.kind].method
+    est = Estimate("median lifetime", q50.value, q50.low, q50.high, q50.level, q50.method,
+                   q50.n, "days")
+    if not q50.supported:
+        return ClaimVerdict(claim, cl.UNDECIDABLE, (
+            f"the median lies beyond what the data support (> {q50.support_limit:.0f} days: "
+            f"{q50.at_risk} defects at risk there, fewer than {MEDIAN_MIN_AT_RISK})",
+            *extra), method, n=q50.n, estimate=est)
+    if q50.high_open:
+        return ClaimVerdict(claim, cl.UNDECIDABLE, (
+            f"the median is {q50.value:.0f} days but the upper end of its interval lies "
+            f"beyond what the data support (> {q50.support_limit:.0f} days)", *extra),
+            method, n=q50.n, estimate=est)
+    starts = [x for x in (era, after) if x is not None]
+    start = max(starts) if starts else d["intro_date"].min()
+    _, sens = link_era_sensitivity(d, start, None, level=claim.level,
+                                   min_at_risk=MEDIAN_MIN_AT_RISK, min_cohort=ctx.min_n,
+                                   lb_median=q50, rng=np.random.default_rng(ctx.seed))
+    moved = [c for c in sens if c.message.startswith(LB_MEDIAN)]
+    if moved:
+        return ClaimVerdict(claim, cl.UNDECIDABLE, (
+            "the median moves with the start of the link era: " + moved[0].message, *extra),
+            method, n=q50.n, estimate=est, caveats=tuple(moved))
     return cl.decide(claim, est, side="below", threshold=float(p["threshold_days"]),
-                     what="median defect lifetime", method=SPECS[claim.kind].method,
+                     what="median defect lifetime", method=method,
                      n=q50.n, fmt=lambda x: f"{x:.0f} days", extra=extra)
 
 

@@ -31,11 +31,20 @@ def register(sub: argparse._SubParsersAction) -> None:
                    "(default: calendar years)")
     p.add_argument("--horizon", type=float, metavar="N", help="common follow-up horizon for "
                    "comparisons, in days (in releases with --basis releases)")
-    p.add_argument("--links-from", metavar="DATE|first|all", default="first",
+    p.add_argument("--links-from", metavar="DATE|settled|first|all", default="settled",
                    help="start of the fix-linking era: defects introduced earlier are left "
-                   "out (they are seen only when long-lived). 'first' (default) = the first "
-                   "linked fix; 'all' keeps every introducer")
-    p.add_argument("--boot", type=int, default=200, metavar="B", help="bootstrap resamples")
+                   "out (they are seen only when long-lived). 'settled' (default) = the first "
+                   "month from which the share of commits carrying a resolved fix link (pooled over "
+                   "the 12 months ending there) first reaches 0.8 x its later level; "
+                   "'first' = the first "
+                   "linked fix; 'all' keeps every introducer (both-ends truncation, "
+                   "Efron-Petrosian estimator)")
+    p.add_argument("--min-cohort", type=int, default=30, metavar="N", help="the headline "
+                   "horizon H is the longest (90, 180 days, whole years) at which every group "
+                   "has at least N defects introduced H before the end and fixed within H "
+                   "(default 30)")
+    p.add_argument("--boot", type=int, default=2000, metavar="B", help="bootstrap resamples "
+                   "for the secondary truncation-aware figures (default 2000)")
     p.add_argument("--seed", type=int, default=20240601, help="random seed (bootstrap)")
     p.add_argument("--out", metavar="DIR", help="write JSON, CSV tables and figures here")
     g = p.add_argument_group("blame-based linking (heuristic, off by default)")
@@ -77,10 +86,16 @@ def run(args: argparse.Namespace) -> int:
                           period_cuts=[args.change_date] if args.change_date else None,
                           links_from=links_from(args.links_from))
     res = analyse_lifetimes(table, by=args.by, horizon=args.horizon, n_boot=args.boot,
-                            rng=np.random.default_rng(args.seed))
+                            min_cohort=args.min_cohort, rng=np.random.default_rng(args.seed))
     print(f"{name}: {res.n_defects} defects ({res.n_negative_excluded} with negative lifetime "
           f"excluded); basis {res.basis}, unit {res.unit}")
     print(f"  population: {table.population}")
+    era = ("every introducer" if table.links_from is None
+           else f"from {table.links_from:%Y-%m-%d}")
+    print(f"  link era: {era}; rule: {table.link_era_rule}")
+    print(f"  every defect and every left-out link, with the reason: "
+          + ("defect_ledger.csv in --out" if not args.out else
+             f"{Path(args.out) / 'defect_ledger.csv'}"))
     _print_analysis(res, args.horizon)
     heuristic = _heuristic(args, tables, name) if args.szz else None
     if args.out:
@@ -91,22 +106,38 @@ def run(args: argparse.Namespace) -> int:
     return 0
 
 
-_METHODS = ("methods: naive = observed lifetimes at face value (biased short); "
-            "truncation_aware = corrected for the end of the history, describes lifetimes up "
-            "to the longest observed one{tmax}; horizon = defects introduced at least H before "
-            "the end, lifetimes given <= H (what the comparisons use)")
-
-
 def _print_analysis(res: Any, horizon: float | None, indent: str = "  ") -> None:
-    med = res.summary[res.summary["quantile"] == 0.5]
-    for row in med.itertuples():
-        print(f"{indent}median {row.group:<20} {row.method:<17} {_num(row.value)} "
-              f"[{_num(row.low)}, {_num(row.high)}] n={row.n} ({row.level:.0%} interval)")
-    if len(med):
-        allc = res.curves[(res.curves["group"] == "(all)")
-                          & (res.curves["method"] == "truncation_aware")]
-        tmax = f" ({allc['time'].max():.0f} {res.unit})" if len(allc) else ""
-        print(f"{indent}" + _METHODS.format(tmax=tmax))
+    from procmetrics.analyse.lifetimes.horizon import figure_label, figure_text
+    from procmetrics.analyse.lifetimes.sensitivity import sensitive_figures
+
+    ch = res.horizon_choice
+    flagged = set(sensitive_figures(res.caveats))
+    if ch is not None and ch.horizon is not None and len(res.headline):
+        print(f"{indent}HEADLINE (conditional on lifetime <= H = {ch.horizon:g} {res.unit}; "
+              f"{ch.rule})")
+        for r in res.headline.itertuples():
+            if r.figure == "probability" and r.t >= r.horizon:
+                continue
+            lab = figure_label(r, res.unit)
+            flag = "  [link_era_sensitive]" if lab in flagged and r.group == "(all)" else ""
+            print(f"{indent}  {r.group:<12} {lab:<40} {figure_text(r, res.unit)}{flag}")
+    elif ch is not None:
+        print(f"{indent}HEADLINE: none ({ch.rule})")
+    tm = ("both ends (Efron-Petrosian NPMLE)" if res.truncation_model == "both ends"
+          else "right, at the end of the history (Lynden-Bell)")
+    print(f"{indent}secondary: unconditional quantiles (truncation modelled: {tm}; naive: "
+          "none, biased short)")
+    for row in res.summary[res.summary["quantile"] == 0.5].itertuples():
+        print(f"{indent}  median {row.group:<12} {row.method:<17} {_qtext(row, res.unit)}")
+    if len(res.sensitivity):
+        print(f"{indent}link-era sensitivity (figures re-estimated with later starts):")
+        for fig, g in res.sensitivity.groupby("figure", sort=False):
+            cells = []
+            for r in g.itertuples():
+                v = ("beyond support" if not r.supported else
+                     f"{r.value:.2f}" if fig.startswith("P(") else f"{r.value:,.0f}")
+                cells.append(f"{r.start:%Y-%m}: {v}")
+            print(f"{indent}  {fig:<44} " + "; ".join(cells))
     for c, label in ((res.comparison, ""), (res.stratified_comparison,
                                              f" (strata: {res.strata_by})")):
         if c is not None:
@@ -114,6 +145,18 @@ def _print_analysis(res: Any, horizon: float | None, indent: str = "  ") -> None
                   f"df={c.df} p={c.p_value:.3g} n={c.n}")
     for cv in res.caveats:
         print(f"{indent}caveat [{cv.code}] {cv.message}")
+
+
+def _qtext(row: Any, unit: str) -> str:
+    """A summary row as text: within the support, or why not."""
+    if not row.supported:
+        lim = "-" if pd.isna(row.support_limit) else f"{row.support_limit:,.0f}"
+        risk = "" if pd.isna(row.at_risk) else f", {int(row.at_risk)} at risk there"
+        return f"beyond what the data support (> {lim} {unit}{risk}) n={row.n}"
+    hi = (f"> {row.support_limit:,.0f}" if row.high_open else _num(row.high))
+    return (f"{_num(row.value)} [{_num(row.low)}, {hi}] n={row.n} at risk {int(row.at_risk)}; "
+            f"covers {row.range_low:,.0f}-{row.range_high:,.0f} {unit} "
+            f"({row.level:.0%} interval)")
 
 
 def _heuristic(args: argparse.Namespace, tables: dict[str, pd.DataFrame],
@@ -193,4 +236,4 @@ def _heuristic(args: argparse.Namespace, tables: dict[str, pd.DataFrame],
 
 
 def _num(x: Any) -> str:
-    return "-" if x is None or (isinstance(x, float) and not np.isfinite(x)) else f"{x:.1f}"
+    return "-" if x is None or (isinstance(x, float) and not np.isfinite(x)) else f"{x:,.0f}"

@@ -2,6 +2,7 @@
 
 Curves stop at their cut point (fewer than ``min_at_risk`` at risk): the last
 shown step is drawn up to the cut, which is marked with a short vertical tick.
+The headline horizon H (figures given lifetime <= H) is a dotted vertical line.
 Per-group truncation-aware curves are each conditional on their own longest
 observed lifetime, so the by-group figure says so and prefers the
 common-horizon curves when they exist.
@@ -51,6 +52,11 @@ def plot_survival(analysis: Any, *, group: str = "(all)", ax: Axes | None = None
         if len(tab):
             n = int(analysis.groups.query("group == @group and method == @method")["n"].iloc[0])
             _step(ax, tab, color, ls, f"{label} (n={n})")
+    ch = getattr(analysis, "horizon_choice", None)
+    if ch is not None and ch.horizon is not None:
+        # the headline figures describe lifetimes up to H only
+        ax.axvline(ch.horizon, color="tab:green", ls=":", lw=1,
+                   label=f"headline horizon H = {ch.horizon:g} {analysis.unit}")
     ax.set_xlabel(f"lifetime ({analysis.unit}, {analysis.basis} basis)")
     ax.set_ylabel("share of defects not yet fixed")
     ax.set_ylim(0, 1.02)

@@ -8,8 +8,12 @@ returns the paths it wrote, in order.
 Files
 -----
 ``lifetimes``: ``lifetimes.json`` (defect-table counts, population, caveats and
-the full analysis), ``defects.csv``, ``lifetime_quantiles.csv``,
-``lifetime_curves.csv``, ``lifetimes.png`` and, per group,
+the full analysis), ``defects.csv``, ``defect_ledger.csv`` (every defect and
+every left-out link with the reason), ``lifetime_headline.csv`` (the
+horizon-conditional headline figures), ``lifetime_sensitivity.csv`` (the
+figures re-estimated for later link-era starts), ``link_era_monthly.csv`` (the
+monthly linked-fix share behind the settled rule, when used),
+``lifetime_quantiles.csv``, ``lifetime_curves.csv``, ``lifetimes.png`` and, per group,
 ``lifetimes_by_<subsystem|period>.png``. With the blame heuristic also
 ``lifetimes_heuristic.json`` (the candidate counts, failure modes and the
 analysis of the heuristic defects, all labelled ``heuristic``),
@@ -62,7 +66,7 @@ def _save(ax: Any, path: Path) -> Path:
 
 
 def _table_meta(table: Any) -> dict[str, Any]:
-    return {k: v for k, v in table.to_dict().items() if k != "defects"}
+    return {k: v for k, v in table.to_dict().items() if k not in ("defects", "excluded")}
 
 
 def write_lifetime_outputs(out: Path | str, table: Any, analysis: Any, *,
@@ -82,7 +86,14 @@ def write_lifetime_outputs(out: Path | str, table: Any, analysis: Any, *,
     paths = [write_json(out / "lifetimes.json", {
         "options": options or {}, "defect_table": _table_meta(table),
         "analysis": analysis.to_dict()})]
+    from procmetrics.analyse.lifetimes.defects import defect_ledger
+
     paths.append(_csv(table.defects, out / "defects.csv"))
+    paths.append(_csv(defect_ledger(table), out / "defect_ledger.csv"))
+    paths.append(_csv(analysis.headline, out / "lifetime_headline.csv"))
+    paths.append(_csv(analysis.sensitivity, out / "lifetime_sensitivity.csv"))
+    if getattr(table, "link_era", None) is not None:
+        paths.append(_csv(table.link_era.monthly, out / "link_era_monthly.csv"))
     paths.append(_csv(analysis.summary, out / "lifetime_quantiles.csv"))
     paths.append(_csv(analysis.curves, out / "lifetime_curves.csv"))
     if len(analysis.curves):

@@ -116,6 +116,9 @@ class Table:
     number: int = 0
     #: columns holding shares (fractions in JSON and CSV) that the document shows in percent
     percent_columns: tuple[str, ...] = ()
+    #: long listings (the defect ledger): rows go to the CSV and JSON only; HTML and
+    #: PDF show the caption, the row count and the file name
+    csv_only: bool = False
 
 
 @dataclass

@@ -121,6 +121,12 @@ def _text_lines(report: Report, csv_names: dict[str, str], prepared: str) -> lis
             elif b.kind == "table":
                 t = report.tables[b.ref]
                 out.extend(("p", x) for x in textwrap.wrap(f"Table {t.number}. {t.title}", _WIDTH))
+                if t.csv_only:
+                    out.extend(("p", x) for x in textwrap.wrap(
+                        f"{len(t.data)} rows, in the report's tables/ folder and report.json. "
+                        + t.note, _WIDTH))
+                    out.append(("gap", ""))
+                    continue
                 cols = [k for k, _ in t.columns]
                 rows = [[h for _, h in t.columns]] + [
                     [fmt_value(k, r.get(k), k in t.percent_columns) for k in cols]

@@ -33,27 +33,48 @@ def horizon_days(ctx: BuildContext) -> float | None:
     return float(min(365.0, round(span / 2))) if span > 30 else None
 
 
+def lifetime_defects(ctx: BuildContext) -> Any:
+    """The defect table of the lifetimes section: link era by the *settled* rule."""
+    from procmetrics.analyse.lifetimes.defects import build_defects
+
+    d = ctx.data
+    cuts = [ctx.policy_date] if ctx.policy_date is not None else None
+    return build_defects(d["fix_links"], commits=d["commits"],
+                         commit_subsystems=d["commit_subsystems"], trailers=d["trailers"],
+                         period_cuts=cuts, links_from="settled")
+
+
 def section_lifetimes(ctx: BuildContext) -> None:
     from procmetrics.analyse.lifetimes.analysis import analyse_lifetimes
+    from procmetrics.analyse.lifetimes.defects import LEDGER_COLUMNS, defect_ledger
+    from procmetrics.report import lifetime_tables as lt
 
     rep = ctx.report
     s = rep.add_section("lifetimes", "Defect lifetimes")
     if ctx.defects is None:
         s.p("No defect table could be built from the fix references of this store.")
         return
-    dt = ctx.defects
+    dt = ctx.attempt("Defect table (lifetimes)", s, lambda: lifetime_defects(ctx))
+    if dt is None:
+        return
     n = int(len(dt.defects))
+    era = "every introducer" if dt.links_from is None else f"{dt.links_from:%Y-%m-%d}"
     s.p(f"A defect is a resolved fix reference: a commit naming, in a “Fixes:” line, the "
-        f"earlier commit that introduced the problem. {n:,} defects are found "
+        f"earlier commit that introduced the problem. {n:,} defects are used "
         f"(lifetime = committer date of the first fix minus committer date of the "
         "introducing commit). Defects fixed without a link, and defects not yet found, are "
         "not in this data.")
+    s.p(f"Link era: from {era} ({dt.n_before_links:,} defects introduced earlier left out). "
+        f"Rule: {dt.link_era_rule}. Before linking settled, few fixes were linked, so the "
+        "early introducers that appear are mostly the long-lived ones.")
     s.p("Lifetimes seen in a history are right-truncated: a defect introduced a month "
         "before the end of the history can only appear if it was fixed within that month. "
-        "Taken at face value (the “naive” curve) they are biased short. The truncation-aware "
-        "curve (Lynden-Bell product-limit estimator) corrects this, for defects whose "
-        "lifetime is at most the longest one observed. Both are shown; only the second "
-        "should be quoted.")
+        "The headline figures therefore describe lifetimes *given lifetime ≤ H*: for "
+        "defects introduced at least H before the end, every lifetime up to H could be "
+        "seen, so these figures need no model of the truncation. They say nothing about "
+        "defects living longer than H. The unconditional curves (naive Kaplan–Meier, biased "
+        "short; truncation-aware Lynden-Bell) are a secondary view, shown only where at "
+        f"least {MIN_AT_RISK} defects support them.")
     H = horizon_days(ctx)
     by = "period" if ctx.policy_date is not None else None
     la = ctx.attempt("Defect lifetimes", s, lambda: analyse_lifetimes(
@@ -62,32 +83,74 @@ def section_lifetimes(ctx: BuildContext) -> None:
         return
     from procmetrics.analyse.measures.metrics import ALL
 
+    sens_cav = [c for c in la.caveats if c.code == "link_era_sensitive"]
+    ch = la.horizon_choice
+    if ch is not None and ch.horizon is not None:
+        rep.add_table(s, Table(
+            "lifetime-headline", f"Headline defect-lifetime figures, conditional on lifetime ≤ "
+            f"H = {ch.horizon:.0f} days, with {ctx.options.level:.0%} intervals.",
+            [("group", "Defects introduced"), ("figure", "Figure"), ("estimate", "Estimate "
+              "[interval]"), ("n", "Defects in cohort"), ("at_risk", "At risk"),
+             ("supported", "Within support"), ("link_era_sensitive", "Link-era sensitive")],
+            lt.headline_table(la),
+            note=f"{ch.rule}. Probabilities: share of the cohort, Wilson interval; quantiles: "
+                 "order-statistic interval. Quote these with H and the link-era start; "
+                 + lt.LEDGER_REF + ".",
+            flags=fl.from_result(sens_cav, "lifetime-headline")))
+    else:
+        s.note("No headline figures: " + (ch.rule if ch is not None else "no horizon") + ".")
     curves = la.curves[la.curves["group"] == ALL].reset_index(drop=True)
     fig = Figure(
-        "lifetime-curves", "Defect lifetimes: share still unfixed",
+        "lifetime-curves", "Defect lifetimes: share still unfixed (secondary view)",
         "Share of defects still unfixed t days after introduction: naive Kaplan–Meier "
         "(observed lifetimes at face value, biased short) and truncation-aware "
         "(Lynden-Bell) estimates with pointwise bands; curves stop where fewer than "
-        f"{MIN_AT_RISK} defects remain at risk",
+        f"{MIN_AT_RISK} defects remain at risk; " + lt.LEDGER_REF,
         n=n - la.n_negative_excluded,
         method="Kaplan–Meier (Greenwood, log-log band) and Lynden-Bell product-limit "
-               "(percentile bootstrap band)",
+               "(percentile bootstrap band, 2,000 resamples)",
         interval=f"{ctx.options.level:.0%} pointwise bands", data=curves,
         kinds=DEFECT_KINDS, values={"summary": la.summary, "groups": la.groups,
-                                    "population": la.population},
+                                    "population": la.population, "headline": la.headline,
+                                    "horizon_choice": ch, "link_era_start": dt.links_from,
+                                    "link_era_rule": dt.link_era_rule,
+                                    "ledger": lt.LEDGER_KEY},
         png=plots.survival_png(ctx, la, ALL))
     ctx.add_figure(s, fig, result=la, min_n=ctx.options.min_n, lifetime=True)
     rep.add_table(s, Table(
-        "lifetime-quantiles", "Defect lifetime quantiles in days, with "
-        f"{ctx.options.level:.0%} intervals.",
+        "lifetime-quantiles", "Defect lifetime quantiles in days (secondary view), with "
+        f"{ctx.options.level:.0%} intervals and the defects at risk at each quantile.",
         [("group", "Defects introduced"), ("method", "Estimator"), ("n", "Defects"),
-         ("q25", "25%"), ("q50", "Median"), ("q75", "75%"), ("q90", "90%")],
-        quantile_table(la.summary),
-        note="Truncation-aware: Lynden-Bell estimate (quote this one); naive: observed "
-             "lifetimes at face value (biased short); common horizon: defects introduced at "
-             "least the horizon before the end of the history and fixed within it. Each cell: "
-             "estimate (interval). Quantiles, not means: lifetimes are heavily skewed.",
-        flags=fl.rule_flags("lifetime-quantiles", n=None, min_n=None, lifetime=True)))
+         ("covers", "Supported range (days)"), ("q25", "25%"), ("q50", "Median"),
+         ("q75", "75%"), ("q90", "90%")],
+        lt.quantile_table(la.summary),
+        note="Truncation-aware: Lynden-Bell estimate, conditional on lifetime ≤ the longest "
+             "observed; naive: observed lifetimes at face value (biased short); common "
+             "horizon: defects introduced at least the horizon before the end of the history "
+             "and fixed within it. Each cell: estimate (interval; defects at risk). A quantile "
+             f"where fewer than {MIN_AT_RISK} defects are at risk is not reported (“beyond "
+             "what the data support”); “> t” marks an interval reaching beyond the support. "
+             "Quantiles, not means: lifetimes are heavily skewed; " + lt.LEDGER_REF + ".",
+        flags=fl.rule_flags("lifetime-quantiles", n=None, min_n=None, lifetime=True)
+        + fl.from_result(sens_cav, "lifetime-quantiles")))
+    if len(la.sensitivity):
+        rep.add_table(s, Table(
+            "lifetime-sensitivity", "Link-era sensitivity: each figure re-estimated with the "
+            "link era starting later.",
+            [("figure", "Figure"), ("start", "Link era from"), ("estimate", "Estimate "
+              "(interval)"), ("n", "Defects"), ("at_risk", "At risk"),
+             ("chosen", "Chosen start")], lt.sensitivity_table(la),
+            note="A figure is flagged link-era sensitive when a later start gives an estimate "
+                 "outside its interval and the later estimate's own interval excludes it: "
+                 "linking was still settling, or lifetimes changed over the history.",
+            flags=fl.from_result(sens_cav, "lifetime-sensitivity")))
+    ledger = defect_ledger(dt)
+    rep.add_table(s, Table(
+        lt.LEDGER_KEY, "Defect ledger: every defect (introducer, fix, dates, lifetime, "
+        "window, subsystem) and every fix link left out, with the reason.",
+        [(c, c) for c in LEDGER_COLUMNS], ledger,
+        note="Reasons: before link era, negative lifetime, follow-up fix, unresolved "
+             "reference (with its status), missing date.", csv_only=True))
     if la.comparison is not None:
         c = la.comparison
         hz = la.curves[la.curves["method"] == "horizon"].reset_index(drop=True)
@@ -187,32 +250,3 @@ def section_growth(ctx: BuildContext) -> None:
     rep.add_table(s, Table("growth-models", "Growth models: fitted or refused, and why.",
                            [("model", "Model"), ("status", "Status"), ("detail", "Detail")],
                            pd.DataFrame(rows, columns=["model", "status", "detail"])))
-
-
-_METHOD_WORDS = {"truncation_aware": "truncation-aware", "naive": "naive",
-                 "horizon": "common horizon"}
-
-
-def quantile_table(summary: pd.DataFrame) -> pd.DataFrame:
-    """One row per (group, estimator); each quantile as "estimate (low–high)" text."""
-    from procmetrics.analyse.measures.metrics import ALL
-
-    def cell(r: pd.Series) -> str:
-        if pd.isna(r["value"]):
-            return "not reached"
-        lo = "–" if pd.isna(r["low"]) else f"{r['low']:.0f}"
-        hi = "∞" if pd.isna(r["high"]) else f"{r['high']:.0f}"
-        return f"{r['value']:.0f} ({lo}–{hi})"
-
-    rows = []
-    order = {ALL: 0, "before": 1, "after": 2}
-    for (group, method), g in summary.groupby(["group", "method"], sort=False):
-        row = {"group": "all" if group == ALL else str(group),
-               "method": _METHOD_WORDS.get(method, method), "n": int(g["n"].max()),
-               "_o": (order.get(group, 3), str(group), list(_METHOD_WORDS).index(method)
-                      if method in _METHOD_WORDS else 9)}
-        for _, r in g.iterrows():
-            row[f"q{int(round(r['quantile'] * 100))}"] = cell(r)
-        rows.append(row)
-    rows.sort(key=lambda r: r["_o"])
-    return pd.DataFrame(rows, columns=["group", "method", "n", "q25", "q50", "q75", "q90"])

@@ -40,7 +40,7 @@ def test_truth_file_matches_the_assumptions_of_this_test(demo):
 def test_lifetimes_recovers_the_planted_change(demo, capsys):
     out = demo["base"] / "lt"
     rc = main(["lifetimes", "--store", str(demo["store"]), "--by", "period", "--change-date",
-               CHANGE, "--horizon", "365", "--boot", "200", "--out", str(out)])
+               CHANGE, "--horizon", "365", "--out", str(out)])
     assert rc == 0
     text = capsys.readouterr().out
     assert "median" in text and "log-rank at horizon 365" in text

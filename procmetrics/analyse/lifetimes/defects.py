@@ -20,11 +20,16 @@ the commit that introduced the problem. The rules, fixed and documented:
   the table only with long lifetimes (left truncation on top of the right
   truncation at the end of the history). By default (``links_from=
   "first_link"``) ``A`` is the date of the first linked fix and defects
-  introduced before ``A`` are left out and counted (``n_before_links``); for
-  introducers from ``A`` on, the only truncation is at the end of the history.
-  Where linking starts slowly, a later ``links_from`` date is better; a
+  introduced before ``A`` are left out and counted (``n_before_links``, and
+  listed with the reason in :attr:`DefectTable.excluded`); for introducers from
+  ``A`` on, the only truncation is at the end of the history. Where linking
+  starts slowly, ``links_from="settled"`` starts the era where linking has
+  settled (:mod:`procmetrics.analyse.lifetimes.linkera`); a
   ``tag_adoption_rising`` caveat says when the first year after ``A`` has far
-  fewer links per commit than the rest.
+  fewer links per commit than the rest. With ``links_from=None`` every
+  introducer is kept and ``window_low`` records the lower truncation bound
+  (``first linked fix - intro_date`` for introducers before it, else 0), for
+  the doubly-truncated estimator.
 
 Columns of :attr:`DefectTable.defects` (:data:`DEFECT_COLUMNS`):
 
@@ -35,7 +40,10 @@ fixing commits), ``follow_up_fixes`` (space-separated hashes of later fixes),
 ``lifetime_days`` (float days between them), ``lifetime`` (in basis units:
 days, or releases shipped), ``window`` (the truncation window in basis units:
 the longest lifetime that could have been observed, ``end - intro_date`` in
-days or the number of release tags containing the introducer), ``negative``,
+days or the number of release tags containing the introducer), ``window_low``
+(the shortest lifetime that could have been observed: 0 except for introducers
+kept from before the first linked fix with ``links_from=None``; always 0 on the
+releases basis), ``negative``,
 ``subsystem`` (the introducer's only subsystem, ``(multiple)`` or ``(none)``),
 ``subsystems`` (``;``-joined), ``period``, ``reviewed_introducer`` (boolean,
 NA when trailers were not given), ``intro_lines`` (lines added + deleted, NA
@@ -56,9 +64,13 @@ Basis = Literal["committer", "author", "releases"]
 
 DEFECT_COLUMNS: list[str] = [
     "repo", "introducer_hash", "fix_hash", "n_fixes", "follow_up_fixes", "basis",
-    "intro_date", "fix_date", "lifetime_days", "lifetime", "window", "negative",
+    "intro_date", "fix_date", "lifetime_days", "lifetime", "window", "window_low", "negative",
     "subsystem", "subsystems", "period", "reviewed_introducer", "intro_lines", "intro_files",
 ]
+
+from procmetrics.analyse.lifetimes.ledger import (  # noqa: E402  (re-exported)
+    EXCLUDED_COLUMNS, LEDGER_COLUMNS, _excluded, defect_ledger,
+)
 
 REVIEW_KEYS: tuple[str, ...] = ("reviewed-by", "acked-by")
 """Trailer keys (compared case-insensitively) that count as review of a change."""
@@ -96,6 +108,9 @@ class DefectTable:
     caveats: tuple[Caveat, ...] = field(default_factory=tuple)
     links_from: pd.Timestamp | None = None
     n_before_links: int = 0
+    link_era_rule: str = ""
+    link_era: Any = None
+    excluded: pd.DataFrame = field(default_factory=lambda: pd.DataFrame(columns=EXCLUDED_COLUMNS))
 
     def to_dict(self) -> dict[str, Any]:
         return to_plain(self)
@@ -104,30 +119,6 @@ class DefectTable:
 def _utc(x: Any) -> pd.Timestamp:
     ts = pd.Timestamp(x)
     return ts.tz_localize("UTC") if ts.tzinfo is None else ts.tz_convert("UTC")
-
-
-def _adoption_caveat(fixes: pd.Series, commits: pd.DataFrame | None, start: pd.Timestamp,
-                     tau: pd.Timestamp, clock: str) -> Caveat | None:
-    """Warn when the first year after ``start`` has far fewer linked fixes per commit."""
-    if commits is None or not len(commits) or pd.isna(tau) or (tau - start).days < 730:
-        return None
-    c = commits
-    if "is_merge" in c:
-        c = c[~c["is_merge"].fillna(False).astype(bool)]
-    cd = pd.to_datetime(c[f"{clock}_date"], utc=True)
-    cut = start + pd.Timedelta(days=365)
-    n1, n2 = int(((cd >= start) & (cd < cut)).sum()), int(((cd >= cut) & (cd <= tau)).sum())
-    f1 = int(((fixes >= start) & (fixes < cut)).sum())
-    f2 = int(((fixes >= cut) & (fixes <= tau)).sum())
-    if not (n1 and n2 and f2):
-        return None
-    s1, s2 = f1 / n1, f2 / n2
-    if s1 >= 0.5 * s2:
-        return None
-    return caveat("tag_adoption_rising", f"fix links were rare in the first year after "
-                  f"{start:%Y-%m-%d} ({f1} linked fixes in {n1} commits, {s1:.1%}) compared "
-                  f"with later ({s2:.1%}): defects fixed in that year are under-represented; "
-                  "choose a later links_from date (CLI: --links-from) where linking had settled")
 
 
 def _periods(dates: pd.Series, cuts: Sequence[Any] | None, freq: str) -> pd.Series:
@@ -198,8 +189,10 @@ def build_defects(
         ``before``/``after``); default: calendar periods of ``period_freq``.
     review_keys : trailer keys that count as review (case-insensitive).
     links_from : start of the link era (see module docstring): ``"first_link"``
-        (default: the first linked fix on the basis clock), a date, or None
-        (keep every introducer, accepting the left truncation).
+        (default here: the first linked fix on the basis clock), ``"settled"``
+        (where linking has settled; needs ``commits``; the CLI's and report's
+        default), a date, or None (keep every introducer; ``window_low`` then
+        records their lower truncation bound).
     link_source : how the links were found, for the population text. Any
         value other than the default marks the links as heuristic (a
         ``heuristic_classification`` caveat is attached).
@@ -226,6 +219,7 @@ def build_defects(
     links["_fix"] = pd.to_datetime(links[f"fix_{clock}_date"], utc=True)
     missing = links["_intro"].isna() | links["_fix"].isna()
     n_missing = int(missing.sum())
+    missing_rows = links[missing]
     links = links[~missing]
     # one row per (repo, introducer, fixing commit): duplicate citations collapse
     links = links.drop_duplicates(["repo", "introducer_hash", "fix_hash"])
@@ -234,22 +228,41 @@ def build_defects(
     first = grp.head(1).copy()
     n_fixes = grp["fix_hash"].transform("size")
     first["n_fixes"] = n_fixes.loc[first.index].astype("int64")
-    follow = grp["fix_hash"].agg(lambda s: " ".join(s.iloc[1:]))
-    first["follow_up_fixes"] = [follow.loc[(r, h)] for r, h in
-                                zip(first["repo"], first["introducer_hash"])]
+    later = links[grp.cumcount() > 0]
+    follow = later.groupby(["repo", "introducer_hash"], sort=False)["fix_hash"].agg(" ".join)
+    first["follow_up_fixes"] = (pd.MultiIndex.from_arrays([first["repo"],
+                                                           first["introducer_hash"]])
+                                .map(lambda k: follow.get(k, "")) if len(follow)
+                                else "")
     n_follow = int(len(links) - len(first))
-    if isinstance(links_from, str) and links_from == "first_link":
-        # each repository's own link era: histories adopt Fixes: at different times
-        era_by_repo = links.groupby(links["repo"].astype(str))["_fix"].min()
+    # the first linked fix of each repository (histories adopt Fixes: at different times)
+    first_by_repo = links.groupby(links["repo"].astype(str))["_fix"].min()
+    era_rule = ""
+    era_info: Any = None
+    if isinstance(links_from, str) and links_from in ("first_link", "settled"):
+        from procmetrics.analyse.lifetimes.linkera import era_by_repository
+
+        era_by_repo, era_rule, era_info = era_by_repository(
+            first_by_repo, fix_links, commits, clock=clock, settled=links_from == "settled")
         era = era_by_repo.min() if len(era_by_repo) else pd.NaT
         era_row = first["repo"].astype(str).map(era_by_repo)
         before = (first["_intro"] < era_row).fillna(False).astype(bool)
     else:
         era = pd.NaT if links_from is None else _utc(links_from)
+        era_rule = ("all: every introducer kept (defects introduced before the first "
+                    "linked fix are truncated at both ends)" if links_from is None
+                    else f"date: the link era starts at the given date {era:%Y-%m-%d}")
         before = ((first["_intro"] < era) if pd.notna(era)
                   else pd.Series(False, index=first.index))
     n_before = int(before.sum())
-    first = first[~before]
+    # lower truncation bound: only with every introducer kept, for those introduced
+    # before their repository's first linked fix (they are seen only if fixed after it)
+    low_row = (first["repo"].astype(str).map(first_by_repo) - first["_intro"]
+               ).dt.total_seconds() / 86400.0
+    first["_window_low"] = (low_row.clip(lower=0).fillna(0.0)
+                            if links_from is None and link_source == "resolved Fixes: link"
+                            else 0.0)
+    first["_before"] = before
 
     tau_by_repo: pd.Series | None = None
     if end_date is not None:
@@ -274,6 +287,8 @@ def build_defects(
         "basis": basis,
         "intro_date": first["_intro"].to_numpy(),
         "fix_date": first["_fix"].to_numpy(),
+        "_before": first["_before"].to_numpy(bool),
+        "window_low": first["_window_low"].to_numpy(float),
     })
     d["intro_date"] = pd.to_datetime(d["intro_date"], utc=True)
     d["fix_date"] = pd.to_datetime(d["fix_date"], utc=True)
@@ -310,13 +325,23 @@ def build_defects(
     if commits is not None and len(commits):
         c = commits.set_index(["repo", "hash"])
         la = c["lines_added"].astype("Float64") + c["lines_deleted"].astype("Float64")
-        d["intro_lines"] = pd.array([la.get(k, pd.NA) for k in keys], dtype="Float64").round().astype("Int64")
-        d["intro_files"] = pd.array([c["n_files"].get(k, pd.NA) for k in keys], dtype="Int64")
+        kidx = pd.MultiIndex.from_tuples(keys, names=["repo", "hash"]) if keys else None
+        la = la[~la.index.duplicated()]
+        nf = c["n_files"][~c.index.duplicated()]
+        d["intro_lines"] = (pd.array(la.reindex(kidx).to_numpy(), dtype="Float64").round()
+                            .astype("Int64") if keys else pd.array([], dtype="Int64"))
+        d["intro_files"] = (pd.array(nf.reindex(kidx).to_numpy(), dtype="Int64") if keys
+                            else pd.array([], dtype="Int64"))
     else:
         d["intro_lines"] = pd.array([pd.NA] * len(d), dtype="Int64")
         d["intro_files"] = pd.array([pd.NA] * len(d), dtype="Int64")
-    d = d[DEFECT_COLUMNS].sort_values(["repo", "intro_date", "introducer_hash"],
-                                      kind="mergesort").reset_index(drop=True)
+    if basis == "releases":
+        d["window_low"] = 0.0      # the lower bound is not expressed in releases
+    d = d[DEFECT_COLUMNS + ["_before"]].sort_values(["repo", "intro_date", "introducer_hash"],
+                                                    kind="mergesort").reset_index(drop=True)
+    pre = d[d["_before"]].drop(columns="_before").reset_index(drop=True)
+    d = d[~d["_before"]].drop(columns="_before").reset_index(drop=True)
+    excluded = _excluded(fix_links, links, pre, status, clock, missing_rows)
 
     cav: list[Caveat] = []
     n_neg = int(d["negative"].sum())
@@ -349,7 +374,9 @@ def build_defects(
                           f"{link_source}s found by a heuristic, not links written by the "
                           "developers; introducers and lifetimes may be wrong"))
     if pd.notna(era) and not heuristic:
-        adopt = _adoption_caveat(links.drop_duplicates("fix_hash")["_fix"], commits, era,
+        from procmetrics.analyse.lifetimes.linkera import adoption_caveat
+
+        adopt = adoption_caveat(links.drop_duplicates("fix_hash")["_fix"], commits, era,
                                  tau, clock)
         if adopt is not None:
             cav.append(adopt)
@@ -367,7 +394,8 @@ def build_defects(
                   f"before {tau:%Y-%m-%d}; lifetime = {unit} from introducer to first fix"
                   if pd.notna(tau) else "no defects")
     return DefectTable(d, basis, unit, tau, link_counts, n_missing, n_neg, n_follow,
-                       population, tuple(cav), era if pd.notna(era) else None, n_before)
+                       population, tuple(cav), era if pd.notna(era) else None, n_before,
+                       era_rule, era_info, excluded)
 
 
 def lifetimes_for_estimation(defects: pd.DataFrame) -> tuple[pd.DataFrame, int]:
