@@ -38,7 +38,14 @@ SPECS: dict[str, KindSpec] = {
 }
 
 
-def _defects(ctx: ClaimContext, cuts: list[pd.Timestamp] | None = None):
+def defect_table(kind: str, ctx: ClaimContext, cuts: list[pd.Timestamp] | None = None):
+    """The defect table a lifetime claim of ``kind`` is judged on.
+
+    One call for the verdict and for the rows the report's evidence pack lists, so
+    both count the same defects: the median claim uses the settled link era, the
+    before/after comparison every resolved link (its horizon conditioning is applied
+    by the evaluator).
+    """
     from procmetrics.analyse.lifetimes.defects import build_defects
 
     share = cl.unresolved_share(ctx.fix_links)
@@ -46,9 +53,10 @@ def _defects(ctx: ClaimContext, cuts: list[pd.Timestamp] | None = None):
         raise Undecidable(f"{share:.0%} of fix references are unresolved or ambiguous, above "
                           f"the {ctx.unresolved_limit:.0%} limit: the defects seen may not "
                           "represent the defects fixed")
+    extra = {"links_from": "settled"} if kind == "median_lifetime_below" else {}
     return build_defects(ctx.fix_links, commits=ctx.commits,
                          commit_subsystems=ctx.commit_subsystems, trailers=ctx.trailers,
-                         period_cuts=cuts)
+                         period_cuts=cuts, **extra)
 
 
 #: a quantile is reported only where at least this many defects are at risk
@@ -61,20 +69,13 @@ LEDGER_NOTE = ("the defects behind this figure, and every fix link left out with
 def eval_median_lifetime(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
     """Truncation-aware median, decided only within the support and when it does not
     move with the start of the link era (settled rule; later starts re-estimated)."""
-    from procmetrics.analyse.lifetimes.defects import build_defects, lifetimes_for_estimation
+    from procmetrics.analyse.lifetimes.defects import lifetimes_for_estimation
     from procmetrics.analyse.lifetimes.estimators import quantile_estimates
     from procmetrics.analyse.lifetimes.sensitivity import LB_MEDIAN, link_era_sensitivity
 
     p = claim.params
     after, before = window(ctx, p)
-    share = cl.unresolved_share(ctx.fix_links)
-    if share is not None and share > ctx.unresolved_limit:
-        raise Undecidable(f"{share:.0%} of fix references are unresolved or ambiguous, above "
-                          f"the {ctx.unresolved_limit:.0%} limit: the defects seen may not "
-                          "represent the defects fixed")
-    table = build_defects(ctx.fix_links, commits=ctx.commits,
-                          commit_subsystems=ctx.commit_subsystems, trailers=ctx.trailers,
-                          links_from="settled")
+    table = defect_table(claim.kind, ctx)
     d, n_neg = lifetimes_for_estimation(table.defects)
     if after is not None:
         d = d[d["intro_date"] >= after]
@@ -133,7 +134,7 @@ def eval_lifetimes_shorter(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
     """Judge "defects introduced after the date are fixed sooner" (see :func:`judge_shorter`)."""
     p = claim.params
     date = cl.resolve_date(p["date"], ctx, "date")
-    return judge_shorter(claim, _defects(ctx), date, horizon=p.get("horizon_days"),
+    return judge_shorter(claim, defect_table(claim.kind, ctx), date, horizon=p.get("horizon_days"),
                          subsystem=p.get("subsystem"), min_n=ctx.min_n)
 
 

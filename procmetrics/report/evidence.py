@@ -167,11 +167,11 @@ def _trend(pack: ClaimPack, claim: Any, cctx: Any) -> None:
         f"the {cctx.period}s the trend was fitted on")
 
 
-def _defect_table(cctx: Any) -> Any:
-    from procmetrics.analyse.lifetimes.defects import build_defects
+def _defect_table(cctx: Any, kind: str) -> Any:
+    """The same call the claim's verdict used (one computation per quantity)."""
+    from procmetrics.claims.lifetimes import defect_table
 
-    return build_defects(cctx.fix_links, commits=cctx.commits,
-                         commit_subsystems=cctx.commit_subsystems, trailers=cctx.trailers)
+    return defect_table(kind, cctx)
 
 
 def _defect_rows(d: pd.DataFrame) -> pd.DataFrame:
@@ -186,7 +186,7 @@ def _lifetimes(pack: ClaimPack, claim: Any, cctx: Any) -> None:
     from procmetrics.claims.common import window
 
     p = claim.params
-    table = _defect_table(cctx)
+    table = _defect_table(cctx, claim.kind)
     d = table.defects
     rows = _defect_rows(d)
     reason = pd.Series("", index=d.index, dtype=object)
