@@ -6,6 +6,7 @@ import sys
 
 from procmetrics.cli import add_store_argument
 from procmetrics.report.model import PERIODS
+from procmetrics.textsafe import data_stdout
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -44,7 +45,7 @@ def run(args: argparse.Namespace) -> int:
                             period=args.period)
     doc = dumps([v.to_dict() for v in verdicts])
     if args.json == "-":
-        sys.stdout.write(doc)
+        data_stdout().write(doc)
     else:
         print(render_verdicts(verdicts))
         if args.json:

@@ -7,6 +7,7 @@ import sys
 from procmetrics.cli import add_store_argument
 from procmetrics.errors import ProcmetricsError, StoreError
 from procmetrics.store import open_store
+from procmetrics.textsafe import data_stdout
 from procmetrics.store.tables import COLUMNS, read_table
 
 
@@ -39,5 +40,5 @@ def run(args: argparse.Namespace) -> int:
         except OSError as exc:
             raise StoreError(f"cannot write {args.output}: {exc}") from exc
     else:
-        df.to_csv(sys.stdout, index=False, date_format="%Y-%m-%dT%H:%M:%SZ")
+        df.to_csv(data_stdout(), index=False, date_format="%Y-%m-%dT%H:%M:%SZ")
     return 0

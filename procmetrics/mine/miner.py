@@ -212,7 +212,9 @@ def _load(git: GitRepo, writer: StoreWriter, repo_id: int, run_id: int, tip: str
                              "--").strip() or 0)
     bulk = base is None and writer.drop_indexes_if_empty()
     from tqdm import tqdm
-    bar = tqdm(total=total, unit="commit", file=sys.stderr, disable=not show,
+    # the bar's own carriage returns go to the stream under the CLI's sanitiser
+    bar = tqdm(total=total, unit="commit", file=getattr(sys.stderr, "unfiltered", sys.stderr),
+               disable=not show,
                desc="mining", dynamic_ncols=True)
     try:
         batch: list[CommitRow] = []
