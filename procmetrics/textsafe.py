@@ -68,3 +68,30 @@ def data_stdout() -> Any:
     except (AttributeError, ValueError):
         tty = False
     return out if tty else raw
+
+
+# -- CSV cells ---------------------------------------------------------------------------
+#: First characters that make a spreadsheet read a cell as a formula (or a DDE call).
+FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
+
+
+def csv_text_cell(text: str, *, raw: bool = False) -> str:
+    """A text cell for a CSV file: a leading ``'`` when the text starts like a formula
+    (``=``, ``+``, ``-``, ``@``, tab, carriage return), so a spreadsheet shows it as text;
+    ``raw`` keeps the exact text. Only text cells go through this: numbers (negatives
+    included) stay numbers."""
+    if not raw and text and text[0] in FORMULA_STARTS:
+        return "'" + text
+    return text
+
+
+def neutralise_frame(df: Any, *, raw: bool = False) -> Any:
+    """A copy of a DataFrame whose text cells went through :func:`csv_text_cell`."""
+    if raw:
+        return df
+    out = df.copy()
+    for col in out.columns:
+        s = out[col]
+        if s.dtype == object or str(s.dtype).startswith("string"):
+            out[col] = s.map(lambda v: csv_text_cell(v) if isinstance(v, str) else v)
+    return out

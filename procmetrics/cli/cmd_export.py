@@ -7,7 +7,7 @@ import sys
 from procmetrics.cli import add_store_argument
 from procmetrics.errors import ProcmetricsError, StoreError
 from procmetrics.store import open_store
-from procmetrics.textsafe import data_stdout
+from procmetrics.textsafe import data_stdout, neutralise_frame
 from procmetrics.store.tables import COLUMNS, read_table
 
 
@@ -20,6 +20,9 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--format", choices=["csv", "parquet"], default="csv")
     p.add_argument("--repo", help="only this repository (name as stored)")
     p.add_argument("-o", "--output", help="output file (default: stdout for CSV)")
+    p.add_argument("--raw-csv", action="store_true",
+                   help="exact text in CSV cells (default: a leading ' before text cells "
+                   "starting with = + - @ tab or CR, so spreadsheets do not run them)")
     p.set_defaults(func=run)
 
 
@@ -34,6 +37,7 @@ def run(args: argparse.Namespace) -> int:
         except OSError as exc:
             raise StoreError(f"cannot write {args.output}: {exc}") from exc
         return 0
+    df = neutralise_frame(df, raw=args.raw_csv)
     if args.output:
         try:
             df.to_csv(args.output, index=False, date_format="%Y-%m-%dT%H:%M:%SZ")

@@ -33,6 +33,9 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--pdf-engine", choices=["auto", "chromium", "fallback", "none"],
                    default="auto", help="auto: headless chromium when found, else a plain "
                    "PDF drawn with matplotlib (default)")
+    p.add_argument("--raw-csv", action="store_true",
+                   help="exact text in tables/*.csv (default: a leading ' before text cells "
+                   "starting with = + - @ tab or CR, so spreadsheets do not run them)")
     p.set_defaults(func=run)
 
 
@@ -40,7 +43,7 @@ def run(args: argparse.Namespace) -> int:
     opts = ReportOptions(repo=args.repo, policy=args.policy,
                          subsystems=tuple(dict.fromkeys(args.subsystems)), period=args.period,
                          claims_path=args.claims, level=args.level, seed=args.seed,
-                         pdf_engine=args.pdf_engine)
+                         pdf_engine=args.pdf_engine, raw_csv=args.raw_csv)
     from procmetrics.report.build import make_report  # heavy: imported when run
 
     files = make_report(args.store, args.out, opts)

@@ -26,6 +26,7 @@ from pathlib import Path
 from typing import Any
 
 from procmetrics.errors import StoreError
+from procmetrics.textsafe import neutralise_frame
 
 DATE_FORMAT = "%Y-%m-%dT%H:%M:%SZ"
 
@@ -50,7 +51,7 @@ def _out_dir(out: Path | str) -> Path:
 
 def _csv(df: Any, path: Path) -> Path:
     try:
-        df.to_csv(path, index=False, date_format=DATE_FORMAT)
+        neutralise_frame(df).to_csv(path, index=False, date_format=DATE_FORMAT)
     except OSError as exc:
         raise StoreError(f"cannot write {path}: {exc}") from exc
     return path

@@ -39,6 +39,8 @@ class ReportOptions:
     #: each side of the date (procmetrics.analyse.measures.selection)
     subsystem_limit: int = 12
     subsystem_min_commits: int = 30
+    #: exact text in tables/*.csv (no leading ' before cells that start like a formula)
+    raw_csv: bool = False
 
     def to_dict(self) -> dict[str, Any]:
         """Options that change figures (no local paths: those go in the manifest)."""
@@ -49,6 +51,7 @@ class ReportOptions:
             "min_n": self.min_n, "seed": self.seed,
             "subsystem_limit": self.subsystem_limit,
             "subsystem_min_commits": self.subsystem_min_commits,
+            **({"raw_csv": True} if self.raw_csv else {}),
         }
 
 

@@ -73,7 +73,8 @@ def _options(man: dict[str, Any]) -> ReportOptions:
                          min_n=int(o.get("min_n", 20)), seed=int(o.get("seed", 20240601)),
                          pdf_engine=o.get("pdf_engine", "auto"),
                          subsystem_limit=int(o.get("subsystem_limit", 12)),
-                         subsystem_min_commits=int(o.get("subsystem_min_commits", 30)))
+                         subsystem_min_commits=int(o.get("subsystem_min_commits", 30)),
+                         raw_csv=bool(o.get("raw_csv", False)))
 
 
 def _store_still_matches(url: str, repo: str | None, checksum: str) -> bool:
