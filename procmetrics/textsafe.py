@@ -95,3 +95,58 @@ def neutralise_frame(df: Any, *, raw: bool = False) -> Any:
         if s.dtype == object or str(s.dtype).startswith("string"):
             out[col] = s.map(lambda v: csv_text_cell(v) if isinstance(v, str) else v)
     return out
+
+
+# -- credentials in URLs -----------------------------------------------------------------
+#: query parameters whose value is a secret (compared case-insensitively)
+SECRET_PARAMS = frozenset({"password", "passwd", "pwd", "pass", "sslpassword", "token",
+                           "access_token", "auth_token", "api_key", "apikey", "secret",
+                           "client_secret", "sslkey_password", "private_key_passphrase"})
+_PARAM = re.compile(r"([?&;])([^=&;#]*)=([^&;#]*)")
+
+
+def _secrets(url: str) -> list[str]:
+    out: list[str] = []
+    if "://" not in url:
+        return out
+    tail = url.split("://", 1)[1]
+    head, _, query = tail.partition("?")
+    if "@" in head:
+        cred = head.rsplit("@", 1)[0]
+        if ":" in cred:
+            out.append(cred.split(":", 1)[1])
+    for _sep, key, value in _PARAM.findall("?" + query):
+        if key.strip().lower() in SECRET_PARAMS and value:
+            out.append(value)
+    return [s for s in out if s]
+
+
+def mask_url(url: str) -> str:
+    """``url`` with its credentials shown as ``***``: the password of the user-info part
+    and the value of every secret query parameter (``password``, ``sslpassword``,
+    ``token``, …). Used wherever a store URL is printed or stored (manifest.json)."""
+    if "://" not in url:
+        return url
+    scheme, tail = url.split("://", 1)
+    head, q, query = tail.partition("?")
+    if "@" in head:
+        cred, host = head.rsplit("@", 1)
+        user = cred.split(":", 1)[0]
+        head = f"{user}:***@{host}" if ":" in cred else f"{user}@{host}"
+    if q:
+        query = _PARAM.sub(lambda m: m.group(1) + m.group(2) + "=" + (
+            "***" if m.group(2).strip().lower() in SECRET_PARAMS and m.group(3)
+            else m.group(3)), "?" + query)[1:]
+    return f"{scheme}://{head}{q}{query}"
+
+
+def scrub_secrets(text: str, url: str) -> str:
+    """``text`` (an error message) without any credential of ``url``, raw or
+    percent-decoded, and without ``password=…`` pairs a driver may echo."""
+    from urllib.parse import unquote
+    for secret in sorted(set(_secrets(url)) | {unquote(s) for s in _secrets(url)},
+                         key=len, reverse=True):
+        if len(secret) >= 1:
+            text = text.replace(secret, "***")
+    return re.sub(r"(?i)\b(password|sslpassword|token)(\s*=\s*)('[^']*'|\S+)", r"\1\2***",
+                  text)

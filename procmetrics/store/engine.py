@@ -11,6 +11,7 @@ from sqlalchemy.exc import SQLAlchemyError
 
 from procmetrics.errors import SchemaError, StoreBusy, StoreError
 from procmetrics.store import schema
+from procmetrics.textsafe import mask_url, scrub_secrets
 
 DEFAULT_STORE_NAME = "procmetrics.sqlite"
 #: seconds a PostgreSQL connection attempt may take (unless the URL sets connect_timeout)
@@ -46,7 +47,7 @@ def open_store(store: str | os.PathLike[str] | None = None, *, create: bool = Tr
     """
     url = resolve_url(store)
     if url.startswith("sqlite:///"):
-        path = Path(url[len("sqlite:///"):])
+        path = Path(url[len("sqlite:///"):].split("?", 1)[0])
         if not path.exists():
             if not create or readonly:
                 raise StoreError(f"store not found: {path}")
@@ -71,11 +72,11 @@ def open_store(store: str | os.PathLike[str] | None = None, *, create: bool = Tr
         raise
     except StoreError as exc:       # from _as_store_error
         engine.dispose()
-        raise exc.__class__(f"cannot use store {_safe(url)}: {exc}") from exc
+        raise exc.__class__(f"cannot use store {_safe(url)}: {_scrub(str(exc), url)}") from exc
     except SQLAlchemyError as exc:
         engine.dispose()
         raise StoreError(f"cannot use store {_safe(url)}: {exc.__class__.__name__}: "
-                         f"{str(exc).splitlines()[0]}") from exc
+                         f"{_scrub(str(exc).splitlines()[0], url)}") from exc
     return engine
 
 
@@ -108,19 +109,13 @@ def _as_store_error(ctx) -> None:
 
 
 def _scrub(text: str, url: str) -> str:
-    """``text`` without the password of ``url``."""
-    m = re.search(r"://[^/@:]*:([^@/]+)@", url)
-    return text.replace(m.group(1), "***") if m else text
+    """``text`` without any credential of ``url`` (see :func:`procmetrics.textsafe.scrub_secrets`)."""
+    return scrub_secrets(text, url)
 
 
 def _safe(url: str) -> str:
-    """Hide a password in a URL before printing it."""
-    if "@" in url and "://" in url:
-        head, tail = url.split("://", 1)
-        cred, host = tail.rsplit("@", 1)
-        user = cred.split(":", 1)[0]
-        return f"{head}://{user}:***@{host}"
-    return url
+    """``url`` with its credentials masked (user-info password, secret query parameters)."""
+    return mask_url(url)
 
 
 def _schema_version(bind) -> tuple | None:
