@@ -15,7 +15,11 @@ def register(sub: argparse._SubParsersAction) -> None:
         "(the data behind each figure and table) and manifest.json (provenance and "
         "checksums). Figures the data cannot carry are flagged automatically.")
     add_store_argument(p)
-    p.add_argument("--out", required=True, metavar="DIR", help="output folder (created)")
+    p.add_argument("--out", required=True, metavar="DIR",
+                   help="output folder: new or empty; an earlier report folder only with "
+                   "--overwrite (written beside it, then moved into place)")
+    p.add_argument("--overwrite", action="store_true",
+                   help="replace the earlier procmetrics report in --out as a whole")
     p.add_argument("--repo", metavar="NAME", help="repository in the store (needed when it "
                    "holds several)")
     p.add_argument("--policy-date", metavar="DATE|REV", dest="policy",
@@ -46,7 +50,7 @@ def run(args: argparse.Namespace) -> int:
                          pdf_engine=args.pdf_engine, raw_csv=args.raw_csv)
     from procmetrics.report.build import make_report  # heavy: imported when run
 
-    files = make_report(args.store, args.out, opts)
+    files = make_report(args.store, args.out, opts, overwrite=args.overwrite)
     print(f"report written to {files.html} (PDF: {files.pdf_engine}; "
           f"{len(files.csv)} tables; manifest {files.manifest.name})")
     return 0

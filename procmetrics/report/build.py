@@ -26,8 +26,9 @@ from procmetrics.store.repodata import StoreData, choose_repo, load_store_data, 
 from procmetrics.report.flags import store_flags
 from procmetrics.report.html import render_html
 from procmetrics.report.jsonout import write_json
-from procmetrics.report.manifest import build_manifest, read_manifest, write_manifest
+from procmetrics.report.manifest import build_manifest, write_manifest
 from procmetrics.report.model import PERIODS, Report, ReportOptions
+from procmetrics.report.outdir import check_target, fresh_folder
 from procmetrics.report.pdf import write_pdf
 from procmetrics.analyse.measures.periods import resolve_policy
 
@@ -76,52 +77,44 @@ class ReportFiles:
     pdf_engine: str
 
 
-def _clear_previous(out: Path) -> None:
-    """Remove the files a previous report wrote here (listed in its manifest), nothing else."""
-    old = out / "manifest.json"
-    if not old.exists():
-        return
-    try:
-        names = read_manifest(old).get("outputs", {})
-    except ConfigError:
-        return
-    for name in names:
-        p = (out / name).resolve()
-        if out.resolve() in p.parents and p.is_file():
-            p.unlink()
-    old.unlink()
+def write_report(report: Report, out: Path, *, manifest_info: dict[str, Any],
+                 overwrite: bool = False, adopt: tuple[str, ...] = ()) -> ReportFiles:
+    """Write the audit folder; ``manifest_info`` carries store URL, dialect, mining runs.
+
+    The files are written into a fresh folder beside ``out`` that then replaces it
+    (:mod:`procmetrics.report.outdir`): an earlier report is replaced only with
+    ``overwrite``, any other non-empty folder is refused.
+    """
+    out = Path(out).absolute()
+    with fresh_folder(out, overwrite=overwrite, adopt=adopt) as tmp:
+        prepared = dt.datetime.now(dt.timezone.utc).replace(microsecond=0)
+        csv_names = write_csvs(report, tmp)
+        write_json(report, tmp / "report.json", csv_names)
+        html_path = tmp / "report.html"
+        html_path.write_text(render_html(report, csv_names=csv_names,
+                                         prepared=f"{prepared:%Y-%m-%d}"), encoding="utf-8")
+        pdf = write_pdf(report, html_path, tmp / "report.pdf", csv_names=csv_names,
+                        prepared=f"{prepared:%Y-%m-%d}", engine=report.options.pdf_engine)
+        written = sorted(set(csv_names.values()) | {"report.json", "report.html"}
+                         | ({"report.pdf"} if pdf["engine"] != "none" else set()))
+        manifest = build_manifest(out=tmp, written=written, options=report.options,
+                                  store_checksum=report.store_checksum, pdf=pdf,
+                                  prepared=prepared.isoformat(), **manifest_info)
+        write_manifest(manifest, tmp)
+    return ReportFiles(out, out / "report.html",
+                       out / "report.pdf" if pdf["engine"] != "none" else None,
+                       out / "report.json", out / "manifest.json",
+                       tuple(out / n for n in sorted(csv_names.values())), pdf["engine"])
 
 
-def write_report(report: Report, out: Path, *, manifest_info: dict[str, Any]) -> ReportFiles:
-    """Write the audit folder; ``manifest_info`` carries store URL, dialect, mining runs."""
-    out.mkdir(parents=True, exist_ok=True)
-    _clear_previous(out)
-    prepared = dt.datetime.now(dt.timezone.utc).replace(microsecond=0)
-    csv_names = write_csvs(report, out)
-    json_path = write_json(report, out / "report.json", csv_names)
-    html_path = out / "report.html"
-    html_path.write_text(render_html(report, csv_names=csv_names,
-                                     prepared=f"{prepared:%Y-%m-%d}"), encoding="utf-8")
-    pdf_path = out / "report.pdf"
-    pdf = write_pdf(report, html_path, pdf_path, csv_names=csv_names,
-                    prepared=f"{prepared:%Y-%m-%d}", engine=report.options.pdf_engine)
-    written = sorted(set(csv_names.values()) | {"report.json", "report.html"}
-                     | ({"report.pdf"} if pdf["engine"] != "none" else set()))
-    manifest = build_manifest(out=out, written=written, options=report.options,
-                              store_checksum=report.store_checksum, pdf=pdf,
-                              prepared=prepared.isoformat(), **manifest_info)
-    man_path = write_manifest(manifest, out)
-    return ReportFiles(out, html_path, pdf_path if pdf["engine"] != "none" else None,
-                       json_path, man_path, tuple(out / n for n in sorted(csv_names.values())),
-                       pdf["engine"])
-
-
-def make_report(store: str | None, out: str | Path, options: ReportOptions) -> ReportFiles:
+def make_report(store: str | None, out: str | Path, options: ReportOptions, *,
+                overwrite: bool = False, adopt: tuple[str, ...] = ()) -> ReportFiles:
     """Open the store, build the report and write the folder (the CLI's one call)."""
     from procmetrics.store import open_store, resolve_url
     from procmetrics.store.engine import _safe
     from procmetrics.store.schema import SCHEMA_VERSION
 
+    check_target(out, overwrite=overwrite, adopt=adopt)     # refuse before the long work
     claims = load_claims(options.claims_path) if options.claims_path else None
     engine = open_store(store, create=False, readonly=True)
     try:
@@ -144,7 +137,7 @@ def make_report(store: str | None, out: str | Path, options: ReportOptions) -> R
                         for r in runs.to_dict(orient="records")],
         "claims": None if claims is None else claims.to_dict(),
     }
-    return write_report(report, Path(out), manifest_info=info)
+    return write_report(report, Path(out), manifest_info=info, overwrite=overwrite, adopt=adopt)
 
 
 def _json_safe(v: Any) -> Any:

@@ -19,7 +19,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from procmetrics.errors import ConfigError, ProcmetricsError
+from procmetrics.errors import ConfigError, OutputPathError, ProcmetricsError
 from procmetrics.errors import EXIT_FIGURES_DIFFER
 from procmetrics.report.manifest import read_manifest, sha256_file
 from procmetrics.report.model import ReportOptions
@@ -155,7 +155,12 @@ def rerun(manifest_path: str | Path, out: str | Path | None = None) -> RerunResu
     if new_dir.resolve() == old_dir.resolve():
         raise ConfigError("the rerun folder must differ from the original report folder",
                           key="--out")
-    new_dir.mkdir(parents=True, exist_ok=True)
+    from procmetrics.report.outdir import check_target
+    check_target(new_dir, overwrite=True, adopt=("procmetrics.sqlite",))
+    try:
+        new_dir.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise OutputPathError(f"cannot create {new_dir}: {exc.strerror or exc}") from exc
     opts = _options(man)
     notes: list[str] = []
     claims = man.get("claims_file")
@@ -192,7 +197,10 @@ def rerun(manifest_path: str | Path, out: str | Path | None = None) -> RerunResu
         mine_repository(path, store=store_url,
                         options=_mine_options(run, mine_ref))
         remined = True
-    files = make_report(store_url, new_dir, opts)
+    # the rerun folder is this command's own: an earlier rerun there is replaced; a
+    # store re-mined into it moves into the new folder
+    files = make_report(store_url, new_dir, opts, overwrite=True,
+                        adopt=("procmetrics.sqlite",) if remined else ())
     new_man = json.loads(files.manifest.read_text("utf-8"))
     old_out, new_out = man.get("outputs", {}), new_man.get("outputs", {})
     compared = [n for n in sorted(set(old_out) | set(new_out))

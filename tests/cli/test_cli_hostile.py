@@ -32,3 +32,46 @@ def test_manifest_store_url_hides_query_credentials(mined, tmp_path, capsys):
     assert man["store"]["url"] == f"sqlite:///{store}?token=***&password=***"
     text = (out / "manifest.json").read_text() + capsys.readouterr().err
     assert "t0ken-m" not in text and "pw-m" not in text
+
+
+def _report(store, out, policy, *extra):
+    return main(["report", "--store", str(store), "--out", str(out), "--pdf-engine", "none",
+                 "--policy-date", policy, *map(str, extra)])
+
+
+def test_report_out_refuses_foreign_folders_and_never_follows_links(mined, tmp_path, capsys):
+    _, _, store, policy = mined
+    # a non-empty folder that is not a report: refused, untouched
+    other = tmp_path / "other"
+    other.mkdir()
+    (other / "notes.txt").write_text("mine\n")
+    assert _report(store, other, policy) == 2
+    assert "is not empty and is not a procmetrics report folder" in capsys.readouterr().err
+    assert sorted(p.name for p in other.iterdir()) == ["notes.txt"]
+    # a file, a device, '' : refused with exit 2
+    for bad in (tmp_path / "a-file", "/dev/null", ""):
+        if bad != "" and bad != "/dev/null":
+            bad.write_text("x")
+        assert _report(store, bad, policy) == 2, bad
+    # an earlier report with a planted link to an outside file and a stale file
+    out = tmp_path / "rep"
+    assert _report(store, out, policy) == 0
+    outside = tmp_path / "outside.txt"
+    outside.write_text("precious\n")
+    (out / "report.json").unlink()
+    (out / "report.json").symlink_to(outside)
+    (out / "tables" / "stale.csv").write_text("old\n")
+    assert _report(store, out, policy) == 2                      # needs --overwrite
+    assert "--overwrite" in capsys.readouterr().err
+    assert _report(store, out, policy, "--overwrite") == 0
+    assert outside.read_text() == "precious\n"                   # the link was not followed
+    assert not (out / "report.json").is_symlink()
+    assert not (out / "tables" / "stale.csv").exists()
+    man = json.loads((out / "manifest.json").read_text())
+    on_disk = {str(p.relative_to(out)) for p in out.rglob("*") if p.is_file()}
+    assert on_disk == set(man["outputs"]) | {"manifest.json"}
+    assert not [p for p in tmp_path.iterdir() if ".procmetrics-" in p.name or ".old-" in p.name]
+    # the folder itself a link: refused
+    link = tmp_path / "link"
+    link.symlink_to(out)
+    assert _report(store, link, policy, "--overwrite") == 2
