@@ -8,6 +8,7 @@ import numpy as np
 import pandas as pd
 
 from procmetrics.cli import add_store_argument
+from procmetrics.validate import arg, check_seed
 
 
 def add_series_arguments(p: argparse.ArgumentParser) -> None:
@@ -30,7 +31,7 @@ def add_series_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("--include-merges", action="store_true", help="count merge commits too")
     p.add_argument("--fix-keywords", action="store_true",
                    help="add fix_ratio_heuristic (subject keywords; flagged as heuristic)")
-    p.add_argument("--seed", type=int, default=20240601, help="random seed (bootstrap)")
+    p.add_argument("--seed", type=arg(check_seed, "--seed"), default=20240601, help="random seed (bootstrap)")
     p.add_argument("--out", metavar="DIR", help="write CSV/JSON and PNG+SVG figures here")
 
 

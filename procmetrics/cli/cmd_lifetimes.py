@@ -11,6 +11,7 @@ import pandas as pd
 from procmetrics.cli import add_store_argument
 from procmetrics.errors import StoreError
 from procmetrics.session import containment, links_from, load_tables
+from procmetrics.validate import arg, check_count, check_nonnegative_int, check_positive, check_seed
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -29,14 +30,14 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--by", choices=["subsystem", "period"], help="curves and summaries per group")
     p.add_argument("--change-date", metavar="DATE", help="periods = before/after DATE "
                    "(default: calendar years)")
-    p.add_argument("--horizon", type=float, metavar="N", help="common follow-up horizon for "
+    p.add_argument("--horizon", type=arg(check_positive, "--horizon"), metavar="N", help="common follow-up horizon for "
                    "comparisons, in days (in releases with --basis releases)")
     p.add_argument("--links-from", metavar="DATE|first|all", default="first",
                    help="start of the fix-linking era: defects introduced earlier are left "
                    "out (they are seen only when long-lived). 'first' (default) = the first "
                    "linked fix; 'all' keeps every introducer")
-    p.add_argument("--boot", type=int, default=200, metavar="B", help="bootstrap resamples")
-    p.add_argument("--seed", type=int, default=20240601, help="random seed (bootstrap)")
+    p.add_argument("--boot", type=arg(check_count, "--boot"), default=200, metavar="B", help="bootstrap resamples")
+    p.add_argument("--seed", type=arg(check_seed, "--seed"), default=20240601, help="random seed (bootstrap)")
     p.add_argument("--out", metavar="DIR", help="write JSON, CSV tables and figures here")
     g = p.add_argument_group("blame-based linking (heuristic, off by default)")
     g.add_argument("--szz", action="store_true", help="also blame fix commits without a "
@@ -50,11 +51,11 @@ def register(sub: argparse._SubParsersAction) -> None:
     g.add_argument("--szz-candidates", choices=["top", "all"], default="top",
                    help="per fix keep the commit owning most blamed lines (default) or "
                    "every blamed commit")
-    g.add_argument("--szz-check", type=int, default=50, metavar="N",
+    g.add_argument("--szz-check", type=arg(check_nonnegative_int, "--szz-check"), default=50, metavar="N",
                    help="also blame N fixes that do have a Fixes: link and report how often "
                    "the heuristic finds the introducer the developers named (default 50; 0: "
                    "skip)")
-    g.add_argument("--jobs", type=int, default=2, metavar="N", help="git blame processes "
+    g.add_argument("--jobs", type=arg(check_count, "--jobs"), default=2, metavar="N", help="git blame processes "
                    "at once (default 2)")
     p.set_defaults(func=run)
 

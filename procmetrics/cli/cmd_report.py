@@ -5,6 +5,7 @@ import argparse
 
 from procmetrics.cli import add_store_argument
 from procmetrics.report.model import PERIODS, ReportOptions
+from procmetrics.validate import arg, check_level, check_seed
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -30,9 +31,9 @@ def register(sub: argparse._SubParsersAction) -> None:
                    dest="subsystems", help="also show this subsystem on its own (repeatable)")
     p.add_argument("--period", choices=PERIODS, default="quarter",
                    help="period of the series (default: quarter; release = between tags)")
-    p.add_argument("--level", type=float, default=0.95,
+    p.add_argument("--level", type=arg(check_level, "--level"), default=0.95,
                    help="interval level (default 0.95)")
-    p.add_argument("--seed", type=int, default=ReportOptions.seed,
+    p.add_argument("--seed", type=arg(check_seed, "--seed"), default=ReportOptions.seed,
                    help="seed of the bootstrap resampling (recorded in the manifest)")
     p.add_argument("--pdf-engine", choices=["auto", "chromium", "fallback", "none"],
                    default="auto", help="auto: headless chromium when found, else a plain "

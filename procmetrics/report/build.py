@@ -29,6 +29,7 @@ from procmetrics.report.jsonout import write_json
 from procmetrics.report.manifest import build_manifest, write_manifest
 from procmetrics.report.model import PERIODS, Report, ReportOptions
 from procmetrics.report.outdir import check_target, fresh_folder
+from procmetrics.validate import check_level, check_seed
 from procmetrics.report.pdf import write_pdf
 from procmetrics.analyse.measures.periods import resolve_policy
 
@@ -115,6 +116,8 @@ def make_report(store: str | None, out: str | Path, options: ReportOptions, *,
     from procmetrics.store.schema import SCHEMA_VERSION
 
     check_target(out, overwrite=overwrite, adopt=adopt)     # refuse before the long work
+    check_level(options.level, "level")
+    check_seed(options.seed, "seed")
     claims = load_claims(options.claims_path) if options.claims_path else None
     engine = open_store(store, create=False, readonly=True)
     try:

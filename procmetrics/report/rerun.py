@@ -62,18 +62,33 @@ class RerunResult:
         return "\n".join(lines)
 
 
-def _options(man: dict[str, Any]) -> ReportOptions:
-    o = dict(man.get("report_options") or {})
+def _options(man: dict[str, Any], where: str | None = None) -> ReportOptions:
+    """The recorded report options, each number checked by the one validator the
+    command line uses (a tampered manifest ends in exit 2 naming the key)."""
+    from procmetrics.validate import check_count, check_level, check_seed
+
+    o = man.get("report_options") or {}
+    if not isinstance(o, dict):
+        raise ConfigError("must be an object", path=where, key="report_options")
     claims = (man.get("claims_file") or {}).get("path")
+
+    def num(check, key, default):
+        try:
+            return check(o.get(key, default), f"report_options.{key}")
+        except ConfigError as exc:
+            raise ConfigError(str(exc), path=where, key=f"report_options.{key}") from None
+
     return ReportOptions(repo=o.get("repo"), policy=o.get("policy"),
                          subsystems=tuple(o.get("subsystems") or ()),
                          period=o.get("period", "quarter"), claims_path=claims,
-                         level=float(o.get("level", 0.95)),
-                         unresolved_share_limit=float(o.get("unresolved_share_limit", 0.10)),
-                         min_n=int(o.get("min_n", 20)), seed=int(o.get("seed", 20240601)),
+                         level=num(check_level, "level", 0.95),
+                         unresolved_share_limit=num(check_level, "unresolved_share_limit",
+                                                    0.10),
+                         min_n=num(check_count, "min_n", 20),
+                         seed=num(check_seed, "seed", 20240601),
                          pdf_engine=o.get("pdf_engine", "auto"),
-                         subsystem_limit=int(o.get("subsystem_limit", 12)),
-                         subsystem_min_commits=int(o.get("subsystem_min_commits", 30)),
+                         subsystem_limit=num(check_count, "subsystem_limit", 12),
+                         subsystem_min_commits=num(check_count, "subsystem_min_commits", 30),
                          raw_csv=bool(o.get("raw_csv", False)))
 
 
@@ -161,7 +176,7 @@ def rerun(manifest_path: str | Path, out: str | Path | None = None) -> RerunResu
         new_dir.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
         raise OutputPathError(f"cannot create {new_dir}: {exc.strerror or exc}") from exc
-    opts = _options(man)
+    opts = _options(man, str(mpath))
     notes: list[str] = []
     claims = man.get("claims_file")
     if claims and claims.get("path"):
