@@ -27,7 +27,7 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    engine = open_store(args.store, create=False)
+    engine = open_store(args.store, create=False, readonly=True)
     df = read_table(engine, args.table, args.repo)
     if args.format == "parquet":
         if not args.output:

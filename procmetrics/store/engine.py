@@ -38,6 +38,40 @@ def _sqlite_pragmas(dbapi_conn, _record) -> None:  # pragma: no cover - trivial
     cur.close()
 
 
+def _sqlite_read_pragmas(dbapi_conn, _record) -> None:  # pragma: no cover - trivial
+    cur = dbapi_conn.cursor()
+    cur.execute("PRAGMA busy_timeout=30000")
+    cur.close()
+
+
+def _readonly_sqlite(path: Path):
+    """A connection factory for a SQLite file opened read-only (URI ``mode=ro``).
+
+    A WAL store whose folder is write-protected and which has no ``-shm`` file
+    cannot be opened with ``mode=ro`` alone (SQLite must create the shared-memory
+    file); then it is opened ``immutable=1``: nobody can be writing it, since a
+    writer would have to create the ``-wal`` file in that same folder.
+    """
+    import sqlite3
+    from urllib.parse import quote
+
+    uri = "file:" + quote(str(path), safe="/")
+
+    def connect():
+        try:
+            conn = sqlite3.connect(f"{uri}?mode=ro", uri=True, check_same_thread=False)
+            conn.execute("SELECT count(*) FROM sqlite_master").fetchone()
+            return conn
+        except sqlite3.OperationalError as exc:
+            if "unable to open" not in str(exc) and "readonly" not in str(exc):
+                raise
+            if os.access(path.parent, os.W_OK):
+                raise
+        return sqlite3.connect(f"{uri}?mode=ro&immutable=1", uri=True,
+                               check_same_thread=False)
+    return connect
+
+
 def open_store(store: str | os.PathLike[str] | None = None, *, create: bool = True,
                readonly: bool = False) -> Engine:
     """Open (and with ``create`` initialise) a store; check its schema version.
@@ -55,7 +89,11 @@ def open_store(store: str | os.PathLike[str] | None = None, *, create: bool = Tr
                 raise StoreError(f"cannot create store: folder {path.parent} does not exist")
         elif path.is_dir():
             raise StoreError(f"store path is a folder, not a file: {path}")
-    extra = {}
+    extra: dict = {}
+    if readonly and url.startswith("sqlite:///"):
+        # reading commands never write: SQLite opened read-only, so an archived,
+        # write-protected store (file and folder) can be read
+        extra["creator"] = _readonly_sqlite(Path(url[len("sqlite:///"):].split("?", 1)[0]))
     if url.split("://", 1)[0] in _LIBPQ_SCHEMES and "connect_timeout" not in url:
         extra["connect_args"] = {"connect_timeout": CONNECT_TIMEOUT}
     try:
@@ -63,7 +101,8 @@ def open_store(store: str | os.PathLike[str] | None = None, *, create: bool = Tr
     except (SQLAlchemyError, ImportError, ValueError) as exc:
         raise StoreError(f"cannot open store {_safe(url)}: {_scrub(str(exc), url)}") from exc
     if engine.dialect.name == "sqlite":
-        event.listen(engine, "connect", _sqlite_pragmas)
+        event.listen(engine, "connect", _sqlite_read_pragmas if "creator" in extra
+                     else _sqlite_pragmas)
     event.listen(engine, "handle_error", _as_store_error)
     try:
         _ensure_schema(engine, create=create and not readonly)
