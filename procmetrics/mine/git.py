@@ -120,8 +120,7 @@ class GitRepo:
                           check=False, extra_env=env)
         if proc.returncode != 0:
             err = proc.stderr.decode("utf-8", "replace").strip()
-            if "dubious ownership" in err:
-                raise NotARepository(f"{given}: git refuses to read it ({err.splitlines()[0]})")
+            _explain_refusal(given, err)
             raise NotARepository(f"{given} is not a git repository (give the top-level "
                                  "folder of a clone, or a bare repository)")
         lines = proc.stdout.decode("utf-8", "surrogateescape").splitlines()
@@ -310,3 +309,22 @@ def _failure(args: Sequence[str], code: int, stderr: bytes) -> str:
         detail += (" (a partial clone without these objects; procmetrics never fetches: "
                    "mine a full clone)")
     return f"git {args[0] if args else ''} failed (exit {code}): {detail}"
+
+
+def _explain_refusal(given: Path, err: str) -> None:
+    """Name what is wrong when git cannot open ``given``: a folder this user may not
+    read, or git's refusal of a repository owned by someone else (with the remedy).
+    Returns when neither applies (then the folder is simply not a repository)."""
+    import shlex
+
+    for folder in (given, given / ".git"):
+        if folder.is_dir() and not os.access(folder, os.R_OK | os.X_OK):
+            raise NotARepository(f"{folder}: permission denied: this user cannot read the "
+                                 "folder (check its owner and mode, e.g. ls -ld)")
+    first = err.splitlines()[0] if err else ""
+    if "dubious ownership" in err:
+        raise NotARepository(
+            f"{given}: git refuses to read a repository owned by another user ({first}); "
+            f"if you trust it: git config --global --add safe.directory {shlex.quote(str(given))}")
+    if "permission denied" in err.lower():
+        raise NotARepository(f"{given}: permission denied while git read it ({first})")

@@ -6,6 +6,7 @@ Every failure must be one ``procmetrics: error:`` line and a documented exit cod
 from __future__ import annotations
 
 import os
+import shutil
 import stat
 import subprocess
 from pathlib import Path
@@ -16,7 +17,8 @@ from procmetrics.store import open_store
 from procmetrics.store.tables import read_table
 from tests.git_support import BOB, when
 
-from tests.robustness.robust_support import assert_one_line_error, integrity_ok, tidy_tables
+from tests.robustness.robust_support import (assert_one_line_error, integrity_ok, run_procmetrics,
+                                              tidy_tables)
 
 
 def _small(h):
@@ -196,3 +198,39 @@ def test_git_missing_or_too_old(cli, git_history, tmp_path, monkeypatch):
     r = cli("mine", h.path, "--store", tmp_path / "s.sqlite")
     assert r.code == 3
     assert_one_line_error(r.err, "cannot read git's version")
+
+
+def test_unreadable_folder_is_named_not_called_a_non_repository(cli, git_history, tmp_path):
+    """A clone this user may not read: 'permission denied', exit 3 (as a user without
+    root's override: setpriv drops it in a child process)."""
+    h = _small(git_history())
+    os.chmod(h.path, 0)
+    try:
+        r = run_procmetrics("mine", h.path, "--store", tmp_path / "s.sqlite",
+                            honour_permissions=True)
+    finally:
+        os.chmod(h.path, 0o755)
+    assert r.returncode == 3, r.stderr
+    assert_one_line_error(r.stderr, "permission denied", str(h.path))
+    assert "is not a git repository" not in r.stderr
+
+
+def test_dubious_ownership_names_the_exact_remedy(cli, git_history, tmp_path, monkeypatch):
+    """git versions that ignore a command-line safe.directory refuse a clone owned by
+    another user; the message carries git's reason and the exact command that allows it.
+    (A wrapper stands in for such a git: it answers rev-parse with git's own refusal.)"""
+    h = _small(git_history())
+    real = shutil.which("git")
+    folder = tmp_path / "strict-bin"
+    folder.mkdir()
+    exe = folder / "git"
+    exe.write_text("#!/bin/sh\ncase \"$*\" in *rev-parse*)\n"
+                   f"  echo \"fatal: detected dubious ownership in repository at '{h.path}'\" >&2\n"
+                   "  exit 128;;\nesac\n"
+                   f"exec {real} \"$@\"\n")
+    exe.chmod(0o755)
+    monkeypatch.setenv("PATH", f"{folder}{os.pathsep}{os.environ['PATH']}")
+    r = cli("mine", h.path, "--store", tmp_path / "s.sqlite")
+    assert r.code == 3
+    assert_one_line_error(r.err, "dubious ownership",
+                          f"git config --global --add safe.directory {h.path}")
