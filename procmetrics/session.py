@@ -10,7 +10,7 @@ from typing import Any
 
 import pandas as pd
 
-from procmetrics.errors import ProcmetricsError, StoreError
+from procmetrics.errors import ConfigError, InsufficientData
 
 
 def load_tables(store: str | None, repo: str | None) -> tuple[dict[str, pd.DataFrame], str]:
@@ -22,10 +22,11 @@ def load_tables(store: str | None, repo: str | None) -> tuple[dict[str, pd.DataF
     try:
         repos = read_table(engine, "repositories", repo)
         if repos.empty:
-            raise StoreError(f"repository {repo!r} not in the store" if repo
-                             else "the store holds no repository: run 'procmetrics mine' first")
+            if repo:
+                raise ConfigError(f"repository {repo!r} is not in the store", key="--repo")
+            raise InsufficientData("the store holds no repository: run 'procmetrics mine' first")
         if repo is None and len(repos) > 1:
-            raise ProcmetricsError("the store holds several repositories ("
+            raise ConfigError("the store holds several repositories ("
                                    + ", ".join(repos["repo"]) + "); choose one with --repo")
         name = str(repos["repo"].iloc[0])
         tables = {t: read_table(engine, t, name) for t in
@@ -47,13 +48,23 @@ def containment(tables: dict[str, pd.DataFrame], commits: list[str],
     return tag_containment(path, commits, tags)
 
 
-def links_from(value: str | None) -> Any:
-    """``--links-from`` as :func:`procmetrics.analyse.lifetimes.defects.build_defects` takes it."""
+def links_from(value: str | None, tables: dict[str, Any] | None = None) -> Any:
+    """``--links-from`` as :func:`procmetrics.analyse.lifetimes.defects.build_defects` takes
+    it: ``first``, ``all``, or a date, tag or commit (the one date parser)."""
+    from procmetrics.analyse.measures.periods import resolve_when
     if value is None or value == "first":
         return "first_link"
     if value == "all":
         return None
-    try:
-        return pd.Timestamp(value)
-    except ValueError as exc:
-        raise ProcmetricsError(f"--links-from: not a date, 'first' or 'all': {value!r}") from exc
+    tables = tables or {}
+    return resolve_when(value, commits=tables.get("commits"), tags=tables.get("tags"),
+                        option="--links-from")
+
+
+def change_date(value: str | None, tables: dict[str, Any]) -> Any:
+    """``--change-date``: a date, tag or commit (the one date parser), or None."""
+    from procmetrics.analyse.measures.periods import resolve_when
+    if value is None:
+        return None
+    return resolve_when(value, commits=tables.get("commits"), tags=tables.get("tags"),
+                        option="--change-date")

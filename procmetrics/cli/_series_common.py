@@ -83,13 +83,15 @@ def print_caveats(caveats: Any, indent: str = "  ") -> None:
 def out_dir(args: argparse.Namespace) -> Any:
     from pathlib import Path
 
-    from procmetrics.errors import StoreError
+    from procmetrics.errors import OutputPathError
 
-    if not args.out:
+    if args.out is None:
         return None
+    if not args.out.strip():
+        raise OutputPathError("--out needs a folder name ('' would mean the current folder)")
     out = Path(args.out)
     try:
         out.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
-        raise StoreError(f"cannot create {out}: {exc}") from exc
+        raise OutputPathError(f"cannot create the folder {out}: {exc.strerror or exc}") from exc
     return out

@@ -29,7 +29,7 @@ def run(args: argparse.Namespace) -> int:
     from procmetrics.analyse.change.policy import DEFAULT_METRICS, compare_policy, resolve_date
 
     tables, name = common.load(args)
-    at = resolve_date(args.at, tables["commits"])
+    at = resolve_date(args.at, tables["commits"], tables["tags"])
     cfg = common.metric_config(args, tables)
     res = compare_policy(tables["commits"], tables["trailers"], at=at, tags=tables["tags"],
                          commit_subsystems=tables["commit_subsystems"] if cfg.subsystems

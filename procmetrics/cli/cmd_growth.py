@@ -46,7 +46,7 @@ def run(args: argparse.Namespace) -> int:
     table = build_defects(tables["fix_links"], commits=tables["commits"],
                           commit_subsystems=tables["commit_subsystems"], links_from=None)
     # ... but observation starts with the fix-linking era: before it no fix can be seen
-    era = links_from(args.links_from)
+    era = links_from(args.links_from, tables)
     if era is None:
         origin = tables["commits"]["committer_date"].min()
     elif isinstance(era, str):

@@ -9,8 +9,8 @@ import numpy as np
 import pandas as pd
 
 from procmetrics.cli import add_store_argument
-from procmetrics.errors import StoreError
-from procmetrics.session import containment, links_from, load_tables
+from procmetrics.errors import ConfigError
+from procmetrics.session import change_date, containment, links_from, load_tables
 from procmetrics.validate import arg, check_count, check_nonnegative_int, check_positive, check_seed
 
 
@@ -75,8 +75,9 @@ def run(args: argparse.Namespace) -> int:
     table = build_defects(links, basis=args.basis, commits=tables["commits"],
                           commit_subsystems=tables["commit_subsystems"],
                           trailers=tables["trailers"], tag_containment=cont,
-                          period_cuts=[args.change_date] if args.change_date else None,
-                          links_from=links_from(args.links_from))
+                          period_cuts=[change_date(args.change_date, tables)]
+                          if args.change_date else None,
+                          links_from=links_from(args.links_from, tables))
     res = analyse_lifetimes(table, by=args.by, horizon=args.horizon, n_boot=args.boot,
                             rng=np.random.default_rng(args.seed))
     print(f"{name}: {res.n_defects} defects ({res.n_negative_excluded} with negative lifetime "
@@ -135,7 +136,8 @@ def _heuristic(args: argparse.Namespace, tables: dict[str, pd.DataFrame],
         try:
             listed = Path(args.szz_commits).read_text().split()
         except OSError as exc:
-            raise StoreError(f"cannot read {args.szz_commits}: {exc}") from exc
+            raise ConfigError(f"cannot read the list: {exc.strerror or exc}",
+                              path=str(args.szz_commits)) from exc
     keywords = (tuple(k.strip() for k in args.szz_keywords.split(",") if k.strip())
                 if args.szz_keywords else DEFAULT_FIX_KEYWORDS)
     sel = select_unlinked_fixes(commits, links, keywords=keywords, hashes=listed)
@@ -155,7 +157,8 @@ def _heuristic(args: argparse.Namespace, tables: dict[str, pd.DataFrame],
                           "releases" else args.basis, commits=commits,
                           commit_subsystems=tables["commit_subsystems"],
                           trailers=tables["trailers"],
-                          period_cuts=[args.change_date] if args.change_date else None,
+                          period_cuts=[change_date(args.change_date, tables)]
+                          if args.change_date else None,
                           links_from=None,
                           link_source="blame-based (SZZ) candidate link")
     an = analyse_lifetimes(table, by=args.by, horizon=args.horizon, n_boot=args.boot,

@@ -288,6 +288,8 @@ def rules_mapper(path: str | Path) -> PathMapper:
         raise ConfigError(f"cannot read subsystem rules: {exc.strerror}", path=str(p)) from exc
     try:
         data = tomllib.loads(raw.decode("utf-8"))
+    except RecursionError as exc:
+        raise ConfigError("not usable TOML: nested too deeply", path=str(p)) from exc
     except (UnicodeDecodeError, tomllib.TOMLDecodeError) as exc:
         line = re.search(r"line (\d+)", str(exc))
         raise ConfigError(f"not valid TOML: {exc}", path=str(p),

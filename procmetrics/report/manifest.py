@@ -90,6 +90,8 @@ def read_manifest(path: Path) -> dict[str, Any]:
         data = json.loads(text)
     except json.JSONDecodeError as exc:
         raise ConfigError(f"not valid JSON: {exc.msg}", path=str(path), line=exc.lineno) from exc
+    except RecursionError as exc:
+        raise ConfigError("not usable JSON: nested too deeply", path=str(path)) from exc
     if not isinstance(data, dict) or data.get("format") != MANIFEST_FORMAT:
         raise ConfigError(f"not a procmetrics manifest (format {MANIFEST_FORMAT} expected)",
                           path=str(path), key="format")

@@ -160,7 +160,9 @@ def rerun(manifest_path: str | Path, out: str | Path | None = None) -> RerunResu
     old_dir = mpath.parent
     repo = man.get("repository") or {}
     runs = man.get("mining_runs") or []
-    if not runs:
+    if not isinstance(repo, dict):
+        raise ConfigError("must be an object", path=str(mpath), key="repository")
+    if not runs or not isinstance(runs, list) or not all(isinstance(r, dict) for r in runs):
         raise ConfigError("the manifest records no mining run", path=str(mpath),
                           key="mining_runs")
     last = [r for r in runs if r.get("status") == "complete"][-1:] or runs[-1:]
@@ -186,7 +188,11 @@ def rerun(manifest_path: str | Path, out: str | Path | None = None) -> RerunResu
                               path=str(cp), key="claims_file")
         if sha256_file(cp) != claims.get("sha256"):
             notes.append(f"the claims file {cp} changed since the report was made")
-    store = man["store"]
+    store = man.get("store")
+    if not isinstance(store, dict) or not isinstance(store.get("url"), str) \
+            or not isinstance(store.get("checksum_sha256"), str):
+        raise ConfigError("the manifest records no store (url and checksum_sha256)",
+                          path=str(mpath), key="store")
     head_moved = None
     remined = False
     if _store_still_matches(store["url"], opts.repo, store["checksum_sha256"]):

@@ -196,7 +196,11 @@ def _ensure_schema(engine: Engine, *, create: bool) -> None:
                 break
     if row is None:
         raise SchemaError("store has no schema version")
-    found = int(row[0])
+    try:
+        found = int(str(row[0]).strip())
+    except ValueError:
+        raise SchemaError(f"the store's schema version {str(row[0])[:40]!r} is not a number: "
+                          "not a procmetrics store, or a damaged one") from None
     if found > schema.SCHEMA_VERSION:
         raise SchemaError(
             f"store was written by a newer procmetrics (schema {found}, this one knows "
