@@ -16,7 +16,7 @@ from typing import Any
 
 import pandas as pd
 
-from procmetrics.errors import ConfigError, ProcmetricsError
+from procmetrics.errors import ConfigError, InsufficientData, ProcmetricsError
 from procmetrics.analyse.measures import quality as ql
 from procmetrics.report import sec_claims, sec_compare, sec_defects, sec_process, sec_scope
 from procmetrics.claims.reader import ClaimsFile, load_claims
@@ -126,6 +126,7 @@ def make_report(store: str | None, out: str | Path, options: ReportOptions, *,
         dialect = engine.dialect.name
     finally:
         engine.dispose()
+    _require_something_to_measure(data, repo)
     opts = options if options.repo == repo else ReportOptions(
         **{**options.__dict__, "repo": repo})
     report = build_report(data, opts, claims=claims)
@@ -141,6 +142,17 @@ def make_report(store: str | None, out: str | Path, options: ReportOptions, *,
         "claims": None if claims is None else claims.to_dict(),
     }
     return write_report(report, Path(out), manifest_info=info, overwrite=overwrite, adopt=adopt)
+
+
+def _require_something_to_measure(data: Any, repo: str) -> None:
+    """The rule of series/compare/changes: no non-merge commit with a date -> exit 7."""
+    commits = data["commits"]
+    merge = commits["is_merge"].fillna(False).astype(bool) if "is_merge" in commits \
+        else pd.Series(False, index=commits.index)
+    dated = commits["committer_date"].notna() | commits["author_date"].notna()
+    if not (~merge & dated).any():
+        raise InsufficientData(f"{repo}: no (non-merge) commits with a date to measure "
+                               f"({len(commits)} stored commit(s)); nothing to report")
 
 
 def _json_safe(v: Any) -> Any:

@@ -221,3 +221,20 @@ def test_deeply_nested_files_exit_2(small, tmp_path, capsys):
     assert code == 2, err
     man.write_text(json.dumps({"format": "procmetrics-manifest/1", "mining_runs": "x"}))
     assert _code(["rerun", man], capsys)[0] == 2
+
+
+def test_nothing_to_measure_is_exit_7_for_report_as_for_series(small, tmp_path, capsys):
+    """A store whose run kept no commit (--since after the history): every reading
+    command that measures exits 7 with one line; report writes nothing (no NaT text)."""
+    _, h, _, _ = small
+    store = tmp_path / "empty.sqlite"
+    assert main(["mine", str(h.path), "--store", str(store), "--since", "2099-01-01",
+                 "--no-progress"]) == 0
+    out = tmp_path / "rep"
+    for argv in (["series", "--store", store], ["changes", "--store", store],
+                 ["compare", "--store", store, "--at", "2020-10-01"],
+                 ["report", "--store", store, "--out", out, "--pdf-engine", "none"]):
+        code, err = _code(argv, capsys)
+        assert code == 7, (argv, err)
+        assert "NaT" not in err and err.count("\n") == 1, err
+    assert not out.exists()
