@@ -45,6 +45,8 @@ import sys
 import time
 import warnings
 from contextlib import contextmanager
+from pathlib import Path
+from typing import Any, Sequence
 from importlib import metadata
 from urllib.parse import urlsplit, urlunsplit
 
@@ -62,7 +64,7 @@ from procmetrics.mine.subsystems import (
 )
 from procmetrics.mine.tags import read_tags
 from procmetrics.mine.trailers import parse_trailers, split_person
-from procmetrics.store import open_store
+from procmetrics.store import open_store, resolve_url
 from procmetrics.store.runlock import repository_lock
 from procmetrics.store.writer import CommitRow, StoreWriter, TrailerRow
 
@@ -90,6 +92,8 @@ def mine_repository(path: str | os.PathLike[str], store: str | os.PathLike[str] 
                       "is missing, so counts, fix links and lifetimes are incomplete",
                       DataQualityWarning, stacklevel=2)
     mapper = build_mapper(git, tip, opts)
+    if not isinstance(store, Engine):
+        refuse_store_inside(store, [git.path, git.git_dir])
     engine = store if isinstance(store, Engine) else open_store(store)
     writer = StoreWriter(engine)
     name = opts.repo_name or default_repo_name(git)
@@ -336,6 +340,25 @@ def _map_paths(writer: StoreWriter, repo_id: int, run_id: int, mapper: PathMappe
     for i in range(0, len(paths), chunk):        # bounded memory on large histories
         part = paths[i:i + chunk]
         writer.add_path_subsystems(repo_id, list(zip(part, mapper.map_many(part))))
+
+
+def refuse_store_inside(store: Any, repositories: Sequence[Any]) -> None:
+    """Refuse a SQLite store (given, or the default ``./procmetrics.sqlite``) that lies
+    inside a repository being mined: the mined repository is read-only to us, and a
+    store there would even show up in the work tree (``git status``)."""
+    url = resolve_url(store)
+    if not url.startswith("sqlite:///"):
+        return
+    path = Path(url[len("sqlite:///"):].split("?", 1)[0])
+    for repo in repositories:
+        top = Path(repo).expanduser().resolve()
+        if path == top or top in path.parents:
+            what = "the default store ./procmetrics.sqlite" if store is None \
+                else f"the store {path}"
+            raise ConfigError(f"{what} would be written inside the mined repository {top}; "
+                              "procmetrics never writes there: give --store outside it "
+                              f"(e.g. --store {top.parent / 'procmetrics.sqlite'})",
+                              key="--store")
 
 
 def default_repo_name(git: GitRepo) -> str:

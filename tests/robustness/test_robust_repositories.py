@@ -234,3 +234,23 @@ def test_dubious_ownership_names_the_exact_remedy(cli, git_history, tmp_path, mo
     assert r.code == 3
     assert_one_line_error(r.err, "dubious ownership",
                           f"git config --global --add safe.directory {h.path}")
+
+
+def test_default_store_is_never_written_inside_the_mined_repository(git_history, tmp_path,
+                                                                     monkeypatch):
+    """`cd clone && procmetrics mine .` would create procmetrics.sqlite (and its lock) in
+    the work tree: refused with exit 2 and the reason; the work tree stays clean. An
+    explicit --store inside the repository (or its .git) is refused the same way."""
+    h = _small(git_history())
+    before = h.git("status", "--porcelain", "--ignored")
+    files = sorted(p.name for p in h.path.iterdir())
+    monkeypatch.chdir(h.path)
+    monkeypatch.delenv("PROCMETRICS_STORE", raising=False)
+    for argv in (["mine", "."], ["mine", ".", "--store", str(h.path / ".git" / "s.sqlite")],
+                 ["mine", str(h.path), str(tmp_path), "--store", str(h.path / "x.sqlite")]):
+        r = run_procmetrics(*argv, cwd=h.path)
+        assert r.returncode == 2, r.stderr
+        assert_one_line_error(r.stderr, "inside the mined repository", "--store")
+    assert sorted(p.name for p in h.path.iterdir()) == files
+    assert h.git("status", "--porcelain", "--ignored") == before
+    assert not list((h.path / ".git").glob("s.sqlite*"))
