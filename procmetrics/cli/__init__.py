@@ -14,6 +14,7 @@ from typing import Sequence
 
 from procmetrics import __version__
 from procmetrics.errors import ProcmetricsError
+from procmetrics.cli.warnlines import warning_lines
 from procmetrics.textsafe import PrintableStream
 
 # Order is the order shown in --help.
@@ -43,7 +44,8 @@ def main(argv: Sequence[str] | None = None) -> int:
     saved = sys.stdout, sys.stderr
     sys.stdout, sys.stderr = PrintableStream(saved[0]), PrintableStream(saved[1])
     try:
-        return _main(argv)
+        with warning_lines():        # warnings: one line each (procmetrics.cli.warnlines)
+            return _main(argv)
     finally:
         sys.stdout, sys.stderr = saved
 

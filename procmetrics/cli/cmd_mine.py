@@ -73,8 +73,6 @@ def run(args: argparse.Namespace) -> int:
           f"{fx.get('unresolved', 0)}, ambiguous {fx.get('ambiguous', 0)}, self "
           f"{fx.get('self', 0)}), {s.unparsed} unparsed, {s.reverts} reverts, {s.tags} tags")
     print(f"subsystems: {s.mapping_kind} ({s.mapping_source})")
-    if s.is_shallow:
-        print("warning: shallow clone - history before the shallow boundary is missing")
     return 0
 
 

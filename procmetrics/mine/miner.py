@@ -88,8 +88,8 @@ def mine_repository(path: str | os.PathLike[str], store: str | os.PathLike[str] 
     tip = git.resolve_commit(opts.ref)
     shallow = git.is_shallow()
     if shallow:
-        warnings.warn(f"{git.path} is a shallow clone: history before the shallow boundary "
-                      "is missing, so counts, fix links and lifetimes are incomplete",
+        warnings.warn(f"shallow clone: {git.path} lacks the history before its shallow "
+                      "boundary, so counts, fix links and lifetimes are incomplete",
                       DataQualityWarning, stacklevel=2)
     mapper = build_mapper(git, tip, opts)
     if not isinstance(store, Engine):

@@ -129,7 +129,7 @@ def make_report(store: str | None, out: str | Path, options: ReportOptions, *,
     _require_something_to_measure(data, repo)
     opts = options if options.repo == repo else ReportOptions(
         **{**options.__dict__, "repo": repo})
-    report = build_report(data, opts, claims=claims)
+    report, library_warnings = _build_recording_warnings(data, opts, claims)
     repos = data["repositories"]
     runs = data["mining_runs"].sort_values("run_id")
     info = {
@@ -140,8 +140,30 @@ def make_report(store: str | None, out: str | Path, options: ReportOptions, *,
         "mining_runs": [{k: _json_safe(v) for k, v in r.items()}
                         for r in runs.to_dict(orient="records")],
         "claims": None if claims is None else claims.to_dict(),
+        "library_warnings": library_warnings,
     }
     return write_report(report, Path(out), manifest_info=info, overwrite=overwrite, adopt=adopt)
+
+
+def _build_recording_warnings(data: Any, opts: ReportOptions, claims: Any
+                              ) -> tuple[Report, list[dict[str, Any]]]:
+    """Build the report; numerical warnings of libraries (numpy, statsmodels, matplotlib
+    ...) are recorded for the manifest instead of reaching the console, ours are
+    passed on (the CLI prints them as one line each)."""
+    import warnings
+    from collections import Counter
+    from procmetrics.errors import ProcmetricsWarning
+
+    with warnings.catch_warnings(record=True) as caught:
+        report = build_report(data, opts, claims=claims)
+    library: Counter = Counter()
+    for w in caught:
+        if issubclass(w.category, ProcmetricsWarning):
+            warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
+        else:
+            library[(w.category.__name__, " ".join(str(w.message).split()))] += 1
+    return report, [{"category": c, "message": m, "count": n}
+                    for (c, m), n in sorted(library.items())]
 
 
 def _require_something_to_measure(data: Any, repo: str) -> None:

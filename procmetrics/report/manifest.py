@@ -54,7 +54,8 @@ def output_checksums(out: Path, names: list[str]) -> dict[str, str]:
 def build_manifest(*, out: Path, written: list[str], options: ReportOptions, store_url: str, dialect: str,
                    schema_version: int, store_checksum: str, repository: dict[str, Any],
                    mining_runs: list[dict[str, Any]], pdf: dict[str, Any], prepared: str,
-                   claims: dict[str, Any] | None) -> dict[str, Any]:
+                   claims: dict[str, Any] | None,
+                   library_warnings: list[dict[str, Any]] | None = None) -> dict[str, Any]:
     return {
         "format": MANIFEST_FORMAT,
         "prepared_utc": prepared,
@@ -71,6 +72,9 @@ def build_manifest(*, out: Path, written: list[str], options: ReportOptions, sto
         "pdf": pdf,
         "versions": versions(),
         "outputs": output_checksums(out, written),
+        # numerical warnings of libraries while the report was built (not shown on the
+        # console): category, message, how often
+        "library_warnings": list(library_warnings or []),
     }
 
 

@@ -30,8 +30,13 @@ def test_manifest_store_url_hides_query_credentials(mined, tmp_path, capsys):
     assert code == 0, capsys.readouterr().err
     man = json.loads((out / "manifest.json").read_text())
     assert man["store"]["url"] == f"sqlite:///{store}?token=***&password=***"
-    text = (out / "manifest.json").read_text() + capsys.readouterr().err
+    err = capsys.readouterr().err
+    text = (out / "manifest.json").read_text() + err
     assert "t0ken-m" not in text and "pw-m" not in text
+    # library numerical warnings are recorded in the manifest, not printed
+    assert "Warning:" not in err and "warnings.warn" not in err
+    assert isinstance(man["library_warnings"], list)
+    assert all(set(w) == {"category", "message", "count"} for w in man["library_warnings"])
 
 
 def _report(store, out, policy, *extra):
