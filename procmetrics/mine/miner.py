@@ -108,6 +108,8 @@ def mine_repository(path: str | os.PathLike[str], store: str | os.PathLike[str] 
                                                           env, opts):
             writer.delete_repository_data(repo_id, "re-mined: the .mailmap changed")
             base = None
+        if base is not None:
+            _check_rules_change(writer.mapping_of(repo_id), mapper, opts)
         run_id = writer.start_run(repo_id, ref=opts.ref, head_hash=tip, base_hash=base,
                                   is_shallow=shallow, options_json=opts.to_json(),
                                   versions_json=json.dumps(env, sort_keys=True))
@@ -399,6 +401,30 @@ def _identity_mapping_changed(previous: list[str], env: dict[str, str],
                   "identities; run again with --rewrite-policy remine to map every commit "
                   "the same way", DataQualityWarning, stacklevel=3)
     return False
+
+
+def _check_rules_change(stored: tuple[str, str] | None, mapper: PathMapper,
+                        opts: MineOptions) -> None:
+    """A subsystem rules file given for the first time, changed or dropped would remap
+    every stored path (earlier subsystem claims would then be judged against another
+    mapping): refused unless ``--rewrite-policy remine`` asks for it (then a warning).
+    A new MAINTAINERS blob at a new tip is the repository's own change and is followed."""
+    if stored is None or stored[0] is None or stored == (mapper.kind, mapper.source):
+        return
+    if "rules" not in (stored[0], mapper.kind):
+        return
+    if stored[0] == mapper.kind == "rules" and \
+            str(stored[1]).rsplit("sha256:", 1)[-1] == mapper.source.rsplit("sha256:", 1)[-1]:
+        return              # the same rules (same content), perhaps from another path
+    change = (f"from {stored[0]} ({stored[1]}) to {mapper.kind} ({mapper.source})")
+    if opts.rewrite_policy == "remine":
+        warnings.warn(f"the subsystem mapping changes {change}: every stored path is mapped "
+                      "again (--rewrite-policy remine)", DataQualityWarning, stacklevel=3)
+        return
+    raise ConfigError(f"the subsystem mapping would change {change}, remapping every commit "
+                      "stored earlier; give the same --subsystem-rules as before, or "
+                      "--rewrite-policy remine to map the whole store again",
+                      key="--subsystem-rules")
 
 
 def environment(git: GitRepo, tip: str) -> dict[str, str]:

@@ -257,3 +257,35 @@ def test_default_store_is_never_written_inside_the_mined_repository(git_history,
     assert sorted(p.name for p in h.path.iterdir()) == files
     assert h.git("status", "--porcelain", "--ignored") == before
     assert not list((h.path / ".git").glob("s.sqlite*"))
+
+
+def test_a_new_subsystem_rules_file_needs_remine(git_history, tmp_path, cli):
+    """Re-mining with a rules file the store was not mapped with would remap every stored
+    commit: exit 2 naming --rewrite-policy remine, store unchanged; with remine it maps
+    again (with a warning); the same rules from another path are accepted."""
+    h = _small(git_history())
+    store = tmp_path / "s.sqlite"
+    assert cli("mine", h.path, "--store", store).code == 0
+    before = read_table(open_store(store), "commit_subsystems")
+    rules = tmp_path / "rules.toml"
+    rules.write_text('[subsystems]\nalpha = "a/"\n')
+    h.commit("a: more\n", files={"a/new.txt": "n\n"}, date=when(40))
+    r = cli("mine", h.path, "--store", store, "--subsystem-rules", rules)
+    assert r.code == 2
+    assert_one_line_error(r.err, "subsystem mapping would change", "--rewrite-policy remine")
+    pd_equal = read_table(open_store(store), "commit_subsystems").equals(before)
+    assert pd_equal
+    with pytest.warns(Warning, match="mapped again"):
+        r = cli("mine", h.path, "--store", store, "--subsystem-rules", rules,
+                "--rewrite-policy", "remine")
+    assert r.code == 0, r.err
+    fresh = tmp_path / "fresh.sqlite"           # oracle: a first run with the rules
+    assert cli("mine", h.path, "--store", fresh, "--subsystem-rules", rules).code == 0
+    got = read_table(open_store(store), "commit_subsystems")
+    want = read_table(open_store(fresh), "commit_subsystems")
+    assert "alpha" in set(got["subsystem"])
+    assert sorted(map(tuple, got[["hash", "subsystem"]].to_numpy())) == \
+        sorted(map(tuple, want[["hash", "subsystem"]].to_numpy()))
+    moved = tmp_path / "elsewhere.toml"
+    moved.write_text(rules.read_text())
+    assert cli("mine", h.path, "--store", store, "--subsystem-rules", moved).code == 0
