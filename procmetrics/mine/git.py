@@ -99,10 +99,16 @@ class GitRepo:
     # (an edited .mailmap or .gitattributes, uncommitted files) changes what is mined.
     # Identities are mapped by the .mailmap committed at this revision (HEAD by default).
     mailmap_rev: str | None = None
+    # True when that .mailmap's blob is absent (a partial clone): identities unmapped
+    mailmap_absent: bool = False
 
     def at_revision(self, rev: str) -> "GitRepo":
         """The same repository with identities mapped by ``rev``'s ``.mailmap``."""
         return replace(self, mailmap_rev=rev)
+
+    def without_mailmap(self) -> "GitRepo":
+        """The same repository with no identity mapping (its .mailmap blob is absent)."""
+        return replace(self, mailmap_absent=True)
 
     # -- construction -------------------------------------------------------------------
     @classmethod
@@ -146,7 +152,8 @@ class GitRepo:
                "-c", f"safe.directory={self.path}", "-c", f"safe.directory={self.git_dir}"]
         if isolated:
             cmd += ["--git-dir", str(self.git_dir), "-c", "core.bare=true",
-                    "-c", f"mailmap.blob={self.mailmap_rev}:.mailmap"]
+                    "-c", "mailmap.blob=" if self.mailmap_absent
+                    else f"mailmap.blob={self.mailmap_rev}:.mailmap"]
         for item in _PINNED_CONFIG:
             cmd += ["-c", item]
         return cmd + list(args)
@@ -235,6 +242,22 @@ class GitRepo:
             return proc.returncode == 0
         return False
 
+    def is_partial_clone(self) -> bool:
+        """True for a partial clone made with ``git clone --filter=...``: its packs are
+        marked ``.promisor`` or a remote records the filter. (A promisor remote set by
+        hand, with every object present or a few missing, is mined as a full clone:
+        a missing object is then named with its commit and path.)"""
+        if any((self.git_dir / "objects" / "pack").glob("*.promisor")):
+            return True
+        proc = self._run(["config", "--get-regexp", r"^remote\..*\.partialclonefilter$"],
+                         check=False)
+        return proc.returncode == 0 and bool(proc.stdout.strip())
+
+    def has_object(self, oid: str) -> bool:
+        """True when ``oid`` is in the object store (never fetched: GIT_NO_LAZY_FETCH and
+        no transport allowed)."""
+        return self._run(["cat-file", "-e", oid], check=False).returncode == 0
+
     def config_value(self, key: str) -> str | None:
         proc = self._run(["config", "--get", key], check=False)
         return proc.stdout.decode("utf-8", "replace").strip() if proc.returncode == 0 else None
@@ -245,9 +268,19 @@ class GitRepo:
         if proc.returncode != 0:
             return None
         blob = proc.stdout.decode("ascii").strip()
+        if not self.has_object(blob):
+            raise ObjectAbsent(blob, f"{commit}:{path}")
         if self.text("cat-file", "-t", blob).strip() != "blob":
             return None
         return blob, self._run(["cat-file", "blob", blob]).stdout
+
+
+class ObjectAbsent(GitFailed):
+    """An object the tree names is not in the clone (partial or damaged clone)."""
+
+    def __init__(self, oid: str, where: str) -> None:
+        super().__init__(f"object {oid} ({where}) is not in the clone")
+        self.oid, self.where = oid, where
 
 
 def _widen_pipe(out) -> None:

@@ -53,8 +53,9 @@ from urllib.parse import urlsplit, urlunsplit
 from sqlalchemy.engine import Engine
 
 from procmetrics import __version__
-from procmetrics.errors import ConfigError, DataQualityWarning, HistoryRewritten
-from procmetrics.mine.git import GitRepo
+from procmetrics.errors import ConfigError, DataQualityWarning, GitFailed, HistoryRewritten
+from procmetrics.mine.git import GitRepo, ObjectAbsent
+from procmetrics.mine.partial import PARTIAL_NOTE, explain_missing_object, paths_only as _paths_only
 from procmetrics.mine.logstream import LogCommit, date_filter_args, log_args, parse_log
 from procmetrics.mine.options import CONTENT_OPTIONS, MineOptions, MiningSummary
 from procmetrics.mine.references import scan_message
@@ -87,6 +88,9 @@ def mine_repository(path: str | os.PathLike[str], store: str | os.PathLike[str] 
     git = GitRepo.open(path)
     tip = git.resolve_commit(opts.ref)
     shallow = git.is_shallow()
+    partial = git.is_partial_clone()
+    if partial:
+        git, opts = _paths_only(git, tip, opts)
     if shallow:
         warnings.warn(f"shallow clone: {git.path} lacks the history before its shallow "
                       "boundary, so counts, fix links and lifetimes are incomplete",
@@ -115,7 +119,11 @@ def mine_repository(path: str | os.PathLike[str], store: str | os.PathLike[str] 
                                   versions_json=json.dumps(env, sort_keys=True))
         try:
             with _few_collections():
-                counts = _load(git, writer, repo_id, run_id, tip, base, opts)
+                try:
+                    counts = _load(git, writer, repo_id, run_id, tip, base, opts,
+                                   exact_renames=partial)
+                except GitFailed as exc:
+                    raise GitFailed(explain_missing_object(git, tip, str(exc), opts)) from exc
                 resolve_links(git, writer, repo_id, run_id, tip)
                 writer.replace_tags(repo_id, read_tags(git))
                 _map_paths(writer, repo_id, run_id, mapper)
@@ -124,7 +132,9 @@ def mine_repository(path: str | os.PathLike[str], store: str | os.PathLike[str] 
                                 remote_url=redact_url(git.config_value("remote.origin.url")),
                                 is_shallow=shallow, mapping_kind=mapper.kind,
                                 mapping_source=mapper.source, counts=counts,
-                                message="shallow clone" if shallow else None)
+                                message="; ".join(m for m in (
+                                    "shallow clone" if shallow else "",
+                                    PARTIAL_NOTE if partial else "") if m) or None)
         except BaseException as exc:
             try:
                 writer.fail_run(run_id, f"{exc.__class__.__name__}: {exc}")
@@ -205,7 +215,7 @@ def commit_row(c: LogCommit) -> CommitRow:
 
 
 def _load(git: GitRepo, writer: StoreWriter, repo_id: int, run_id: int, tip: str,
-          base: str | None, opts: MineOptions) -> dict[str, int]:
+          base: str | None, opts: MineOptions, exact_renames: bool = False) -> dict[str, int]:
     counts = {"n_commits": 0, "n_file_changes": 0, "n_trailers": 0, "n_fix_refs": 0}
     if base == tip:
         return counts
@@ -226,6 +236,7 @@ def _load(git: GitRepo, writer: StoreWriter, repo_id: int, run_id: int, tip: str
         batch: list[CommitRow] = []
         for part_tip, excluded in history_parts(git, tip, base):
             args = log_args(part_tip, excluded, line_counts=opts.line_counts,
+                            exact_renames=exact_renames,
                             merge_files=opts.merge_files, since=since, until=until)
             for c in parse_log(git.stream(args)):
                 batch.append(commit_row(c))
@@ -308,7 +319,14 @@ def build_mapper(git: GitRepo, tip: str, opts: MineOptions) -> PathMapper:
     if opts.subsystem_rules:
         return rules_mapper(opts.subsystem_rules)
     if opts.use_maintainers:
-        found = git.blob_at(tip, MAINTAINERS_FILE)
+        try:
+            found = git.blob_at(tip, MAINTAINERS_FILE)
+        except ObjectAbsent as exc:
+            warnings.warn(f"partial clone: the {MAINTAINERS_FILE} file's blob {exc.oid[:12]} is "
+                          "not in the clone (nothing is fetched): subsystems come from path "
+                          "prefixes instead; give --subsystem-rules for another mapping",
+                          DataQualityWarning, stacklevel=3)
+            found = None
         if found is not None:
             blob, data = found
             return maintainers_mapper(data.decode("utf-8", "replace"),
@@ -431,7 +449,17 @@ def environment(git: GitRepo, tip: str) -> dict[str, str]:
     """Tool versions plus the identity mapping git applied (the ``.mailmap`` committed
     at the revision ``git.mailmap_rev``, HEAD by default; never the work tree's)."""
     out = versions(git)
-    found = git.blob_at(git.mailmap_rev or "HEAD", ".mailmap")
+    try:
+        found = None if git.mailmap_absent else git.blob_at(git.mailmap_rev or "HEAD",
+                                                            ".mailmap")
+    except ObjectAbsent as exc:
+        found = None
+        git = git.without_mailmap()
+        out["identity_mapping"] = f".mailmap@{exc.oid} skipped (blob absent)"
+        return out
+    if git.mailmap_absent:
+        out["identity_mapping"] = "none (.mailmap blob absent in a partial clone)"
+        return out
     out["identity_mapping"] = f".mailmap@{found[0]}" if found else "none"
     return out
 

@@ -131,7 +131,9 @@ def test_missing_blob_fails_clearly_with_line_counts(git_history, tmp_path, cli)
     store = tmp_path / "s.sqlite"
     r = cli("mine", h.path, "--store", store)
     assert r.code == 3
-    assert_one_line_error(r.err, "git log failed", blob)
+    # the object, the commit and path it belongs to, and the remedy
+    assert_one_line_error(r.err, "git log failed", blob, "'a/x.txt'", h.ids["two"][:12],
+                          "--no-line-counts", "repair the clone")
     assert integrity_ok(store)
     runs = read_table(open_store(store), "mining_runs")
     assert runs["status"].tolist() == ["failed"]
@@ -154,14 +156,48 @@ def test_missing_tree_or_commit_fails_clearly(git_history, tmp_path, cli):
     assert_one_line_error(r.err, "failed (exit 128)", "parents of commit")
 
 
+def _raw_paths(repo: Path, env: dict) -> set[tuple[str, str]]:
+    """(commit, path) of every raw diff entry of every non-merge commit with exact-content
+    rename detection (oracle: plain git plumbing on the full repository)."""
+    out = subprocess.run(["git", "-C", str(repo), "log", "-z", "--raw", "--no-merges",
+                          "--no-abbrev", "-M100%", "--format=%x01%H", "main", "--"],
+                         env=env, capture_output=True, check=True).stdout.split(b"\0")
+    pairs, commit, i = set(), None, 0
+    while i < len(out):
+        f = out[i]
+        if b"\x01" in f:
+            head = f.split(b"\x01", 1)[1].split(b"\n")
+            commit, f = head[0].decode(), b"\n".join(head[1:])
+        f = f.lstrip(b"\n")                  # "<header>\0\n:<raw line>\0<path>\0"
+        if f.startswith(b":"):
+            n = 2 if f.split()[-1][:1] in (b"R", b"C") else 1
+            pairs.add((commit, out[i + n].decode("utf-8", "surrogateescape")))
+            i += n + 1
+            continue
+        i += 1
+    return pairs
+
+
 @pytest.mark.timeout(120)
-def test_partial_clone_fails_fast_and_never_fetches(aurora, tmp_path, cli):
-    """A blob-less partial clone: git must not fetch lazily (GIT_NO_LAZY_FETCH), the
-    run fails with a hint instead of hanging or downloading; the clone is unchanged."""
-    server = tmp_path / "server.git"
+def test_partial_clone_is_mined_paths_only_and_never_fetches(git_history, tmp_path, cli):
+    """A blob-less partial clone (git clone --filter=blob:none of a local fixture): mined
+    paths only (no line counts; renames only where the content is identical; the absent
+    .mailmap and MAINTAINERS skipped with warnings), the mode recorded and flagged for the
+    report; git fetches nothing (GIT_NO_LAZY_FETCH, no transport) and the clone is
+    unchanged. Oracle: git log --raw -M100% on the full repository."""
+    h = git_history("src")
+    h.commit("init\n", files={"MAINTAINERS": "CORE\nF:\tcore/\n", ".mailmap":
+                              "Alice Example <alice@example.org> <old@example.org>\n",
+                              "core/a.c": "a\n" * 50, "core/b.c": "b\n" * 50},
+             author=("Old Name", "old@example.org"), date=when(0))
+    h.git("mv", "core/a.c", "core/a2.c")                      # identical content
+    h.commit("rename a\n", date=when(1))
+    h.git("mv", "core/b.c", "core/b2.c")                      # renamed and edited
+    h.commit("rename and edit b\n", files={"core/b2.c": "b\n" * 49 + "x\n"}, date=when(2))
     env = {k: v for k, v in os.environ.items() if not k.startswith("GIT_")}
     env.update(GIT_CONFIG_NOSYSTEM="1", GIT_CONFIG_GLOBAL="/dev/null")
-    subprocess.run(["git", "clone", "-q", "--bare", str(aurora), str(server)], check=True,
+    server = tmp_path / "server.git"
+    subprocess.run(["git", "clone", "-q", "--bare", str(h.path), str(server)], check=True,
                    env=env)
     subprocess.run(["git", "-C", str(server), "config", "uploadpack.allowFilter", "true"],
                    check=True, env=env)
@@ -173,10 +209,26 @@ def test_partial_clone_fails_fast_and_never_fetches(aurora, tmp_path, cli):
         return subprocess.run(["git", "-C", str(part), "count-objects", "-v"], env=env,
                               capture_output=True, text=True, check=True).stdout
     before = objects()
-    r = cli("mine", part, "--store", tmp_path / "s.sqlite")
-    assert r.code == 3
-    assert_one_line_error(r.err, "partial clone", "never fetches")
-    assert objects() == before
+    store = tmp_path / "s.sqlite"
+    r = cli("mine", part, "--store", store)
+    assert r.code == 0, r.err
+    assert objects() == before                                  # nothing fetched
+    warned = [ln for ln in r.err.splitlines() if ln.startswith("procmetrics: warning: partial")]
+    assert len(warned) == 3 and "paths only" in warned[0] and ".mailmap" in warned[1] \
+        and "MAINTAINERS" in warned[2], r.err
+    engine = open_store(store)
+    fc = read_table(engine, "file_changes")
+    assert set(zip(fc["hash"], fc["path"])) == _raw_paths(h.path, env)
+    assert fc["lines_added"].isna().all()
+    commits = read_table(engine, "commits")
+    assert set(commits["author_email"]) == {"old@example.org", "alice@example.org"}
+    run = read_table(engine, "mining_runs").iloc[-1]
+    assert "partial clone" in run["message"] and '"line_counts": false' in run["options_json"]
+    from procmetrics.analyse.measures.quality import history_state
+    from procmetrics.store.repodata import load_store_data
+    data = load_store_data(engine, "part")
+    assert history_state(data)["is_partial_clone"] is True
+    engine.dispose()
 
 
 def _fake_git(folder: Path, version_line: str) -> str:

@@ -199,8 +199,11 @@ def history_state(data: StoreData) -> dict[str, Any]:
             options.append(json.loads(r["options_json"] or "{}"))
         except (TypeError, ValueError):
             options.append({"unreadable": str(r["options_json"])})
+    partial = bool(complete["message"].fillna("").astype(str)
+                   .str.contains("partial clone", regex=False).any())
     return {
         "is_shallow": shallow,
+        "is_partial_clone": partial,
         "rewritten": rewritten,
         "n_runs": int(len(runs)),
         "n_failed_runs": int((runs["status"] == "failed").sum()),
