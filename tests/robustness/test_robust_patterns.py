@@ -81,3 +81,21 @@ def test_mining_a_repository_with_a_hostile_maintainers_file(git_history, tmp_pa
              author=ALICE, date=when(0))
     ran = cli("mine", h.path, "--store", tmp_path / "s.sqlite", "--no-progress")
     assert ran.code == 0, ran.err
+
+
+@pytest.mark.parametrize("pattern, fast", [
+    ("tegra", True), ("[^a-z]tegra", True), ("(?:[^a-z]|^)bcm283", True),
+    (r"\bsun[0-9]i", True), ("[*+?]x", True), (r"\*", True), ("(?i)readme", True),
+    ("(a+)+$", False), ("a*", False), ("ab?", False), ("x{2,}", False),
+])
+def test_only_patterns_without_repetition_run_on_the_backtracking_engine(pattern, fast):
+    """Patterns that repeat nothing are bounded for any engine and run on Python's re
+    (about four times faster through its binding: 58k paths x 316 N: patterns took
+    2.3 s against 8.8 s all-RE2 on the bench's synthetic MAINTAINERS); everything that
+    repeats runs on RE2."""
+    import re
+
+    from procmetrics.mine.pathregex import LinearRegex, without_repetition
+    assert without_repetition(pattern) is fast
+    rx = LinearRegex(pattern)
+    assert isinstance(rx.regex, re.Pattern) is fast
