@@ -115,6 +115,12 @@ def make_report(store: str | None, out: str | Path, options: ReportOptions, *,
     from procmetrics.store.engine import _safe
     from procmetrics.store.schema import SCHEMA_VERSION
 
+    # a store kept in the report folder itself (as `make demo` does) stays with it
+    url = resolve_url(store)
+    if url.startswith("sqlite:///"):
+        db = Path(url[len("sqlite:///"):].split("?", 1)[0])
+        if str(out).strip() and db.parent == Path(out).absolute().resolve():
+            adopt = (*adopt, db.name)
     check_target(out, overwrite=overwrite, adopt=adopt)     # refuse before the long work
     check_level(options.level, "level")
     check_seed(options.seed, "seed")
