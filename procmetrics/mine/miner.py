@@ -45,8 +45,6 @@ import sys
 import time
 import warnings
 from contextlib import contextmanager
-from pathlib import Path
-from typing import Any, Sequence
 from importlib import metadata
 from urllib.parse import urlsplit, urlunsplit
 
@@ -55,6 +53,8 @@ from sqlalchemy.engine import Engine
 from procmetrics import __version__
 from procmetrics.errors import ConfigError, DataQualityWarning, GitFailed, HistoryRewritten
 from procmetrics.mine.git import GitRepo, ObjectAbsent
+from procmetrics.mine.guards import (check_rules_change, identity_mapping_changed,
+                                     refuse_store_inside)
 from procmetrics.mine.partial import PARTIAL_NOTE, explain_missing_object, paths_only as _paths_only
 from procmetrics.mine.logstream import LogCommit, date_filter_args, log_args, parse_log
 from procmetrics.mine.options import CONTENT_OPTIONS, MineOptions, MiningSummary
@@ -65,7 +65,7 @@ from procmetrics.mine.subsystems import (
 )
 from procmetrics.mine.tags import read_tags
 from procmetrics.mine.trailers import parse_trailers, split_person
-from procmetrics.store import open_store, resolve_url
+from procmetrics.store import open_store
 from procmetrics.store.runlock import repository_lock
 from procmetrics.store.writer import CommitRow, StoreWriter, TrailerRow
 
@@ -108,12 +108,12 @@ def mine_repository(path: str | os.PathLike[str], store: str | os.PathLike[str] 
         cleaned = writer.cleanup_incomplete(repo_id)
         base = _decide_base(git, writer, repo_id, tip, opts)
         env = environment(git, tip)
-        if base is not None and _identity_mapping_changed(writer.environments(repo_id),
+        if base is not None and identity_mapping_changed(writer.environments(repo_id),
                                                           env, opts):
             writer.delete_repository_data(repo_id, "re-mined: the .mailmap changed")
             base = None
         if base is not None:
-            _check_rules_change(writer.mapping_of(repo_id), mapper, opts)
+            check_rules_change(writer.mapping_of(repo_id), mapper, opts)
         run_id = writer.start_run(repo_id, ref=opts.ref, head_hash=tip, base_hash=base,
                                   is_shallow=shallow, options_json=opts.to_json(),
                                   versions_json=json.dumps(env, sort_keys=True))
@@ -362,25 +362,6 @@ def _map_paths(writer: StoreWriter, repo_id: int, run_id: int, mapper: PathMappe
         writer.add_path_subsystems(repo_id, list(zip(part, mapper.map_many(part))))
 
 
-def refuse_store_inside(store: Any, repositories: Sequence[Any]) -> None:
-    """Refuse a SQLite store (given, or the default ``./procmetrics.sqlite``) that lies
-    inside a repository being mined: the mined repository is read-only to us, and a
-    store there would even show up in the work tree (``git status``)."""
-    url = resolve_url(store)
-    if not url.startswith("sqlite:///"):
-        return
-    path = Path(url[len("sqlite:///"):].split("?", 1)[0])
-    for repo in repositories:
-        top = Path(repo).expanduser().resolve()
-        if path == top or top in path.parents:
-            what = "the default store ./procmetrics.sqlite" if store is None \
-                else f"the store {path}"
-            raise ConfigError(f"{what} would be written inside the mined repository {top}; "
-                              "procmetrics never writes there: give --store outside it "
-                              f"(e.g. --store {top.parent / 'procmetrics.sqlite'})",
-                              key="--store")
-
-
 def default_repo_name(git: GitRepo) -> str:
     p = git.path
     if p.name == ".git":
@@ -399,50 +380,6 @@ def redact_url(url: str | None) -> str | None:
     if parts.port:
         host += f":{parts.port}"
     return urlunsplit(parts._replace(netloc=f"***@{host}"))
-
-
-def _identity_mapping_changed(previous: list[str], env: dict[str, str],
-                              opts: MineOptions) -> bool:
-    """True when the .mailmap changed and ``remine`` asks to map every commit again.
-
-    An incremental run maps only the new commits; without ``remine`` the change is
-    reported as a data-quality warning and the stored commits keep their identities.
-    """
-    seen = {json.loads(p).get("identity_mapping") for p in previous} - {None}
-    if not seen or seen == {env["identity_mapping"]}:
-        return False
-    before = ", ".join(sorted(seen))
-    if opts.rewrite_policy == "remine":
-        return True
-    warnings.warn(f"the .mailmap changed since the last run ({before} -> "
-                  f"{env['identity_mapping']}): commits stored earlier keep the old "
-                  "identities; run again with --rewrite-policy remine to map every commit "
-                  "the same way", DataQualityWarning, stacklevel=3)
-    return False
-
-
-def _check_rules_change(stored: tuple[str, str] | None, mapper: PathMapper,
-                        opts: MineOptions) -> None:
-    """A subsystem rules file given for the first time, changed or dropped would remap
-    every stored path (earlier subsystem claims would then be judged against another
-    mapping): refused unless ``--rewrite-policy remine`` asks for it (then a warning).
-    A new MAINTAINERS blob at a new tip is the repository's own change and is followed."""
-    if stored is None or stored[0] is None or stored == (mapper.kind, mapper.source):
-        return
-    if "rules" not in (stored[0], mapper.kind):
-        return
-    if stored[0] == mapper.kind == "rules" and \
-            str(stored[1]).rsplit("sha256:", 1)[-1] == mapper.source.rsplit("sha256:", 1)[-1]:
-        return              # the same rules (same content), perhaps from another path
-    change = (f"from {stored[0]} ({stored[1]}) to {mapper.kind} ({mapper.source})")
-    if opts.rewrite_policy == "remine":
-        warnings.warn(f"the subsystem mapping changes {change}: every stored path is mapped "
-                      "again (--rewrite-policy remine)", DataQualityWarning, stacklevel=3)
-        return
-    raise ConfigError(f"the subsystem mapping would change {change}, remapping every commit "
-                      "stored earlier; give the same --subsystem-rules as before, or "
-                      "--rewrite-policy remine to map the whole store again",
-                      key="--subsystem-rules")
 
 
 def environment(git: GitRepo, tip: str) -> dict[str, str]:
