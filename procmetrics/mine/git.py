@@ -242,16 +242,24 @@ class GitRepo:
             return proc.returncode == 0
         return False
 
-    def is_partial_clone(self) -> bool:
-        """True for a partial clone made with ``git clone --filter=...``: its packs are
-        marked ``.promisor`` or a remote records the filter. (A promisor remote set by
-        hand, with every object present or a few missing, is mined as a full clone:
-        a missing object is then named with its commit and path.)"""
-        if any((self.git_dir / "objects" / "pack").glob("*.promisor")):
-            return True
-        proc = self._run(["config", "--get-regexp", r"^remote\..*\.partialclonefilter$"],
+    def is_partial_clone(self, tip: str) -> bool:
+        """True for a partial clone whose file contents are absent: it has promisor packs
+        or a promisor remote, and blobs of ``tip``'s tree are missing (listed without
+        fetching by ``rev-list --missing=print``). A mirror kept in promisor packs with
+        every blob present is a full clone."""
+        promisor = any((self.git_dir / "objects" / "pack").glob("*.promisor"))
+        if not promisor:
+            proc = self._run(["config", "--get-regexp",
+                              r"^(remote\..*\.(promisor|partialclonefilter)|"
+                              r"extensions\.partialclone)$"], check=False)
+            promisor = proc.returncode == 0 and any(
+                ln.split(None, 1)[-1].strip().lower() not in ("false", "no", "off", "0")
+                for ln in proc.stdout.decode("utf-8", "replace").splitlines() if " " in ln)
+        if not promisor:
+            return False
+        proc = self._run(["rev-list", "--objects", "--missing=print", f"{tip}^{{tree}}", "--"],
                          check=False)
-        return proc.returncode == 0 and bool(proc.stdout.strip())
+        return any(ln.startswith(b"?") for ln in proc.stdout.splitlines())
 
     def has_object(self, oid: str) -> bool:
         """True when ``oid`` is in the object store (never fetched: GIT_NO_LAZY_FETCH and

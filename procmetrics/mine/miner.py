@@ -88,7 +88,7 @@ def mine_repository(path: str | os.PathLike[str], store: str | os.PathLike[str] 
     git = GitRepo.open(path)
     tip = git.resolve_commit(opts.ref)
     shallow = git.is_shallow()
-    partial = git.is_partial_clone()
+    partial = git.is_partial_clone(tip)
     if partial:
         git, opts = _paths_only(git, tip, opts)
     if shallow:

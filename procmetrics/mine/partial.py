@@ -1,7 +1,8 @@
 """Incomplete clones: partial clones mined paths-only, missing objects named.
 
 A blobless partial clone (``git clone --filter=blob:none``) has every commit and
-tree but no file contents. procmetrics never fetches (``GIT_NO_LAZY_FETCH``, no
+tree but no file contents (:meth:`GitRepo.is_partial_clone`: promisor packs or
+remote, and blobs of the tip's tree absent). procmetrics never fetches (``GIT_NO_LAZY_FETCH``, no
 transport allowed), so such a clone is mined **paths only**: no line counts,
 renames only where the content is identical (``-M100%`` compares object ids and
 reads no blob), and a ``.mailmap`` whose blob is absent is skipped with a warning

@@ -341,3 +341,18 @@ def test_a_new_subsystem_rules_file_needs_remine(git_history, tmp_path, cli):
     moved = tmp_path / "elsewhere.toml"
     moved.write_text(rules.read_text())
     assert cli("mine", h.path, "--store", store, "--subsystem-rules", moved).code == 0
+
+
+def test_promisor_packs_with_every_blob_are_mined_as_a_full_clone(git_history, tmp_path, cli):
+    """A mirror kept in promisor packs whose blobs are all present (as some mirroring
+    tools leave them) is a full clone: line counts are mined, no partial-clone warning.
+    Only missing blobs at the tip (rev-list --missing=print) make a clone partial."""
+    h = _small(git_history())
+    h.git("repack", "-adq")
+    pack = next((h.path / ".git" / "objects" / "pack").glob("*.pack"))
+    pack.with_suffix(".promisor").write_text("")
+    r = cli("mine", h.path, "--store", tmp_path / "s.sqlite")
+    assert r.code == 0, r.err
+    assert "partial clone" not in r.err
+    fc = read_table(open_store(tmp_path / "s.sqlite"), "file_changes")
+    assert fc["lines_added"].notna().all()
