@@ -55,8 +55,9 @@ from procmetrics.errors import ConfigError, DataQualityWarning, GitFailed, Histo
 from procmetrics.mine.git import GitRepo, ObjectAbsent
 from procmetrics.mine.guards import (check_rules_change, identity_mapping_changed,
                                      refuse_store_inside)
-from procmetrics.mine.partial import PARTIAL_NOTE, explain_missing_object, paths_only as _paths_only
-from procmetrics.mine.logstream import LogCommit, date_filter_args, log_args, parse_log
+from procmetrics.mine.partial import (PARTIAL_NOTE, commits_of_part, explain_missing_object,
+                                     lacking_note, paths_only as _paths_only)
+from procmetrics.mine.logstream import LogCommit, date_filter_args, log_args
 from procmetrics.mine.options import CONTENT_OPTIONS, MineOptions, MiningSummary
 from procmetrics.mine.references import scan_message
 from procmetrics.mine.resolve import classify, find_candidates, subject_match
@@ -89,6 +90,7 @@ def mine_repository(path: str | os.PathLike[str], store: str | os.PathLike[str] 
     tip = git.resolve_commit(opts.ref)
     shallow = git.is_shallow()
     partial = git.is_partial_clone(tip)
+    lacking: list[tuple[str, str]] = []      # (commit, object): mined without line counts
     if partial:
         git, opts = _paths_only(git, tip, opts)
     if shallow:
@@ -121,9 +123,13 @@ def mine_repository(path: str | os.PathLike[str], store: str | os.PathLike[str] 
             with _few_collections():
                 try:
                     counts = _load(git, writer, repo_id, run_id, tip, base, opts,
-                                   exact_renames=partial)
+                                   exact_renames=partial, lacking=lacking)
                 except GitFailed as exc:
                     raise GitFailed(explain_missing_object(git, tip, str(exc), opts)) from exc
+                if lacking:
+                    warnings.warn(f"{lacking_note(lacking)}: those were mined without line "
+                                  "counts; repair the clone (fetch the objects again) to count "
+                                  "them", DataQualityWarning, stacklevel=2)
                 resolve_links(git, writer, repo_id, run_id, tip)
                 writer.replace_tags(repo_id, read_tags(git))
                 _map_paths(writer, repo_id, run_id, mapper)
@@ -134,7 +140,8 @@ def mine_repository(path: str | os.PathLike[str], store: str | os.PathLike[str] 
                                 mapping_source=mapper.source, counts=counts,
                                 message="; ".join(m for m in (
                                     "shallow clone" if shallow else "",
-                                    PARTIAL_NOTE if partial else "") if m) or None)
+                                    PARTIAL_NOTE if partial else "",
+                                    lacking_note(lacking) if lacking else "") if m) or None)
         except BaseException as exc:
             try:
                 writer.fail_run(run_id, f"{exc.__class__.__name__}: {exc}")
@@ -215,7 +222,8 @@ def commit_row(c: LogCommit) -> CommitRow:
 
 
 def _load(git: GitRepo, writer: StoreWriter, repo_id: int, run_id: int, tip: str,
-          base: str | None, opts: MineOptions, exact_renames: bool = False) -> dict[str, int]:
+          base: str | None, opts: MineOptions, exact_renames: bool = False,
+          lacking: list[tuple[str, str]] | None = None) -> dict[str, int]:
     counts = {"n_commits": 0, "n_file_changes": 0, "n_trailers": 0, "n_fix_refs": 0}
     if base == tip:
         return counts
@@ -238,7 +246,10 @@ def _load(git: GitRepo, writer: StoreWriter, repo_id: int, run_id: int, tip: str
             args = log_args(part_tip, excluded, line_counts=opts.line_counts,
                             exact_renames=exact_renames,
                             merge_files=opts.merge_files, since=since, until=until)
-            for c in parse_log(git.stream(args)):
+            rev_range = [*date_filter_args(since, until), part_tip,
+                         *("^" + e for e in excluded), "--"]
+            for c in commits_of_part(git, args, rev_range, line_counts=opts.line_counts,
+                                     lacking=lacking if lacking is not None else []):
                 batch.append(commit_row(c))
                 if len(batch) >= opts.batch_size:
                     _add(counts, writer.write_batch(repo_id, run_id, batch, durable=not bulk))

@@ -18,9 +18,10 @@ from __future__ import annotations
 import re
 import warnings
 from dataclasses import replace
-from typing import Any
+from typing import Any, Iterator
 
-from procmetrics.errors import DataQualityWarning
+from procmetrics.errors import DataQualityWarning, GitFailed
+from procmetrics.mine.logstream import parse_log
 
 PARTIAL_NOTE = ("partial clone: paths only (no line counts, renames only where the "
                 "content is identical, nothing fetched)")
@@ -91,3 +92,62 @@ def _find_blob(git: Any, tip: str, oid: str) -> tuple[str, str] | None:
             continue
         i += 1
     return None
+
+
+# -- a full clone missing a few blobs: mine on, those commits without line counts -----------
+
+def commits_of_part(git: Any, args: list[str], rev_range: list[str], *, line_counts: bool,
+                    lacking: list[tuple[str, str]]) -> Iterator[Any]:
+    """The commits ``git log ARGS`` gives; when it stops because a blob is missing (line
+    counts read contents), the rest of ``rev_range`` commit by commit: a commit whose
+    blob is missing is mined paths-only and listed in ``lacking`` as (commit, object).
+
+    parse_log yields a commit only once the next header or the end is in view, and a
+    failing git raises before the end: every commit yielded is complete.
+    """
+    seen: set[str] = set()
+    try:
+        for c in parse_log(git.stream(args)):
+            seen.add(c.hash)
+            yield c
+        return
+    except GitFailed as exc:
+        if not line_counts or not _UNREADABLE.search(str(exc)):
+            raise
+    rest = [h for h in git.text("rev-list", *rev_range).split() if h not in seen]
+    i = 0
+    while i < len(rest):
+        chunk = rest[i:i + _CHUNK]
+        got = 0
+        try:
+            for c in parse_log(git.stream(_no_walk(args, chunk, line_counts=True))):
+                got += 1
+                yield c
+            i += len(chunk)
+            continue
+        except GitFailed as exc:
+            m = _UNREADABLE.search(str(exc))
+            if not m:
+                raise
+            bad = chunk[got]             # --no-walk=unsorted: in the order given
+        yield from parse_log(git.stream(_no_walk(args, [bad], line_counts=False)))
+        lacking.append((bad, m.group(1)))
+        i += got + 1
+
+
+_CHUNK = 200
+
+
+def _no_walk(args: list[str], commits: list[str], *, line_counts: bool) -> list[str]:
+    """``args`` of :func:`log_args` made to show exactly ``commits``, in that order."""
+    end = args.index("--")
+    start = next(i for i, a in enumerate(args) if i > 0 and not a.startswith("-"))
+    head = [a for a in args[:start] if line_counts or a != "--numstat"]
+    head = [a for a in head if not a.startswith(("--since", "--until"))]
+    return [*head, "--no-walk=unsorted", *commits, "--"] + args[end + 1:]
+
+
+def lacking_note(lacking: list[tuple[str, str]]) -> str:
+    first_commit, first_oid = lacking[0]
+    return (f"line counts missing for {len(lacking)} commit(s) whose blobs are absent "
+            f"from the clone (first: object {first_oid} in commit {first_commit[:12]})")

@@ -107,6 +107,11 @@ def store_flags(quality: dict[str, Any], *, unresolved_limit: float,
             "content-based rename detection were unavailable; a renamed file counts as a "
             "rename only where its content stayed identical, and an absent .mailmap or "
             "MAINTAINERS file was skipped (see the mining runs)", "store"))
+    for text in hist.get("line_counts_missing", ()):
+        out["all"].append(Flag(
+            "line_counts_missing", "warn", "all",
+            f"some commits were mined without line counts because the clone lacks their "
+            f"file contents ({text}); churn figures leave them out", "store"))
     for text in hist["rewritten"]:
         out["all"].append(Flag(
             "rewritten_history", "fail", "all",

@@ -124,23 +124,57 @@ def _loose(h, oid: str) -> Path:
     return h.path / ".git" / "objects" / oid[:2] / oid[2:]
 
 
-def test_missing_blob_fails_clearly_with_line_counts(git_history, tmp_path, cli):
+def test_missing_blob_mines_on_without_line_counts_for_that_commit(git_history, tmp_path,
+                                                                   cli):
+    """A full clone lacking one blob: mined on; the commit whose file content is absent
+    gets no line counts (counted, warned about in one line, recorded on the run); every
+    other commit's line counts equal git's own numstat (oracle)."""
     h = _small(git_history())
     blob = h.git("rev-parse", f"{h.ids['two']}:a/x.txt")
     _loose(h, blob).unlink()
     store = tmp_path / "s.sqlite"
     r = cli("mine", h.path, "--store", store)
-    assert r.code == 3
-    # the object, the commit and path it belongs to, and the remedy
-    assert_one_line_error(r.err, "git log failed", blob, "'a/x.txt'", h.ids["two"][:12],
-                          "--no-line-counts", "repair the clone")
+    assert r.code == 0, r.err
+    warned = [ln for ln in r.err.splitlines() if "line counts missing" in ln]
+    assert len(warned) == 1 and warned[0].startswith("procmetrics: warning: ")
+    assert "for 1 commit(s)" in warned[0] and blob in warned[0] and h.ids["two"][:12] in warned[0]
     assert integrity_ok(store)
-    runs = read_table(open_store(store), "mining_runs")
-    assert runs["status"].tolist() == ["failed"]
+    engine = open_store(store)
+    run = read_table(engine, "mining_runs").iloc[-1]
+    assert run["status"] == "complete" and "line counts missing for 1 commit" in run["message"]
+    from procmetrics.analyse.measures.quality import history_state
+    from procmetrics.store.repodata import load_store_data
+    assert len(history_state(load_store_data(engine, "repo"))["line_counts_missing"]) == 1
+    fc = read_table(engine, "file_changes")
+    assert len(read_table(engine, "commits")) == 3
+    assert fc.loc[fc["hash"] == h.ids["two"], "lines_added"].isna().all()
+    for name in ("one", "three"):
+        want = h.git("log", "-1", "--numstat", "--format=", h.ids[name]).split()
+        got = fc[fc["hash"] == h.ids[name]]
+        assert [int(want[0]), int(want[1]), want[2]] == \
+            [int(got["lines_added"].iloc[0]), int(got["lines_deleted"].iloc[0]),
+             got["path"].iloc[0]]
     # without line counts no blob is read: the history is complete
     r = cli("mine", h.path, "--store", tmp_path / "paths.sqlite", "--no-line-counts")
     assert r.code == 0, r.err
     assert len(read_table(open_store(tmp_path / "paths.sqlite"), "commits")) == 3
+
+
+def test_a_missing_object_is_named_with_its_commit_path_and_remedy(git_history):
+    """When git stops on an object it cannot read and mining cannot go on, the message
+    names the object, the commit and path it belongs to and the remedies."""
+    from procmetrics.mine.git import GitRepo
+    from procmetrics.mine.options import MineOptions
+    from procmetrics.mine.partial import explain_missing_object
+    h = _small(git_history())
+    blob = h.git("rev-parse", f"{h.ids['two']}:a/x.txt")
+    _loose(h, blob).unlink()
+    git = GitRepo.open(h.path)
+    msg = explain_missing_object(git, h.rev(), f"git log failed (exit 128): fatal: unable "
+                                 f"to read {blob}", MineOptions())
+    for needle in (blob, "'a/x.txt'", h.ids["two"][:12], "--no-line-counts",
+                   "repair the clone"):
+        assert needle in msg, msg
 
 
 def test_missing_tree_or_commit_fails_clearly(git_history, tmp_path, cli):
