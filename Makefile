@@ -35,7 +35,7 @@ demo: $(VENV)/.installed
 	$(BIN)/python sample_repos/generate.py --out $(DEMO_REPO)
 	@mkdir -p $(DEMO_OUT)
 	$(BIN)/procmetrics mine $(DEMO_REPO) --store $(DEMO_STORE)
-	$(BIN)/procmetrics report --store $(DEMO_STORE) --out $(DEMO_OUT) \
+	$(BIN)/procmetrics report --store $(DEMO_STORE) --out $(DEMO_OUT) --overwrite \
 		--policy-date "$$($(BIN)/python sample_repos/generate.py --print-change-date)" \
 		--claims sample_repos/demo_claims.toml
 	@echo "report written to $(DEMO_OUT)/report.html"

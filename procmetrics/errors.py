@@ -92,3 +92,11 @@ class ProcmetricsWarning(UserWarning):
 
 class DataQualityWarning(ProcmetricsWarning):
     """Something about the mined data limits what can be concluded."""
+
+
+class OutputPathError(ProcmetricsError):
+    """An output path given (``--out``, ``-o``, ``--json``) cannot be written as asked:
+    empty, a file or device where a folder is needed, a link, a non-empty folder that is
+    not an earlier report, a folder that cannot be created or written."""
+
+    exit_code = 2

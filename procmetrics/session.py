@@ -10,7 +10,7 @@ from typing import Any
 
 import pandas as pd
 
-from procmetrics.errors import ProcmetricsError, StoreError
+from procmetrics.errors import ConfigError, InsufficientData
 
 
 def load_tables(store: str | None, repo: str | None) -> tuple[dict[str, pd.DataFrame], str]:
@@ -18,14 +18,15 @@ def load_tables(store: str | None, repo: str | None) -> tuple[dict[str, pd.DataF
     from procmetrics.store import open_store
     from procmetrics.store.tables import read_table
 
-    engine = open_store(store, create=False)
+    engine = open_store(store, create=False, readonly=True)
     try:
         repos = read_table(engine, "repositories", repo)
         if repos.empty:
-            raise StoreError(f"repository {repo!r} not in the store" if repo
-                             else "the store holds no repository: run 'procmetrics mine' first")
+            if repo:
+                raise ConfigError(f"repository {repo!r} is not in the store", key="--repo")
+            raise InsufficientData("the store holds no repository: run 'procmetrics mine' first")
         if repo is None and len(repos) > 1:
-            raise ProcmetricsError("the store holds several repositories ("
+            raise ConfigError("the store holds several repositories ("
                                    + ", ".join(repos["repo"]) + "); choose one with --repo")
         name = str(repos["repo"].iloc[0])
         tables = {t: read_table(engine, t, name) for t in
@@ -47,16 +48,25 @@ def containment(tables: dict[str, pd.DataFrame], commits: list[str],
     return tag_containment(path, commits, tags)
 
 
-def links_from(value: str | None) -> Any:
-    """``--links-from`` as :func:`procmetrics.analyse.lifetimes.defects.build_defects` takes it."""
+def links_from(value: str | None, tables: dict[str, Any] | None = None) -> Any:
+    """``--links-from`` as :func:`procmetrics.analyse.lifetimes.defects.build_defects` takes
+    it: ``settled``, ``first``, ``all``, or a date, tag or commit (the one date parser)."""
+    from procmetrics.analyse.measures.periods import resolve_when
     if value is None or value == "first":
         return "first_link"
     if value == "settled":
         return "settled"
     if value == "all":
         return None
-    try:
-        return pd.Timestamp(value)
-    except ValueError as exc:
-        raise ProcmetricsError(f"--links-from: not a date, 'settled', 'first' or 'all': "
-                               f"{value!r}") from exc
+    tables = tables or {}
+    return resolve_when(value, commits=tables.get("commits"), tags=tables.get("tags"),
+                        option="--links-from")
+
+
+def change_date(value: str | None, tables: dict[str, Any]) -> Any:
+    """``--change-date``: a date, tag or commit (the one date parser), or None."""
+    from procmetrics.analyse.measures.periods import resolve_when
+    if value is None:
+        return None
+    return resolve_when(value, commits=tables.get("commits"), tags=tables.get("tags"),
+                        option="--change-date")

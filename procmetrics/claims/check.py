@@ -7,7 +7,7 @@ from typing import Sequence
 
 from procmetrics.claims.base import ClaimVerdict
 from procmetrics.claims.registry import SPECS, evaluate_claims
-from procmetrics.errors import ProcmetricsError
+from procmetrics.errors import OutputPathError
 from procmetrics.analyse.measures import quality as ql
 from procmetrics.claims.reader import load_claims
 from procmetrics.store.repodata import choose_repo, load_store_data
@@ -71,4 +71,4 @@ def write_text(path: str, text: str) -> None:
     try:
         Path(path).write_text(text, encoding="utf-8")
     except OSError as exc:
-        raise ProcmetricsError(f"cannot write {path}: {exc.strerror or exc}") from exc
+        raise OutputPathError(f"cannot write {path}: {exc.strerror or exc}") from exc

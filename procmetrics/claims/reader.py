@@ -140,6 +140,8 @@ def parse_claims(text: str, path: str = "<claims>") -> ClaimsFile:
     except tomllib.TOMLDecodeError as exc:
         msg, line = _decode_error(exc)
         raise ConfigError(f"not valid TOML: {msg}", path=path, line=line) from None
+    except RecursionError:
+        raise ConfigError("not usable TOML: nested too deeply", path=path) from None
     where = _Lines(text)
 
     def top_err(message: str, key: str) -> ConfigError:

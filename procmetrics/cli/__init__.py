@@ -14,6 +14,8 @@ from typing import Sequence
 
 from procmetrics import __version__
 from procmetrics.errors import ProcmetricsError
+from procmetrics.cli.warnlines import warning_lines
+from procmetrics.textsafe import PrintableStream
 
 # Order is the order shown in --help.
 COMMANDS: list[str] = ["mine", "export", "report", "check", "rerun", "diff", "series",
@@ -37,6 +39,18 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def main(argv: Sequence[str] | None = None) -> int:
+    # every line any command prints goes through one sanitiser (procmetrics.textsafe):
+    # names and text from repositories and user files cannot drive the terminal
+    saved = sys.stdout, sys.stderr
+    sys.stdout, sys.stderr = PrintableStream(saved[0]), PrintableStream(saved[1])
+    try:
+        with warning_lines():        # warnings: one line each (procmetrics.cli.warnlines)
+            return _main(argv)
+    finally:
+        sys.stdout, sys.stderr = saved
+
+
+def _main(argv: Sequence[str] | None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
     try:

@@ -8,6 +8,7 @@ import numpy as np
 import pandas as pd
 
 from procmetrics.cli import add_store_argument
+from procmetrics.validate import arg, check_seed
 
 
 def add_series_arguments(p: argparse.ArgumentParser) -> None:
@@ -30,7 +31,7 @@ def add_series_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("--include-merges", action="store_true", help="count merge commits too")
     p.add_argument("--fix-keywords", action="store_true",
                    help="add fix_ratio_heuristic (subject keywords; flagged as heuristic)")
-    p.add_argument("--seed", type=int, default=20240601, help="random seed (bootstrap)")
+    p.add_argument("--seed", type=arg(check_seed, "--seed"), default=20240601, help="random seed (bootstrap)")
     p.add_argument("--out", metavar="DIR", help="write CSV/JSON and PNG+SVG figures here")
 
 
@@ -82,15 +83,17 @@ def print_caveats(caveats: Any, indent: str = "  ") -> None:
 def out_dir(args: argparse.Namespace) -> Any:
     from pathlib import Path
 
-    from procmetrics.errors import StoreError
+    from procmetrics.errors import OutputPathError
 
-    if not args.out:
+    if args.out is None:
         return None
+    if not args.out.strip():
+        raise OutputPathError("--out needs a folder name ('' would mean the current folder)")
     out = Path(args.out)
     try:
         out.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
-        raise StoreError(f"cannot create {out}: {exc}") from exc
+        raise OutputPathError(f"cannot create the folder {out}: {exc.strerror or exc}") from exc
     return out
 
 

@@ -4,6 +4,7 @@ from __future__ import annotations
 import argparse
 
 from procmetrics.cli import _series_common as common
+from procmetrics.validate import arg, check_nonnegative_int, check_positive
 
 DEFAULT = ("review_coverage", "independent_review", "fix_ratio")
 
@@ -15,9 +16,9 @@ def register(sub: argparse._SubParsersAction) -> None:
                        "penalty c * sigma^2 * ln n) with bootstrap intervals on each position, "
                        "levels before/after and the penalty path.")
     common.add_series_arguments(p)
-    p.add_argument("--penalty", type=float, default=4.0, metavar="C",
+    p.add_argument("--penalty", type=arg(check_positive, "--penalty"), default=4.0, metavar="C",
                    help="penalty factor c (default 4)")
-    p.add_argument("--boot", type=int, default=200, metavar="B", help="bootstrap replicates")
+    p.add_argument("--boot", type=arg(check_nonnegative_int, "--boot"), default=200, metavar="B", help="bootstrap replicates")
     p.set_defaults(func=run)
 
 

@@ -6,6 +6,7 @@ import sys
 
 from procmetrics.cli import add_store_argument
 from procmetrics.report.model import PERIODS
+from procmetrics.textsafe import data_stdout
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -65,7 +66,7 @@ def run(args: argparse.Namespace) -> int:
 
         doc = dumps(check_document(plain, prov, code))
     if args.json == "-":
-        sys.stdout.write(doc)
+        data_stdout().write(doc)
     else:
         print(render_verdicts(verdicts))
         if args.json:

@@ -4,6 +4,7 @@ from __future__ import annotations
 import argparse
 
 from procmetrics.cli import _series_common as common
+from procmetrics.validate import arg, check_count
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -17,8 +18,8 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--at", required=True, metavar="DATE|REV",
                    help="policy date (YYYY-MM-DD, UTC) or a commit (its committer date)")
     p.add_argument("--control", metavar="SUBSYSTEM", help="control subsystem (not targeted)")
-    p.add_argument("--resamples", type=int, default=999, help="permutations (Anderson-Darling)")
-    p.add_argument("--boot", type=int, default=1000, help="bootstrap replicates")
+    p.add_argument("--resamples", type=arg(check_count, "--resamples"), default=999, help="permutations (Anderson-Darling)")
+    p.add_argument("--boot", type=arg(check_count, "--boot"), default=1000, help="bootstrap replicates")
     p.set_defaults(func=run)
 
 
@@ -28,7 +29,7 @@ def run(args: argparse.Namespace) -> int:
     from procmetrics.analyse.change.policy import DEFAULT_METRICS, compare_policy, resolve_date
 
     tables, name = common.load(args)
-    at = resolve_date(args.at, tables["commits"])
+    at = resolve_date(args.at, tables["commits"], tables["tags"])
     cfg = common.metric_config(args, tables)
     print(f"{name}: before/after {at:%Y-%m-%d %H:%M} UTC, per {args.period}")
     common.print_data_quality(tables, args.metric or DEFAULT_METRICS)

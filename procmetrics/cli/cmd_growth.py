@@ -6,6 +6,7 @@ import numpy as np
 
 from procmetrics.cli import add_store_argument
 from procmetrics.session import containment, links_from, load_tables
+from procmetrics.validate import arg, check_count, check_nonnegative, check_positive, check_seed
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -22,16 +23,16 @@ def register(sub: argparse._SubParsersAction) -> None:
                    help="start of observation: 'first' (default) = the first linked fix "
                    "(it starts the clock and is not counted), a DATE, or 'all' = the first "
                    "commit of the history")
-    p.add_argument("--batch-hours", type=float, default=0.0, metavar="H",
+    p.add_argument("--batch-hours", type=arg(check_nonnegative, "--batch-hours"), default=0.0, metavar="H",
                    help="count fixing commits within H hours of each other as one fix event "
                    "(patch series applied together; default 0: every commit)")
     p.add_argument("--require", choices=["own", "both", "either"], default="own",
                    help="trend evidence needed before a model is fitted (default: each "
                    "model's own test)")
-    p.add_argument("--ahead", type=float, default=90.0, metavar="DAYS",
+    p.add_argument("--ahead", type=arg(check_positive, "--ahead"), default=90.0, metavar="DAYS",
                    help="prediction window in days (default 90)")
-    p.add_argument("--boot", type=int, default=200, metavar="B", help="bootstrap refits")
-    p.add_argument("--seed", type=int, default=20240603, help="random seed (bootstrap)")
+    p.add_argument("--boot", type=arg(check_count, "--boot"), default=200, metavar="B", help="bootstrap refits")
+    p.add_argument("--seed", type=arg(check_seed, "--seed"), default=20240603, help="random seed (bootstrap)")
     p.add_argument("--out", metavar="DIR", help="write JSON, CSV and figures here")
     p.set_defaults(func=run)
 
@@ -45,7 +46,7 @@ def run(args: argparse.Namespace) -> int:
     table = build_defects(tables["fix_links"], commits=tables["commits"],
                           commit_subsystems=tables["commit_subsystems"], links_from=None)
     # ... but observation starts with the fix-linking era: before it no fix can be seen
-    era = links_from(args.links_from)
+    era = links_from(args.links_from, tables)
     if era is None:
         origin = tables["commits"]["committer_date"].min()
     elif isinstance(era, str):

@@ -9,8 +9,9 @@ import numpy as np
 import pandas as pd
 
 from procmetrics.cli import add_store_argument
-from procmetrics.errors import StoreError
-from procmetrics.session import containment, links_from, load_tables
+from procmetrics.errors import ConfigError
+from procmetrics.session import change_date, containment, links_from, load_tables
+from procmetrics.validate import arg, check_count, check_nonnegative_int, check_positive, check_seed
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -29,7 +30,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--by", choices=["subsystem", "period"], help="curves and summaries per group")
     p.add_argument("--change-date", metavar="DATE", help="periods = before/after DATE "
                    "(default: calendar years)")
-    p.add_argument("--horizon", type=float, metavar="N", help="common follow-up horizon for "
+    p.add_argument("--horizon", type=arg(check_positive, "--horizon"), metavar="N", help="common follow-up horizon for "
                    "comparisons, in days (in releases with --basis releases)")
     p.add_argument("--links-from", metavar="DATE|settled|first|all", default="settled",
                    help="start of the fix-linking era: defects introduced earlier are left "
@@ -39,13 +40,13 @@ def register(sub: argparse._SubParsersAction) -> None:
                    "'first' = the first "
                    "linked fix; 'all' keeps every introducer (both-ends truncation, "
                    "Efron-Petrosian estimator)")
-    p.add_argument("--min-cohort", type=int, default=30, metavar="N", help="the headline "
+    p.add_argument("--min-cohort", type=arg(check_count, "--min-cohort"), default=30, metavar="N", help="the headline "
                    "horizon H is the longest (90, 180 days, whole years) at which every group "
                    "has at least N defects introduced H before the end and fixed within H "
                    "(default 30)")
-    p.add_argument("--boot", type=int, default=2000, metavar="B", help="bootstrap resamples "
+    p.add_argument("--boot", type=arg(check_count, "--boot"), default=2000, metavar="B", help="bootstrap resamples "
                    "for the secondary truncation-aware figures (default 2000)")
-    p.add_argument("--seed", type=int, default=20240601, help="random seed (bootstrap)")
+    p.add_argument("--seed", type=arg(check_seed, "--seed"), default=20240601, help="random seed (bootstrap)")
     p.add_argument("--out", metavar="DIR", help="write JSON, CSV tables and figures here")
     g = p.add_argument_group("blame-based linking (heuristic, off by default)")
     g.add_argument("--szz", action="store_true", help="also blame fix commits without a "
@@ -59,11 +60,11 @@ def register(sub: argparse._SubParsersAction) -> None:
     g.add_argument("--szz-candidates", choices=["top", "all"], default="top",
                    help="per fix keep the commit owning most blamed lines (default) or "
                    "every blamed commit")
-    g.add_argument("--szz-check", type=int, default=50, metavar="N",
+    g.add_argument("--szz-check", type=arg(check_nonnegative_int, "--szz-check"), default=50, metavar="N",
                    help="also blame N fixes that do have a Fixes: link and report how often "
                    "the heuristic finds the introducer the developers named (default 50; 0: "
                    "skip)")
-    g.add_argument("--jobs", type=int, default=2, metavar="N", help="git blame processes "
+    g.add_argument("--jobs", type=arg(check_count, "--jobs"), default=2, metavar="N", help="git blame processes "
                    "at once (default 2)")
     p.set_defaults(func=run)
 
@@ -83,8 +84,9 @@ def run(args: argparse.Namespace) -> int:
     table = build_defects(links, basis=args.basis, commits=tables["commits"],
                           commit_subsystems=tables["commit_subsystems"],
                           trailers=tables["trailers"], tag_containment=cont,
-                          period_cuts=[args.change_date] if args.change_date else None,
-                          links_from=links_from(args.links_from))
+                          period_cuts=[change_date(args.change_date, tables)]
+                          if args.change_date else None,
+                          links_from=links_from(args.links_from, tables))
     res = analyse_lifetimes(table, by=args.by, horizon=args.horizon, n_boot=args.boot,
                             min_cohort=args.min_cohort, rng=np.random.default_rng(args.seed))
     print(f"{name}: {res.n_defects} defects ({res.n_negative_excluded} with negative lifetime "
@@ -177,7 +179,8 @@ def _heuristic(args: argparse.Namespace, tables: dict[str, pd.DataFrame],
         try:
             listed = Path(args.szz_commits).read_text().split()
         except OSError as exc:
-            raise StoreError(f"cannot read {args.szz_commits}: {exc}") from exc
+            raise ConfigError(f"cannot read the list: {exc.strerror or exc}",
+                              path=str(args.szz_commits)) from exc
     keywords = (tuple(k.strip() for k in args.szz_keywords.split(",") if k.strip())
                 if args.szz_keywords else DEFAULT_FIX_KEYWORDS)
     sel = select_unlinked_fixes(commits, links, keywords=keywords, hashes=listed)
@@ -197,7 +200,8 @@ def _heuristic(args: argparse.Namespace, tables: dict[str, pd.DataFrame],
                           "releases" else args.basis, commits=commits,
                           commit_subsystems=tables["commit_subsystems"],
                           trailers=tables["trailers"],
-                          period_cuts=[args.change_date] if args.change_date else None,
+                          period_cuts=[change_date(args.change_date, tables)]
+                          if args.change_date else None,
                           links_from=None,
                           link_source="blame-based (SZZ) candidate link")
     an = analyse_lifetimes(table, by=args.by, horizon=args.horizon, n_boot=args.boot,

@@ -8,6 +8,7 @@ from procmetrics.cli import add_store_argument
 from procmetrics.errors import ConfigError
 from procmetrics.mine import MineOptions, mine_repository
 from procmetrics.mine.multi import mine_many, read_repo_list
+from procmetrics.validate import arg, check_count
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -20,7 +21,7 @@ def register(sub: argparse._SubParsersAction) -> None:
                    "mined in parallel into the same store, each under its own name")
     p.add_argument("--list", metavar="FILE", dest="repo_list",
                    help="text file naming repositories to mine, one path a line (# comments)")
-    p.add_argument("--jobs", type=int, metavar="N",
+    p.add_argument("--jobs", type=arg(check_count, "--jobs"), metavar="N",
                    help="worker processes for several repositories (default: one per CPU)")
     p.add_argument("--scheduler", metavar="ADDRESS",
                    help="mine on a Dask distributed cluster (e.g. tcp://host:8786); workers "
@@ -39,7 +40,7 @@ def register(sub: argparse._SubParsersAction) -> None:
                    help="TOML file mapping globs to subsystems ([subsystems] name = [globs])")
     p.add_argument("--no-maintainers", action="store_true",
                    help="ignore a MAINTAINERS file in the repository")
-    p.add_argument("--prefix-depth", type=int, default=1, metavar="N",
+    p.add_argument("--prefix-depth", type=arg(check_count, "--prefix-depth"), default=1, metavar="N",
                    help="without rules or MAINTAINERS: subsystem = first N folders (default 1)")
     p.add_argument("--repo-name", metavar="NAME", help="name in the store (default: folder name)")
     p.add_argument("--rewrite-policy", choices=["fail", "remine"], default="fail",
@@ -72,8 +73,6 @@ def run(args: argparse.Namespace) -> int:
           f"{fx.get('unresolved', 0)}, ambiguous {fx.get('ambiguous', 0)}, self "
           f"{fx.get('self', 0)}), {s.unparsed} unparsed, {s.reverts} reverts, {s.tags} tags")
     print(f"subsystems: {s.mapping_kind} ({s.mapping_source})")
-    if s.is_shallow:
-        print("warning: shallow clone - history before the shallow boundary is missing")
     return 0
 
 

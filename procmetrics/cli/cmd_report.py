@@ -5,6 +5,7 @@ import argparse
 
 from procmetrics.cli import add_store_argument
 from procmetrics.report.model import PERIODS, ReportOptions
+from procmetrics.validate import arg, check_level, check_seed
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -15,7 +16,11 @@ def register(sub: argparse._SubParsersAction) -> None:
         "(the data behind each figure and table) and manifest.json (provenance and "
         "checksums). Figures the data cannot carry are flagged automatically.")
     add_store_argument(p)
-    p.add_argument("--out", required=True, metavar="DIR", help="output folder (created)")
+    p.add_argument("--out", required=True, metavar="DIR",
+                   help="output folder: new or empty; an earlier report folder only with "
+                   "--overwrite (written beside it, then moved into place)")
+    p.add_argument("--overwrite", action="store_true",
+                   help="replace the earlier procmetrics report in --out as a whole")
     p.add_argument("--repo", metavar="NAME", help="repository in the store (needed when it "
                    "holds several)")
     p.add_argument("--policy-date", metavar="DATE|REV", dest="policy",
@@ -26,9 +31,9 @@ def register(sub: argparse._SubParsersAction) -> None:
                    dest="subsystems", help="also show this subsystem on its own (repeatable)")
     p.add_argument("--period", choices=PERIODS, default="quarter",
                    help="period of the series (default: quarter; release = between tags)")
-    p.add_argument("--level", type=float, default=0.95,
+    p.add_argument("--level", type=arg(check_level, "--level"), default=0.95,
                    help="interval level (default 0.95)")
-    p.add_argument("--seed", type=int, default=ReportOptions.seed,
+    p.add_argument("--seed", type=arg(check_seed, "--seed"), default=ReportOptions.seed,
                    help="seed of the bootstrap resampling (recorded in the manifest)")
     p.add_argument("--pdf-engine", choices=["auto", "chromium", "fallback", "none"],
                    default="auto", help="auto: headless chromium when found, else a plain "
@@ -39,6 +44,9 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--commit-url", metavar="TEMPLATE", help="URL template with {hash}, e.g. "
                    "'https://git.example.org/fw/commit/{hash}': every commit hash becomes a "
                    "link (http/https only)")
+    p.add_argument("--raw-csv", action="store_true",
+                   help="exact text in tables/*.csv (default: a leading ' before text cells "
+                   "starting with = + - @ tab or CR, so spreadsheets do not run them)")
     p.set_defaults(func=run)
 
 
@@ -47,10 +55,10 @@ def run(args: argparse.Namespace) -> int:
                          subsystems=tuple(dict.fromkeys(args.subsystems)), period=args.period,
                          claims_path=args.claims, level=args.level, seed=args.seed,
                          pdf_engine=args.pdf_engine, meta_path=args.meta,
-                         commit_url=args.commit_url)
+                         commit_url=args.commit_url, raw_csv=args.raw_csv)
     from procmetrics.report.build import make_report  # heavy: imported when run
 
-    files = make_report(args.store, args.out, opts)
+    files = make_report(args.store, args.out, opts, overwrite=args.overwrite)
     print(f"report written to {files.html} (PDF: {files.pdf_engine}; "
           f"{len(files.csv)} tables; manifest {files.manifest.name})")
     return 0

@@ -99,10 +99,16 @@ class GitRepo:
     # (an edited .mailmap or .gitattributes, uncommitted files) changes what is mined.
     # Identities are mapped by the .mailmap committed at this revision (HEAD by default).
     mailmap_rev: str | None = None
+    # True when that .mailmap's blob is absent (a partial clone): identities unmapped
+    mailmap_absent: bool = False
 
     def at_revision(self, rev: str) -> "GitRepo":
         """The same repository with identities mapped by ``rev``'s ``.mailmap``."""
         return replace(self, mailmap_rev=rev)
+
+    def without_mailmap(self) -> "GitRepo":
+        """The same repository with no identity mapping (its .mailmap blob is absent)."""
+        return replace(self, mailmap_absent=True)
 
     # -- construction -------------------------------------------------------------------
     @classmethod
@@ -120,8 +126,7 @@ class GitRepo:
                           check=False, extra_env=env)
         if proc.returncode != 0:
             err = proc.stderr.decode("utf-8", "replace").strip()
-            if "dubious ownership" in err:
-                raise NotARepository(f"{given}: git refuses to read it ({err.splitlines()[0]})")
+            _explain_refusal(given, err)
             raise NotARepository(f"{given} is not a git repository (give the top-level "
                                  "folder of a clone, or a bare repository)")
         lines = proc.stdout.decode("utf-8", "surrogateescape").splitlines()
@@ -147,7 +152,8 @@ class GitRepo:
                "-c", f"safe.directory={self.path}", "-c", f"safe.directory={self.git_dir}"]
         if isolated:
             cmd += ["--git-dir", str(self.git_dir), "-c", "core.bare=true",
-                    "-c", f"mailmap.blob={self.mailmap_rev}:.mailmap"]
+                    "-c", "mailmap.blob=" if self.mailmap_absent
+                    else f"mailmap.blob={self.mailmap_rev}:.mailmap"]
         for item in _PINNED_CONFIG:
             cmd += ["-c", item]
         return cmd + list(args)
@@ -236,6 +242,30 @@ class GitRepo:
             return proc.returncode == 0
         return False
 
+    def is_partial_clone(self, tip: str) -> bool:
+        """True for a partial clone whose file contents are absent: it has promisor packs
+        or a promisor remote, and blobs of ``tip``'s tree are missing (listed without
+        fetching by ``rev-list --missing=print``). A mirror kept in promisor packs with
+        every blob present is a full clone."""
+        promisor = any((self.git_dir / "objects" / "pack").glob("*.promisor"))
+        if not promisor:
+            proc = self._run(["config", "--get-regexp",
+                              r"^(remote\..*\.(promisor|partialclonefilter)|"
+                              r"extensions\.partialclone)$"], check=False)
+            promisor = proc.returncode == 0 and any(
+                ln.split(None, 1)[-1].strip().lower() not in ("false", "no", "off", "0")
+                for ln in proc.stdout.decode("utf-8", "replace").splitlines() if " " in ln)
+        if not promisor:
+            return False
+        proc = self._run(["rev-list", "--objects", "--missing=print", f"{tip}^{{tree}}", "--"],
+                         check=False)
+        return any(ln.startswith(b"?") for ln in proc.stdout.splitlines())
+
+    def has_object(self, oid: str) -> bool:
+        """True when ``oid`` is in the object store (never fetched: GIT_NO_LAZY_FETCH and
+        no transport allowed)."""
+        return self._run(["cat-file", "-e", oid], check=False).returncode == 0
+
     def config_value(self, key: str) -> str | None:
         proc = self._run(["config", "--get", key], check=False)
         return proc.stdout.decode("utf-8", "replace").strip() if proc.returncode == 0 else None
@@ -246,9 +276,19 @@ class GitRepo:
         if proc.returncode != 0:
             return None
         blob = proc.stdout.decode("ascii").strip()
+        if not self.has_object(blob):
+            raise ObjectAbsent(blob, f"{commit}:{path}")
         if self.text("cat-file", "-t", blob).strip() != "blob":
             return None
         return blob, self._run(["cat-file", "blob", blob]).stdout
+
+
+class ObjectAbsent(GitFailed):
+    """An object the tree names is not in the clone (partial or damaged clone)."""
+
+    def __init__(self, oid: str, where: str) -> None:
+        super().__init__(f"object {oid} ({where}) is not in the clone")
+        self.oid, self.where = oid, where
 
 
 def _widen_pipe(out) -> None:
@@ -310,3 +350,22 @@ def _failure(args: Sequence[str], code: int, stderr: bytes) -> str:
         detail += (" (a partial clone without these objects; procmetrics never fetches: "
                    "mine a full clone)")
     return f"git {args[0] if args else ''} failed (exit {code}): {detail}"
+
+
+def _explain_refusal(given: Path, err: str) -> None:
+    """Name what is wrong when git cannot open ``given``: a folder this user may not
+    read, or git's refusal of a repository owned by someone else (with the remedy).
+    Returns when neither applies (then the folder is simply not a repository)."""
+    import shlex
+
+    for folder in (given, given / ".git"):
+        if folder.is_dir() and not os.access(folder, os.R_OK | os.X_OK):
+            raise NotARepository(f"{folder}: permission denied: this user cannot read the "
+                                 "folder (check its owner and mode, e.g. ls -ld)")
+    first = err.splitlines()[0] if err else ""
+    if "dubious ownership" in err:
+        raise NotARepository(
+            f"{given}: git refuses to read a repository owned by another user ({first}); "
+            f"if you trust it: git config --global --add safe.directory {shlex.quote(str(given))}")
+    if "permission denied" in err.lower():
+        raise NotARepository(f"{given}: permission denied while git read it ({first})")

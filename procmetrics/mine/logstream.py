@@ -59,12 +59,15 @@ class LogCommit(NamedTuple):
 
 
 def log_args(tip: str, base: str | Sequence[str] | None, *, line_counts: bool,
-             merge_files: str, since: int | None, until: int | None) -> list[str]:
+             merge_files: str, since: int | None, until: int | None,
+             exact_renames: bool = False) -> list[str]:
     """The ``git log`` argv (after ``git``) for commits reachable from ``tip`` and from
-    none of ``base`` (one hash or several)."""
+    none of ``base`` (one hash or several). ``exact_renames``: renames only where the
+    content is identical (``-M100%``: compares object ids, reads no file contents, as
+    a partial clone without blobs needs)."""
     args = ["log", "-z", f"--format={LOG_FORMAT}", "--date=raw", "--encoding=UTF-8",
             "--no-color", "--no-notes", "--no-show-signature", "--no-ext-diff",
-            "--no-textconv", "--root", "--raw", "-M",
+            "--no-textconv", "--root", "--raw", "-M100%" if exact_renames else "-M",
             "--diff-merges=" + ("first-parent" if merge_files == "first-parent" else "off")]
     if line_counts:
         args.append("--numstat")

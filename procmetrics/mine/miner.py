@@ -51,9 +51,13 @@ from urllib.parse import urlsplit, urlunsplit
 from sqlalchemy.engine import Engine
 
 from procmetrics import __version__
-from procmetrics.errors import ConfigError, DataQualityWarning, HistoryRewritten
-from procmetrics.mine.git import GitRepo
-from procmetrics.mine.logstream import LogCommit, date_filter_args, log_args, parse_log
+from procmetrics.errors import ConfigError, DataQualityWarning, GitFailed, HistoryRewritten
+from procmetrics.mine.git import GitRepo, ObjectAbsent
+from procmetrics.mine.guards import (check_rules_change, identity_mapping_changed,
+                                     refuse_store_inside)
+from procmetrics.mine.partial import (PARTIAL_NOTE, commits_of_part, explain_missing_object,
+                                     lacking_note, paths_only as _paths_only)
+from procmetrics.mine.logstream import LogCommit, date_filter_args, log_args
 from procmetrics.mine.options import CONTENT_OPTIONS, MineOptions, MiningSummary
 from procmetrics.mine.references import scan_message
 from procmetrics.mine.resolve import classify, find_candidates, subject_match
@@ -85,11 +89,17 @@ def mine_repository(path: str | os.PathLike[str], store: str | os.PathLike[str] 
     git = GitRepo.open(path)
     tip = git.resolve_commit(opts.ref)
     shallow = git.is_shallow()
+    partial = git.is_partial_clone(tip)
+    lacking: list[tuple[str, str]] = []      # (commit, object): mined without line counts
+    if partial:
+        git, opts = _paths_only(git, tip, opts)
     if shallow:
-        warnings.warn(f"{git.path} is a shallow clone: history before the shallow boundary "
-                      "is missing, so counts, fix links and lifetimes are incomplete",
+        warnings.warn(f"shallow clone: {git.path} lacks the history before its shallow "
+                      "boundary, so counts, fix links and lifetimes are incomplete",
                       DataQualityWarning, stacklevel=2)
     mapper = build_mapper(git, tip, opts)
+    if not isinstance(store, Engine):
+        refuse_store_inside(store, [git.path, git.git_dir])
     engine = store if isinstance(store, Engine) else open_store(store)
     writer = StoreWriter(engine)
     name = opts.repo_name or default_repo_name(git)
@@ -100,16 +110,26 @@ def mine_repository(path: str | os.PathLike[str], store: str | os.PathLike[str] 
         cleaned = writer.cleanup_incomplete(repo_id)
         base = _decide_base(git, writer, repo_id, tip, opts)
         env = environment(git, tip)
-        if base is not None and _identity_mapping_changed(writer.environments(repo_id),
+        if base is not None and identity_mapping_changed(writer.environments(repo_id),
                                                           env, opts):
             writer.delete_repository_data(repo_id, "re-mined: the .mailmap changed")
             base = None
+        if base is not None:
+            check_rules_change(writer.mapping_of(repo_id), mapper, opts)
         run_id = writer.start_run(repo_id, ref=opts.ref, head_hash=tip, base_hash=base,
                                   is_shallow=shallow, options_json=opts.to_json(),
                                   versions_json=json.dumps(env, sort_keys=True))
         try:
             with _few_collections():
-                counts = _load(git, writer, repo_id, run_id, tip, base, opts)
+                try:
+                    counts = _load(git, writer, repo_id, run_id, tip, base, opts,
+                                   exact_renames=partial, lacking=lacking)
+                except GitFailed as exc:
+                    raise GitFailed(explain_missing_object(git, tip, str(exc), opts)) from exc
+                if lacking:
+                    warnings.warn(f"{lacking_note(lacking)}: those were mined without line "
+                                  "counts; repair the clone (fetch the objects again) to count "
+                                  "them", DataQualityWarning, stacklevel=2)
                 resolve_links(git, writer, repo_id, run_id, tip)
                 writer.replace_tags(repo_id, read_tags(git))
                 _map_paths(writer, repo_id, run_id, mapper)
@@ -118,7 +138,10 @@ def mine_repository(path: str | os.PathLike[str], store: str | os.PathLike[str] 
                                 remote_url=redact_url(git.config_value("remote.origin.url")),
                                 is_shallow=shallow, mapping_kind=mapper.kind,
                                 mapping_source=mapper.source, counts=counts,
-                                message="shallow clone" if shallow else None)
+                                message="; ".join(m for m in (
+                                    "shallow clone" if shallow else "",
+                                    PARTIAL_NOTE if partial else "",
+                                    lacking_note(lacking) if lacking else "") if m) or None)
         except BaseException as exc:
             try:
                 writer.fail_run(run_id, f"{exc.__class__.__name__}: {exc}")
@@ -199,7 +222,8 @@ def commit_row(c: LogCommit) -> CommitRow:
 
 
 def _load(git: GitRepo, writer: StoreWriter, repo_id: int, run_id: int, tip: str,
-          base: str | None, opts: MineOptions) -> dict[str, int]:
+          base: str | None, opts: MineOptions, exact_renames: bool = False,
+          lacking: list[tuple[str, str]] | None = None) -> dict[str, int]:
     counts = {"n_commits": 0, "n_file_changes": 0, "n_trailers": 0, "n_fix_refs": 0}
     if base == tip:
         return counts
@@ -212,14 +236,20 @@ def _load(git: GitRepo, writer: StoreWriter, repo_id: int, run_id: int, tip: str
                              "--").strip() or 0)
     bulk = base is None and writer.drop_indexes_if_empty()
     from tqdm import tqdm
-    bar = tqdm(total=total, unit="commit", file=sys.stderr, disable=not show,
+    # the bar's own carriage returns go to the stream under the CLI's sanitiser
+    bar = tqdm(total=total, unit="commit", file=getattr(sys.stderr, "unfiltered", sys.stderr),
+               disable=not show,
                desc="mining", dynamic_ncols=True)
     try:
         batch: list[CommitRow] = []
         for part_tip, excluded in history_parts(git, tip, base):
             args = log_args(part_tip, excluded, line_counts=opts.line_counts,
+                            exact_renames=exact_renames,
                             merge_files=opts.merge_files, since=since, until=until)
-            for c in parse_log(git.stream(args)):
+            rev_range = [*date_filter_args(since, until), part_tip,
+                         *("^" + e for e in excluded), "--"]
+            for c in commits_of_part(git, args, rev_range, line_counts=opts.line_counts,
+                                     lacking=lacking if lacking is not None else []):
                 batch.append(commit_row(c))
                 if len(batch) >= opts.batch_size:
                     _add(counts, writer.write_batch(repo_id, run_id, batch, durable=not bulk))
@@ -300,7 +330,14 @@ def build_mapper(git: GitRepo, tip: str, opts: MineOptions) -> PathMapper:
     if opts.subsystem_rules:
         return rules_mapper(opts.subsystem_rules)
     if opts.use_maintainers:
-        found = git.blob_at(tip, MAINTAINERS_FILE)
+        try:
+            found = git.blob_at(tip, MAINTAINERS_FILE)
+        except ObjectAbsent as exc:
+            warnings.warn(f"partial clone: the {MAINTAINERS_FILE} file's blob {exc.oid[:12]} is "
+                          "not in the clone (nothing is fetched): subsystems come from path "
+                          "prefixes instead; give --subsystem-rules for another mapping",
+                          DataQualityWarning, stacklevel=3)
+            found = None
         if found is not None:
             blob, data = found
             return maintainers_mapper(data.decode("utf-8", "replace"),
@@ -356,31 +393,21 @@ def redact_url(url: str | None) -> str | None:
     return urlunsplit(parts._replace(netloc=f"***@{host}"))
 
 
-def _identity_mapping_changed(previous: list[str], env: dict[str, str],
-                              opts: MineOptions) -> bool:
-    """True when the .mailmap changed and ``remine`` asks to map every commit again.
-
-    An incremental run maps only the new commits; without ``remine`` the change is
-    reported as a data-quality warning and the stored commits keep their identities.
-    """
-    seen = {json.loads(p).get("identity_mapping") for p in previous} - {None}
-    if not seen or seen == {env["identity_mapping"]}:
-        return False
-    before = ", ".join(sorted(seen))
-    if opts.rewrite_policy == "remine":
-        return True
-    warnings.warn(f"the .mailmap changed since the last run ({before} -> "
-                  f"{env['identity_mapping']}): commits stored earlier keep the old "
-                  "identities; run again with --rewrite-policy remine to map every commit "
-                  "the same way", DataQualityWarning, stacklevel=3)
-    return False
-
-
 def environment(git: GitRepo, tip: str) -> dict[str, str]:
     """Tool versions plus the identity mapping git applied (the ``.mailmap`` committed
     at the revision ``git.mailmap_rev``, HEAD by default; never the work tree's)."""
     out = versions(git)
-    found = git.blob_at(git.mailmap_rev or "HEAD", ".mailmap")
+    try:
+        found = None if git.mailmap_absent else git.blob_at(git.mailmap_rev or "HEAD",
+                                                            ".mailmap")
+    except ObjectAbsent as exc:
+        found = None
+        git = git.without_mailmap()
+        out["identity_mapping"] = f".mailmap@{exc.oid} skipped (blob absent)"
+        return out
+    if git.mailmap_absent:
+        out["identity_mapping"] = "none (.mailmap blob absent in a partial clone)"
+        return out
     out["identity_mapping"] = f".mailmap@{found[0]}" if found else "none"
     return out
 

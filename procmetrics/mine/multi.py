@@ -190,6 +190,8 @@ def mine_many(paths: Iterable[str | os.PathLike[str]], *,
     if scheduler is not None and url.startswith("sqlite") and not _is_local(scheduler):
         raise ConfigError("a SQLite store cannot be shared by machines of a Dask cluster; "
                           "use a PostgreSQL URL (postgresql+psycopg://...)")
+    from procmetrics.mine.guards import refuse_store_inside
+    refuse_store_inside(store, unique)
     open_store(url).dispose()       # create the schema once, before workers race for it
     started = time.monotonic()
     work = list(zip(unique, names))

@@ -35,12 +35,12 @@ import bisect
 import hashlib
 import re
 import tomllib
-import warnings
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Iterable, Sequence
+from typing import Any, Iterable, Sequence
 
-from procmetrics.errors import ConfigError, DataQualityWarning
+from procmetrics.errors import ConfigError
+from procmetrics.mine.pathregex import LinearRegex, compile_path_regex, glob_regex_linear
 
 UNMAPPED = "(unmapped)"
 TOP_LEVEL = "(top-level)"
@@ -50,7 +50,7 @@ _GLOB_CHARS = "*?["
 @dataclass(frozen=True)
 class Pattern:
     text: str
-    regex: re.Pattern[str]
+    regex: Any   # re.Pattern, or an RE2 pattern for globs with many stars
     specificity: int
     bucket: str          # literal folder prefix and the next literal character, if any
     literal: bool = False   # no wildcard: matches by prefix look-up, no regex needed
@@ -84,8 +84,13 @@ def compile_glob(text: str, *, allow_globstar: bool = False) -> Pattern:
         tail = "(?:/.*)?"           # no wildcard: that file, or everything below that folder
     else:
         tail = ""
-    return Pattern(text, re.compile(core + tail + r"\Z", re.S), len(literal.rstrip("/")),
-                   bucket, cut < 0)
+    if text.count("*") > 2:
+        # three or more stars backtrack polynomially in Python's re (a repository's F: line
+        # like a*a*a*a*b on a long path): linear-time RE2, slower per call, for these only
+        regex = glob_regex_linear(core + tail + r"\z")
+    else:
+        regex = re.compile(core + tail + r"\Z", re.S)
+    return Pattern(text, regex, len(literal.rstrip("/")), bucket, cut < 0)
 
 
 def _buckets(path: str) -> list[str]:
@@ -108,10 +113,10 @@ class PathMapper:
     by_bucket: dict[str, list[tuple[Pattern, int]]] = field(default_factory=dict)
     exact: dict[str, list[tuple[Pattern, int]]] = field(default_factory=dict)
     excludes: dict[int, list[Pattern]] = field(default_factory=dict)
-    regexes: list[tuple[re.Pattern[str], int]] = field(default_factory=list)
+    regexes: list[tuple[LinearRegex, int]] = field(default_factory=list)
 
     def add(self, title: str, patterns: Iterable[Pattern], excludes: Iterable[Pattern] = (),
-            regexes: Iterable[re.Pattern[str]] = ()) -> None:
+            regexes: Iterable[LinearRegex] = ()) -> None:
         idx = len(self.titles)
         self.titles.append(title)
         for p in patterns:
@@ -209,15 +214,14 @@ class PathMapper:
         for path in paths[:-1]:
             starts.append(starts[-1] + len(path) + 1)
         for rx, idx in self.regexes:
-            if "\\A" in rx.pattern or "\\Z" in rx.pattern:
+            if rx.anchored:
                 for i, path in enumerate(paths):
                     m = rx.search(path)
                     if m:
                         hits[i].append((m.end(), idx))
                 continue
-            multi = re.compile(rx.pattern, rx.flags | re.M)
             done = -1
-            for m in multi.finditer(joined):
+            for m in rx.multi.finditer(joined):
                 i = bisect.bisect_right(starts, m.start()) - 1
                 if "\n" in m.group():      # spans paths: fall back for the paths it covers
                     j = bisect.bisect_right(starts, m.end()) - 1
@@ -248,14 +252,13 @@ def maintainers_mapper(text: str, source: str) -> PathMapper:
     title: str | None = None
     pats: list[Pattern] = []
     excl: list[Pattern] = []
-    rxs: list[re.Pattern[str]] = []
-    bad: list[str] = []
+    rxs: list[LinearRegex] = []
 
     def flush() -> None:
         if title is not None and (pats or rxs):
             mapper.add(title, pats, excl, rxs)
 
-    for line in text.splitlines():
+    for lineno, line in enumerate(text.splitlines(), start=1):
         if not line.strip():
             flush()
             title, pats, excl, rxs = None, [], [], []
@@ -268,17 +271,11 @@ def maintainers_mapper(text: str, source: str) -> PathMapper:
             elif kind == "X" and value:
                 excl.append(compile_glob(value))
             elif kind == "N" and value:
-                try:
-                    rxs.append(re.compile(value))
-                except re.error:
-                    bad.append(value)
+                # linear time whatever the pattern (a repository is data)
+                rxs.append(compile_path_regex(value, source=source, line=lineno, entry=title))
         elif not line[0].isspace() and title is None and not m:
             title = line.strip()
     flush()
-    if bad:
-        warnings.warn(f"{source}: {len(bad)} N: pattern(s) are not valid Python regular "
-                      f"expressions and were skipped (first: {bad[0]!r})",
-                      DataQualityWarning, stacklevel=2)
     return mapper.finish()
 
 
@@ -291,6 +288,8 @@ def rules_mapper(path: str | Path) -> PathMapper:
         raise ConfigError(f"cannot read subsystem rules: {exc.strerror}", path=str(p)) from exc
     try:
         data = tomllib.loads(raw.decode("utf-8"))
+    except RecursionError as exc:
+        raise ConfigError("not usable TOML: nested too deeply", path=str(p)) from exc
     except (UnicodeDecodeError, tomllib.TOMLDecodeError) as exc:
         line = re.search(r"line (\d+)", str(exc))
         raise ConfigError(f"not valid TOML: {exc}", path=str(p),

@@ -18,7 +18,7 @@ from typing import Any
 
 import pandas as pd
 
-from procmetrics.errors import ConfigError, ProcmetricsError
+from procmetrics.errors import ConfigError, InsufficientData, ProcmetricsError
 from procmetrics.analyse.measures import quality as ql
 from procmetrics.report import sec_claims, sec_compare, sec_defects, sec_process, sec_scope
 from procmetrics.claims.reader import ClaimsFile, load_claims
@@ -29,10 +29,11 @@ from procmetrics.store.repodata import StoreData, choose_repo, load_store_data, 
 from procmetrics.report.flags import store_flags
 from procmetrics.report.html import render_html
 from procmetrics.report.jsonout import write_json
-from procmetrics.report.manifest import (build_manifest, read_manifest, sha256_file,
-                                         write_manifest)
+from procmetrics.report.manifest import build_manifest, sha256_file, write_manifest
 from procmetrics.report.meta import check_commit_url, copy_input, input_record, load_meta
 from procmetrics.report.model import PERIODS, Report, ReportOptions
+from procmetrics.report.outdir import check_target, fresh_folder
+from procmetrics.validate import check_level, check_seed
 from procmetrics.report.pdf import write_pdf
 from procmetrics.analyse.measures.periods import resolve_policy
 
@@ -156,28 +157,16 @@ class ReportFiles:
     pdf_engine: str
 
 
-def _clear_previous(out: Path) -> None:
-    """Remove the files a previous report wrote here (listed in its manifest), nothing else."""
-    old = out / "manifest.json"
-    if not old.exists():
-        return
-    try:
-        names = read_manifest(old).get("outputs", {})
-    except ConfigError:
-        return
-    for name in names:
-        p = (out / name).resolve()
-        if out.resolve() in p.parents and p.is_file():
-            p.unlink()
-    old.unlink()
-
-
-def _copy_inputs(report: Report, out: Path, info: dict[str, Any]) -> list[str]:
+def _copy_inputs(report: Report, out: Path, info: dict[str, Any], *,
+                 final: Path | None = None) -> list[str]:
     """Copy the claims, rules and metadata files into ``out/inputs``; point the manifest there.
 
     Paths in the manifest are relative to the manifest's folder; the absolute
     path each file had when the report was made is kept as provenance only.
+    ``out`` is where the files are written now, ``final`` the folder they end up in
+    (the paths are relative to that one).
     """
+    final = final or out
     written: list[str] = []
     opts = report.options
     if opts.claims_path and info.get("claims") is not None:
@@ -206,47 +195,65 @@ def _copy_inputs(report: Report, out: Path, info: dict[str, Any]) -> list[str]:
     url = str(info.get("store_url") or "")
     if url.startswith("sqlite:///"):
         info["store_path"] = Path(os.path.relpath(url[len("sqlite:///"):],
-                                                  out.resolve())).as_posix()
+                                                  final.resolve())).as_posix()
     repo_path = (info.get("repository") or {}).get("path")
     if repo_path:
-        info["repository_path"] = Path(os.path.relpath(repo_path, out.resolve())).as_posix()
+        info["repository_path"] = Path(os.path.relpath(repo_path, final.resolve())).as_posix()
     return written
 
 
-def write_report(report: Report, out: Path, *, manifest_info: dict[str, Any]) -> ReportFiles:
-    """Write the audit folder; ``manifest_info`` carries store URL, dialect, mining runs."""
-    out.mkdir(parents=True, exist_ok=True)
-    _clear_previous(out)
-    prepared = dt.datetime.now(dt.timezone.utc).replace(microsecond=0)
-    info = dict(manifest_info)
-    inputs_written = _copy_inputs(report, out, info)
-    csv_names = write_csvs(report, out)
-    evidence_names = write_evidence(report, out)
-    json_path = write_json(report, out / "report.json", csv_names)
-    html_path = out / "report.html"
-    html_path.write_text(render_html(report, csv_names=csv_names,
-                                     prepared=f"{prepared:%Y-%m-%d}"), encoding="utf-8")
-    pdf_path = out / "report.pdf"
-    pdf = write_pdf(report, html_path, pdf_path, csv_names=csv_names,
-                    prepared=f"{prepared:%Y-%m-%d}", engine=report.options.pdf_engine)
-    written = sorted(set(csv_names.values()) | {"report.json", "report.html"}
-                     | set(inputs_written) | set(evidence_names)
-                     | ({"report.pdf"} if pdf["engine"] != "none" else set()))
-    manifest = build_manifest(out=out, written=written, options=report.options,
-                              store_checksum=report.store_checksum, pdf=pdf,
-                              prepared=prepared.isoformat(), **info)
-    man_path = write_manifest(manifest, out)
-    return ReportFiles(out, html_path, pdf_path if pdf["engine"] != "none" else None,
-                       json_path, man_path, tuple(out / n for n in sorted(csv_names.values())),
-                       pdf["engine"])
+def write_report(report: Report, out: Path, *, manifest_info: dict[str, Any],
+                 overwrite: bool = False, adopt: tuple[str, ...] = ()) -> ReportFiles:
+    """Write the audit folder; ``manifest_info`` carries store URL, dialect, mining runs.
+
+    The files are written into a fresh folder beside ``out`` that then replaces it
+    (:mod:`procmetrics.report.outdir`): an earlier report is replaced only with
+    ``overwrite``, any other non-empty folder is refused. The claims, rules and
+    metadata files are copied in and the manifest refers to everything by paths
+    relative to itself.
+    """
+    out = Path(out).absolute()
+    with fresh_folder(out, overwrite=overwrite, adopt=adopt) as tmp:
+        prepared = dt.datetime.now(dt.timezone.utc).replace(microsecond=0)
+        info = dict(manifest_info)
+        inputs_written = _copy_inputs(report, tmp, info, final=out)
+        csv_names = write_csvs(report, tmp)
+        evidence_names = write_evidence(report, tmp)
+        write_json(report, tmp / "report.json", csv_names)
+        html_path = tmp / "report.html"
+        html_path.write_text(render_html(report, csv_names=csv_names,
+                                         prepared=f"{prepared:%Y-%m-%d}"), encoding="utf-8")
+        pdf = write_pdf(report, html_path, tmp / "report.pdf", csv_names=csv_names,
+                        prepared=f"{prepared:%Y-%m-%d}", engine=report.options.pdf_engine)
+        written = sorted(set(csv_names.values()) | {"report.json", "report.html"}
+                         | set(inputs_written) | set(evidence_names)
+                         | ({"report.pdf"} if pdf["engine"] != "none" else set()))
+        manifest = build_manifest(out=tmp, written=written, options=report.options,
+                                  store_checksum=report.store_checksum, pdf=pdf,
+                                  prepared=prepared.isoformat(), **info)
+        write_manifest(manifest, tmp)
+    return ReportFiles(out, out / "report.html",
+                       out / "report.pdf" if pdf["engine"] != "none" else None,
+                       out / "report.json", out / "manifest.json",
+                       tuple(out / n for n in sorted(csv_names.values())), pdf["engine"])
 
 
-def make_report(store: str | None, out: str | Path, options: ReportOptions) -> ReportFiles:
+def make_report(store: str | None, out: str | Path, options: ReportOptions, *,
+                overwrite: bool = False, adopt: tuple[str, ...] = ()) -> ReportFiles:
     """Open the store, build the report and write the folder (the CLI's one call)."""
     from procmetrics.store import open_store, resolve_url
     from procmetrics.store.engine import _safe
     from procmetrics.store.schema import SCHEMA_VERSION
 
+    # a store kept in the report folder itself (as `make demo` does) stays with it
+    url = resolve_url(store)
+    if url.startswith("sqlite:///"):
+        db = Path(url[len("sqlite:///"):].split("?", 1)[0])
+        if str(out).strip() and db.parent == Path(out).absolute().resolve():
+            adopt = (*adopt, db.name)
+    check_target(out, overwrite=overwrite, adopt=adopt)     # refuse before the long work
+    check_level(options.level, "level")
+    check_seed(options.seed, "seed")
     claims = load_claims(options.claims_path) if options.claims_path else None
     meta = load_meta(options.meta_path)
     check_commit_url(options.commit_url)
@@ -257,9 +264,10 @@ def make_report(store: str | None, out: str | Path, options: ReportOptions) -> R
         dialect = engine.dialect.name
     finally:
         engine.dispose()
+    _require_something_to_measure(data, repo)
     opts = options if options.repo == repo else ReportOptions(
         **{**options.__dict__, "repo": repo})
-    report = build_report(data, opts, claims=claims)
+    report, library_warnings = _build_recording_warnings(data, opts, claims)
     report.meta = meta
     if meta.title:
         report.title = meta.title
@@ -273,8 +281,41 @@ def make_report(store: str | None, out: str | Path, options: ReportOptions) -> R
         "mining_runs": [{k: _json_safe(v) for k, v in r.items()}
                         for r in runs.to_dict(orient="records")],
         "claims": None if claims is None else claims.to_dict(),
+        "library_warnings": library_warnings,
     }
-    return write_report(report, Path(out), manifest_info=info)
+    return write_report(report, Path(out), manifest_info=info, overwrite=overwrite, adopt=adopt)
+
+
+def _build_recording_warnings(data: Any, opts: ReportOptions, claims: Any
+                              ) -> tuple[Report, list[dict[str, Any]]]:
+    """Build the report; numerical warnings of libraries (numpy, statsmodels, matplotlib
+    ...) are recorded for the manifest instead of reaching the console, ours are
+    passed on (the CLI prints them as one line each)."""
+    import warnings
+    from collections import Counter
+    from procmetrics.errors import ProcmetricsWarning
+
+    with warnings.catch_warnings(record=True) as caught:
+        report = build_report(data, opts, claims=claims)
+    library: Counter = Counter()
+    for w in caught:
+        if issubclass(w.category, ProcmetricsWarning):
+            warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
+        else:
+            library[(w.category.__name__, " ".join(str(w.message).split()))] += 1
+    return report, [{"category": c, "message": m, "count": n}
+                    for (c, m), n in sorted(library.items())]
+
+
+def _require_something_to_measure(data: Any, repo: str) -> None:
+    """The rule of series/compare/changes: no non-merge commit with a date -> exit 7."""
+    commits = data["commits"]
+    merge = commits["is_merge"].fillna(False).astype(bool) if "is_merge" in commits \
+        else pd.Series(False, index=commits.index)
+    dated = commits["committer_date"].notna() | commits["author_date"].notna()
+    if not (~merge & dated).any():
+        raise InsufficientData(f"{repo}: no (non-merge) commits with a date to measure "
+                               f"({len(commits)} stored commit(s)); nothing to report")
 
 
 def _json_safe(v: Any) -> Any:

@@ -29,34 +29,37 @@ import json
 from pathlib import Path
 from typing import Any
 
-from procmetrics.errors import StoreError
+from procmetrics.errors import OutputPathError
+from procmetrics.textsafe import neutralise_frame
 
 DATE_FORMAT = "%Y-%m-%dT%H:%M:%SZ"
 
 
 def write_json(path: Path, obj: Any) -> Path:
-    """Deterministic JSON (sorted keys, no NaN); an unwritable path is a StoreError."""
+    """Deterministic JSON (sorted keys, no NaN); an unwritable path is an OutputPathError."""
     try:
         path.write_text(json.dumps(obj, indent=2, sort_keys=True, allow_nan=False) + "\n")
     except OSError as exc:
-        raise StoreError(f"cannot write {path}: {exc}") from exc
+        raise OutputPathError(f"cannot write {path}: {exc.strerror or exc}") from exc
     return path
 
 
 def _out_dir(out: Path | str) -> Path:
+    if not str(out).strip():
+        raise OutputPathError("--out needs a folder name ('' would mean the current folder)")
     out = Path(out)
     try:
         out.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
-        raise StoreError(f"cannot create {out}: {exc}") from exc
+        raise OutputPathError(f"cannot create the folder {out}: {exc.strerror or exc}") from exc
     return out
 
 
 def _csv(df: Any, path: Path) -> Path:
     try:
-        df.to_csv(path, index=False, date_format=DATE_FORMAT)
+        neutralise_frame(df).to_csv(path, index=False, date_format=DATE_FORMAT)
     except OSError as exc:
-        raise StoreError(f"cannot write {path}: {exc}") from exc
+        raise OutputPathError(f"cannot write {path}: {exc.strerror or exc}") from exc
     return path
 
 

@@ -18,11 +18,12 @@ import numpy as np
 import pandas as pd
 
 from procmetrics.report.model import Report
+from procmetrics.textsafe import csv_text_cell
 
 _KEY = re.compile(r"^[a-z0-9][a-z0-9-]*$")
 
 
-def _cell(v: Any) -> str:
+def _cell(v: Any, raw: bool = False) -> str:
     if v is None or v is pd.NA or v is pd.NaT:
         return ""
     if isinstance(v, pd.Timestamp):
@@ -38,15 +39,15 @@ def _cell(v: Any) -> str:
         if math.isinf(x):
             return "inf" if x > 0 else "-inf"
         return format(x, ".10g")
-    return str(v)
+    return csv_text_cell(str(v), raw=raw)   # text: neutralised against formula injection
 
 
-def frame_to_csv(df: pd.DataFrame) -> str:
+def frame_to_csv(df: pd.DataFrame, *, raw: bool = False) -> str:
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n", quoting=csv.QUOTE_MINIMAL)
     w.writerow([str(c) for c in df.columns])
     for row in df.astype(object).itertuples(index=False):
-        w.writerow([_cell(v) for v in row])
+        w.writerow([_cell(v, raw) for v in row])
     return buf.getvalue()
 
 
@@ -65,15 +66,21 @@ def csv_names(report: Report) -> dict[str, str]:
 
 
 def write_csvs(report: Report, out: Path) -> dict[str, str]:
-    """Write every figure's and table's data; return key -> relative file name."""
+    """Write every figure's and table's data; return key -> relative file name.
+
+    Text cells starting like a spreadsheet formula get a leading ``'``
+    (:func:`procmetrics.textsafe.csv_text_cell`) unless the report was asked for
+    ``raw_csv``."""
+    raw = bool(getattr(report.options, "raw_csv", False))
     names = csv_names(report)
     (out / "tables").mkdir(parents=True, exist_ok=True)
     for fig in report.figures.values():
-        (out / names[fig.key]).write_text(frame_to_csv(fig.data), encoding="utf-8",
+        (out / names[fig.key]).write_text(frame_to_csv(fig.data, raw=raw), encoding="utf-8",
                                           newline="")
     for tab in report.tables.values():
         df = tab.data.reindex(columns=[k for k, _ in tab.columns])
-        (out / names[tab.key]).write_text(frame_to_csv(df), encoding="utf-8", newline="")
+        (out / names[tab.key]).write_text(frame_to_csv(df, raw=raw), encoding="utf-8",
+                                          newline="")
     return names
 
 

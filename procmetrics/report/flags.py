@@ -100,6 +100,18 @@ def store_flags(quality: dict[str, Any], *, unresolved_limit: float,
             "shallow_history", "fail", "all",
             "the clone is shallow: commits before the cut are missing, so early periods, "
             "fix targets and lifetimes are incomplete", "store"))
+    if hist.get("is_partial_clone"):
+        out["all"].append(Flag(
+            "partial_clone", "warn", "all",
+            "mined from a partial clone without file contents: line counts (churn) and "
+            "content-based rename detection were unavailable; a renamed file counts as a "
+            "rename only where its content stayed identical, and an absent .mailmap or "
+            "MAINTAINERS file was skipped (see the mining runs)", "store"))
+    for text in hist.get("line_counts_missing", ()):
+        out["all"].append(Flag(
+            "line_counts_missing", "warn", "all",
+            f"some commits were mined without line counts because the clone lacks their "
+            f"file contents ({text}); churn figures leave them out", "store"))
     for text in hist["rewritten"]:
         out["all"].append(Flag(
             "rewritten_history", "fail", "all",

@@ -55,7 +55,8 @@ def build_manifest(*, out: Path, written: list[str], options: ReportOptions, sto
                    schema_version: int, store_checksum: str, repository: dict[str, Any],
                    mining_runs: list[dict[str, Any]], pdf: dict[str, Any], prepared: str,
                    claims: dict[str, Any] | None, inputs: dict[str, Any] | None = None,
-                   store_path: str | None = None, repository_path: str | None = None
+                   store_path: str | None = None, repository_path: str | None = None,
+                   library_warnings: list[dict[str, Any]] | None = None
                    ) -> dict[str, Any]:
     """The manifest; ``store_path``, ``repository_path`` and input paths are relative
     to the manifest's folder (the absolute ``url``/``path``/``original_path`` are kept as
@@ -78,6 +79,9 @@ def build_manifest(*, out: Path, written: list[str], options: ReportOptions, sto
         "pdf": pdf,
         "versions": versions(),
         "outputs": output_checksums(out, written),
+        # numerical warnings of libraries while the report was built (not shown on the
+        # console): category, message, how often
+        "library_warnings": list(library_warnings or []),
     }
 
 
@@ -97,6 +101,8 @@ def read_manifest(path: Path) -> dict[str, Any]:
         data = json.loads(text)
     except json.JSONDecodeError as exc:
         raise ConfigError(f"not valid JSON: {exc.msg}", path=str(path), line=exc.lineno) from exc
+    except RecursionError as exc:
+        raise ConfigError("not usable JSON: nested too deeply", path=str(path)) from exc
     if not isinstance(data, dict) or data.get("format") != MANIFEST_FORMAT:
         raise ConfigError(f"not a procmetrics manifest (format {MANIFEST_FORMAT} expected)",
                           path=str(path), key="format")

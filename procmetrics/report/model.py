@@ -43,6 +43,8 @@ class ReportOptions:
     meta_path: str | None = None
     #: URL template with ``{hash}`` that turns every commit hash into a link
     commit_url: str | None = None
+    #: exact text in tables/*.csv (no leading ' before cells that start like a formula)
+    raw_csv: bool = False
 
     def to_dict(self) -> dict[str, Any]:
         """Options that change figures (no local paths: those go in the manifest)."""
@@ -53,6 +55,7 @@ class ReportOptions:
             "min_n": self.min_n, "seed": self.seed,
             "subsystem_limit": self.subsystem_limit,
             "subsystem_min_commits": self.subsystem_min_commits,
+            **({"raw_csv": True} if self.raw_csv else {}),
         }
 
 

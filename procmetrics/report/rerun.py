@@ -64,18 +64,34 @@ class RerunResult:
 
 
 def _options(man: dict[str, Any], *, claims: str | None = None,
-             meta: str | None = None) -> ReportOptions:
-    o = dict(man.get("report_options") or {})
+             meta: str | None = None, where: str | None = None) -> ReportOptions:
+    """The recorded report options, each number checked by the one validator the
+    command line uses (a tampered manifest ends in exit 2 naming the key)."""
+    from procmetrics.validate import check_count, check_level, check_seed
+
+    o = man.get("report_options") or {}
+    if not isinstance(o, dict):
+        raise ConfigError("must be an object", path=where, key="report_options")
+
+    def num(check, key, default):
+        try:
+            return check(o.get(key, default), f"report_options.{key}")
+        except ConfigError as exc:
+            raise ConfigError(str(exc), path=where, key=f"report_options.{key}") from None
+
     return ReportOptions(repo=o.get("repo"), policy=o.get("policy"),
                          subsystems=tuple(o.get("subsystems") or ()),
                          period=o.get("period", "quarter"), claims_path=claims,
-                         level=float(o.get("level", 0.95)),
-                         unresolved_share_limit=float(o.get("unresolved_share_limit", 0.10)),
-                         min_n=int(o.get("min_n", 20)), seed=int(o.get("seed", 20240601)),
+                         level=num(check_level, "level", 0.95),
+                         unresolved_share_limit=num(check_level, "unresolved_share_limit",
+                                                    0.10),
+                         min_n=num(check_count, "min_n", 20),
+                         seed=num(check_seed, "seed", 20240601),
                          pdf_engine=o.get("pdf_engine", "auto"),
-                         subsystem_limit=int(o.get("subsystem_limit", 12)),
-                         subsystem_min_commits=int(o.get("subsystem_min_commits", 30)),
-                         meta_path=meta, commit_url=o.get("commit_url"))
+                         subsystem_limit=num(check_count, "subsystem_limit", 12),
+                         subsystem_min_commits=num(check_count, "subsystem_min_commits", 30),
+                         meta_path=meta, commit_url=o.get("commit_url"),
+                         raw_csv=bool(o.get("raw_csv", False)))
 
 
 def _input_file(rec: dict[str, Any] | None, folder: Path, what: str, key: str,
@@ -191,13 +207,18 @@ def rerun(manifest_path: str | Path, out: str | Path | None = None) -> RerunResu
     man = read_manifest(mpath)
     old_dir = mpath.parent.resolve()
     runs = man.get("mining_runs") or []
-    if not runs:
+    repo = man.get("repository") or {}
+    if not isinstance(repo, dict):
+        raise ConfigError("must be an object", path=str(mpath), key="repository")
+    if not runs or not isinstance(runs, list) or not all(isinstance(r, dict) for r in runs):
         raise ConfigError("the manifest records no mining run", path=str(mpath),
                           key="mining_runs")
     new_dir = Path(out) if out is not None else old_dir.with_name(old_dir.name + "-rerun")
     if new_dir.resolve() == old_dir:
         raise ConfigError("the rerun folder must differ from the original report folder",
                           key="--out")
+    from procmetrics.report.outdir import check_target
+    check_target(new_dir, overwrite=True, adopt=("procmetrics.sqlite",))
     notes: list[str] = []
     claims = _input_file(man.get("claims_file"), old_dir, "claims file", "claims_file", notes)
     inputs = man.get("inputs") or {}
@@ -205,7 +226,8 @@ def rerun(manifest_path: str | Path, out: str | Path | None = None) -> RerunResu
                        "inputs.report_meta", notes)
     created = not new_dir.exists()
     try:
-        return _rerun_into(man, mpath, old_dir, new_dir, _options(man, claims=claims, meta=meta),
+        return _rerun_into(man, mpath, old_dir, new_dir, _options(man, claims=claims, meta=meta,
+                                                                  where=str(mpath)),
                            notes, runs)
     except BaseException:
         if created and new_dir.exists():
@@ -232,7 +254,11 @@ def _rerun_into(man: dict[str, Any], mpath: Path, old_dir: Path, new_dir: Path,
     last = [r for r in runs if r.get("status") == "complete"][-1:] or runs[-1:]
     run = last[0]
     head, ref = run.get("head_hash"), run.get("ref") or "HEAD"
-    store = man["store"]
+    store = man.get("store")
+    if not isinstance(store, dict) or not isinstance(store.get("url"), str) \
+            or not isinstance(store.get("checksum_sha256"), str):
+        raise ConfigError("the manifest records no store (url and checksum_sha256)",
+                          path=str(mpath), key="store")
     head_moved = None
     remined = False
     store_url = next((u for u in _store_candidates(store, old_dir)
@@ -261,7 +287,10 @@ def _rerun_into(man: dict[str, Any], mpath: Path, old_dir: Path, new_dir: Path,
         mine_repository(path, store=store_url,
                         options=_mine_options(run, mine_ref, rules_copy))
         remined = True
-    files = make_report(store_url, new_dir, opts)
+    # the rerun folder is this command's own: an earlier rerun there is replaced; a
+    # store re-mined into it moves into the new folder
+    files = make_report(store_url, new_dir, opts, overwrite=True,
+                        adopt=("procmetrics.sqlite",) if remined else ())
     new_man = json.loads(files.manifest.read_text("utf-8"))
     old_out, new_out = man.get("outputs", {}), new_man.get("outputs", {})
     compared = [n for n in sorted(set(old_out) | set(new_out))

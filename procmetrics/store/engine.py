@@ -11,6 +11,7 @@ from sqlalchemy.exc import SQLAlchemyError
 
 from procmetrics.errors import SchemaError, StoreBusy, StoreError
 from procmetrics.store import schema
+from procmetrics.textsafe import mask_url, scrub_secrets
 
 DEFAULT_STORE_NAME = "procmetrics.sqlite"
 #: seconds a PostgreSQL connection attempt may take (unless the URL sets connect_timeout)
@@ -37,6 +38,40 @@ def _sqlite_pragmas(dbapi_conn, _record) -> None:  # pragma: no cover - trivial
     cur.close()
 
 
+def _sqlite_read_pragmas(dbapi_conn, _record) -> None:  # pragma: no cover - trivial
+    cur = dbapi_conn.cursor()
+    cur.execute("PRAGMA busy_timeout=30000")
+    cur.close()
+
+
+def _readonly_sqlite(path: Path):
+    """A connection factory for a SQLite file opened read-only (URI ``mode=ro``).
+
+    A WAL store whose folder is write-protected and which has no ``-shm`` file
+    cannot be opened with ``mode=ro`` alone (SQLite must create the shared-memory
+    file); then it is opened ``immutable=1``: nobody can be writing it, since a
+    writer would have to create the ``-wal`` file in that same folder.
+    """
+    import sqlite3
+    from urllib.parse import quote
+
+    uri = "file:" + quote(str(path), safe="/")
+
+    def connect():
+        try:
+            conn = sqlite3.connect(f"{uri}?mode=ro", uri=True, check_same_thread=False)
+            conn.execute("SELECT count(*) FROM sqlite_master").fetchone()
+            return conn
+        except sqlite3.OperationalError as exc:
+            if "unable to open" not in str(exc) and "readonly" not in str(exc):
+                raise
+            if os.access(path.parent, os.W_OK):
+                raise
+        return sqlite3.connect(f"{uri}?mode=ro&immutable=1", uri=True,
+                               check_same_thread=False)
+    return connect
+
+
 def open_store(store: str | os.PathLike[str] | None = None, *, create: bool = True,
                readonly: bool = False) -> Engine:
     """Open (and with ``create`` initialise) a store; check its schema version.
@@ -46,7 +81,7 @@ def open_store(store: str | os.PathLike[str] | None = None, *, create: bool = Tr
     """
     url = resolve_url(store)
     if url.startswith("sqlite:///"):
-        path = Path(url[len("sqlite:///"):])
+        path = Path(url[len("sqlite:///"):].split("?", 1)[0])
         if not path.exists():
             if not create or readonly:
                 raise StoreError(f"store not found: {path}")
@@ -54,7 +89,11 @@ def open_store(store: str | os.PathLike[str] | None = None, *, create: bool = Tr
                 raise StoreError(f"cannot create store: folder {path.parent} does not exist")
         elif path.is_dir():
             raise StoreError(f"store path is a folder, not a file: {path}")
-    extra = {}
+    extra: dict = {}
+    if readonly and url.startswith("sqlite:///"):
+        # reading commands never write: SQLite opened read-only, so an archived,
+        # write-protected store (file and folder) can be read
+        extra["creator"] = _readonly_sqlite(Path(url[len("sqlite:///"):].split("?", 1)[0]))
     if url.split("://", 1)[0] in _LIBPQ_SCHEMES and "connect_timeout" not in url:
         extra["connect_args"] = {"connect_timeout": CONNECT_TIMEOUT}
     try:
@@ -62,7 +101,8 @@ def open_store(store: str | os.PathLike[str] | None = None, *, create: bool = Tr
     except (SQLAlchemyError, ImportError, ValueError) as exc:
         raise StoreError(f"cannot open store {_safe(url)}: {_scrub(str(exc), url)}") from exc
     if engine.dialect.name == "sqlite":
-        event.listen(engine, "connect", _sqlite_pragmas)
+        event.listen(engine, "connect", _sqlite_read_pragmas if "creator" in extra
+                     else _sqlite_pragmas)
     event.listen(engine, "handle_error", _as_store_error)
     try:
         _ensure_schema(engine, create=create and not readonly)
@@ -71,11 +111,11 @@ def open_store(store: str | os.PathLike[str] | None = None, *, create: bool = Tr
         raise
     except StoreError as exc:       # from _as_store_error
         engine.dispose()
-        raise exc.__class__(f"cannot use store {_safe(url)}: {exc}") from exc
+        raise exc.__class__(f"cannot use store {_safe(url)}: {_scrub(str(exc), url)}") from exc
     except SQLAlchemyError as exc:
         engine.dispose()
         raise StoreError(f"cannot use store {_safe(url)}: {exc.__class__.__name__}: "
-                         f"{str(exc).splitlines()[0]}") from exc
+                         f"{_scrub(str(exc).splitlines()[0], url)}") from exc
     return engine
 
 
@@ -108,19 +148,13 @@ def _as_store_error(ctx) -> None:
 
 
 def _scrub(text: str, url: str) -> str:
-    """``text`` without the password of ``url``."""
-    m = re.search(r"://[^/@:]*:([^@/]+)@", url)
-    return text.replace(m.group(1), "***") if m else text
+    """``text`` without any credential of ``url`` (see :func:`procmetrics.textsafe.scrub_secrets`)."""
+    return scrub_secrets(text, url)
 
 
 def _safe(url: str) -> str:
-    """Hide a password in a URL before printing it."""
-    if "@" in url and "://" in url:
-        head, tail = url.split("://", 1)
-        cred, host = tail.rsplit("@", 1)
-        user = cred.split(":", 1)[0]
-        return f"{head}://{user}:***@{host}"
-    return url
+    """``url`` with its credentials masked (user-info password, secret query parameters)."""
+    return mask_url(url)
 
 
 def _schema_version(bind) -> tuple | None:
@@ -162,7 +196,11 @@ def _ensure_schema(engine: Engine, *, create: bool) -> None:
                 break
     if row is None:
         raise SchemaError("store has no schema version")
-    found = int(row[0])
+    try:
+        found = int(str(row[0]).strip())
+    except ValueError:
+        raise SchemaError(f"the store's schema version {str(row[0])[:40]!r} is not a number: "
+                          "not a procmetrics store, or a damaged one") from None
     if found > schema.SCHEMA_VERSION:
         raise SchemaError(
             f"store was written by a newer procmetrics (schema {found}, this one knows "

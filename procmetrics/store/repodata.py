@@ -31,7 +31,7 @@ import numpy as np
 import pandas as pd
 from sqlalchemy.engine import Engine
 
-from procmetrics.errors import ProcmetricsError
+from procmetrics.errors import ConfigError, InsufficientData
 from procmetrics.store.tables import COLUMNS, file_change_lines, read_table, snapshot
 
 CHECKSUM_TABLES: tuple[str, ...] = tuple(
@@ -60,12 +60,14 @@ def choose_repo(engine: Engine, repo: str | None) -> str:
     if repo is not None:
         if repo not in names:
             known = ", ".join(names) or "none"
-            raise ProcmetricsError(f"repository {repo!r} is not in the store (stored: {known})")
+            raise ConfigError(f"repository {repo!r} is not in the store (stored: {known})",
+                              key="--repo")
         return repo
     if not names:
-        raise ProcmetricsError("the store holds no mined repository; run 'procmetrics mine' first")
+        raise InsufficientData("the store holds no mined repository; run 'procmetrics mine' "
+                               "first")
     if len(names) > 1:
-        raise ProcmetricsError("the store holds several repositories (" + ", ".join(names)
+        raise ConfigError("the store holds several repositories (" + ", ".join(names)
                                + "); choose one with --repo")
     return names[0]
 

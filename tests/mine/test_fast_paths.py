@@ -17,6 +17,7 @@ import threading
 import pytest
 from hypothesis import given, settings, strategies as st
 
+from procmetrics.errors import DataQualityWarning
 from procmetrics.mine import trailers as tr
 from procmetrics.mine.git import GitRepo
 from procmetrics.mine.logstream import log_args, parse_log
@@ -178,7 +179,10 @@ def test_changed_mapping_rewrites_only_what_moved(tmp_path):
                                                              subsystem_rules=first))
     h.commit("more\n", files={"net/d.c": "d\n"})
     opts = MineOptions(progress=False, subsystem_rules=second)
-    mine_repository(h.path, store=step, options=opts)
+    # another rules file remaps the store: only on request (issue 14)
+    with pytest.warns(DataQualityWarning, match="mapped again"):
+        mine_repository(h.path, store=step, options=MineOptions(
+            progress=False, subsystem_rules=second, rewrite_policy="remine"))
     mine_repository(h.path, store=once, options=opts)
     a, b = read_table(step, "commit_subsystems"), read_table(once, "commit_subsystems")
     assert a.equals(b) and set(a["subsystem"]) == {"net", "fs-b", "(unmapped)"}

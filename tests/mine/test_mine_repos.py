@@ -172,22 +172,25 @@ def test_mining_never_writes_or_runs_repository_programs(git_history, tmp_path):
     assert _snapshot(h.path / ".git") == before
 
 
-def test_missing_objects_fail_cleanly_and_leave_no_rows(git_history, tmp_path):
-    from procmetrics.errors import GitFailed
+def test_a_missing_blob_leaves_only_that_commit_without_line_counts(git_history, tmp_path):
+    """A corrupt clone lacking one blob: mined on (issue 14); the commits that need the
+    blob have no line counts, the run is complete and says so; a later paths-only run
+    of the same clone agrees on the commits."""
+    from procmetrics.errors import DataQualityWarning
     h = _small(git_history())
     blob = h.git("rev-parse", "HEAD~1:a/x.txt")
     (h.path / ".git" / "objects" / blob[:2] / blob[2:]).unlink()      # corrupt the clone
     store = tmp_path / "s.sqlite"
-    with pytest.raises(GitFailed, match="git log failed"):
-        mine_repository(h.path, store=store, options=OPTS)
+    with pytest.warns(DataQualityWarning, match="line counts missing for"):
+        s = mine_repository(h.path, store=store, options=OPTS)
+    assert s.commits == 3
     engine = open_store(store)
     runs = read_table(engine, "mining_runs")
-    assert list(runs["status"]) == ["failed"] and "GitFailed" in runs["message"].iloc[0]
-    assert read_table(engine, "repositories")["tip_hash"].isna().all()
-    # paths only: no blob is read, so the same clone mines (and cleans the failed run)
-    s = mine_repository(h.path, store=store, options=MineOptions(progress=False, repo_name="r",
-                                                                 line_counts=False))
-    assert s.commits == 3 and len(s.cleaned_runs) == 1
+    assert list(runs["status"]) == ["complete"]
+    assert "line counts missing" in runs["message"].iloc[0]
+    fc = read_table(engine, "file_changes")
+    assert fc.loc[fc["hash"] == h.rev("HEAD~1"), "lines_added"].isna().all()
+    assert fc.loc[fc["hash"] != h.rev("HEAD~1"), "lines_added"].notna().any()
 
 
 @pytest.mark.parametrize("url,stored", [

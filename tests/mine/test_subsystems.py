@@ -4,7 +4,7 @@ from __future__ import annotations
 import pandas as pd
 import pytest
 
-from procmetrics.errors import ConfigError
+from procmetrics.errors import ConfigError, DataQualityWarning
 from procmetrics.mine import MineOptions, mine_repository
 from procmetrics.mine.subsystems import (
     compile_glob, maintainers_mapper, prefix_mapper, rules_mapper,
@@ -138,7 +138,13 @@ def test_changing_the_mapping_remaps_every_path(git_history, tmp_path):
     mine_repository(h.path, store=store, options=MineOptions(progress=False))
     h.commit("more\n", files={"net/b.c": "b\n"}, date=when(1))
     opts = MineOptions(progress=False, subsystem_rules=rules)
-    mine_repository(h.path, store=store, options=opts)
+    # a rules file the store was not mapped with: remapping needs remine (issue 14)
+    with pytest.raises(ConfigError, match="rewrite-policy remine"):
+        mine_repository(h.path, store=store, options=opts)
+    with pytest.warns(DataQualityWarning, match="mapped again"):
+        mine_repository(h.path, store=store,
+                        options=MineOptions(progress=False, subsystem_rules=rules,
+                                            rewrite_policy="remine"))
     mine_repository(h.path, store=once, options=opts)
     a = read_table(open_store(store), "commit_subsystems")
     b = read_table(open_store(once), "commit_subsystems")

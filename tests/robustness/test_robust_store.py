@@ -80,6 +80,35 @@ def test_read_only_store_is_left_untouched(tmp_path, git_history):
     assert sorted(p.name for p in ro.iterdir()) == names
 
 
+def test_read_only_store_can_be_read(tmp_path, git_history):
+    """An archived store (file 0444 in a folder 0555, no -wal/-shm left) is read by the
+    reading commands: SQLite is opened read-only (mode=ro, else immutable=1); nothing is
+    written or added. Mining into it still fails with exit 5 (test above)."""
+    h = _small(git_history())
+    ro = tmp_path / "ro"
+    ro.mkdir()
+    store = ro / "s.sqlite"
+    mine_repository(h.path, store=store, options=MineOptions(progress=False))
+    before = file_sha(store)
+    names = sorted(p.name for p in ro.iterdir())
+    store.chmod(0o444)
+    ro.chmod(0o555)
+    try:
+        exp = run_procmetrics("export", "--table", "commits", "--store", store,
+                              honour_permissions=True)
+        ser = run_procmetrics("series", "--store", store, "--metric", "commits", "--no-trend",
+                              honour_permissions=True)
+    finally:
+        ro.chmod(0o755)
+        store.chmod(0o644)
+    assert exp.returncode == 0, exp.stderr
+    assert len(exp.stdout.splitlines()) == 7            # header + 6 commits
+    assert ser.returncode in (0, 7), ser.stderr         # 6 commits may be too few to model
+    assert "readonly" not in ser.stderr
+    assert file_sha(store) == before
+    assert sorted(p.name for p in ro.iterdir()) == names
+
+
 def _hold_sqlite_lock(path: Path, seconds: float, key: str = "holder") -> subprocess.Popen:
     """A process holding SQLite's write lock (BEGIN EXCLUSIVE) for ``seconds``."""
     code = ("import sqlite3, sys, time\n"

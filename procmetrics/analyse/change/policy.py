@@ -35,9 +35,10 @@ from procmetrics.analyse.measures.metrics import ALL, MetricConfig, commit_flags
 from procmetrics.analyse.change.multiplicity import MultiplicityResult, adjust_pvalues
 from procmetrics.analyse.result import Caveat, to_plain
 from procmetrics.analyse.measures.selection import SubsystemSelection
+from procmetrics.analyse.measures.periods import resolve_when
 from procmetrics.analyse.change.twosample import (DistributionComparison, ProportionComparison,
                                            compare_distributions, compare_proportions)
-from procmetrics.errors import ConfigError, InsufficientData
+from procmetrics.errors import InsufficientData
 
 SUBSYSTEM_COLUMNS = ["subsystem", "metric", "level_change", "ci_low", "ci_high", "p_value",
                      "p_bh", "reject_bh", "p_by", "reject_by", "n_before", "n_after"]
@@ -74,23 +75,11 @@ class PolicyComparison:
         return to_plain(self)
 
 
-def resolve_date(at: str, commits: pd.DataFrame) -> pd.Timestamp:
-    """A date (ISO 8601, UTC if no zone) or a commit hash (prefix >= 7) -> UTC timestamp.
-
-    For a commit the committer date is used (when the change landed).
-    """
-    text = str(at).strip()
-    if len(text) >= 7 and all(ch in "0123456789abcdef" for ch in text.lower()):
-        hit = commits[commits["hash"].astype(str).str.lower().str.startswith(text.lower())]
-        if len(hit["hash"].unique()) == 1:
-            return pd.Timestamp(hit["committer_date"].iloc[0]).tz_convert("UTC")
-        if len(hit) > 1:
-            raise ConfigError(f"revision {text!r} is ambiguous in the store")
-    try:
-        ts = pd.Timestamp(text)
-    except ValueError:
-        raise ConfigError(f"--at {text!r} is neither a date nor a stored commit") from None
-    return ts.tz_localize("UTC") if ts.tzinfo is None else ts.tz_convert("UTC")
+def resolve_date(at: str, commits: pd.DataFrame, tags: pd.DataFrame | None = None
+                 ) -> pd.Timestamp:
+    """``--at``: a date, a tag or a commit in the store (the one parser,
+    :func:`procmetrics.analyse.measures.periods.resolve_when`)."""
+    return resolve_when(at, commits=commits, tags=tags, option="--at")
 
 
 def compare_policy(commits: pd.DataFrame, trailers: pd.DataFrame, *, at: pd.Timestamp,

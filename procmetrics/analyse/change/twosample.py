@@ -258,6 +258,10 @@ def compare_distributions(a, b, *, quantity: str = "value", label_a: str = "befo
     m, n = len(a), len(b)
     if m < 2 or n < 2:
         raise InsufficientData(f"{quantity}: {m} values {label_a} and {n} {label_b}; need >= 2 each")
+    if np.unique(np.concatenate([a, b])).size < 2:
+        # every value equal (e.g. no review trailer at all): the rank tests are undefined
+        raise InsufficientData(f"{quantity}: all {m + n} values are equal ({a[0]:g}); "
+                               "no distribution to compare")
     level = 1 - alpha
     mw = stats.mannwhitneyu(b, a, alternative="two-sided")
     ks = stats.ks_2samp(a, b)

@@ -170,7 +170,8 @@ def select_fix_times(defects: pd.DataFrame, *, end: Any, origin: Any = None,
     origin_ts = _utc(origin) if origin is not None else (
         d["intro_date"].min() if len(d) else end_ts)
     if subsystem is not None:
-        d = d[d["subsystems"].fillna("").str.split(";").apply(lambda s: subsystem in s)]
+        names = d["subsystems"].astype(object).where(d["subsystems"].notna(), "").astype(str)
+        d = d[names.str.split(";").apply(lambda s: subsystem in s).astype(bool)]
         scope = f"subsystem {subsystem}"
     if after_tag is not None:
         if tags is None or not (tags["name"] == after_tag).any():

@@ -141,33 +141,55 @@ def years_since(ts: pd.Series | pd.Timestamp, origin: pd.Timestamp) -> np.ndarra
 _HEX = re.compile(r"^[0-9a-fA-F]{4,64}$")
 
 
-def resolve_policy(data: Mapping[str, pd.DataFrame], policy: str | None) -> pd.Timestamp | None:
-    """The policy date: an ISO date, a tag name, or a commit hash (prefix) in the store.
+def parse_date_text(text: str) -> pd.Timestamp | None:
+    """An ISO 8601 date or date-time as a UTC timestamp (UTC when no zone is given);
+    ``None`` when ``text`` is not one (``2016-13-01`` is not)."""
+    text = text.strip()
+    try:
+        if len(text) <= 10:
+            return pd.Timestamp(dt.date.fromisoformat(text).isoformat(), tz="UTC")
+        ts = pd.Timestamp(dt.datetime.fromisoformat(text.replace("Z", "+00:00")))
+    except (ValueError, OverflowError, pd.errors.OutOfBoundsDatetime):
+        return None
+    return ts.tz_localize("UTC") if ts.tzinfo is None else ts.tz_convert("UTC")
 
-    A tag or commit gives its committer date (the day the change landed).
+
+def resolve_when(value: object, *, commits: pd.DataFrame | None = None,
+                 tags: pd.DataFrame | None = None, option: str = "date") -> pd.Timestamp:
+    """The one parser for every date option (``--policy-date``, ``--at``,
+    ``--change-date``, ``--links-from``): an ISO date or date-time (UTC unless a zone is
+    given), else a tag name, else a commit hash prefix (at least 4 hex digits) in the
+    store. A tag or commit gives its committer date (the day the change landed). A text
+    that reads as an ISO date is a date. Anything else is a :class:`ConfigError` naming
+    ``option`` (exit 2).
     """
+    text = str(value).strip()
+    day = parse_date_text(text)
+    if day is not None:
+        return day
+    if tags is not None and len(tags):
+        hit = tags[tags["name"] == text]
+        if len(hit):
+            commit = hit.iloc[0]["commit_hash"]
+            row = commits[commits["hash"] == commit] if commits is not None else []
+            ts = row.iloc[0]["committer_date"] if len(row) else hit.iloc[0]["tag_date"]
+            return pd.Timestamp(ts).tz_convert("UTC")
+    if _HEX.match(text) and commits is not None and len(commits):
+        rows = commits[commits["hash"].astype(str).str.startswith(text.lower())]
+        n = len(rows["hash"].unique())
+        if n == 1:
+            return pd.Timestamp(rows.iloc[0]["committer_date"]).tz_convert("UTC")
+        if n > 1:
+            raise ConfigError(f"{option} {text!r} matches {n} commits; give more digits",
+                              key=option)
+    what = "a date (YYYY-MM-DD)" + (", a tag or a commit in the store"
+                                    if commits is not None else "")
+    raise ConfigError(f"{option} {text!r} is not {what}", key=option)
+
+
+def resolve_policy(data: Mapping[str, pd.DataFrame], policy: str | None) -> pd.Timestamp | None:
+    """The policy date (see :func:`resolve_when`); ``None`` when none was given."""
     if policy is None:
         return None
-    text = policy.strip()
-    try:
-        day = dt.date.fromisoformat(text)
-        return pd.Timestamp(day.isoformat(), tz="UTC")
-    except ValueError:
-        pass
-    tags = data["tags"]
-    hit = tags[tags["name"] == text]
-    if len(hit):
-        commit = hit.iloc[0]["commit_hash"]
-        c = data["commits"]
-        row = c[c["hash"] == commit]
-        return row.iloc[0]["committer_date"] if len(row) else hit.iloc[0]["tag_date"]
-    if _HEX.match(text):
-        c = data["commits"]
-        rows = c[c["hash"].str.startswith(text.lower())]
-        if len(rows) == 1:
-            return rows.iloc[0]["committer_date"]
-        if len(rows) > 1:
-            raise ConfigError(f"--policy-date {text!r} matches {len(rows)} commits; give more "
-                              "digits", key="--policy-date")
-    raise ConfigError(f"--policy-date {text!r} is neither a date (YYYY-MM-DD) nor a tag or "
-                      "commit in the store", key="--policy-date")
+    return resolve_when(policy, commits=data["commits"], tags=data["tags"],
+                        option="--policy-date")

@@ -199,8 +199,14 @@ def history_state(data: StoreData) -> dict[str, Any]:
             options.append(json.loads(r["options_json"] or "{}"))
         except (TypeError, ValueError):
             options.append({"unreadable": str(r["options_json"])})
+    partial = bool(complete["message"].fillna("").astype(str)
+                   .str.contains("partial clone", regex=False).any())
+    lacking = [f"run {int(r['run_id'])}: {m}" for _, r in complete.iterrows()
+               for m in str(r["message"] or "").split("; ") if m.startswith("line counts missing")]
     return {
         "is_shallow": shallow,
+        "is_partial_clone": partial,
+        "line_counts_missing": lacking,
         "rewritten": rewritten,
         "n_runs": int(len(runs)),
         "n_failed_runs": int((runs["status"] == "failed").sum()),

@@ -1,0 +1,46 @@
+"""Warnings at the command line: ours as one line ``procmetrics: warning: …``, library
+numerical warnings kept off the console (recorded), through procmetrics.cli.main."""
+from __future__ import annotations
+
+import warnings
+
+import numpy as np
+
+from procmetrics.cli import main
+from procmetrics.errors import DataQualityWarning
+
+
+def _noisy_run(args):
+    warnings.warn("the data are odd\n  across two lines", DataQualityWarning)
+    with np.errstate(invalid="warn"):           # numpy's own RuntimeWarning, whatever
+        np.log(np.array([-1.0]))                # another test set with np.seterr
+    warnings.warn("Maximum Likelihood optimization failed", UserWarning)
+    return 0
+
+
+def test_ours_one_line_libraries_silent(monkeypatch, capsys):
+    import procmetrics.cli.cmd_export as cmd
+    monkeypatch.setattr(cmd, "run", _noisy_run)
+    monkeypatch.delenv("PROCMETRICS_DEBUG", raising=False)
+    with warnings.catch_warnings():
+        warnings.simplefilter("always")
+        warnings.showwarning = warnings._showwarning_orig   # as in a real process
+        code = main(["export", "--table", "commits"])
+    assert code == 0
+    err = capsys.readouterr().err
+    assert err == "procmetrics: warning: the data are odd across two lines\n"
+
+
+def test_debug_lists_library_warnings(monkeypatch, capsys):
+    import procmetrics.cli.cmd_export as cmd
+    monkeypatch.setattr(cmd, "run", _noisy_run)
+    monkeypatch.setenv("PROCMETRICS_DEBUG", "1")
+    with warnings.catch_warnings():
+        warnings.simplefilter("always")
+        warnings.showwarning = warnings._showwarning_orig
+        main(["export", "--table", "commits"])
+    lines = capsys.readouterr().err.splitlines()
+    assert lines[0].startswith("procmetrics: warning: the data are odd")
+    assert lines[1].startswith("procmetrics: note: library warnings") and \
+        "RuntimeWarning x1" in lines[1] and "UserWarning x1" in lines[1]
+    assert len(lines) == 2
