@@ -9,13 +9,14 @@ from procmetrics.claims.base import ClaimVerdict
 from procmetrics.claims.registry import SPECS, evaluate_claims
 from procmetrics.errors import ProcmetricsError
 from procmetrics.analyse.measures import quality as ql
+from procmetrics.analyse.measures.periods import DEFAULT_PERIOD
 from procmetrics.claims.reader import load_claims
 from procmetrics.store.repodata import choose_repo, load_store_data
 from procmetrics.claims.render import evidence_line
 
 
 def check_claims(claims_path: str, *, store: str | None, repo: str | None = None,
-                 policy: str | None = None, period: str = "quarter") -> list[ClaimVerdict]:
+                 policy: str | None = None, period: str = DEFAULT_PERIOD) -> list[ClaimVerdict]:
     """Parse the claims file, read the store and judge every claim."""
     from procmetrics.analyse.measures.periods import resolve_policy
     from procmetrics.claims.base import ClaimContext

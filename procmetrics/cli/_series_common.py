@@ -13,12 +13,13 @@ from procmetrics.cli import add_store_argument
 def add_series_arguments(p: argparse.ArgumentParser) -> None:
     """--store, --repo, --period, --subsystem, --metric, --include-merges, --out."""
     from procmetrics.analyse.measures.vocabulary import METRICS
-    from procmetrics.analyse.measures.periods import PERIODS
+    from procmetrics.analyse.measures.periods import DEFAULT_PERIOD, PERIODS
 
     add_store_argument(p)
     p.add_argument("--repo", help="repository name in the store (needed when it holds several)")
-    p.add_argument("--period", choices=PERIODS, default="month",
-                   help="period length; 'release' = first tag dated on/after the commit")
+    p.add_argument("--period", choices=PERIODS, default=DEFAULT_PERIOD,
+                   help=f"period length (default: {DEFAULT_PERIOD}, as in check and report); "
+                   "'release' = first tag dated on/after the commit")
     p.add_argument("--subsystem", action="append", metavar="NAME",
                    help="also per subsystem NAME (repeatable; default: whole project only)")
     p.add_argument("--all-subsystems", action="store_true", help="every mapped subsystem")

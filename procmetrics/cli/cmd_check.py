@@ -5,6 +5,7 @@ import argparse
 import sys
 
 from procmetrics.cli import add_store_argument
+from procmetrics.analyse.measures.periods import DEFAULT_PERIOD
 from procmetrics.report.model import PERIODS
 
 
@@ -21,8 +22,8 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--repo", metavar="NAME", help="repository in the store")
     p.add_argument("--policy-date", metavar="DATE|REV", dest="policy",
                    help="what date = \"policy\" means in the claims file")
-    p.add_argument("--period", choices=PERIODS, default="quarter",
-                   help="period used by the per-period models (default: quarter)")
+    p.add_argument("--period", choices=PERIODS, default=DEFAULT_PERIOD,
+                   help=f"period used by the per-period models (default: {DEFAULT_PERIOD})")
     p.add_argument("--json", metavar="FILE", help="also write the verdicts as JSON ('-' = stdout)")
     p.add_argument("--list-kinds", action="store_true", help="list the claim kinds and exit")
     p.set_defaults(func=run)

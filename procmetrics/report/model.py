@@ -10,6 +10,8 @@ from typing import Any, Literal
 
 import pandas as pd
 
+from procmetrics.analyse.measures.periods import DEFAULT_PERIOD
+
 Period = Literal["month", "quarter", "year", "release"]
 PERIODS: tuple[str, ...] = ("month", "quarter", "year", "release")
 
@@ -27,7 +29,7 @@ class ReportOptions:
     repo: str | None = None
     policy: str | None = None
     subsystems: tuple[str, ...] = ()
-    period: str = "quarter"
+    period: str = DEFAULT_PERIOD
     claims_path: str | None = None
     level: float = 0.95
     unresolved_share_limit: float = 0.10

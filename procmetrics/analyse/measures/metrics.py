@@ -42,7 +42,8 @@ import numpy as np
 import pandas as pd
 
 from procmetrics.analyse.measures import intervals as iv
-from procmetrics.analyse.measures.periods import assign_periods, period_midpoints, years_since
+from procmetrics.analyse.measures.periods import (DEFAULT_PERIOD, assign_periods, period_midpoints,
+                                               years_since)
 from procmetrics.analyse.result import Caveat, caveat, to_plain
 from procmetrics.analyse.measures.selection import (SubsystemSelection, select_subsystems,
                                            subsystem_counts)
@@ -59,7 +60,7 @@ _EMAIL = re.compile(r"<([^<>\s]+@[^<>\s]+)>")
 class MetricConfig:
     """Options for :func:`compute_period_metrics` (frozen; pass explicitly)."""
 
-    period: str = "month"
+    period: str = DEFAULT_PERIOD
     review_keys: tuple[str, ...] = DEFAULT_REVIEW_KEYS
     include_merges: bool = False
     date_column: str = "committer_date"
