@@ -112,6 +112,10 @@ class ClaimContext:
     min_n: int = 20
     period: str = "quarter"
     seed: int = 20240601
+    #: analysis choices the robustness panel varies (claims/robustness.py); the
+    #: defaults are the report's: committer dates, link era from the first linked fix
+    date_basis: str = "committer"
+    links_from: Any = "first_link"
 
 
 @dataclass(frozen=True)

@@ -10,6 +10,8 @@ import pandas as pd
 
 from procmetrics.cli import add_store_argument
 from procmetrics.errors import StoreError
+from procmetrics.resampling import N_BOOT, SEED, analysis_rng
+from procmetrics import textfmt
 from procmetrics.session import containment, links_from, load_tables
 
 
@@ -35,8 +37,10 @@ def register(sub: argparse._SubParsersAction) -> None:
                    help="start of the fix-linking era: defects introduced earlier are left "
                    "out (they are seen only when long-lived). 'first' (default) = the first "
                    "linked fix; 'all' keeps every introducer")
-    p.add_argument("--boot", type=int, default=200, metavar="B", help="bootstrap resamples")
-    p.add_argument("--seed", type=int, default=20240601, help="random seed (bootstrap)")
+    p.add_argument("--boot", type=int, default=N_BOOT, metavar="B",
+                   help=f"bootstrap resamples (default {N_BOOT}, as in the report)")
+    p.add_argument("--seed", type=int, default=SEED, help="random seed (bootstrap; default "
+                   "the report's, so the same options print the report's intervals)")
     p.add_argument("--out", metavar="DIR", help="write JSON, CSV tables and figures here")
     g = p.add_argument_group("blame-based linking (heuristic, off by default)")
     g.add_argument("--szz", action="store_true", help="also blame fix commits without a "
@@ -77,7 +81,7 @@ def run(args: argparse.Namespace) -> int:
                           period_cuts=[args.change_date] if args.change_date else None,
                           links_from=links_from(args.links_from))
     res = analyse_lifetimes(table, by=args.by, horizon=args.horizon, n_boot=args.boot,
-                            rng=np.random.default_rng(args.seed))
+                            rng=analysis_rng(args.seed, "lifetimes"))
     print(f"{name}: {res.n_defects} defects ({res.n_negative_excluded} with negative lifetime "
           f"excluded); basis {res.basis}, unit {res.unit}")
     print(f"  population: {table.population}")
@@ -100,8 +104,9 @@ _METHODS = ("methods: naive = observed lifetimes at face value (biased short); "
 def _print_analysis(res: Any, horizon: float | None, indent: str = "  ") -> None:
     med = res.summary[res.summary["quantile"] == 0.5]
     for row in med.itertuples():
-        print(f"{indent}median {row.group:<20} {row.method:<17} {_num(row.value)} "
-              f"[{_num(row.low)}, {_num(row.high)}] n={row.n} ({row.level:.0%} interval)")
+        print(f"{indent}median {row.group:<20} {row.method:<17} "
+              f"{textfmt.interval(row.value, row.low, row.high, row.unit)} {row.unit} "
+              f"n={row.n} ({row.level:.0%} interval)")
     if len(med):
         allc = res.curves[(res.curves["group"] == "(all)")
                           & (res.curves["method"] == "truncation_aware")]
@@ -158,7 +163,7 @@ def _heuristic(args: argparse.Namespace, tables: dict[str, pd.DataFrame],
                           links_from=None,
                           link_source="blame-based (SZZ) candidate link")
     an = analyse_lifetimes(table, by=args.by, horizon=args.horizon, n_boot=args.boot,
-                           rng=np.random.default_rng(args.seed))
+                           rng=analysis_rng(args.seed, "lifetimes"))
     print(f"HEURISTIC: blame-based (SZZ) links for fixes without a Fixes: link "
           f"({szz.method})")
     print(f"  selection: {sel.rule}"
@@ -191,6 +196,3 @@ def _heuristic(args: argparse.Namespace, tables: dict[str, pd.DataFrame],
             "selection": {**sel.to_dict(), "hashes": None, "n_selected": len(sel.hashes),
                           "n_checked": len(check)}}
 
-
-def _num(x: Any) -> str:
-    return "-" if x is None or (isinstance(x, float) and not np.isfinite(x)) else f"{x:.1f}"

@@ -33,7 +33,8 @@ class BuildContext:
         return round(1.0 - self.options.level, 10)
 
     def rng(self, salt: int) -> np.random.Generator:
-        """A generator per analysis so adding one analysis never shifts another's draws."""
+        """A generator per analysis so adding one analysis never shifts another's draws
+        (``procmetrics.resampling.SALTS`` names the salts the commands share)."""
         return np.random.default_rng([self.seed, salt])
 
     def subsystems(self) -> list[str]:
