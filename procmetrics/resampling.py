@@ -10,7 +10,7 @@ seeds on a real history; 2,000 keeps percentile bounds within a few percent
 (shared/FINDINGS.md). Percentile bounds of a quantile sit on the observed
 values, so a bound whose level falls at the edge between two values can still
 alternate between them across seeds at any size: the tests measure which
-displayed intervals are stable (tests/report/test_seed_stability.py).
+displayed intervals are stable (tests/report/test_consistency.py).
 """
 from __future__ import annotations
 

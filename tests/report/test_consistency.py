@@ -146,3 +146,49 @@ def test_claim_reasons_quote_the_values_of_their_evidence(demo_report):
         digits = [textfmt.number(est["value"], est["unit"]), f"{est['value']:.3g}",
                   f"{100 * est['value']:.1f}%"]
         assert any(d in reason for d in digits), (cid, digits, reason)
+
+
+# --- intervals stable to the digits shown -------------------------------------------
+
+
+def _by_seed(capsys, demo: dict, *argv: str) -> list[str]:
+    return [_cli(capsys, *argv, "--store", str(demo["store"]), "--seed", str(seed))
+            for seed in (1, 2)]
+
+
+def test_headline_before_after_intervals_do_not_move_with_the_seed(demo_report, capsys):
+    """ITS level and slope changes (GLM), share differences (Newcombe), medians and the
+    Hodges-Lehmann shift (order statistics) are not resampled: two seeds print them alike."""
+    a, b = _by_seed(capsys, demo_report, "compare", "--at", demo_report["policy"])
+
+    def shown(out: str) -> list[str]:
+        keep = []
+        for line in out.splitlines():
+            line = re.sub(r"Cliff's delta .*?\)\s*\(\w+\)", "", line)   # resampled: below
+            if re.search(r"level change|slope change|difference|HL shift", line):
+                keep.append(line)
+        return keep
+
+    assert shown(a) and shown(a) == shown(b)
+
+
+@pytest.mark.xfail(strict=True, reason="percentile-bootstrap bounds of Lynden-Bell quantiles "
+                   "sit on observed lifetimes and alternate between neighbours across seeds at "
+                   "any size (demo, all defects: upper bound of the median 100 or 102 days at "
+                   "2,000 and at 10,000 resamples); needs a test-inversion interval in "
+                   "analyse/lifetimes/estimators.py (being rewritten in parallel)")
+def test_lifetime_quantile_intervals_do_not_move_with_the_seed(demo_report, capsys):
+    a, b = _by_seed(capsys, demo_report, "lifetimes", "--by", "period", "--change-date",
+                    demo_report["policy"], "--horizon", "365")
+    med = [re.findall(r"median .*", out) for out in (a, b)]
+    assert med[0] and med[0] == med[1]
+
+
+@pytest.mark.xfail(strict=True, reason="Cliff's delta's interval is a percentile bootstrap: "
+                   "its third significant digit moves with the seed at 2,000 resamples "
+                   "(demo, lines changed: -0.0275 vs -0.0278); an analytic interval (Cliff "
+                   "1993) would not")
+def test_cliffs_delta_interval_does_not_move_with_the_seed(demo_report, capsys):
+    a, b = _by_seed(capsys, demo_report, "compare", "--at", demo_report["policy"])
+    got = [re.findall(r"Cliff's delta (.*?\))", out) for out in (a, b)]
+    assert got[0] and got[0] == got[1]
