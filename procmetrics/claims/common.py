@@ -55,7 +55,8 @@ def flag_column(metric: str) -> tuple[str, str | None]:
 def share_flags(ctx: ClaimContext, metric: str, subsystem: str | None) -> pd.DataFrame:
     from procmetrics.analyse.measures.metrics import MetricConfig, commit_flags
 
-    f = commit_flags(subsystem_commits(ctx, subsystem), ctx.trailers, MetricConfig(period=ctx.period))
+    f = commit_flags(subsystem_commits(ctx, subsystem), ctx.trailers,
+                     MetricConfig(period=ctx.period, date_column=f"{ctx.date_basis}_date"))
     num, den = flag_column(metric)
     if den is not None:
         f = f[f[den]]

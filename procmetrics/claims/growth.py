@@ -33,7 +33,8 @@ def fix_event_times(fix_links: pd.DataFrame, commits: pd.DataFrame, *,
                     links_from: Any = "first_link", after: Any = None, before: Any = None,
                     commit_subsystems: pd.DataFrame | None = None, subsystem: str | None = None,
                     after_tag: str | None = None, tags: pd.DataFrame | None = None,
-                    tag_containment: pd.DataFrame | None = None, batch_hours: float = 0.0):
+                    tag_containment: pd.DataFrame | None = None, batch_hours: float = 0.0,
+                    basis: str = "committer"):
     """The fix events of the ``growth`` command, the report's growth section and the
     ``fix_rate_declining`` claim: one selection, one set of options, one count.
 
@@ -41,18 +42,19 @@ def fix_event_times(fix_links: pd.DataFrame, commits: pd.DataFrame, *,
     age (``build_defects(links_from=None)``); observation starts at the link era:
     ``links_from="first_link"`` (default) = the first linked fix, which starts the
     clock and is not counted; a date; or None = the first commit of the history.
-    ``after``/``before`` narrow the window (a claim's). The events are chosen by
+    ``after``/``before`` narrow the window (a claim's); ``basis`` is the clock
+    (committer or author dates). The events are chosen by
     :func:`procmetrics.analyse.growth.analysis.select_fix_times`; its
     ``FIX_EVENTS_DEFINITION`` says in words what is counted.
     """
     from procmetrics.analyse.growth.analysis import select_fix_times
     from procmetrics.analyse.lifetimes.defects import build_defects
 
-    table = build_defects(fix_links, commits=commits, commit_subsystems=commit_subsystems,
-                          links_from=None)
+    table = build_defects(fix_links, basis=basis, commits=commits,
+                          commit_subsystems=commit_subsystems, links_from=None)
     d = table.defects
     if links_from is None:
-        origin = commits["committer_date"].min() if len(commits) else None
+        origin = commits[f"{basis}_date"].min() if len(commits) else None
     elif isinstance(links_from, str):
         origin = d["fix_date"].min() if len(d) else None
     else:
@@ -74,7 +76,7 @@ def eval_fix_rate(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
 
     after, before = window(ctx, claim.params)
     ft = fix_event_times(ctx.fix_links, ctx.commits, links_from=ctx.links_from,
-                         after=after, before=before)
+                         after=after, before=before, basis=ctx.date_basis)
     t = ft.times
     if len(t) < ctx.min_n:
         raise Undecidable(f"only {len(t)} fix events in the window "

@@ -15,7 +15,9 @@ def register(sub: argparse._SubParsersAction) -> None:
         description="Judge each claim of a claims file. Verdicts: supported, not supported, "
         "undecidable with this data, not supportable by this kind of evidence. Exit code: 0 "
         "when every claim is supported; otherwise 8 + 1 (any not supported) + 2 (any "
-        "undecidable) + 4 (any not supportable), i.e. 9-15. Errors: 2 claims file, 5 store.",
+        "undecidable) + 4 (any not supportable) + 16 (any verdict fragile: it flips under "
+        "another reasonable analysis choice of the robustness panel), i.e. 9-31. Errors: 2 "
+        "claims file, 5 store.",
         formatter_class=argparse.RawDescriptionHelpFormatter)
     p.add_argument("claims", metavar="CLAIMS.toml", nargs="?", help="claims file")
     add_store_argument(p)
@@ -25,6 +27,9 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--period", choices=PERIODS, default=DEFAULT_PERIOD,
                    help=f"period used by the per-period models (default: {DEFAULT_PERIOD})")
     p.add_argument("--json", metavar="FILE", help="also write the verdicts as JSON ('-' = stdout)")
+    p.add_argument("--no-panel", action="store_true", help="skip the robustness panel (each "
+                   "claim re-judged by month/quarter, committer/author dates, horizon x0.5/x2, "
+                   "a later link era); bit 16 of the exit code is then never set")
     p.add_argument("--list-kinds", action="store_true", help="list the claim kinds and exit")
     p.set_defaults(func=run)
 
@@ -32,7 +37,8 @@ def register(sub: argparse._SubParsersAction) -> None:
 def run(args: argparse.Namespace) -> int:
     # heavy analysis imports happen only when the command runs
     from procmetrics.claims.base import exit_code
-    from procmetrics.claims.check import check_claims, list_kinds, render_verdicts, write_text
+    from procmetrics.claims.check import (check_claims, check_claims_robust, list_kinds,
+                                          render_verdicts, write_text)
     from procmetrics.report.jsonout import dumps
 
     if args.list_kinds:
@@ -41,13 +47,18 @@ def run(args: argparse.Namespace) -> int:
     if not args.claims:
         print("procmetrics check: error: give a claims file (or --list-kinds)", file=sys.stderr)
         return 2
-    verdicts = check_claims(args.claims, store=args.store, repo=args.repo, policy=args.policy,
-                            period=args.period)
-    doc = dumps([v.to_dict() for v in verdicts])
+    opts = dict(store=args.store, repo=args.repo, policy=args.policy, period=args.period)
+    if args.no_panel:
+        verdicts, panels = check_claims(args.claims, **opts), None
+    else:
+        verdicts, panels = check_claims_robust(args.claims, **opts)
+    rob = {p.claim_id: p.to_dict() for p in panels or ()}
+    doc = dumps([{**v.to_dict(), **({"robustness": rob[v.claim.id]} if v.claim.id in rob
+                                    else {})} for v in verdicts])
     if args.json == "-":
         sys.stdout.write(doc)
     else:
-        print(render_verdicts(verdicts))
+        print(render_verdicts(verdicts, panels))
         if args.json:
             write_text(args.json, doc)
-    return exit_code(verdicts)
+    return exit_code(verdicts, fragile=any(p.fragile for p in panels or ()))

@@ -106,12 +106,18 @@ def _text_lines(report: Report, csv_names: dict[str, str], prepared: str) -> lis
                 out.append(("gap", ""))
             elif b.kind == "verdicts":
                 for i, c in enumerate(report.claims, 1):
-                    out.append(("b", f"Claim {i} ({c['id']}): {c['verdict_label']}"))
+                    rob = c.get("robustness") or {}
+                    out.append(("b", f"Claim {i} ({c['id']}): {c['verdict_label']}"
+                                + (" — fragile" if rob.get("fragile") else "")))
                     out.extend(("p", x) for x in textwrap.wrap(f"“{c['text']}”", _WIDTH))
                     for r in c["reasons"]:
                         out.extend(("p", x) for x in textwrap.wrap("–  " + r, _WIDTH))
                     out.extend(("p", x) for x in
                                textwrap.wrap("Evidence: " + evidence_line(c), _WIDTH))
+                    if rob.get("fragile"):
+                        out.extend(("p", x) for x in textwrap.wrap(
+                            "Fragile: the verdict flips under " + "; ".join(rob["flipped_by"]),
+                            _WIDTH))
                     out.append(("gap", ""))
     out.append(("p", f"Store checksum {report.store_checksum}."))
     return out

@@ -192,3 +192,22 @@ def test_cliffs_delta_interval_does_not_move_with_the_seed(demo_report, capsys):
     a, b = _by_seed(capsys, demo_report, "compare", "--at", demo_report["policy"])
     got = [re.findall(r"Cliff's delta (.*?\))", out) for out in (a, b)]
     assert got[0] and got[0] == got[1]
+
+
+def test_check_marks_fragile_verdicts_in_text_json_and_exit_code(demo_report, capsys,
+                                                                  tmp_path):
+    claims = str(ROOT / "sample_repos" / "demo_claims.toml")
+    capsys.readouterr()
+    js = tmp_path / "verdicts.json"
+    code = main(["check", claims, "--store", str(demo_report["store"]), "--policy-date",
+                 demo_report["policy"], "--json", str(js)])
+    out = capsys.readouterr().out
+    doc = {c["id"]: c for c in json.loads(js.read_text(encoding="utf-8"))}
+    fragile = {cid for cid, c in doc.items() if c["robustness"]["fragile"]}
+    assert fragile == {m.group(1) for m in re.finditer(r"\[FRAGILE\] (\S+):", out)}
+    assert bool(code & 16) == bool(fragile) and 9 <= code <= 31
+    # the report's claim blocks carry the same panel verdicts as check
+    for cid, c in demo_report["claims"].items():
+        assert c["robustness"]["fragile"] == doc[cid]["robustness"]["fragile"], cid
+        assert [(r["axis"], r["verdict"]) for r in c["robustness"]["variants"]] == \
+            [(r["axis"], r["verdict"]) for r in doc[cid]["robustness"]["variants"]], cid
