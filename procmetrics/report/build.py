@@ -23,7 +23,7 @@ from procmetrics.claims.reader import ClaimsFile, load_claims
 from procmetrics.report.context import BuildContext, apply_store_flags
 from procmetrics.report.csvout import write_csvs
 from procmetrics.store.repodata import StoreData, choose_repo, load_store_data, store_checksum
-from procmetrics.report.flags import store_flags
+from procmetrics.report.flags import review_adoption_flags, store_flags
 from procmetrics.report.html import render_html
 from procmetrics.report.jsonout import write_json
 from procmetrics.report.manifest import build_manifest, read_manifest, write_manifest
@@ -58,8 +58,10 @@ def build_report(data: StoreData, options: ReportOptions, *,
     sec_claims.section_claims(ctx)
     adoption = any(c.code == "tag_adoption_rising" for c in
                    (ctx.metrics.caveats if ctx.metrics is not None else ()))
-    apply_store_flags(report, store_flags(quality, unresolved_limit=options.unresolved_share_limit,
-                                          adoption_rising=adoption))
+    flags = store_flags(quality, unresolved_limit=options.unresolved_share_limit,
+                        adoption_rising=adoption)
+    flags["review"] = review_adoption_flags(ctx)
+    apply_store_flags(report, flags)
     sec_claims.section_limitations(ctx)
     sec_claims.section_use(ctx)
     return report

@@ -91,6 +91,8 @@ def apply_store_flags(report: Report, store: dict[str, list[Flag]]) -> None:
             extra += store.get("defects", [])
         if "trailers" in fig.kinds or "defects" in fig.kinds:
             extra += store.get("trailers", [])
+        if "review" in fig.kinds:
+            extra += store.get("review", [])
         fig.flags[:] = fl.dedupe(fig.flags + fl.retarget(extra, fig.key))
     for group in store.values():
         report.flags.extend(fl.retarget(group, "report"))
