@@ -158,14 +158,15 @@ def _by_seed(capsys, demo: dict, *argv: str) -> list[str]:
 
 def test_headline_before_after_intervals_do_not_move_with_the_seed(demo_report, capsys):
     """ITS level and slope changes (GLM), share differences (Newcombe), medians and the
-    Hodges-Lehmann shift (order statistics) are not resampled: two seeds print them alike."""
+    Hodges-Lehmann shift (order statistics) and Cliff's delta (DeLong, from 200 values a
+    side; the bootstrap it replaced moved in the third digit, -0.0275 vs -0.0278 at 2,000
+    resamples on the demo) are not resampled: two seeds print them alike."""
     a, b = _by_seed(capsys, demo_report, "compare", "--at", demo_report["policy"])
 
     def shown(out: str) -> list[str]:
         keep = []
         for line in out.splitlines():
-            line = re.sub(r"Cliff's delta .*?\)\s*\(\w+\)", "", line)   # resampled: below
-            if re.search(r"level change|slope change|difference|HL shift", line):
+            if re.search(r"level change|slope change|difference|HL shift|Cliff's delta", line):
                 keep.append(line)
         return keep
 
@@ -182,16 +183,6 @@ def test_lifetime_quantile_intervals_do_not_move_with_the_seed(demo_report, caps
                     demo_report["policy"], "--horizon", "365")
     med = [re.findall(r"median .*", out) for out in (a, b)]
     assert med[0] and med[0] == med[1]
-
-
-@pytest.mark.xfail(strict=True, reason="Cliff's delta's interval is a percentile bootstrap: "
-                   "its third significant digit moves with the seed at 2,000 resamples "
-                   "(demo, lines changed: -0.0275 vs -0.0278); an analytic interval (Cliff "
-                   "1993) would not")
-def test_cliffs_delta_interval_does_not_move_with_the_seed(demo_report, capsys):
-    a, b = _by_seed(capsys, demo_report, "compare", "--at", demo_report["policy"])
-    got = [re.findall(r"Cliff's delta (.*?\))", out) for out in (a, b)]
-    assert got[0] and got[0] == got[1]
 
 
 def test_check_marks_fragile_verdicts_in_text_json_and_exit_code(demo_report, capsys,
