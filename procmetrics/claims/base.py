@@ -3,7 +3,18 @@
 A claim is a sentence an organisation wants to put before an assessor ("review
 coverage rose after the policy change", "defects are fixed within 60 days").
 Each claim kind maps to one method of the analysis layer and one decision
-rule, and ends in one of four verdicts:
+rule, and ends in one of four verdicts.
+
+**One convention for every kind.** A claim states a direction (a share
+*rose*, lifetimes are *shorter*, a share is *at least* a threshold). It is
+tested one-sided in that direction at level alpha/2, where 1 - alpha is the
+claim's ``level`` (default 0.95): the verdict is ``supported`` exactly when
+the two-sided (1 - alpha) interval the report shows lies entirely on the
+claimed side of the threshold. That is the same decision as rejecting "no
+effect or an effect the other way" with a one-sided test at alpha/2 (2.5% at
+the default level), so the interval printed beside a verdict always agrees
+with it. :func:`decide` is the only place that turns an interval into a
+verdict; every evaluator goes through it (:data:`ONE_SIDED_NOTE`).
 
 ``supported``
     the interval at the claim's level lies entirely on the claimed side of
@@ -41,6 +52,7 @@ from typing import Any, Callable, Mapping, Sequence
 import pandas as pd
 
 from procmetrics.analyse.result import Caveat, Diagnostic, Estimate, to_plain
+from procmetrics.errors import ConfigError
 
 SUPPORTED = "supported"
 NOT_SUPPORTED = "not_supported"
@@ -55,6 +67,15 @@ VERDICT_LABELS: dict[str, str] = {
 }
 #: the policy date given on the command line, usable as a date value
 POLICY = "policy"
+#: the testing convention, said once and shown with every verdict
+ONE_SIDED_NOTE = ("one-sided test in the claimed direction at level alpha/2 = {half}: "
+                  "supported only when the whole two-sided {level} interval lies on the "
+                  "claimed side")
+
+
+def one_sided_level(level: float) -> float:
+    """The one-sided test level alpha/2 that a two-sided ``level`` interval carries."""
+    return round((1.0 - level) / 2.0, 10)
 
 
 @dataclass(frozen=True)
@@ -68,9 +89,19 @@ class Param:
 
 @dataclass(frozen=True)
 class KindSpec:
+    """A claim kind: what it claims, its parameters, its method and direction.
+
+    ``direction`` says which side of the threshold the claim asserts (in
+    words, for ``--list-kinds`` and the README); ``see`` names the report
+    places (``section:``, ``figure:``, ``table:`` keys) that carry the
+    evidence for claims of this kind.
+    """
+
     summary: str
     params: Mapping[str, Param]
     method: str
+    direction: str = ""
+    see: tuple[str, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -112,6 +143,9 @@ class ClaimContext:
     min_n: int = 20
     period: str = "quarter"
     seed: int = 20240601
+    #: placebo dates (+-k periods) fitted beside a change-at-date claim; evidence
+    #: only, they never change a verdict (simulations set 0 to run faster)
+    placebo_shifts: int = 8
     #: analysis choices the robustness panel varies (claims/robustness.py); the
     #: defaults are the report's: committer dates, link era from the first linked fix
     date_basis: str = "committer"
@@ -131,6 +165,8 @@ class ClaimVerdict:
     test: Mapping[str, Any] | None = None
     diagnostics: tuple[Diagnostic, ...] = ()
     caveats: tuple[Caveat, ...] = ()
+    #: the report places carrying the evidence ("section:key", "figure:key", "table:key")
+    see: tuple[str, ...] = ()
 
     @property
     def label(self) -> str:
@@ -148,7 +184,12 @@ class ClaimVerdict:
                 "test": None if self.test is None else to_plain(dict(self.test)),
                 "diagnostics": [d.to_dict() for d in self.diagnostics],
                 "caveats": [cv.to_dict() for cv in self.caveats],
+                "decision": ONE_SIDED_NOTE.format(
+                    level=f"{self.claim.level:.0%}",
+                    half=f"{one_sided_level(self.claim.level):.4g}"),
             },
+            "evidence_refs": [{"kind": r.split(":", 1)[0], "key": r.split(":", 1)[1]}
+                              for r in self.see],
         }
 
 
@@ -177,7 +218,11 @@ def decide(claim: Claim, est: Estimate, *, side: str, threshold: float, what: st
            extra: Sequence[str] = ()) -> ClaimVerdict:
     """Apply the interval rule: supported when the whole interval is on ``side`` of ``threshold``.
 
-    ``side`` is ``"above"`` or ``"below"``; ``what`` names the quantity in words.
+    This is the one decision rule of every claim kind: ``est`` carries a
+    two-sided interval at ``est.level`` = 1 - alpha, and "the whole interval
+    on the claimed side" is a one-sided test of the claimed direction at level
+    alpha/2 (see the module docstring). ``side`` is ``"above"`` or ``"below"``
+    (the claimed side); ``what`` names the quantity in words.
     Blocking caveats (:func:`blocking_caveats`) make the verdict ``undecidable``;
     other warnings are added to the reasons. ``diagnostics`` are reported as
     evidence only: a model that remedied a failed check (robust errors, a
@@ -224,10 +269,14 @@ def undecidable(claim: Claim, method: str, reason: str, *, n: int | None = None,
 
 
 def resolve_date(value: Any, ctx: ClaimContext, key: str) -> pd.Timestamp:
-    """A claim date: ``"policy"`` (the --policy-date) or a date; UTC midnight."""
+    """A claim date: ``"policy"`` (the --policy-date) or a date; UTC midnight.
+
+    A claim that says ``"policy"`` when no policy date was given is a usage
+    mistake, not a property of the data: :class:`~procmetrics.errors.ConfigError`.
+    """
     if value == POLICY:
         if ctx.policy_date is None:
-            raise Undecidable(f"'{key} = \"policy\"' needs a policy date (--policy-date)")
+            raise ConfigError(f"'{key} = \"policy\"' needs a policy date: give --policy-date")
         return ctx.policy_date
     ts = pd.Timestamp(value)
     return ts.tz_localize("UTC") if ts.tzinfo is None else ts.tz_convert("UTC")
@@ -270,4 +319,4 @@ NOT_SUPPORTABLE_KINDS = ("residual_defects_below", "no_defects_remain")
 
 __all__ = ["Claim", "ClaimContext", "ClaimVerdict", "KindSpec", "Param", "VERDICTS",
            "VERDICT_LABELS", "SUPPORTED", "NOT_SUPPORTED", "UNDECIDABLE", "NOT_SUPPORTABLE",
-           "exit_code", "decide"]
+           "ONE_SIDED_NOTE", "exit_code", "decide", "one_sided_level"]

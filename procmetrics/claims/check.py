@@ -98,7 +98,11 @@ def list_kinds() -> str:
         params = ", ".join(f"{k}{'' if p.required else '?'} ({p.type})"
                            for k, p in spec.params.items()) or "none"
         out.append(f"{name}\n    {spec.summary}\n    parameters: {params}\n"
-                   f"    method: {spec.method}")
+                   f"    direction: {spec.direction}\n    method: {spec.method}\n"
+                   f"    evidence in the report: {', '.join(spec.see) or 'none'}")
+    out.append("\nEvery claim is tested one-sided in its direction at level alpha/2: supported "
+               "only when the whole two-sided (1 - alpha) interval (default 95%) lies on the "
+               "claimed side.")
     return "\n".join(out)
 
 

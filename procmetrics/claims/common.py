@@ -9,7 +9,7 @@ import pandas as pd
 from procmetrics.claims import base as cl
 from procmetrics.claims.base import ClaimContext, Param, Undecidable
 from procmetrics.analyse.result import Caveat
-from procmetrics.errors import InsufficientData
+from procmetrics.errors import ConfigError, InsufficientData
 
 SHARE_METRICS = ("review_coverage", "independent_review", "unreviewed_self_commits",
                  "fix_ratio", "revert_ratio", "stable_request_share", "fixes_tag_adoption")
@@ -39,7 +39,7 @@ def subsystem_commits(ctx: ClaimContext, subsystem: str | None) -> pd.DataFrame:
     if subsystem:
         cs = ctx.commit_subsystems
         if cs is None or not (cs["subsystem"] == subsystem).any():
-            raise Undecidable(f"no commit touches the subsystem {subsystem!r}")
+            raise ConfigError(f"subsystem {subsystem!r} does not exist in the store")
         c = c[c["hash"].isin(cs.loc[cs["subsystem"] == subsystem, "hash"])]
     return c
 

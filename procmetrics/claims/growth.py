@@ -20,7 +20,8 @@ SPECS: dict[str, KindSpec] = {
         "the rate at which defects are fixed falls over time (reliability growth)",
         {"after": AFTER, "before": BEFORE},
         "power-law (Crow-AMSAA) NHPP shape beta with profile interval; Laplace and "
-        "MIL-HDBK-189 trend tests"),
+        "MIL-HDBK-189 trend tests", "down: shape beta < 1",
+        ("section:growth", "figure:growth-curve", "table:growth-trend-tests")),
 }
 
 

@@ -4,32 +4,70 @@ from __future__ import annotations
 from dataclasses import replace
 from typing import Sequence
 
-from procmetrics.claims import growth, handling, lifetimes, shares, unsupportable
+from procmetrics.claims import at_date, growth, handling, lifetimes, shares, unsupportable
 from procmetrics.claims.handling import review_adoption_caveat
 from procmetrics.claims.base import (
-    NOT_SUPPORTABLE_KINDS, UNDECIDABLE, Claim, ClaimContext, ClaimVerdict, KindSpec,
+    NOT_SUPPORTABLE_KINDS, POLICY, UNDECIDABLE, Claim, ClaimContext, ClaimVerdict, KindSpec,
     Undecidable, history_blockers, undecidable,
 )
+from procmetrics.errors import ConfigError
 
-_FAMILIES = (shares, handling, lifetimes, growth, unsupportable)
+_FAMILIES = (at_date, shares, handling, lifetimes, growth, unsupportable)
 SPECS: dict[str, KindSpec] = {k: v for f in _FAMILIES for k, v in f.SPECS.items()}
 EVALUATORS = {k: v for f in _FAMILIES for k, v in f.EVALUATORS.items()}
 SHARE_METRICS = shares.SHARE_METRICS
+#: claim parameters that name a subsystem of the store
+SUBSYSTEM_PARAMS = ("subsystem", "control")
+
+
+def check_usable(claims: Sequence[Claim], ctx: ClaimContext) -> None:
+    """Raise :class:`ConfigError` for a claim the user wrote wrongly for this store.
+
+    A claim that says ``"policy"`` when no policy date was given, or names a
+    subsystem the store does not have, is a usage mistake (exit 2), not a
+    property of the data (undecidable). Checked for every claim before any is
+    judged, so ``check`` and ``report`` stop at once with one line.
+    """
+    known: set[str] | None = None
+    cs = ctx.commit_subsystems
+    if cs is not None and len(cs):
+        known = set(cs["subsystem"].dropna().astype(str))
+    for c in claims:
+        where = f"claim {c.id!r}" + (f" (line {c.line})" if c.line else "")
+        spec = SPECS[c.kind]
+        for name, prm in spec.params.items():
+            if prm.type == "date" and c.params.get(name) == POLICY and ctx.policy_date is None:
+                raise ConfigError(f"{where}: '{name} = \"policy\"' needs a policy date: give "
+                                  "--policy-date")
+        for name in SUBSYSTEM_PARAMS:
+            sub = c.params.get(name)
+            if sub is None or (known is not None and sub in known):
+                continue
+            have = ("the store maps no subsystems" if not known else
+                    "known: " + ", ".join(sorted(known)[:12])
+                    + (", ..." if len(known) > 12 else ""))
+            raise ConfigError(f"{where}: {name} {sub!r} does not exist in the store ({have})")
 
 
 def evaluate_claim(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
-    """Judge one claim (see the module docstring for the verdicts)."""
+    """Judge one claim (see :mod:`procmetrics.claims.base` for the verdicts).
+
+    The verdict carries the report places of its evidence (``see``). Raises
+    :class:`ConfigError` for a usage mistake (:func:`check_usable`).
+    """
+    check_usable([claim], ctx)
     spec = SPECS[claim.kind]
     if claim.kind in NOT_SUPPORTABLE_KINDS:
-        return EVALUATORS[claim.kind](claim, ctx)
-    blockers = history_blockers(ctx)
-    if blockers:
-        return ClaimVerdict(claim, UNDECIDABLE, tuple(blockers), spec.method)
-    try:
-        verdict = EVALUATORS[claim.kind](claim, ctx)
-    except Undecidable as exc:
-        return undecidable(claim, spec.method, str(exc))
-    return with_review_adoption(verdict, ctx)
+        v = EVALUATORS[claim.kind](claim, ctx)
+    elif blockers := history_blockers(ctx):
+        v = ClaimVerdict(claim, UNDECIDABLE, tuple(blockers), spec.method)
+    else:
+        try:
+            v = EVALUATORS[claim.kind](claim, ctx)
+        except Undecidable as exc:
+            v = undecidable(claim, spec.method, str(exc))
+    v = v if v.see else replace(v, see=spec.see)
+    return with_review_adoption(v, ctx)
 
 
 def with_review_adoption(verdict: ClaimVerdict, ctx: ClaimContext) -> ClaimVerdict:
@@ -43,4 +81,6 @@ def with_review_adoption(verdict: ClaimVerdict, ctx: ClaimContext) -> ClaimVerdi
 
 
 def evaluate_claims(claims: Sequence[Claim], ctx: ClaimContext) -> list[ClaimVerdict]:
+    """Check that the claims fit the store (:func:`check_usable`), then judge each."""
+    check_usable(claims, ctx)
     return [evaluate_claim(c, ctx) for c in claims]

@@ -1,4 +1,5 @@
-"""Claim kinds about shares and rates: before/after a date, levels in a window, trends.
+"""Claim kinds about shares and rates: higher/lower after a date (descriptive), levels in a
+window, trends. Claims about a change *at* a date are in :mod:`procmetrics.claims.at_date`.
 
 Every kind names the method of the analysis layer it uses; the decision rule
 is :func:`procmetrics.claims.base.decide` (interval entirely on the claimed
@@ -30,35 +31,46 @@ from procmetrics.claims.common import (  # noqa: F401 - SHARE_METRICS re-exporte
 from procmetrics.analyse.result import Estimate
 from procmetrics.errors import InsufficientData
 
+STEP_METHOD = ("odds ratio after/before from a " + GLM_METHOD + " with one step at the date "
+               "and no time trend (descriptive: attributes nothing to the date)")
+NO_ATTRIBUTION = ("this compares the share after the date with the share before it and "
+                  "attributes nothing to the date: a trend already under way before the date "
+                  "gives the same result (for a change at the date use rose_after / fell_after)")
+_STEP_PARAMS = {"metric": METRIC, "date": Param("date", True), "subsystem": SUBSYSTEM}
+_TRENDS = ("section:process-series", "table:trends")
+
 SPECS: dict[str, KindSpec] = {
-    "rose_after": KindSpec("the share is higher after the date than before",
-                           {"metric": METRIC, "date": Param("date", True), "subsystem": SUBSYSTEM},
-                           "odds ratio after/before from a " + GLM_METHOD),
-    "fell_after": KindSpec("the share is lower after the date than before",
-                           {"metric": METRIC, "date": Param("date", True), "subsystem": SUBSYSTEM},
-                           "odds ratio after/before from a " + GLM_METHOD),
-    "review_coverage_rose": KindSpec(
-        "review coverage is higher after the date than before",
-        {"date": Param("date", True), "subsystem": SUBSYSTEM},
-        "odds ratio after/before from a " + GLM_METHOD),
+    "higher_after_than_before": KindSpec(
+        "the share is higher after the date than before (descriptive; nothing is attributed "
+        "to the date)", _STEP_PARAMS, STEP_METHOD, "up: odds ratio after/before > 1",
+        ("section:before-after", "table:before-after-shares")),
+    "lower_after_than_before": KindSpec(
+        "the share is lower after the date than before (descriptive; nothing is attributed "
+        "to the date)", _STEP_PARAMS, STEP_METHOD, "down: odds ratio after/before < 1",
+        ("section:before-after", "table:before-after-shares")),
     "at_least": KindSpec("the share in the window is at least the threshold",
                          {"metric": METRIC, "threshold": Param("share", True),
                           "after": AFTER, "before": BEFORE, "subsystem": SUBSYSTEM},
-                         "pooled share from an intercept-only " + GLM_METHOD),
+                         "pooled share from an intercept-only " + GLM_METHOD,
+                         "up: share > threshold", ("section:process-series",)),
     "at_most": KindSpec("the share in the window is at most the threshold",
                         {"metric": METRIC, "threshold": Param("share", True),
                          "after": AFTER, "before": BEFORE, "subsystem": SUBSYSTEM},
-                        "pooled share from an intercept-only " + GLM_METHOD),
+                        "pooled share from an intercept-only " + GLM_METHOD,
+                        "down: share < threshold", ("section:process-series",)),
     "declining": KindSpec("the share falls over time in the window",
                           {"metric": METRIC, "after": AFTER, "before": BEFORE,
-                           "subsystem": SUBSYSTEM}, "time trend (procmetrics.analyse.change.trend)"),
+                           "subsystem": SUBSYSTEM}, "time trend (procmetrics.analyse.change.trend)",
+                          "down: odds ratio per year < 1", _TRENDS),
     "rising": KindSpec("the share rises over time in the window",
                        {"metric": METRIC, "after": AFTER, "before": BEFORE,
-                        "subsystem": SUBSYSTEM}, "time trend (procmetrics.analyse.change.trend)"),
+                        "subsystem": SUBSYSTEM}, "time trend (procmetrics.analyse.change.trend)",
+                       "up: odds ratio per year > 1", _TRENDS),
     "fix_ratio_declining": KindSpec(
         "the share of commits that fix an earlier commit falls over time",
         {"after": AFTER, "before": BEFORE, "subsystem": SUBSYSTEM},
-        "time trend (procmetrics.analyse.change.trend)"),
+        "time trend (procmetrics.analyse.change.trend)", "down: odds ratio per year < 1",
+        _TRENDS),
 }
 
 
@@ -134,10 +146,13 @@ def eval_shift(claim: Claim, ctx: ClaimContext, direction: str) -> ClaimVerdict:
              f"{sh.n_before:,} commits before {date:%Y-%m-%d}, "
              f"{pct(sh.x_after / sh.n_after)} of {sh.n_after:,} after"]
     cav = list(sh.caveats) + adoption_caveat(ctx, metric)
-    return cl.decide(claim, sh.odds_ratio, side="above" if direction == "up" else "below",
+    up = direction == "up"
+    one_p = sh.p_value / 2 if (sh.odds_ratio.value > 1) == up else 1 - sh.p_value / 2
+    return cl.decide(claim, sh.odds_ratio, side="above" if up else "below",
                      threshold=1.0, what="odds ratio after/before", method=method, n=n,
-                     test={"name": "Wald z (after term)", "p_value": sh.p_value},
-                     diagnostics=sh.diagnostics, caveats=cav, extra=extra)
+                     test={"name": "Wald z of the after/before step, one-sided in the claimed "
+                                   "direction", "p_value": float(one_p)},
+                     diagnostics=sh.diagnostics, caveats=cav, extra=extra + [NO_ATTRIBUTION])
 
 
 def eval_level(claim: Claim, ctx: ClaimContext, side: str) -> ClaimVerdict:
@@ -198,9 +213,8 @@ def eval_trend(claim: Claim, ctx: ClaimContext, side: str) -> ClaimVerdict:
 
 
 EVALUATORS = {
-    "rose_after": lambda c, x: eval_shift(c, x, "up"),
-    "fell_after": lambda c, x: eval_shift(c, x, "down"),
-    "review_coverage_rose": lambda c, x: eval_shift(c, x, "up"),
+    "higher_after_than_before": lambda c, x: eval_shift(c, x, "up"),
+    "lower_after_than_before": lambda c, x: eval_shift(c, x, "down"),
     "at_least": lambda c, x: eval_level(c, x, "above"),
     "at_most": lambda c, x: eval_level(c, x, "below"),
     "declining": lambda c, x: eval_trend(c, x, "below"),

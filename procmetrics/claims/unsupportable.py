@@ -14,9 +14,10 @@ from procmetrics.analyse.result import caveat
 SPECS: dict[str, KindSpec] = {
     "residual_defects_below": KindSpec(
         "fewer than N defects remain", {"threshold": Param("count", True)},
-        "none: not supportable from commit data"),
+        "none: not supportable from commit data", "none", ("section:limitations",)),
     "no_defects_remain": KindSpec("no defects remain", {},
-                                  "none: not supportable from commit data"),
+                                  "none: not supportable from commit data", "none",
+                                  ("section:limitations",)),
 }
 
 

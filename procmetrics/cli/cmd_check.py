@@ -12,12 +12,15 @@ from procmetrics.report.model import PERIODS
 def register(sub: argparse._SubParsersAction) -> None:
     p = sub.add_parser(
         "check", help="check claims (TOML) against the data; exit code = verdicts",
-        description="Judge each claim of a claims file. Verdicts: supported, not supported, "
+        description="Judge each claim of a claims file, one-sided in the claimed direction at "
+        "level alpha/2 (supported only when the whole two-sided interval at the claim's level "
+        "lies on the claimed side). Verdicts: supported, not supported, "
         "undecidable with this data, not supportable by this kind of evidence. Exit code: 0 "
         "when every claim is supported; otherwise 8 + 1 (any not supported) + 2 (any "
         "undecidable) + 4 (any not supportable) + 16 (any verdict fragile: it flips under "
-        "another reasonable analysis choice of the robustness panel), i.e. 9-31. Errors: 2 "
-        "claims file, 5 store.",
+        "another reasonable analysis choice of the robustness panel), i.e. 9-31. Errors: 2 claims file or a claim "
+        "that does not fit the store (a \"policy\" date without --policy-date, an unknown "
+        "subsystem), 5 store.",
         formatter_class=argparse.RawDescriptionHelpFormatter)
     p.add_argument("claims", metavar="CLAIMS.toml", nargs="?", help="claims file")
     add_store_argument(p)

@@ -20,6 +20,7 @@ from procmetrics.errors import ConfigError, ProcmetricsError
 from procmetrics.analyse.measures import quality as ql
 from procmetrics.report import sec_claims, sec_compare, sec_defects, sec_process, sec_scope
 from procmetrics.claims.reader import ClaimsFile, load_claims
+from procmetrics.claims.registry import check_usable
 from procmetrics.report.context import BuildContext, apply_store_flags
 from procmetrics.report.csvout import write_csvs
 from procmetrics.store.repodata import StoreData, choose_repo, load_store_data, store_checksum
@@ -43,6 +44,10 @@ def build_report(data: StoreData, options: ReportOptions, *,
                     scope={}, store_checksum=store_checksum(data))
     ctx = BuildContext(data=data, options=options, report=report, quality=quality,
                        policy_date=policy_date, seed=options.seed, claims=claims)
+    # usage mistakes stop the report at once (exit 2), before any analysis runs
+    _check_subsystems(data, options.subsystems)
+    if claims is not None:
+        check_usable(claims.claims, sec_claims.claim_context(ctx))
     report.scope = sec_scope.scope(ctx)
     report.provenance = sec_scope.provenance(ctx)
     sec_scope.section_scope(ctx)
@@ -65,6 +70,18 @@ def build_report(data: StoreData, options: ReportOptions, *,
     sec_claims.section_limitations(ctx)
     sec_claims.section_use(ctx)
     return report
+
+
+def _check_subsystems(data: StoreData, names: Any) -> None:
+    """A --subsystem name the store does not map is a usage mistake (ConfigError)."""
+    cs = data["commit_subsystems"]
+    known = set(cs["subsystem"].dropna().astype(str)) if cs is not None and len(cs) else set()
+    for name in names or ():
+        if name not in known:
+            have = ("the store maps no subsystems" if not known else "known: "
+                    + ", ".join(sorted(known)[:12]) + (", ..." if len(known) > 12 else ""))
+            raise ConfigError(f"subsystem {name!r} does not exist in the store ({have})",
+                              key="--subsystem")
 
 
 @dataclass(frozen=True)

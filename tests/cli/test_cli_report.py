@@ -49,6 +49,23 @@ def test_check_claims_error_names_file_line_and_key(mined, tmp_path, capsys):
     assert f"{bad}:5, key 'threshold'" in err and err.count("\n") == 1
 
 
+def test_check_usage_mistakes_exit_2_with_one_line(mined, tmp_path, capsys):
+    # a "policy" claim without --policy-date, and a subsystem the store lacks, are the
+    # user's mistakes: one line, exit 2 (not an "undecidable" verdict)
+    _, _, store, policy = mined
+    claims = tmp_path / "c.toml"
+    claims.write_text('[[claim]]\nid = "rose"\nkind = "review_coverage_rose"\n'
+                      'date = "policy"\n', encoding="utf-8")
+    assert main(["check", str(claims), "--store", str(store)]) == 2
+    err = capsys.readouterr().err
+    assert "claim 'rose' (line 1)" in err and "--policy-date" in err and err.count("\n") == 1
+    claims.write_text('[[claim]]\nid = "sub"\nkind = "at_least"\nmetric = "fix_ratio"\n'
+                      'threshold = 0.1\nsubsystem = "no-such-subsystem"\n', encoding="utf-8")
+    assert main(["check", str(claims), "--store", str(store), "--policy-date", policy]) == 2
+    err = capsys.readouterr().err
+    assert "'no-such-subsystem' does not exist in the store" in err and err.count("\n") == 1
+
+
 def test_check_lists_kinds(capsys):
     assert main(["check", "--list-kinds"]) == 0
     out = capsys.readouterr().out

@@ -12,6 +12,7 @@ from procmetrics.claims.base import (
     exit_code,
 )
 from procmetrics.claims.registry import evaluate_claim
+from procmetrics.errors import ConfigError
 
 from tests.report.synth import synth
 
@@ -30,13 +31,29 @@ def rose():
 
 
 def rose_claim() -> Claim:
-    return Claim("r", "coverage rose", "review_coverage_rose", {"date": "policy"})
+    # the descriptive step comparison (higher after than before, nothing attributed
+    # to the date); the trend-aware kinds are tested in tests/claims/
+    return Claim("r", "coverage higher after", "higher_after_than_before",
+                 {"metric": "review_coverage", "date": "policy"})
 
 
 def test_supported_when_coverage_rose(rose):
     v = evaluate_claim(rose_claim(), ctx_for(rose))
     assert v.verdict == SUPPORTED, v.reasons
     assert v.estimate.low > 1 and v.n == 1200
+    assert any("attributes nothing to the date" in r for r in v.reasons)
+
+
+def test_review_coverage_rose_judged_against_the_trend_by_month(rose):
+    # 48 months, a jump from 0.3 to 0.8 at the date (simulation truth: log-odds
+    # step log(0.8/0.2) - log(0.3/0.7) = 2.23) and no trend
+    c = Claim("r", "coverage rose", "review_coverage_rose", {"date": "policy"})
+    v = evaluate_claim(c, ctx_for(rose, period="month"))
+    assert v.verdict == SUPPORTED, v.reasons
+    assert v.estimate.low < np.log(0.8 / 0.2) - np.log(0.3 / 0.7) < v.estimate.high
+    # by quarter there are 8 periods a side: too few for the segmented model
+    q = evaluate_claim(c, ctx_for(rose))
+    assert q.verdict == UNDECIDABLE and "12 per segment" in q.reasons[0]
 
 
 def test_not_supported_without_change_and_says_it_is_not_evidence_against():
@@ -55,7 +72,8 @@ def test_not_supported_when_data_point_the_other_way():
 
 
 def test_undecidable_with_too_few_commits_after_the_date(rose):
-    c = Claim("r", "x", "review_coverage_rose", {"date": pd.Timestamp("2023-12-29").date()})
+    c = Claim("r", "x", "higher_after_than_before",
+              {"metric": "review_coverage", "date": pd.Timestamp("2023-12-29").date()})
     v = evaluate_claim(c, ctx_for(rose))
     assert v.verdict == UNDECIDABLE
     assert "commits after" in v.reasons[0]
@@ -66,10 +84,11 @@ def test_undecidable_on_shallow_history_even_with_clear_data(rose):
     assert v.verdict == UNDECIDABLE and "shallow" in v.reasons[0]
 
 
-def test_undecidable_without_policy_date(rose):
+def test_policy_claim_without_policy_date_is_a_usage_error(rose):
     ctx = ClaimContext(commits=rose["commits"], trailers=rose["trailers"],
                        fix_links=rose["fix_links"])
-    assert evaluate_claim(rose_claim(), ctx).verdict == UNDECIDABLE
+    with pytest.raises(ConfigError, match="needs a policy date"):
+        evaluate_claim(rose_claim(), ctx)
 
 
 @pytest.mark.parametrize("kind,params", [("residual_defects_below", {"threshold": 5}),

@@ -1,0 +1,65 @@
+"""``lifetimes_shorter_after`` through the commit-level input (as ``procmetrics check``).
+
+Invented right-truncated histories with a known truth (:mod:`tests.claims.sim`):
+fix links between commits, built into defects by ``build_defects`` inside the
+evaluator. Calibration over many replicates is in
+``test_calibration_lifetimes.py``.
+"""
+from __future__ import annotations
+
+import dataclasses
+
+import numpy as np
+import pandas as pd
+
+import procmetrics.claims.lifetimes as lt
+from procmetrics.claims.base import NOT_SUPPORTED, SUPPORTED, Claim, ClaimContext
+from procmetrics.claims.registry import evaluate_claim
+from tests.claims.sim import lifetime_history
+
+CLAIM = Claim("l", "fixed sooner after the date", "lifetimes_shorter_after",
+              {"date": "policy"})
+
+
+def _ctx(seed: int, **kw) -> ClaimContext:
+    ctx, at = lifetime_history(np.random.default_rng(seed), **kw)
+    return dataclasses.replace(ctx, policy_date=at)
+
+
+def test_median_120_to_45_days_is_supported_one_sided():
+    v = evaluate_claim(CLAIM, _ctx(1, n_visible=700, factor_after=45 / 120))
+    assert v.verdict == SUPPORTED, v.reasons
+    assert v.test["p_value"] < 0.025
+    assert v.see == ("section:lifetimes", "figure:lifetime-before-after")
+
+
+def test_longer_lifetimes_after_are_never_called_shorter():
+    # truth: lifetimes 15% longer after the date (the case the old rule got wrong)
+    v = evaluate_claim(CLAIM, _ctx(2, n_visible=700, factor_after=1.15))
+    assert v.verdict == NOT_SUPPORTED, v.reasons
+    assert v.test["p_value"] > 0.5          # one-sided: the data lean the other way
+
+
+def test_comparison_keeps_the_horizon_conditioning():
+    # only defects introduced >= H before the end and fixed within H are compared
+    ctx = _ctx(3, n_visible=700)
+    v = evaluate_claim(dataclasses.replace(CLAIM, params={"date": "policy",
+                                                           "horizon_days": 200.0}), ctx)
+    assert any("lifetimes conditional on lifetime <= 200 days" in r for r in v.reasons)
+    from procmetrics.analyse.lifetimes.analysis import restrict_to_horizon
+    from procmetrics.analyse.lifetimes.defects import build_defects
+
+    table = build_defects(ctx.fix_links, commits=ctx.commits)
+    cohort = restrict_to_horizon(table.defects, 200.0).defects
+    assert v.n == len(cohort)
+    assert (cohort["lifetime"] <= 200).all() and (cohort["window"] >= 200).all()
+
+
+def test_no_tolerance_the_wrong_way_is_left():
+    assert not hasattr(lt, "_ordered_after_below")
+
+
+def test_history_ending_before_the_date_is_undecidable():
+    ctx = _ctx(4, n_visible=200)
+    late = dataclasses.replace(ctx, policy_date=pd.Timestamp("2040-01-01", tz="UTC"))
+    assert evaluate_claim(CLAIM, late).verdict == "undecidable"
