@@ -30,15 +30,19 @@ METRIC = "applied_by_other"
 _PARAMS = {"threshold": Param("share", True), "after": AFTER, "before": BEFORE,
            "subsystem": SUBSYSTEM}
 
+_SEE = ("section:process-series", "figure:series-applied-by-other")
+
 SPECS: dict[str, KindSpec] = {
     "applied_by_other_at_least": KindSpec(
         "at least the threshold share of commits in the window were applied by someone "
         "other than their author (committer e-mail differs from the author's)", _PARAMS,
-        "pooled share of applied_by_other from an intercept-only " + GLM_METHOD),
+        "pooled share of applied_by_other from an intercept-only " + GLM_METHOD,
+        "up: share > threshold", _SEE),
     "applied_by_other_at_most": KindSpec(
         "at most the threshold share of commits in the window were applied by someone "
         "other than their author", _PARAMS,
-        "pooled share of applied_by_other from an intercept-only " + GLM_METHOD),
+        "pooled share of applied_by_other from an intercept-only " + GLM_METHOD,
+        "down: share < threshold", _SEE),
 }
 
 WORDS = ("applied by someone other than the author: the committer's e-mail differs from "

@@ -24,8 +24,8 @@ POLICY = pd.Timestamp("2022-01-01", tz="UTC")
 CLAIMS = [
     Claim("review-70", "At least 70% of changes after the policy are reviewed.", "at_least",
           {"metric": "review_coverage", "threshold": 0.7, "after": "policy"}),
-    Claim("review-rose", "Review rose after the policy.", "rose_after",
-          {"metric": "review_coverage", "date": "policy"}),
+    Claim("review-higher", "Review is higher after the policy than before.",
+          "higher_after_than_before", {"metric": "review_coverage", "date": "policy"}),
 ]
 
 
