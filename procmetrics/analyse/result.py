@@ -37,6 +37,8 @@ CAVEAT_CODES: dict[str, str] = {
     "negligible_effect": "statistically significant but negligible in size",
     "absence_of_evidence": "no evidence of a change is not evidence of no change",
     "tag_adoption_rising": "use of the Fixes: trailer is still rising in the window",
+    "review_adoption_unsettled": "the window starts before review trailers had settled "
+                                 "into use",
     "clock_skew": "some dates are inconsistent (clock skew, rebases)",
     "not_identifiable": "the quantity cannot be identified from this data",
     "model_refused": "the model was not fitted or its prediction was refused",

@@ -146,6 +146,10 @@ class ClaimContext:
     #: placebo dates (+-k periods) fitted beside a change-at-date claim; evidence
     #: only, they never change a verdict (simulations set 0 to run faster)
     placebo_shifts: int = 8
+    #: analysis choices the robustness panel varies (claims/robustness.py); the
+    #: defaults are the report's: committer dates, link era from the first linked fix
+    date_basis: str = "committer"
+    links_from: Any = "first_link"
 
 
 @dataclass(frozen=True)
@@ -295,16 +299,19 @@ def unresolved_share(fix_links: pd.DataFrame) -> float | None:
     return None if st.empty else float((st != "resolved").mean())
 
 
-def exit_code(verdicts: Sequence[ClaimVerdict]) -> int:
+def exit_code(verdicts: Sequence[ClaimVerdict], *, fragile: bool = False) -> int:
     """Exit status for a pipeline gate.
 
-    0 when every claim is supported; otherwise ``8 + bits`` with bit 1 for any
-    ``not_supported``, bit 2 for any ``undecidable`` and bit 4 for any
-    ``not_supportable`` (9 to 15; distinct from the error codes 1-7).
+    0 when every claim is supported and no verdict is fragile; otherwise
+    ``8 + bits`` with bit 1 for any ``not_supported``, bit 2 for any
+    ``undecidable``, bit 4 for any ``not_supportable`` and bit 16 when any
+    verdict is fragile (it flips under another reasonable analysis choice, see
+    :mod:`procmetrics.claims.robustness`): 9 to 31, distinct from the error
+    codes 1-7.
     """
     kinds = {v.verdict for v in verdicts}
     bits = (1 if NOT_SUPPORTED in kinds else 0) | (2 if UNDECIDABLE in kinds else 0) | \
-        (4 if NOT_SUPPORTABLE in kinds else 0)
+        (4 if NOT_SUPPORTABLE in kinds else 0) | (16 if fragile else 0)
     return 0 if bits == 0 else 8 + bits
 
 

@@ -5,20 +5,40 @@ import textwrap
 from pathlib import Path
 from typing import Sequence
 
-from procmetrics.claims.base import ClaimVerdict
+from procmetrics.claims.base import Claim, ClaimContext, ClaimVerdict
+from procmetrics.claims.robustness import Robustness, judge_with_panel
 from procmetrics.claims.registry import SPECS, evaluate_claims
 from procmetrics.errors import OutputPathError
 from procmetrics.analyse.measures import quality as ql
+from procmetrics.analyse.measures.periods import DEFAULT_PERIOD
 from procmetrics.claims.reader import load_claims
 from procmetrics.store.repodata import choose_repo, load_store_data
 from procmetrics.claims.render import evidence_line
+from procmetrics.claims.base import VERDICT_LABELS as cl_labels
 
 
 def check_claims(claims_path: str, *, store: str | None, repo: str | None = None,
-                 policy: str | None = None, period: str = "quarter") -> list[ClaimVerdict]:
+                 policy: str | None = None, period: str = DEFAULT_PERIOD) -> list[ClaimVerdict]:
     """Parse the claims file, read the store and judge every claim."""
+    claims, ctx = claims_and_context(claims_path, store=store, repo=repo, policy=policy,
+                                     period=period)
+    return evaluate_claims(claims, ctx)
+
+
+def check_claims_robust(claims_path: str, *, store: str | None, repo: str | None = None,
+                        policy: str | None = None, period: str = DEFAULT_PERIOD
+                        ) -> tuple[list[ClaimVerdict], list[Robustness]]:
+    """As :func:`check_claims`, with every claim's robustness panel."""
+    claims, ctx = claims_and_context(claims_path, store=store, repo=repo, policy=policy,
+                                     period=period)
+    pairs = judge_with_panel(claims, ctx)
+    return [v for v, _ in pairs], [p for _, p in pairs]
+
+
+def claims_and_context(claims_path: str, *, store: str | None, repo: str | None,
+                       policy: str | None, period: str) -> tuple[list[Claim], ClaimContext]:
+    """The claims of a file and the context they are judged in."""
     from procmetrics.analyse.measures.periods import resolve_policy
-    from procmetrics.claims.base import ClaimContext
     from procmetrics.store import open_store
 
     claims = load_claims(claims_path)
@@ -33,23 +53,42 @@ def check_claims(claims_path: str, *, store: str | None, repo: str | None = None
                        tags=data["tags"], policy_date=resolve_policy(data, policy),
                        is_shallow=hist["is_shallow"], rewritten=bool(hist["rewritten"]),
                        period=period if period != "release" else "quarter")
-    return evaluate_claims(claims.claims, ctx)
+    return list(claims.claims), ctx
 
 
-def render_verdicts(verdicts: Sequence[ClaimVerdict]) -> str:
+def render_verdicts(verdicts: Sequence[ClaimVerdict],
+                    panels: Sequence[Robustness] | None = None) -> str:
     out = []
+    by_id = {p.claim_id: p for p in panels or ()}
     for v in verdicts:
-        out.append(f"[{v.label.upper()}] {v.claim.id}: {v.claim.text}")
+        rob = by_id.get(v.claim.id)
+        tag = " [FRAGILE]" if rob is not None and rob.fragile else ""
+        out.append(f"[{v.label.upper()}]{tag} {v.claim.id}: {v.claim.text}")
         for r in v.reasons:
             out.append(textwrap.fill(r, 92, initial_indent="    - ",
                                      subsequent_indent="      "))
         out.append(textwrap.fill("evidence: " + evidence_line(v.to_dict()), 92,
                                  initial_indent="    ", subsequent_indent="      "))
+        if rob is not None and rob.rows:
+            head = ("fragile: the verdict flips under " + "; ".join(rob.flipped_by)
+                    if rob.fragile else "robust: the same verdict under every alternative "
+                    "that changes its evidence" if any(r.used for r in rob.rows)
+                    else "no alternative of the robustness panel changes its evidence")
+            out.append(textwrap.fill(head, 92, initial_indent="    ",
+                                     subsequent_indent="      "))
+            for r in rob.rows:
+                if r.used:
+                    out.append(textwrap.fill(f"{r.axis} = {r.label}: "
+                                             f"{cl_labels[r.verdict]} ({r.evidence})", 92,
+                                             initial_indent="      · ",
+                                             subsequent_indent="        "))
     counts: dict[str, int] = {}
     for v in verdicts:
         counts[v.label] = counts.get(v.label, 0) + 1
     out.append("")
-    out.append(f"{len(verdicts)} claim(s): " + ", ".join(f"{n} {k}" for k, n in counts.items()))
+    out.append(f"{len(verdicts)} claim(s): " + ", ".join(f"{n} {k}" for k, n in counts.items())
+               + ("" if panels is None else
+                  f"; {sum(p.fragile for p in panels)} fragile (robustness panel)"))
     return "\n".join(out)
 
 

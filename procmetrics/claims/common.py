@@ -49,13 +49,15 @@ def flag_column(metric: str) -> tuple[str, str | None]:
     return {"review_coverage": ("reviewed", None), "independent_review": ("independent", None),
             "unreviewed_self_commits": ("unreviewed_self", None), "fix_ratio": ("fix", None),
             "revert_ratio": ("revert", None), "stable_request_share": ("stable_request", "fix_ref"),
-            "fixes_tag_adoption": ("fix_ref", None)}[metric]
+            "fixes_tag_adoption": ("fix_ref", None),
+            "applied_by_other": ("applied_other", None)}[metric]
 
 
 def share_flags(ctx: ClaimContext, metric: str, subsystem: str | None) -> pd.DataFrame:
     from procmetrics.analyse.measures.metrics import MetricConfig, commit_flags
 
-    f = commit_flags(subsystem_commits(ctx, subsystem), ctx.trailers, MetricConfig(period=ctx.period))
+    f = commit_flags(subsystem_commits(ctx, subsystem), ctx.trailers,
+                     MetricConfig(period=ctx.period, date_column=f"{ctx.date_basis}_date"))
     num, den = flag_column(metric)
     if den is not None:
         f = f[f[den]]

@@ -4,14 +4,15 @@ from __future__ import annotations
 from dataclasses import replace
 from typing import Sequence
 
-from procmetrics.claims import at_date, growth, lifetimes, shares, unsupportable
+from procmetrics.claims import at_date, growth, handling, lifetimes, shares, unsupportable
+from procmetrics.claims.handling import review_adoption_caveat
 from procmetrics.claims.base import (
     NOT_SUPPORTABLE_KINDS, POLICY, UNDECIDABLE, Claim, ClaimContext, ClaimVerdict, KindSpec,
     Undecidable, history_blockers, undecidable,
 )
 from procmetrics.errors import ConfigError
 
-_FAMILIES = (at_date, shares, lifetimes, growth, unsupportable)
+_FAMILIES = (at_date, shares, handling, lifetimes, growth, unsupportable)
 SPECS: dict[str, KindSpec] = {k: v for f in _FAMILIES for k, v in f.SPECS.items()}
 EVALUATORS = {k: v for f in _FAMILIES for k, v in f.EVALUATORS.items()}
 SHARE_METRICS = shares.SHARE_METRICS
@@ -65,7 +66,18 @@ def evaluate_claim(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
             v = EVALUATORS[claim.kind](claim, ctx)
         except Undecidable as exc:
             v = undecidable(claim, spec.method, str(exc))
-    return v if v.see else replace(v, see=spec.see)
+    v = v if v.see else replace(v, see=spec.see)
+    return with_review_adoption(v, ctx)
+
+
+def with_review_adoption(verdict: ClaimVerdict, ctx: ClaimContext) -> ClaimVerdict:
+    """Add a ``review_adoption_unsettled`` caution to a claim on a review metric whose
+    window starts before review trailers settled into use (it does not change the verdict)."""
+    cv = review_adoption_caveat(verdict.claim, ctx)
+    if cv is None or verdict.verdict == UNDECIDABLE:
+        return verdict
+    return replace(verdict, reasons=(*verdict.reasons, f"caution: {cv.message}"),
+                   caveats=(*verdict.caveats, cv))
 
 
 def evaluate_claims(claims: Sequence[Claim], ctx: ClaimContext) -> list[ClaimVerdict]:

@@ -3,6 +3,8 @@ from __future__ import annotations
 
 from typing import Any
 
+from procmetrics import textfmt
+
 
 def evidence_line(claim: dict[str, Any]) -> str:
     ev = claim.get("evidence") or {}
@@ -11,11 +13,13 @@ def evidence_line(claim: dict[str, Any]) -> str:
         parts.append(f"n = {ev['n']:,}")
     est = ev.get("estimate")
     if est and est.get("value") is not None:
-        unit = f" {est['unit']}" if est.get("unit") else ""
-        text = f"{est['name']} = {est['value']:.3g}{unit}"
+        # the digits every command and table prints (procmetrics.textfmt)
+        u = est.get("unit") or ""
+        unit = f" {u}" if u else ""
+        text = f"{est['name']} = {textfmt.number(est['value'], u)}{unit}"
         if est.get("low") is not None and est.get("high") is not None:
-            text += (f", {est['level']:.0%} interval {est['low']:.3g} to "
-                     f"{est['high']:.3g}{unit}")
+            text += (f", {est['level']:.0%} interval {textfmt.number(est['low'], u)} to "
+                     f"{textfmt.number(est['high'], u)}{unit}")
         parts.append(text)
     test = ev.get("test")
     if test and test.get("p_value") is not None:

@@ -9,17 +9,19 @@ import pandas as pd
 
 from procmetrics.cli import add_store_argument
 from procmetrics.validate import arg, check_seed
+from procmetrics.resampling import SEED
 
 
 def add_series_arguments(p: argparse.ArgumentParser) -> None:
     """--store, --repo, --period, --subsystem, --metric, --include-merges, --out."""
     from procmetrics.analyse.measures.vocabulary import METRICS
-    from procmetrics.analyse.measures.periods import PERIODS
+    from procmetrics.analyse.measures.periods import DEFAULT_PERIOD, PERIODS
 
     add_store_argument(p)
     p.add_argument("--repo", help="repository name in the store (needed when it holds several)")
-    p.add_argument("--period", choices=PERIODS, default="month",
-                   help="period length; 'release' = first tag dated on/after the commit")
+    p.add_argument("--period", choices=PERIODS, default=DEFAULT_PERIOD,
+                   help=f"period length (default: {DEFAULT_PERIOD}, as in check and report); "
+                   "'release' = first tag dated on/after the commit")
     p.add_argument("--subsystem", action="append", metavar="NAME",
                    help="also per subsystem NAME (repeatable; default: whole project only)")
     p.add_argument("--all-subsystems", action="store_true", help="every mapped subsystem")
@@ -31,7 +33,8 @@ def add_series_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("--include-merges", action="store_true", help="count merge commits too")
     p.add_argument("--fix-keywords", action="store_true",
                    help="add fix_ratio_heuristic (subject keywords; flagged as heuristic)")
-    p.add_argument("--seed", type=arg(check_seed, "--seed"), default=20240601, help="random seed (bootstrap)")
+    p.add_argument("--seed", type=arg(check_seed, "--seed"), default=SEED,
+                   help="random seed (bootstrap; default the report's)")
     p.add_argument("--out", metavar="DIR", help="write CSV/JSON and PNG+SVG figures here")
 
 
@@ -73,6 +76,17 @@ def fmt(x: Any, digits: int = 3) -> str:
     if isinstance(x, float) and abs(x) >= 1000:
         return f"{x:.0f}"
     return f"{x:.{digits}g}"
+
+
+def ci(e: Any) -> str:
+    """An estimate with its interval in the digits the report prints (procmetrics.textfmt)."""
+    from procmetrics import textfmt
+
+    if e is None or e.value is None:
+        return "-"
+    if e.low is None or e.high is None:
+        return textfmt.number(e.value, e.unit)
+    return textfmt.interval(e.value, e.low, e.high, e.unit)
 
 
 def print_caveats(caveats: Any, indent: str = "  ") -> None:

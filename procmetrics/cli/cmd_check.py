@@ -5,6 +5,7 @@ import argparse
 import sys
 
 from procmetrics.cli import add_store_argument
+from procmetrics.analyse.measures.periods import DEFAULT_PERIOD
 from procmetrics.report.model import PERIODS
 from procmetrics.textsafe import data_stdout
 
@@ -17,7 +18,8 @@ def register(sub: argparse._SubParsersAction) -> None:
         "lies on the claimed side). Verdicts: supported, not supported, "
         "undecidable with this data, not supportable by this kind of evidence. Exit code: 0 "
         "when every claim is supported; otherwise 8 + 1 (any not supported) + 2 (any "
-        "undecidable) + 4 (any not supportable), i.e. 9-15. Errors: 2 claims file or a claim "
+        "undecidable) + 4 (any not supportable) + 16 (any verdict fragile: it flips under "
+        "another reasonable analysis choice of the robustness panel), i.e. 9-31. Errors: 2 claims file or a claim "
         "that does not fit the store (a \"policy\" date without --policy-date, an unknown "
         "subsystem), 5 store.",
         formatter_class=argparse.RawDescriptionHelpFormatter)
@@ -26,13 +28,16 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--repo", metavar="NAME", help="repository in the store")
     p.add_argument("--policy-date", metavar="DATE|REV", dest="policy",
                    help="what date = \"policy\" means in the claims file")
-    p.add_argument("--period", choices=PERIODS, default="quarter",
-                   help="period used by the per-period models (default: quarter)")
+    p.add_argument("--period", choices=PERIODS, default=DEFAULT_PERIOD,
+                   help=f"period used by the per-period models (default: {DEFAULT_PERIOD})")
     p.add_argument("--json", metavar="FILE", help="also write the verdicts as JSON with their "
                    "provenance (repository, HEAD, store checksum, policy date, options, "
-                   "version) ('-' = stdout)")
+                   "version) and each verdict's robustness panel ('-' = stdout)")
     p.add_argument("--junit", metavar="FILE", help="also write JUnit XML: one test case per "
                    "claim; not supported, undecidable and not supportable are failures")
+    p.add_argument("--no-panel", action="store_true", help="skip the robustness panel (each "
+                   "claim re-judged by month/quarter, committer/author dates, horizon x0.5/x2, "
+                   "a later link era); bit 16 of the exit code is then never set")
     p.add_argument("--list-kinds", action="store_true", help="list the claim kinds and exit")
     p.set_defaults(func=run)
 
@@ -40,7 +45,8 @@ def register(sub: argparse._SubParsersAction) -> None:
 def run(args: argparse.Namespace) -> int:
     # heavy analysis imports happen only when the command runs
     from procmetrics.claims.base import exit_code
-    from procmetrics.claims.check import check_claims, list_kinds, render_verdicts, write_text
+    from procmetrics.claims.check import (check_claims, check_claims_robust, list_kinds,
+                                          render_verdicts, write_text)
     from procmetrics.report.jsonout import dumps
 
     if args.list_kinds:
@@ -49,10 +55,15 @@ def run(args: argparse.Namespace) -> int:
     if not args.claims:
         print("procmetrics check: error: give a claims file (or --list-kinds)", file=sys.stderr)
         return 2
-    verdicts = check_claims(args.claims, store=args.store, repo=args.repo, policy=args.policy,
-                            period=args.period)
-    code = exit_code(verdicts)
-    plain = [v.to_dict() for v in verdicts]
+    opts = dict(store=args.store, repo=args.repo, policy=args.policy, period=args.period)
+    if args.no_panel:
+        verdicts, panels = check_claims(args.claims, **opts), None
+    else:
+        verdicts, panels = check_claims_robust(args.claims, **opts)
+    code = exit_code(verdicts, fragile=any(p.fragile for p in panels or ()))
+    rob = {p.claim_id: p.to_dict() for p in panels or ()}
+    plain = [{**v.to_dict(), **({"robustness": rob[v.claim.id]} if v.claim.id in rob else {})}
+             for v in verdicts]
     prov = None
     if args.json or args.junit:
         from procmetrics.claims.reader import load_claims
@@ -61,6 +72,7 @@ def run(args: argparse.Namespace) -> int:
         prov = check_provenance(args.store, repo=args.repo, policy=args.policy,
                                 period=args.period, claims_path=args.claims,
                                 claims_sha256=load_claims(args.claims).sha256)
+    doc = ""
     if args.json:
         from procmetrics.report.gate import check_document
 
@@ -68,7 +80,7 @@ def run(args: argparse.Namespace) -> int:
     if args.json == "-":
         data_stdout().write(doc)
     else:
-        print(render_verdicts(verdicts))
+        print(render_verdicts(verdicts, panels))
         if args.json:
             write_text(args.json, doc)
     if args.junit:

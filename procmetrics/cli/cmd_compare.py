@@ -5,6 +5,7 @@ import argparse
 
 from procmetrics.cli import _series_common as common
 from procmetrics.validate import arg, check_count
+from procmetrics.resampling import N_BOOT, N_PERMUTATIONS, analysis_rng
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -18,14 +19,14 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--at", required=True, metavar="DATE|REV",
                    help="policy date (YYYY-MM-DD, UTC) or a commit (its committer date)")
     p.add_argument("--control", metavar="SUBSYSTEM", help="control subsystem (not targeted)")
-    p.add_argument("--resamples", type=arg(check_count, "--resamples"), default=999, help="permutations (Anderson-Darling)")
-    p.add_argument("--boot", type=arg(check_count, "--boot"), default=1000, help="bootstrap replicates")
+    p.add_argument("--resamples", type=arg(check_count, "--resamples"), default=N_PERMUTATIONS,
+                   help="permutations (Anderson-Darling)")
+    p.add_argument("--boot", type=arg(check_count, "--boot"), default=N_BOOT,
+                   help=f"bootstrap replicates (default {N_BOOT}, as in the report)")
     p.set_defaults(func=run)
 
 
 def run(args: argparse.Namespace) -> int:
-    import numpy as np
-
     from procmetrics.analyse.change.policy import DEFAULT_METRICS, compare_policy, resolve_date
 
     tables, name = common.load(args)
@@ -38,13 +39,14 @@ def run(args: argparse.Namespace) -> int:
                          or args.control else None, config=cfg,
                          metrics=tuple(args.metric or DEFAULT_METRICS),
                          control_subsystem=args.control, n_resamples=args.resamples,
-                         n_boot=args.boot, rng=np.random.default_rng(args.seed))
+                         n_boot=args.boot, rng=analysis_rng(args.seed, "compare"))
     f = common.fmt
+    ci = common.ci
     for r in res.its:
         lv, sl = r.level_change, r.slope_change
         print(f"\nITS {r.metric}: {r.n_before} periods before, {r.n_after} after; {r.model}; "
-              f"{r.cov_type}\n  level change {f(lv.value)} [{f(lv.low)}, {f(lv.high)}] "
-              f"{lv.unit}; slope change {f(sl.value)} [{f(sl.low)}, {f(sl.high)}] {sl.unit}"
+              f"{r.cov_type}\n  level change {ci(lv)} "
+              f"{lv.unit}; slope change {ci(sl)} {sl.unit}"
               f"\n  placebo dates: {len(r.placebo)}, share with |effect| >= observed: "
               f"{f(r.placebo_p_level)}")
         if r.control_level_change is not None:
@@ -55,16 +57,16 @@ def run(args: argparse.Namespace) -> int:
     for d in res.distributions:
         h, cd = d.hodges_lehmann, d.cliffs_delta
         tests = ", ".join(f"{t.name} p={f(t.p_value)}" for t in d.tests)
-        print(f"\n{d.quantity}: n={d.n_a} before, n={d.n_b} after; median {f(d.median_a.value)}"
-              f" -> {f(d.median_b.value)}; HL shift {f(h.value)} [{f(h.low)}, {f(h.high)}]; "
-              f"Cliff's delta {f(cd.value)} [{f(cd.low)}, {f(cd.high)}] ({d.magnitude})"
+        print(f"\n{d.quantity}: n={d.n_a} before, n={d.n_b} after; median {ci(d.median_a)}"
+              f" -> {ci(d.median_b)}; HL shift {ci(h)}; "
+              f"Cliff's delta {ci(cd)} ({d.magnitude})"
               f"\n  {tests}")
         common.print_caveats(d.caveats, "  ")
     for p in res.proportions:
         df = p.difference
         tests = ", ".join(f"{t.name} p={f(t.p_value)}" for t in p.tests)
         print(f"\n{p.quantity}: {f(p.p_a.value)} (n={p.p_a.n}) -> {f(p.p_b.value)} "
-              f"(n={p.p_b.n}); difference {f(df.value)} [{f(df.low)}, {f(df.high)}] "
+              f"(n={p.p_b.n}); difference {ci(df)} "
               f"(Newcombe); {tests}")
         common.print_caveats(p.caveats, "  ")
     if len(res.subsystems):

@@ -2,9 +2,9 @@
 from __future__ import annotations
 
 import argparse
-import numpy as np
 
 from procmetrics.cli import add_store_argument
+from procmetrics.resampling import N_BOOT, SEED, analysis_rng
 from procmetrics.session import containment, links_from, load_tables
 from procmetrics.validate import arg, check_count, check_nonnegative, check_positive, check_seed
 
@@ -31,41 +31,37 @@ def register(sub: argparse._SubParsersAction) -> None:
                    "model's own test)")
     p.add_argument("--ahead", type=arg(check_positive, "--ahead"), default=90.0, metavar="DAYS",
                    help="prediction window in days (default 90)")
-    p.add_argument("--boot", type=arg(check_count, "--boot"), default=200, metavar="B", help="bootstrap refits")
-    p.add_argument("--seed", type=arg(check_seed, "--seed"), default=20240603, help="random seed (bootstrap)")
+    p.add_argument("--boot", type=arg(check_count, "--boot"), default=N_BOOT, metavar="B",
+                   help=f"bootstrap refits (default {N_BOOT}, as in the report)")
+    p.add_argument("--seed", type=arg(check_seed, "--seed"), default=SEED,
+                   help="random seed (bootstrap; default the report's)")
     p.add_argument("--out", metavar="DIR", help="write JSON, CSV and figures here")
     p.set_defaults(func=run)
 
 
 def run(args: argparse.Namespace) -> int:
-    from procmetrics.analyse.lifetimes.defects import build_defects
-    from procmetrics.analyse.growth.analysis import analyse_growth, select_fix_times
+    from procmetrics.analyse.growth.analysis import FIX_EVENTS_DEFINITION, analyse_growth
+    from procmetrics.claims.growth import fix_event_times
 
     tables, name = load_tables(args.store, args.repo)
-    # every linked fix is an event, whatever the age of its introducer ...
-    table = build_defects(tables["fix_links"], commits=tables["commits"],
-                          commit_subsystems=tables["commit_subsystems"], links_from=None)
-    # ... but observation starts with the fix-linking era: before it no fix can be seen
-    era = links_from(args.links_from, tables)
-    if era is None:
-        origin = tables["commits"]["committer_date"].min()
-    elif isinstance(era, str):
-        origin = table.defects["fix_date"].min() if len(table.defects) else None
-    else:
-        origin = era
     cont = None
     if args.after_tag:
-        d = table.defects
-        cont = containment(tables, list(d["introducer_hash"]), [args.after_tag])
-    ft = select_fix_times(table.defects, end=table.end_date,
-                          origin=origin,
-                          subsystem=args.subsystem, after_tag=args.after_tag,
-                          tags=tables["tags"], tag_containment=cont,
-                          batch_hours=args.batch_hours)
+        ok = tables["fix_links"]
+        ok = ok[ok["status"] == "resolved"]
+        cont = containment(tables, list(ok["introducer_hash"].dropna().unique()),
+                           [args.after_tag])
+    # the same selection as the report's growth section and the fix_rate_declining claim
+    ft = fix_event_times(tables["fix_links"], tables["commits"],
+                         links_from=links_from(args.links_from),
+                         commit_subsystems=tables["commit_subsystems"],
+                         subsystem=args.subsystem, after_tag=args.after_tag,
+                         tags=tables["tags"], tag_containment=cont,
+                         batch_hours=args.batch_hours)
     res = analyse_growth(ft, require=args.require, ahead=args.ahead, n_boot=args.boot,
-                         rng=np.random.default_rng(args.seed))
+                         rng=analysis_rng(args.seed, "growth"))
     print(f"{name}: {res.n} fix events ({res.scope}), {res.origin:%Y-%m-%d} .. "
           f"{res.end_date:%Y-%m-%d}")
+    print(f"  counted: {FIX_EVENTS_DEFINITION}")
     if res.trend is not None:
         for t in (res.trend.laplace, res.trend.power_law):
             print(f"  trend {t.name:<10} statistic={t.statistic:.3f} p_growth={t.p_growth:.3g} "

@@ -10,6 +10,8 @@ import pandas as pd
 
 from procmetrics.cli import add_store_argument
 from procmetrics.errors import ConfigError
+from procmetrics.resampling import N_BOOT, SEED, analysis_rng
+from procmetrics import textfmt  # noqa: F401 - estimates print through it
 from procmetrics.session import change_date, containment, links_from, load_tables
 from procmetrics.validate import arg, check_count, check_nonnegative_int, check_positive, check_seed
 
@@ -44,9 +46,12 @@ def register(sub: argparse._SubParsersAction) -> None:
                    "horizon H is the longest (90, 180 days, whole years) at which every group "
                    "has at least N defects introduced H before the end and fixed within H "
                    "(default 30)")
-    p.add_argument("--boot", type=arg(check_count, "--boot"), default=2000, metavar="B", help="bootstrap resamples "
-                   "for the secondary truncation-aware figures (default 2000)")
-    p.add_argument("--seed", type=arg(check_seed, "--seed"), default=20240601, help="random seed (bootstrap)")
+    p.add_argument("--boot", type=arg(check_count, "--boot"), default=N_BOOT, metavar="B",
+                   help=f"bootstrap resamples for the secondary truncation-aware figures "
+                   f"(default {N_BOOT}, as in the report)")
+    p.add_argument("--seed", type=arg(check_seed, "--seed"), default=SEED,
+                   help="random seed (bootstrap; default the report's, so the same options "
+                   "print the report's intervals)")
     p.add_argument("--out", metavar="DIR", help="write JSON, CSV tables and figures here")
     g = p.add_argument_group("blame-based linking (heuristic, off by default)")
     g.add_argument("--szz", action="store_true", help="also blame fix commits without a "
@@ -88,7 +93,7 @@ def run(args: argparse.Namespace) -> int:
                           if args.change_date else None,
                           links_from=links_from(args.links_from, tables))
     res = analyse_lifetimes(table, by=args.by, horizon=args.horizon, n_boot=args.boot,
-                            min_cohort=args.min_cohort, rng=np.random.default_rng(args.seed))
+                            min_cohort=args.min_cohort, rng=analysis_rng(args.seed, "lifetimes"))
     print(f"{name}: {res.n_defects} defects ({res.n_negative_excluded} with negative lifetime "
           f"excluded); basis {res.basis}, unit {res.unit}")
     print(f"  population: {table.population}")
@@ -205,7 +210,7 @@ def _heuristic(args: argparse.Namespace, tables: dict[str, pd.DataFrame],
                           links_from=None,
                           link_source="blame-based (SZZ) candidate link")
     an = analyse_lifetimes(table, by=args.by, horizon=args.horizon, n_boot=args.boot,
-                           rng=np.random.default_rng(args.seed))
+                           rng=analysis_rng(args.seed, "lifetimes"))
     print(f"HEURISTIC: blame-based (SZZ) links for fixes without a Fixes: link "
           f"({szz.method})")
     print(f"  selection: {sel.rule}"

@@ -29,8 +29,9 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--claims", metavar="FILE", help="claims file (TOML) to check and include")
     p.add_argument("--subsystem", action="append", default=[], metavar="NAME",
                    dest="subsystems", help="also show this subsystem on its own (repeatable)")
-    p.add_argument("--period", choices=PERIODS, default="quarter",
-                   help="period of the series (default: quarter; release = between tags)")
+    p.add_argument("--period", choices=PERIODS, default=ReportOptions.period,
+                   help=f"period of the series (default: {ReportOptions.period}; release = "
+                   "between tags)")
     p.add_argument("--level", type=arg(check_level, "--level"), default=0.95,
                    help="interval level (default 0.95)")
     p.add_argument("--seed", type=arg(check_seed, "--seed"), default=ReportOptions.seed,

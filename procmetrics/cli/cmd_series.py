@@ -5,8 +5,8 @@ import argparse
 
 from procmetrics.cli import _series_common as common
 
-DEFAULT = ("review_coverage", "independent_review", "fix_ratio", "fixes_tag_adoption",
-           "commits")
+DEFAULT = ("review_coverage", "independent_review", "applied_by_other", "fix_ratio",
+           "fixes_tag_adoption", "commits")
 
 
 def register(sub: argparse._SubParsersAction) -> None:

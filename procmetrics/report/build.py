@@ -26,7 +26,7 @@ from procmetrics.claims.registry import check_usable
 from procmetrics.report.context import BuildContext, apply_store_flags
 from procmetrics.report.csvout import write_csvs, write_evidence
 from procmetrics.store.repodata import StoreData, choose_repo, load_store_data, store_checksum
-from procmetrics.report.flags import store_flags
+from procmetrics.report.flags import review_adoption_flags, store_flags
 from procmetrics.report.html import render_html
 from procmetrics.report.jsonout import write_json
 from procmetrics.report.manifest import build_manifest, sha256_file, write_manifest
@@ -84,9 +84,10 @@ def _analyses(ctx: BuildContext) -> None:
     sec_claims.section_claims(ctx)
     adoption = any(c.code == "tag_adoption_rising" for c in
                    (ctx.metrics.caveats if ctx.metrics is not None else ()))
-    apply_store_flags(report, store_flags(ctx.quality,
-                                          unresolved_limit=ctx.options.unresolved_share_limit,
-                                          adoption_rising=adoption))
+    flags = store_flags(ctx.quality, unresolved_limit=ctx.options.unresolved_share_limit,
+                        adoption_rising=adoption)
+    flags["review"] = review_adoption_flags(ctx)
+    apply_store_flags(report, flags)
     _evidence_for_figures(ctx)
 
 

@@ -35,7 +35,8 @@ class BuildContext:
         return round(1.0 - self.options.level, 10)
 
     def rng(self, salt: int) -> np.random.Generator:
-        """A generator per analysis so adding one analysis never shifts another's draws."""
+        """A generator per analysis so adding one analysis never shifts another's draws
+        (``procmetrics.resampling.SALTS`` names the salts the commands share)."""
         return np.random.default_rng([self.seed, salt])
 
     def subsystems(self) -> list[str]:
@@ -92,6 +93,8 @@ def apply_store_flags(report: Report, store: dict[str, list[Flag]]) -> None:
             extra += store.get("defects", [])
         if "trailers" in fig.kinds or "defects" in fig.kinds:
             extra += store.get("trailers", [])
+        if "review" in fig.kinds:
+            extra += store.get("review", [])
         fig.flags[:] = fl.dedupe(fig.flags + fl.retarget(extra, fig.key))
     for group in store.values():
         report.flags.extend(fl.retarget(group, "report"))

@@ -86,6 +86,19 @@ def dedupe(flags: Iterable[Flag]) -> list[Flag]:
     return out
 
 
+def review_adoption_flags(ctx: Any) -> list[Flag]:
+    """``review_adoption_unsettled`` for figures of review metrics (kind ``"review"``),
+    whose series start with the history, when review trailers settled into use later
+    (:mod:`procmetrics.analyse.measures.adoption`)."""
+    from procmetrics.analyse.measures.adoption import review_adoption
+
+    if ctx.metrics is None:
+        return []
+    ra = review_adoption(ctx.metrics.table, alpha=ctx.alpha)
+    cv = ra.caveat_for(None)
+    return [] if cv is None else [Flag(cv.code, "warn", "review", cv.message, "store")]
+
+
 def store_flags(quality: dict[str, Any], *, unresolved_limit: float,
                 adoption_rising: bool | None = None) -> dict[str, list[Flag]]:
     """Store-level flags, keyed by the figure kinds they apply to (``"all"`` = every figure).

@@ -10,6 +10,9 @@ from typing import Any, Literal
 
 import pandas as pd
 
+from procmetrics.analyse.measures.periods import DEFAULT_PERIOD
+from procmetrics.resampling import SEED
+
 Period = Literal["month", "quarter", "year", "release"]
 PERIODS: tuple[str, ...] = ("month", "quarter", "year", "release")
 
@@ -27,12 +30,12 @@ class ReportOptions:
     repo: str | None = None
     policy: str | None = None
     subsystems: tuple[str, ...] = ()
-    period: str = "quarter"
+    period: str = DEFAULT_PERIOD
     claims_path: str | None = None
     level: float = 0.95
     unresolved_share_limit: float = 0.10
     min_n: int = 20
-    seed: int = 20240601
+    seed: int = SEED
     pdf_engine: str = "auto"
     #: subsystems tested on their own in the before/after section when none are
     #: named and more than 20 have commits: the K largest with >= M commits on

@@ -140,7 +140,9 @@ def _text_lines(report: Report, csv_names: dict[str, str], prepared: str) -> lis
                 out.append(("gap", ""))
             elif b.kind == "verdicts":
                 for i, c in enumerate(report.claims, 1):
-                    out.append(("b", f"Claim {i} ({c['id']}): {c['verdict_label']}"))
+                    rob = c.get("robustness") or {}
+                    out.append(("b", f"Claim {i} ({c['id']}): {c['verdict_label']}"
+                                + (" — fragile" if rob.get("fragile") else "")))
                     out.extend(("p", x) for x in textwrap.wrap(f"“{c['text']}”", _WIDTH))
                     for r in c["reasons"]:
                         out.extend(("p", x) for x in textwrap.wrap("–  " + r, _WIDTH))

@@ -3,13 +3,18 @@ from __future__ import annotations
 
 from collections import Counter
 
+import re
+from typing import Any
+
+import pandas as pd
+
 from procmetrics.claims.base import VERDICT_LABELS, ClaimContext
-from procmetrics.claims.registry import evaluate_claims
+from procmetrics.claims.robustness import PANEL, judge_with_panel, variants
 from procmetrics.analyse.result import CAVEAT_CODES
 from procmetrics.report.context import BuildContext
 from procmetrics.report.flags import describe
 from procmetrics.report.evidence import EVIDENCE_DIR, claim_pack
-from procmetrics.report.model import Block, Flag, Report
+from procmetrics.report.model import Block, Flag, Report, Table
 from procmetrics.report.summary import CAUTION  # noqa: F401 - re-exported
 
 #: figures and tables that show the quantity each claim kind judges (keys; absent ones skipped)
@@ -75,8 +80,9 @@ def section_claims(ctx: BuildContext) -> None:
             "passing --claims to “procmetrics report”.")
         return
     cctx = claim_context(ctx)
-    verdicts = evaluate_claims(ctx.claims.claims, cctx)
-    rep.claims = [v.to_dict() for v in verdicts]
+    pairs = judge_with_panel(ctx.claims.claims, cctx)
+    verdicts = [v for v, _ in pairs]
+    rep.claims = [{**v.to_dict(), "robustness": p.to_dict()} for v, p in pairs]
     for claim, c in zip(ctx.claims.claims, rep.claims, strict=True):
         pack = claim_pack(claim, cctx, c)
         for name, rows in pack.files.items():
@@ -93,6 +99,41 @@ def section_claims(ctx: BuildContext) -> None:
         "when this data cannot answer; and not supportable when no commit data could.")
     s.bullets([f"{VERDICT_LABELS[k]}: {counts[k]}" for k in VERDICT_LABELS if counts[k]])
     s.blocks.append(Block("verdicts"))
+    _robustness(ctx, s, pairs, cctx)
+
+
+def _robustness(ctx: BuildContext, s: Any, pairs: list, cctx: ClaimContext) -> None:
+    """The robustness panel: every claim's verdict under each alternative, side by side."""
+    fragile = [p for _, p in pairs if p.fragile]
+    s.p("Does the verdict survive? Each claim is judged again with one analysis choice "
+        "changed at a time, everything else as above; a verdict that differs under any "
+        f"alternative is marked fragile ({len(fragile)} of {len(pairs)} claims here), and "
+        "“procmetrics check” then adds 16 to its exit code. The choices and their ranges:")
+    s.bullets([f"{axis}: {text}" for axis, text in PANEL])
+    cols = [(f"{v.axis}: {v.label}") for v in variants(cctx)]
+    rows = []
+    for v, p in pairs:
+        row = {"claim": v.claim.id, "verdict": VERDICT_LABELS[v.verdict],
+               "fragile": "fragile: " + "; ".join(p.flipped_by) if p.fragile
+               else ("robust" if any(r.used for r in p.rows) else "no alternative applies")}
+        for r in p.rows:
+            row[f"{r.axis}: {r.label}"] = (VERDICT_LABELS[r.verdict] if r.used
+                                           else "same evidence")
+        rows.append(row)
+    keys = [re.sub(r"[^a-z0-9]+", "_", c.split(" (")[0].lower()).strip("_") for c in cols]
+    data = pd.DataFrame([{**{k: r["claim"] if k == "claim" else r.get(k, "")
+                             for k in ("claim", "verdict", "fragile")},
+                          **{keys[i]: r.get(c, "–") for i, c in enumerate(cols)}}
+                         for r in rows], columns=["claim", "verdict", *keys, "fragile"])
+    ctx.report.add_table(s, Table(
+        "claims-robustness", "Robustness panel: each claim's verdict under the other "
+        "reasonable analysis choices.",
+        [("claim", "Claim"), ("verdict", "Verdict"), *zip(keys, cols),
+         ("fragile", "Survives?")], data,
+        note="“same evidence”: the choice leaves this claim's evidence unchanged (the kind "
+             "does not use it, or its estimate does not depend on it); "
+             "“–”: the choice does not apply (no horizon, or no linked fix). The evidence "
+             "under each alternative is in report.json (claims[].robustness)."))
 
 
 def section_limitations(ctx: BuildContext) -> None:

@@ -16,17 +16,21 @@ def _words(metric: str) -> str:
     return SERIES.get(metric, metric).split(":")[0]
 
 
-def _ci(e: Any, fmt: str = ".2f") -> str:
+def _ci(e: Any, fmt: str = "") -> str:
+    """An estimate with its interval, in the digits every command prints (textfmt)."""
+    from procmetrics import textfmt
+
     if e is None or e.value is None:
         return "–"
     if e.low is None or e.high is None:
-        return format(e.value, fmt)
-    return f"{e.value:{fmt}} ({e.low:{fmt}} to {e.high:{fmt}})"
+        return textfmt.number(e.value, e.unit)
+    return textfmt.interval(e.value, e.low, e.high, e.unit)
 
 
 def run_compare(ctx: BuildContext) -> Any:
     from procmetrics.analyse.measures.metrics import MetricConfig
     from procmetrics.analyse.change.policy import compare_policy
+    from procmetrics.resampling import N_BOOT, N_PERMUTATIONS, SALTS
 
     d = ctx.data
     period = ctx.options.period
@@ -37,7 +41,8 @@ def run_compare(ctx: BuildContext) -> Any:
                               subsystems=tuple(ctx.options.subsystems) or None,
                               subsystem_limit=ctx.options.subsystem_limit,
                               subsystem_min_commits=ctx.options.subsystem_min_commits),
-                          alpha=ctx.alpha, rng=ctx.rng(31))
+                          alpha=ctx.alpha, n_boot=N_BOOT, n_resamples=N_PERMUTATIONS,
+                          rng=ctx.rng(SALTS["compare"]))
 
 
 def section_compare(ctx: BuildContext) -> None:

@@ -9,6 +9,7 @@ from procmetrics.report import flags as fl
 from procmetrics.report import plots
 from procmetrics.report.context import BuildContext
 from procmetrics.report.model import Figure, Table
+from procmetrics.resampling import N_BOOT, SALTS
 
 DEFECT_KINDS = ("history", "defects", "lifetimes")
 #: curves are not drawn where fewer defects than this remain at risk
@@ -78,7 +79,8 @@ def section_lifetimes(ctx: BuildContext) -> None:
     H = horizon_days(ctx)
     by = "period" if ctx.policy_date is not None else None
     la = ctx.attempt("Defect lifetimes", s, lambda: analyse_lifetimes(
-        dt, by=by, horizon=H, level=ctx.options.level, min_at_risk=MIN_AT_RISK, rng=ctx.rng(11)))
+        dt, by=by, horizon=H, level=ctx.options.level, min_at_risk=MIN_AT_RISK,
+        n_boot=N_BOOT, rng=ctx.rng(SALTS["lifetimes"])))
     if la is None:
         return
     from procmetrics.analyse.measures.metrics import ALL
@@ -169,13 +171,14 @@ def section_lifetimes(ctx: BuildContext) -> None:
 
 
 def section_growth(ctx: BuildContext) -> None:
-    from procmetrics.analyse.growth.analysis import analyse_growth, select_fix_times
+    from procmetrics.analyse.growth.analysis import FIX_EVENTS_DEFINITION, analyse_growth
+    from procmetrics.claims.growth import fix_event_times
 
     rep = ctx.report
     s = rep.add_section("growth", "Reliability growth and its limits")
     s.p("Reliability-growth models describe how the rate of fixes changes over time. Here the "
-        "events are commits that fix an earlier commit with a resolved link, in calendar "
-        "days. Trend tests come first (Laplace and the MIL-HDBK-189 power-law test); a model "
+        "events are " + FIX_EVENTS_DEFINITION + ", in calendar days: the same selection as "
+        "the growth command and the fix_rate_declining claim. Trend tests come first (Laplace and the MIL-HDBK-189 power-law test); a model "
         "is fitted only when its trend test shows a falling fix rate, and is then checked "
         "for fit (Cramér–von Mises and Kolmogorov–Smirnov on transformed times, a u-plot and "
         "a hold-out period).")
@@ -186,18 +189,20 @@ def section_growth(ctx: BuildContext) -> None:
            "every value beyond the end of the history is marked as an extrapolation.")
     if ctx.defects is None:
         return
-    dt = ctx.defects
-    ft = ctx.attempt("Fix times", s, lambda: select_fix_times(dt.defects, end=dt.end_date))
+    d = ctx.data
+    ft = ctx.attempt("Fix times", s, lambda: fix_event_times(
+        d["fix_links"], d["commits"], commit_subsystems=d["commit_subsystems"]))
     if ft is None:
         return
     g = ctx.attempt("Reliability growth", s, lambda: analyse_growth(
-        ft, alpha=ctx.alpha, level=ctx.options.level, rng=ctx.rng(23)))
+        ft, alpha=ctx.alpha, level=ctx.options.level, n_boot=N_BOOT,
+        rng=ctx.rng(SALTS["growth"])))
     if g is None:
         return
     fitted = [m.model for m in g.models if m.fitted]
     fig = Figure(
         "growth-curve", "Cumulative fixes over time",
-        "Cumulative number of fixing commits since " f"{g.origin:%Y-%m-%d}"
+        f"Cumulative number of fix events since {g.origin:%Y-%m-%d}"
         + (f", with the fitted {', '.join(fitted)} mean-value curve(s) and bootstrap bands; "
            "the shaded part lies beyond the history and is an extrapolation"
            if fitted else "; no growth model was fitted (" + g.refused_reason + ")"),
@@ -221,7 +226,7 @@ def section_growth(ctx: BuildContext) -> None:
                          "direction": t.direction})
         rep.add_table(s, Table(
             "growth-trend-tests", "Trend tests on the fix times.",
-            [("test", "Test"), ("statistic", "Statistic"), ("n", "Fixes"),
+            [("test", "Test"), ("statistic", "Statistic"), ("n", "Fix events"),
              ("p_growth", "p (falling rate)"), ("p_deterioration", "p (rising rate)"),
              ("direction", "Reading")], pd.DataFrame(rows),
             note=g.trend.message + ". " + g.trend.rule + "."))

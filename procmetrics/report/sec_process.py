@@ -17,10 +17,14 @@ SERIES: dict[str, str] = {
                        "(Reviewed-by, Acked-by or Tested-by)",
     "independent_review": "Independent review: share of commits with a review trailer from "
                           "an address other than the author's",
+    "applied_by_other": "Applied by someone else: share of commits whose committer is not "
+                        "their author (e-mails after the .mailmap), the trace a "
+                        "maintainer-driven project leaves even without review trailers",
     "fix_ratio": "Fix ratio: share of commits that fix an earlier commit (resolved "
                  "Fixes: link)",
 }
 KINDS = {"review_coverage": ("history", "review"), "independent_review": ("history", "review"),
+         "applied_by_other": ("history",),
          "fix_ratio": ("history", "trailers", "fix_ratio")}
 
 

@@ -65,7 +65,8 @@ def robustness_text(c: dict[str, Any]) -> str:
     r = c.get("robustness")
     if not isinstance(r, dict):
         return "not assessed"
-    flips = r.get("flipping") or r.get("flipping_choices") or r.get("flips") or []
+    flips = (r.get("flipped_by") or r.get("flipping") or r.get("flipping_choices")
+             or r.get("flips") or [])
     if isinstance(flips, (list, tuple)):
         flips = ", ".join(str(x.get("choice", x)) if isinstance(x, dict) else str(x)
                           for x in flips)

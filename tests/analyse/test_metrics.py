@@ -71,7 +71,7 @@ def test_definitions_by_hand(small):
 
 def test_intervals_against_oracles(small):
     c, t = small
-    pm = compute_period_metrics(c, t)
+    pm = compute_period_metrics(c, t, config=MetricConfig(period="month"))
     r = _val(pm, "review_coverage", "2024-01")
     lo, hi = proportion_confint(2, 4, alpha=0.05, method="wilson")  # statsmodels oracle
     assert (r.ci_low, r.ci_high) == pytest.approx((lo, hi))
@@ -83,14 +83,15 @@ def test_intervals_against_oracles(small):
 
 def test_merges_included_on_request(small):
     c, t = small
-    pm = compute_period_metrics(c, t, config=MetricConfig(include_merges=True))
+    pm = compute_period_metrics(c, t, config=MetricConfig(period="month", include_merges=True))
     assert _val(pm, "commits", "2024-01").value == 5
     assert _val(pm, "review_coverage", "2024-01").numerator == 3
 
 
 def test_review_keys_are_configurable(small):
     c, t = small
-    pm = compute_period_metrics(c, t, config=MetricConfig(review_keys=("Signed-off-by",)))
+    pm = compute_period_metrics(c, t, config=MetricConfig(period="month",
+                                                               review_keys=("Signed-off-by",)))
     assert _val(pm, "review_coverage", "2024-01").numerator == 1
 
 

@@ -52,6 +52,11 @@ from procmetrics.analyse.result import Caveat, Diagnostic, caveat, to_plain
 from procmetrics.analyse.growth.trendtests import TrendTests, trend_tests
 from procmetrics.errors import InsufficientData
 
+#: what one fix event is, in words; printed beside every count of fix events
+FIX_EVENTS_DEFINITION = ("fix events (commits that are the first resolved Fixes: fix of at "
+                         "least one defect, each commit counted once, dated after the start "
+                         "of observation: by default the first linked fix, which starts the "
+                         "clock and is not counted)")
 CURVE_COLUMNS = ["model", "time", "observed", "fitted", "low", "high", "extrapolated"]
 EVENT_COLUMNS = ["fix_hash", "fix_date", "time_days", "n_defects"]
 MODELS = ("goel_okumoto", "power_law")
@@ -266,7 +271,7 @@ def analyse_growth(fix_times: FixTimes, *, models: Sequence[str] = MODELS, alpha
     rng = rng if rng is not None else np.random.default_rng(20240603)
     t, T = fix_times.times, fix_times.end_days
     cav = list(fix_times.caveats) + list(commit_data_caveats())
-    pop = (f"fixing commits with a resolved Fixes: link ({fix_times.scope}), in days since "
+    pop = (f"{FIX_EVENTS_DEFINITION} ({fix_times.scope}), in days since "
            f"{fix_times.origin:%Y-%m-%d}, observed to {fix_times.end_date:%Y-%m-%d}")
     obs_curve = pd.DataFrame({"model": "observed", "time": np.concatenate([[0.0], t]),
                               "observed": np.arange(len(t) + 1, dtype=float),

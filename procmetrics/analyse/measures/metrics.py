@@ -24,6 +24,9 @@ several subsystems counts in each, and every commit counts in ``"(all)"``):
 ``stable_request_share``    among commits with any ``Fixes:`` reference, share
                             that request a stable backport
 ``fixes_tag_adoption``      share with any ``Fixes:`` reference, resolved or not
+``applied_by_other``        share whose committer e-mail differs (case-insensitively,
+                            after the .mailmap git applied) from the author's: the
+                            review evidence a maintainer-driven project leaves
 ``churn_lines``             lines added + deleted (total; no interval: lines are
                             not independent events)
 ``churn_median``            median lines added + deleted per commit
@@ -42,7 +45,8 @@ import numpy as np
 import pandas as pd
 
 from procmetrics.analyse.measures import intervals as iv
-from procmetrics.analyse.measures.periods import assign_periods, period_midpoints, years_since
+from procmetrics.analyse.measures.periods import (DEFAULT_PERIOD, assign_periods, period_midpoints,
+                                               years_since)
 from procmetrics.analyse.result import Caveat, caveat, to_plain
 from procmetrics.analyse.measures.selection import (SubsystemSelection, select_subsystems,
                                            subsystem_counts)
@@ -59,7 +63,7 @@ _EMAIL = re.compile(r"<([^<>\s]+@[^<>\s]+)>")
 class MetricConfig:
     """Options for :func:`compute_period_metrics` (frozen; pass explicitly)."""
 
-    period: str = "month"
+    period: str = DEFAULT_PERIOD
     review_keys: tuple[str, ...] = DEFAULT_REVIEW_KEYS
     include_merges: bool = False
     date_column: str = "committer_date"
@@ -124,7 +128,8 @@ def commit_flags(commits: pd.DataFrame, trailers: pd.DataFrame,
 
     Columns: ``hash``, ``date``, ``author``, ``reviewed``, ``independent``,
     ``unreviewed_self``, ``fix``, ``fix_ref``, ``fix_heuristic``, ``revert``,
-    ``stable_request``, ``churn`` (float, NaN when line counts were not mined),
+    ``stable_request``, ``applied_other`` (committer e-mail is not the author's),
+    ``churn`` (float, NaN when line counts were not mined),
     ``n_reviewers`` (distinct review-trailer e-mails).
     """
     c = commits.copy()
@@ -152,6 +157,8 @@ def commit_flags(commits: pd.DataFrame, trailers: pd.DataFrame,
     out["n_reviewers"] = c["n_reviewers"].fillna(0).astype(int).to_numpy()
     self_commit = (_lower(c["author_email"]) == _lower(c["committer_email"])).fillna(False)
     out["unreviewed_self"] = self_commit.to_numpy(dtype=bool) & ~out["reviewed"].to_numpy()
+    other = _lower(c["author_email"]) != _lower(c["committer_email"])
+    out["applied_other"] = other.fillna(False).to_numpy(dtype=bool)
     out["fix"] = (c["n_resolved_fixes"].fillna(0) > 0).to_numpy()
     out["fix_ref"] = (c["n_fix_refs"].fillna(0) > 0).to_numpy()
     out["revert"] = _true(c["is_revert"])
@@ -246,7 +253,8 @@ _SPEC: dict[str, tuple[str | None, str | None]] = {
     "unreviewed_self_commits": ("unreviewed_self", "n"), "fix_ratio": ("fix", "n"),
     "fix_ratio_heuristic": ("fix_heuristic", "n"), "revert_ratio": ("revert", "n"),
     "stable_request_share": ("stable_fix", "fix_ref"),
-    "fixes_tag_adoption": ("fix_ref", "n"), "churn_lines": (None, None),
+    "fixes_tag_adoption": ("fix_ref", "n"), "applied_by_other": ("applied_other", "n"),
+    "churn_lines": (None, None),
     "churn_median": (None, None),
 }
 
@@ -316,7 +324,7 @@ def compute_period_metrics(commits: pd.DataFrame, trailers: pd.DataFrame, *,
     keys = ["repo", "subsystem"] if config.by_repo else ["subsystem"]
     g = long.groupby(keys + ["period"], sort=False)
     sums = g[["reviewed", "independent", "unreviewed_self", "fix", "fix_ref",
-              "fix_heuristic", "revert", "stable_fix"]].sum()
+              "fix_heuristic", "revert", "stable_fix", "applied_other"]].sum()
     sums["n"] = g.size()
     sums["authors"] = g["author"].nunique()
     churn = g["churn"].apply(lambda x: _churn_stats(x, config.alpha)).unstack()

@@ -26,6 +26,10 @@ from procmetrics.errors import ConfigError, InsufficientData
 
 Period = Literal["month", "quarter", "year", "release"]
 PERIODS: tuple[str, ...] = ("month", "quarter", "year", "release")
+#: the one default period of every command, the report, the claims and the
+#: library: per-month review and fix shares rest on too few commits in most
+#: histories (README, "Periods")
+DEFAULT_PERIOD = "quarter"
 UNRELEASED = "(unreleased)"
 
 _FREQ = {"month": "M", "quarter": "Q", "year": "Y"}

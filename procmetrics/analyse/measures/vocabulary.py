@@ -20,5 +20,6 @@ METRICS: dict[str, str] = {
     "unreviewed_self_commits": "proportion", "fix_ratio": "proportion",
     "fix_ratio_heuristic": "proportion", "revert_ratio": "proportion",
     "stable_request_share": "proportion", "fixes_tag_adoption": "proportion",
+    "applied_by_other": "proportion",
     "churn_lines": "total", "churn_median": "median",
 }
