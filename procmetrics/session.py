@@ -57,3 +57,80 @@ def links_from(value: str | None) -> Any:
         return pd.Timestamp(value)
     except ValueError as exc:
         raise ProcmetricsError(f"--links-from: not a date, 'first' or 'all': {value!r}") from exc
+
+
+def read_exclusions(path: str | None) -> list[Any]:
+    """The exclusions file (TOML): ``[[exclude]]`` tables with ``upstream`` and ``reason``."""
+    from procmetrics.analyse.carryover.missing import Exclusion
+    from procmetrics.errors import ConfigError
+
+    if path is None:
+        return []
+    import tomllib
+    try:
+        with open(path, "rb") as fh:
+            data = tomllib.load(fh)
+    except OSError as exc:
+        raise ConfigError(f"cannot read the exclusions file {path}: {exc.strerror}") from exc
+    except tomllib.TOMLDecodeError as exc:
+        raise ConfigError(f"{path}: not valid TOML ({exc})") from exc
+    items = data.get("exclude", [])
+    unknown = set(data) - {"exclude"}
+    if unknown or not isinstance(items, list):
+        raise ConfigError(f"{path}: expected only [[exclude]] tables, found {sorted(unknown)}")
+    out = []
+    for i, item in enumerate(items, 1):
+        up, reason = item.get("upstream"), item.get("reason")
+        if (not isinstance(up, str) or len(up) < 7
+                or any(ch not in "0123456789abcdefABCDEF" for ch in up)):
+            raise ConfigError(f"{path}: exclusion {i}: 'upstream' must be a commit id "
+                              "(7 to 40 hex digits)")
+        if not isinstance(reason, str) or not reason.strip():
+            raise ConfigError(f"{path}: exclusion {i} ({up}): a 'reason' is required")
+        out.append(Exclusion(up.lower(), reason.strip()))
+    return out
+
+
+def load_carryover(store: str | None, repo: str | None, upstream: str | None = None,
+                   exclusions: str | None = None) -> dict[str, Any]:
+    """Everything the carry-over questions need for one tree and one upstream reference:
+    the per-fix table (``table``), the matches, the tree's fix references resolved
+    upstream, and the names of the tree and the upstream."""
+    from procmetrics.analyse.carryover import (carryover_table, match_commits,
+                                               resolve_upstream_refs)
+    from procmetrics.store import open_store
+    from procmetrics.store.tables import read_tables
+
+    excl = read_exclusions(exclusions)
+    engine = open_store(store, create=False)
+    try:
+        refs = read_tables(engine, ["upstream_references"], repo)["upstream_references"]
+        if refs.empty:
+            raise StoreError(f"no upstream reference recorded for {repo or 'any repository'}: "
+                             "run 'procmetrics mine TREE --upstream UPSTREAM' first")
+        if repo is None and refs["repo"].nunique() > 1:
+            raise ProcmetricsError("several trees have upstream references ("
+                                   + ", ".join(sorted(set(refs["repo"]))) + "); choose one with --repo")
+        tree = str(refs["repo"].iloc[0])
+        ups = list(refs["upstream_repo"])
+        if upstream is None and len(ups) > 1:
+            raise ProcmetricsError(f"{tree} has several upstream references ({', '.join(ups)}); "
+                                   "choose one with --upstream")
+        up = upstream or ups[0]
+        if up not in ups:
+            raise StoreError(f"{up!r} is not an upstream reference of {tree}")
+        t = read_tables(engine, ["commits", "backport_lines", "patch_ids", "fix_links",
+                                 "repositories"], tree)
+        u = read_tables(engine, ["commits", "patch_ids", "fix_links", "commit_subsystems"], up)
+    finally:
+        engine.dispose()
+    tip_hash = t["repositories"]["tip_hash"].iloc[0]
+    tip = t["commits"].loc[t["commits"]["hash"] == tip_hash, "committer_date"]
+    tip_date = tip.iloc[0] if len(tip) else t["commits"]["committer_date"].max()
+    matches = match_commits(u["commits"], t["commits"], t["backport_lines"], u["patch_ids"],
+                            t["patch_ids"])
+    table = carryover_table(u["fix_links"], u["commits"], u["commit_subsystems"], matches,
+                            tip_date, excl)
+    return {"tree": tree, "upstream": up, "tip_date": tip_date, "matches": matches,
+            "table": table, "exclusions": excl,
+            "tree_refs_upstream": resolve_upstream_refs(t["fix_links"], u["commits"], up)}

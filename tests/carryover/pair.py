@@ -80,8 +80,9 @@ def build_pair(root: Path) -> Pair:
         u.commit(f"{path.split('/')[0]}: add {path}", files={path: _body(path)},
                  author=who, date=when(day), name=name)
 
-    def fix(name: str, target: str, path: str, line: int, day: int, who=BOB) -> None:
-        files[path][line] = f"/* {path} line {line} fixed by {name} */"
+    def fix(name: str, target: str, path: str, line: int, day: int, who=BOB,
+            same_change_as: str | None = None) -> None:
+        files[path][line] = f"/* {path} line {line} fixed by {same_change_as or name} */"
         u.commit(f"{path.split('/')[0]}: correct line {line} of {path}\n\n"
                  f"The check was off by one.\n\nFixes: {u.ids[target][:12]} (\"...\")\n"
                  f"Signed-off-by: {who[0]} <{who[1]}>\n",
@@ -110,7 +111,7 @@ def build_pair(root: Path) -> Pair:
     u.git("revert", "--no-edit", u.ids["F10"], env=u._ident_env(BOB, None, when(33), None))
     u.ids["F10_revert"] = u.rev()
     files["fs/inode.c"].pop(8)
-    fix("F10b", "B", "fs/inode.c", 8, 34)
+    fix("F10b", "B", "fs/inode.c", 8, 34, same_change_as="F10")
     fix("F11", "E", "fs/dir.c", 8, 50)
 
     tree_path = root / "orbitkit-vendor"
