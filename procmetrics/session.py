@@ -95,42 +95,17 @@ def load_carryover(store: str | None, repo: str | None, upstream: str | None = N
                    exclusions: str | None = None) -> dict[str, Any]:
     """Everything the carry-over questions need for one tree and one upstream reference:
     the per-fix table (``table``), the matches, the tree's fix references resolved
-    upstream, and the names of the tree and the upstream."""
-    from procmetrics.analyse.carryover import (carryover_table, match_commits,
-                                               resolve_upstream_refs)
+    upstream (``tree_refs_upstream``), the tip date, and the names of both."""
+    from procmetrics.analyse.carryover.build import build_carryover
     from procmetrics.store import open_store
-    from procmetrics.store.tables import read_tables
+    from procmetrics.store.upstream import carryover_tables
 
     excl = read_exclusions(exclusions)
     engine = open_store(store, create=False)
     try:
-        refs = read_tables(engine, ["upstream_references"], repo)["upstream_references"]
-        if refs.empty:
-            raise StoreError(f"no upstream reference recorded for {repo or 'any repository'}: "
-                             "run 'procmetrics mine TREE --upstream UPSTREAM' first")
-        if repo is None and refs["repo"].nunique() > 1:
-            raise ProcmetricsError("several trees have upstream references ("
-                                   + ", ".join(sorted(set(refs["repo"]))) + "); choose one with --repo")
-        tree = str(refs["repo"].iloc[0])
-        ups = list(refs["upstream_repo"])
-        if upstream is None and len(ups) > 1:
-            raise ProcmetricsError(f"{tree} has several upstream references ({', '.join(ups)}); "
-                                   "choose one with --upstream")
-        up = upstream or ups[0]
-        if up not in ups:
-            raise StoreError(f"{up!r} is not an upstream reference of {tree}")
-        t = read_tables(engine, ["commits", "backport_lines", "patch_ids", "fix_links",
-                                 "repositories"], tree)
-        u = read_tables(engine, ["commits", "patch_ids", "fix_links", "commit_subsystems"], up)
+        data = carryover_tables(engine, repo, upstream)
     finally:
         engine.dispose()
-    tip_hash = t["repositories"]["tip_hash"].iloc[0]
-    tip = t["commits"].loc[t["commits"]["hash"] == tip_hash, "committer_date"]
-    tip_date = tip.iloc[0] if len(tip) else t["commits"]["committer_date"].max()
-    matches = match_commits(u["commits"], t["commits"], t["backport_lines"], u["patch_ids"],
-                            t["patch_ids"])
-    table = carryover_table(u["fix_links"], u["commits"], u["commit_subsystems"], matches,
-                            tip_date, excl)
-    return {"tree": tree, "upstream": up, "tip_date": tip_date, "matches": matches,
-            "table": table, "exclusions": excl,
-            "tree_refs_upstream": resolve_upstream_refs(t["fix_links"], u["commits"], up)}
+    out = build_carryover(data["tree_tables"], data["upstream_tables"], data["upstream"], excl)
+    out.update(tree=data["tree"], upstream=data["upstream"], exclusions=excl)
+    return out

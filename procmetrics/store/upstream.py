@@ -80,3 +80,33 @@ def replace_backport_lines(engine: Engine, repo: int,
 def _parts(rows: list[dict]) -> Iterator[list[dict]]:
     for i in range(0, len(rows), _CHUNK):
         yield rows[i:i + _CHUNK]
+
+
+def carryover_tables(engine: Engine, repo: str | None, upstream: str | None = None
+                     ) -> dict:
+    """The tidy tables the carry-over questions need, for one tree and one upstream:
+    ``{"tree", "upstream", "tree_tables", "upstream_tables"}``. Raises
+    :class:`StoreError` when no upstream reference is recorded, and
+    :class:`~procmetrics.errors.ConfigError` when the choice is not unique."""
+    from procmetrics.errors import ConfigError
+    from procmetrics.store.tables import read_tables
+
+    refs = read_tables(engine, ["upstream_references"], repo)["upstream_references"]
+    if refs.empty:
+        raise StoreError(f"no upstream reference recorded for {repo or 'any repository'}: "
+                         "run 'procmetrics mine TREE --upstream UPSTREAM' first")
+    if repo is None and refs["repo"].nunique() > 1:
+        raise ConfigError("several trees have upstream references ("
+                          + ", ".join(sorted(set(refs["repo"]))) + "); choose one with --repo")
+    tree = str(refs["repo"].iloc[0])
+    ups = list(refs["upstream_repo"])
+    if upstream is None and len(ups) > 1:
+        raise ConfigError(f"{tree} has several upstream references ({', '.join(ups)}); "
+                          "choose one with --upstream")
+    up_name = upstream or ups[0]
+    if up_name not in ups:
+        raise StoreError(f"{up_name!r} is not an upstream reference of {tree}")
+    t = read_tables(engine, ["commits", "backport_lines", "patch_ids", "fix_links",
+                             "repositories"], tree)
+    u = read_tables(engine, ["commits", "patch_ids", "fix_links", "commit_subsystems"], up_name)
+    return {"tree": tree, "upstream": up_name, "tree_tables": t, "upstream_tables": u}

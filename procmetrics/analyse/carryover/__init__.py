@@ -22,6 +22,7 @@ _EXPORTS: dict[str, str] = {
     "carryover_latency": "latency",
     "km_curve": "latency",
     "logrank_one_sided": "latency",
+    "build_carryover": "build",
 }
 __all__ = sorted(_EXPORTS)
 
