@@ -17,7 +17,7 @@ from procmetrics.errors import ProcmetricsError
 
 # Order is the order shown in --help.
 COMMANDS: list[str] = ["mine", "export", "report", "check", "rerun", "series", "changes", "compare",
-                       "lifetimes", "growth"]
+                       "lifetimes", "growth", "carryover"]
 
 
 def build_parser() -> argparse.ArgumentParser:
