@@ -146,6 +146,9 @@ class ClaimContext:
     #: placebo dates (+-k periods) fitted beside a change-at-date claim; evidence
     #: only, they never change a verdict (simulations set 0 to run faster)
     placebo_shifts: int = 8
+    #: per-upstream-fix carry-over table of a tree mined with an upstream reference
+    #: (:func:`procmetrics.analyse.carryover.carryover_table`); None without one
+    carryover: pd.DataFrame | None = None
 
 
 @dataclass(frozen=True)

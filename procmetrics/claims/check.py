@@ -6,6 +6,7 @@ from pathlib import Path
 from typing import Sequence
 
 from procmetrics.claims.base import ClaimVerdict
+from procmetrics.claims.carryover import carryover_for
 from procmetrics.claims.registry import SPECS, evaluate_claims
 from procmetrics.errors import ProcmetricsError
 from procmetrics.analyse.measures import quality as ql
@@ -24,7 +25,9 @@ def check_claims(claims_path: str, *, store: str | None, repo: str | None = None
     claims = load_claims(claims_path)
     engine = open_store(store, create=False, readonly=True)
     try:
-        data = load_store_data(engine, choose_repo(engine, repo))
+        name = choose_repo(engine, repo)
+        data = load_store_data(engine, name)
+        carry = carryover_for(engine, name)
     finally:
         engine.dispose()
     hist = ql.history_state(data)
@@ -32,7 +35,7 @@ def check_claims(claims_path: str, *, store: str | None, repo: str | None = None
                        fix_links=data["fix_links"], commit_subsystems=data["commit_subsystems"],
                        tags=data["tags"], policy_date=resolve_policy(data, policy),
                        is_shallow=hist["is_shallow"], rewritten=bool(hist["rewritten"]),
-                       period=period if period != "release" else "quarter")
+                       period=period if period != "release" else "quarter", carryover=carry)
     return evaluate_claims(claims.claims, ctx)
 
 

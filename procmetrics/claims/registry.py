@@ -4,14 +4,14 @@ from __future__ import annotations
 from dataclasses import replace
 from typing import Sequence
 
-from procmetrics.claims import at_date, growth, lifetimes, shares, unsupportable
+from procmetrics.claims import at_date, carryover, growth, lifetimes, shares, unsupportable
 from procmetrics.claims.base import (
     NOT_SUPPORTABLE_KINDS, POLICY, UNDECIDABLE, Claim, ClaimContext, ClaimVerdict, KindSpec,
     Undecidable, history_blockers, undecidable,
 )
 from procmetrics.errors import ConfigError
 
-_FAMILIES = (at_date, shares, lifetimes, growth, unsupportable)
+_FAMILIES = (at_date, shares, lifetimes, growth, unsupportable, carryover)
 SPECS: dict[str, KindSpec] = {k: v for f in _FAMILIES for k, v in f.SPECS.items()}
 EVALUATORS = {k: v for f in _FAMILIES for k, v in f.EVALUATORS.items()}
 SHARE_METRICS = shares.SHARE_METRICS

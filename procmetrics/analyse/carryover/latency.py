@@ -40,30 +40,27 @@ def km_curve(durations: np.ndarray, events: np.ndarray, *, level: float = 0.95) 
     """
     t = np.asarray(durations, dtype=float)
     e = np.asarray(events, dtype=bool)
-    times = np.unique(t)
+    times, inv = np.unique(t, return_inverse=True)
+    d = np.bincount(inv, weights=e, minlength=len(times)).astype(int)
+    c = np.bincount(inv, weights=~e, minlength=len(times)).astype(int)
+    n = len(t) - np.concatenate([[0], np.cumsum(d + c)[:-1]])
     z = stats.norm.ppf(0.5 + level / 2)
-    rows = [(0.0, len(t), 0, 0, 1.0, 1.0, 1.0)]
-    s, gw = 1.0, 0.0
-    for u in times:
-        n = int(np.sum(t >= u))
-        d = int(np.sum((t == u) & e))
-        c = int(np.sum((t == u) & ~e))
-        if d:
-            s *= 1.0 - d / n
-            gw += d / (n * (n - d)) if n > d else np.inf
-        if s <= 0.0 or not np.isfinite(gw):
-            lo = hi = s
-        elif s >= 1.0:
-            lo = hi = 1.0
-        else:
-            lv = np.log(s)
-            lo = float(np.exp(-np.exp(np.log(-lv) - z * np.sqrt(gw) / lv)))
-            hi = float(np.exp(-np.exp(np.log(-lv) + z * np.sqrt(gw) / lv)))
-        if u == 0.0:
-            rows[0] = (0.0, n, d, c, s, lo, hi)
-        else:
-            rows.append((float(u), n, d, c, s, lo, hi))
-    return pd.DataFrame(rows, columns=CURVE_COLUMNS)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        s = np.cumprod(1.0 - d / n)
+        gw = np.cumsum(np.where(d > 0, d / (n * (n - d)), 0.0))
+        lv = np.log(s)
+        lo = np.exp(-np.exp(np.log(-lv) - z * np.sqrt(gw) / lv))
+        hi = np.exp(-np.exp(np.log(-lv) + z * np.sqrt(gw) / lv))
+    flat = s >= 1.0
+    lo, hi = np.where(flat, 1.0, lo), np.where(flat, 1.0, hi)
+    dead = (s <= 0.0) | ~np.isfinite(gw)
+    lo, hi = np.where(dead, s, lo), np.where(dead, s, hi)
+    curve = pd.DataFrame({"time_days": times, "n_at_risk": n, "n_events": d, "n_censored": c,
+                          "survival": s, "low": lo, "high": hi}, columns=CURVE_COLUMNS)
+    if len(times) == 0 or times[0] > 0.0:
+        start = pd.DataFrame([(0.0, len(t), 0, 0, 1.0, 1.0, 1.0)], columns=CURVE_COLUMNS)
+        curve = pd.concat([start, curve], ignore_index=True)
+    return curve
 
 
 def _first_below(curve: pd.DataFrame, col: str, q: float) -> float:
