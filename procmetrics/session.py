@@ -10,7 +10,7 @@ from typing import Any
 
 import pandas as pd
 
-from procmetrics.errors import ProcmetricsError, StoreError
+from procmetrics.errors import ConfigError, ProcmetricsError, StoreError
 
 
 def load_tables(store: str | None, repo: str | None) -> tuple[dict[str, pd.DataFrame], str]:
@@ -92,7 +92,7 @@ def read_exclusions(path: str | None) -> list[Any]:
 
 
 def load_carryover(store: str | None, repo: str | None, upstream: str | None = None,
-                   exclusions: str | None = None) -> dict[str, Any]:
+                   exclusions: str | None = None, as_of: str | None = None) -> dict[str, Any]:
     """Everything the carry-over questions need for one tree and one upstream reference:
     the per-fix table (``table``), the matches, the tree's fix references resolved
     upstream (``tree_refs_upstream``), the tip date, and the names of both."""
@@ -101,11 +101,19 @@ def load_carryover(store: str | None, repo: str | None, upstream: str | None = N
     from procmetrics.store.upstream import carryover_tables
 
     excl = read_exclusions(exclusions)
+    when = None
+    if as_of is not None:
+        try:
+            when = pd.Timestamp(as_of)
+        except ValueError as exc:
+            raise ConfigError(f"--as-of: not a date: {as_of!r}") from exc
+        when = when.tz_localize("UTC") if when.tzinfo is None else when.tz_convert("UTC")
     engine = open_store(store, create=False)
     try:
         data = carryover_tables(engine, repo, upstream)
     finally:
         engine.dispose()
-    out = build_carryover(data["tree_tables"], data["upstream_tables"], data["upstream"], excl)
+    out = build_carryover(data["tree_tables"], data["upstream_tables"], data["upstream"], excl,
+                          when)
     out.update(tree=data["tree"], upstream=data["upstream"], exclusions=excl)
     return out

@@ -19,6 +19,11 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--exclusions", metavar="FILE", help="TOML file of [[exclude]] tables "
                    "(upstream = commit id, reason = text): fixes the tree need not carry; "
                    "listed apart, never dropped")
+    p.add_argument("--as-of", metavar="DATE", help="judge the tree at DATE instead of its "
+                   "tip (only when the mined tip is still its state then, e.g. a shipped "
+                   "release): upstream fixes up to DATE are due, gaps run to DATE")
+    p.add_argument("--split-date", metavar="DATE", help="also compare the latency of fixes "
+                   "landed upstream before and on/after DATE (one-sided log-rank: faster after)")
     p.add_argument("--csv", metavar="FILE", help="write the per-fix table (every status) as CSV")
     p.add_argument("--level", type=float, default=0.95, help="interval level (default 0.95)")
     p.set_defaults(func=run)
@@ -29,11 +34,12 @@ def run(args: argparse.Namespace) -> int:
     from procmetrics.errors import InsufficientData
     from procmetrics.session import load_carryover
 
-    res = load_carryover(args.store, args.repo, args.upstream, args.exclusions)
+    res = load_carryover(args.store, args.repo, args.upstream, args.exclusions, args.as_of)
     table = res["table"]
     counts = table["status"].value_counts()
     print(f"{res['tree']} against upstream {res['upstream']} (tree tip "
-          f"{res['tip_date']:%Y-%m-%d}); upstream fixes by status: "
+          f"{res['tip_date']:%Y-%m-%d}, judged at {res['as_of']:%Y-%m-%d}); upstream fixes "
+          "by status: "
           + ", ".join(f"{k} {int(counts.get(k, 0))}" for k in
                       ("missing", "excluded", "carried", "shared", "not-relevant", "not-due")))
     amb = int(table["ambiguous"].sum())
@@ -55,13 +61,15 @@ def run(args: argparse.Namespace) -> int:
     else:
         m = lat.median
         print(f"\ncarry-over latency (n={lat.n}: {lat.n_carried} carried, {lat.n_censored} "
-              f"censored at the tip; {m.method}): median {m.value:.1f} d, {m.level:.0%} "
+              f"censored at {res['as_of']:%Y-%m-%d}; {m.method}): median {m.value:.1f} d, {m.level:.0%} "
               f"interval {m.low:.1f} to {m.high:.1f} d")
         for e in lat.carried_within:
             print(f"  {e.name}: {e.value:.2f} [{e.low:.2f}, {e.high:.2f}]"
                   + (" (beyond the longest follow-up)" if e.extrapolated else ""))
         for c in lat.caveats:
             print(f"  caveat ({c.code}): {c.message}")
+    if args.split_date:
+        _print_periods(table, args.split_date, args.level)
     refs = res["tree_refs_upstream"]
     if len(refs):
         n_ok = int((refs["status"] == "resolved").sum())
@@ -73,3 +81,26 @@ def run(args: argparse.Namespace) -> int:
         table.to_csv(args.csv, index=False, date_format="%Y-%m-%dT%H:%M:%SZ",
                      float_format="%.3f")
     return 0
+
+
+def _print_periods(table, value: str, level: float) -> None:
+    import pandas as pd
+
+    from procmetrics.analyse.carryover.latency import compare_periods
+    from procmetrics.errors import ConfigError, InsufficientData
+
+    try:
+        when = pd.Timestamp(value)
+    except ValueError as exc:
+        raise ConfigError(f"--split-date: not a date: {value!r}") from exc
+    when = when.tz_localize("UTC") if when.tzinfo is None else when.tz_convert("UTC")
+    try:
+        c = compare_periods(table, when, level=level)
+    except InsufficientData as exc:
+        print(f"\nbefore/after {when:%Y-%m-%d}: not compared ({exc})")
+        return
+    for name, r in (("before", c.before), ("after", c.after)):
+        m = r.median
+        print(f"  {name} {when:%Y-%m-%d}: n={r.n} ({r.n_carried} carried), median {m.value:.1f} d "
+              f"[{m.low:.1f}, {m.high:.1f}]")
+    print(f"  {c.method}: z = {c.z:.2f}, p = {c.p_faster_after:.3g}")

@@ -86,3 +86,25 @@ def test_negative_latency_is_a_caveat_not_an_error():
         res = carryover_latency(t)
     assert [c.code for c in res.caveats] == ["clock_skew"]
     assert res.curve["time_days"].min() == 0.0
+
+
+def test_compare_periods_matches_lifelines_on_the_split():
+    from procmetrics.analyse.carryover.latency import compare_periods
+    rng = np.random.default_rng(3)
+    n = 200
+    start = pd.Timestamp("2020-01-01", tz="UTC")
+    split = pd.Timestamp("2021-01-01", tz="UTC")
+    fd = start + pd.to_timedelta(rng.uniform(0, 700, n), unit="D")
+    lat = rng.exponential(np.where(fd < split, 60.0, 30.0))     # twice as fast after
+    gap = (pd.Timestamp("2021-12-01", tz="UTC") - fd).total_seconds().to_numpy() / 86400
+    ev = lat <= gap
+    t = pd.DataFrame({"fix_date": fd, "status": np.where(ev, "carried", "missing"),
+                      "latency_days": np.where(ev, lat, np.nan),
+                      "gap_days": np.where(ev, np.nan, gap)})
+    c = compare_periods(t, split)
+    b, a = (fd < split), (fd >= split)
+    dur = np.where(ev, lat, gap)
+    oracle = logrank_test(dur[b], dur[a], event_observed_A=ev[b], event_observed_B=ev[a])
+    assert c.z ** 2 == pytest.approx(oracle.test_statistic, rel=1e-9)
+    assert c.z > 0 and c.p_faster_after == pytest.approx(oracle.p_value / 2, rel=1e-9)
+    assert c.before.n + c.after.n == n

@@ -18,8 +18,8 @@ def tip_date(tree: Mapping[str, pd.DataFrame]) -> pd.Timestamp:
 
 
 def build_carryover(tree: Mapping[str, pd.DataFrame], upstream: Mapping[str, pd.DataFrame],
-                    upstream_name: str, exclusions: Sequence[Exclusion] = ()
-                    ) -> dict[str, Any]:
+                    upstream_name: str, exclusions: Sequence[Exclusion] = (),
+                    as_of: pd.Timestamp | None = None) -> dict[str, Any]:
     """Matches, per-fix table, and the tree's fix references resolved upstream.
 
     ``tree`` holds the tidy ``commits``, ``backport_lines``, ``patch_ids``,
@@ -36,7 +36,8 @@ def build_carryover(tree: Mapping[str, pd.DataFrame], upstream: Mapping[str, pd.
     matches = match_commits(upstream["commits"], tree["commits"], tree["backport_lines"],
                             upstream["patch_ids"], tree["patch_ids"])
     table = carryover_table(upstream["fix_links"], upstream["commits"],
-                            upstream["commit_subsystems"], matches, tip, list(exclusions))
-    return {"tip_date": tip, "matches": matches, "table": table,
+                            upstream["commit_subsystems"], matches, tip, list(exclusions),
+                            as_of)
+    return {"tip_date": tip, "as_of": tip if as_of is None else as_of, "matches": matches, "table": table,
             "tree_refs_upstream": resolve_upstream_refs(tree["fix_links"], upstream["commits"],
                                                         upstream_name)}

@@ -176,3 +176,34 @@ def carryover_latency(table: pd.DataFrame, *, level: float = 0.95,
                           "over by the tree's tip: the median is not reached"))
     return LatencyResult(len(dur), int(ev.sum()), int((~ev).sum()), med, within, curve,
                          tuple(cav))
+
+
+@dataclass(frozen=True)
+class PeriodComparison:
+    """Carry-over latency of the fixes landed upstream before and on/after a date."""
+
+    date: pd.Timestamp
+    before: LatencyResult
+    after: LatencyResult
+    z: float
+    p_faster_after: float       # one-sided log-rank p for "carried over faster after"
+    method: str = "log-rank (Mantel 1966), one-sided: faster after the date"
+
+
+def compare_periods(table: pd.DataFrame, date: pd.Timestamp, *, level: float = 0.95,
+                    min_n: int = 5) -> PeriodComparison:
+    """Latency before vs after ``date`` (by upstream committer date) and a one-sided
+    log-rank test of "faster after". A p-value is evidence, not a verdict: a
+    claim needs the interval rule of :mod:`procmetrics.claims.base`.
+
+    References
+    ----------
+    Mantel (1966); see :func:`logrank_one_sided`.
+    """
+    after_mask = table["fix_date"] >= date
+    before = carryover_latency(table[~after_mask], level=level, within_days=(), min_n=min_n)
+    after = carryover_latency(table[after_mask], level=level, within_days=(), min_n=min_n)
+    d1, e1, _ = survival_data(table[~after_mask])
+    d2, e2, _ = survival_data(table[after_mask])
+    z, p = logrank_one_sided(d1, e1, d2, e2)
+    return PeriodComparison(date, before, after, z, p)

@@ -50,8 +50,8 @@ def _exclusion_map(exclusions: list[Exclusion], fixes: list[str]) -> dict[str, s
 
 def carryover_table(upstream_fix_links: pd.DataFrame, upstream_commits: pd.DataFrame,
                     upstream_subsystems: pd.DataFrame, matches: pd.DataFrame,
-                    tip_date: pd.Timestamp, exclusions: list[Exclusion] | None = None
-                    ) -> pd.DataFrame:
+                    tip_date: pd.Timestamp, exclusions: list[Exclusion] | None = None,
+                    as_of: pd.Timestamp | None = None) -> pd.DataFrame:
     """One row per upstream fix (columns :data:`CARRYOVER_COLUMNS`).
 
     Parameters
@@ -62,6 +62,9 @@ def carryover_table(upstream_fix_links: pd.DataFrame, upstream_commits: pd.DataF
     matches : :func:`~procmetrics.analyse.carryover.equivalence.match_commits` output.
     tip_date : committer date of the tree's tip.
     exclusions : upstream fixes the tree need not carry.
+    as_of : the date the tree is judged at (default ``tip_date``); later than the tip
+        only when the mined tip is still the tree's state then (a shipped release):
+        fixes landed upstream up to ``as_of`` are due and gaps run to ``as_of``.
 
     Returns
     -------
@@ -83,6 +86,10 @@ def carryover_table(upstream_fix_links: pd.DataFrame, upstream_commits: pd.DataF
     fixes = list(dict.fromkeys(links["fix_hash"]))
     excluded = _exclusion_map(list(exclusions or []), fixes)
     targets = links.groupby("fix_hash", sort=False)["introducer_hash"].agg(list)
+    cutoff = tip_date if as_of is None else as_of
+    if cutoff < tip_date:
+        raise ConfigError(f"the date to judge at ({cutoff:%Y-%m-%d}) is before the tree's "
+                          f"tip ({tip_date:%Y-%m-%d})")
     rows = []
     for fix in fixes:
         carried_targets = [t for t in targets[fix] if t in match.index]
@@ -104,11 +111,11 @@ def carryover_table(upstream_fix_links: pd.DataFrame, upstream_commits: pd.DataF
             row["latency_days"] = (m["arrival_date"] - fd).total_seconds() / DAY
         elif not carried_targets:
             status = "not-relevant"
-        elif fd > tip_date:
+        elif fd > cutoff:
             status = "not-due"
         else:
             status = "excluded" if fix in excluded else "missing"
-            row["gap_days"] = (tip_date - fd).total_seconds() / DAY
+            row["gap_days"] = (cutoff - fd).total_seconds() / DAY
         row["status"] = status
         rows.append(row)
     out = pd.DataFrame(rows, columns=CARRYOVER_COLUMNS)
