@@ -67,9 +67,15 @@ def mine_upstream(tree: str, tree_path: str | os.PathLike[str],
 
 
 def store_patch_ids(engine: Engine, repo_id: int, git: GitRepo) -> int:
-    """Compute and store the patch id of each stored commit that has none yet."""
+    """Compute and store the patch id of each stored commit that has none yet.
+
+    A commit without a diff (empty, or only a mode change git does not hash) is stored
+    with an empty patch id, so it is not asked again; readers leave those rows out.
+    """
     todo = up.commits_without_patch_id(engine, repo_id)
     added = 0
     for i in range(0, len(todo), PATCH_ID_BATCH):
-        added += up.add_patch_ids(engine, repo_id, patch_ids(git, todo[i:i + PATCH_ID_BATCH]))
+        part = todo[i:i + PATCH_ID_BATCH]
+        found = dict(patch_ids(git, part))
+        added += up.add_patch_ids(engine, repo_id, [(h, found.get(h, "")) for h in part])
     return added

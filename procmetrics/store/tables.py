@@ -343,7 +343,8 @@ def _per_commit(engine: Engine, table, cols, repo: str | None, name: str) -> pd.
 
 def patch_ids(engine: Engine, repo: str | None = None) -> pd.DataFrame:
     """One row per non-merge commit with a diff: its ``git patch-id --stable``."""
-    return _per_commit(engine, s.patch_id, [s.patch_id.c.patch_id], repo, "patch_ids")
+    df = _per_commit(engine, s.patch_id, [s.patch_id.c.patch_id], repo, "patch_ids")
+    return df[df["patch_id"] != ""].reset_index(drop=True)     # "" = no diff (see mine.upstream)
 
 
 def backport_lines(engine: Engine, repo: str | None = None) -> pd.DataFrame:

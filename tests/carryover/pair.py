@@ -150,6 +150,8 @@ def build_pair(root: Path) -> Pair:
              date=when(24), name="own_fix")
     pick("F4", 30, None)
     pick("F10b", 40, None)
+    d.commit("board: empty commit (no diff, no patch id)", author=DAVE, date=when(TIP_DAY - 1),
+             name="empty")
     d.commit("board: final tuning", files={"board/cfg.c": _body("board", {2: "/* t2 */"})},
              author=DAVE, date=when(TIP_DAY), name="own2")
     return Pair(u.path, tree_path, dict(u.ids), dict(d.ids))

@@ -48,7 +48,13 @@ def test_second_run_computes_no_patch_id_again(mined):
     pair, store, summary, _ = mined
     again = mine_upstream("orbitkit-vendor", pair.tree, pair.upstream, store=store,
                           options=MineOptions(progress=False))
+    # nothing is computed twice, not even for the tree's empty commit (stored as no diff)
     assert (again.new_patch_ids_tree, again.new_patch_ids_upstream) == (0, 0)
+    engine = open_store(store, create=False)
+    tree_ids = read_table(engine, "patch_ids", "orbitkit-vendor")
+    engine.dispose()
+    assert pair.down["empty"] not in set(tree_ids["hash"])
+    assert summary.new_patch_ids_tree == 17        # 16 commits with a diff + the empty one
     assert again.backport_lines == summary.backport_lines == 3
 
 
