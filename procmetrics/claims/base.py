@@ -150,6 +150,9 @@ class ClaimContext:
     #: defaults are the report's: committer dates, link era from the first linked fix
     date_basis: str = "committer"
     links_from: Any = "first_link"
+    #: per-upstream-fix carry-over table of a tree mined with an upstream reference
+    #: (:func:`procmetrics.analyse.carryover.carryover_table`); None without one
+    carryover: pd.DataFrame | None = None
 
 
 @dataclass(frozen=True)

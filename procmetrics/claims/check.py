@@ -7,6 +7,7 @@ from typing import Sequence
 
 from procmetrics.claims.base import Claim, ClaimContext, ClaimVerdict
 from procmetrics.claims.robustness import Robustness, judge_with_panel
+from procmetrics.claims.carryover import carryover_for
 from procmetrics.claims.registry import SPECS, evaluate_claims
 from procmetrics.errors import OutputPathError
 from procmetrics.analyse.measures import quality as ql
@@ -44,7 +45,9 @@ def claims_and_context(claims_path: str, *, store: str | None, repo: str | None,
     claims = load_claims(claims_path)
     engine = open_store(store, create=False, readonly=True)
     try:
-        data = load_store_data(engine, choose_repo(engine, repo))
+        name = choose_repo(engine, repo)
+        data = load_store_data(engine, name)
+        carry = carryover_for(engine, name)
     finally:
         engine.dispose()
     hist = ql.history_state(data)
@@ -52,7 +55,7 @@ def claims_and_context(claims_path: str, *, store: str | None, repo: str | None,
                        fix_links=data["fix_links"], commit_subsystems=data["commit_subsystems"],
                        tags=data["tags"], policy_date=resolve_policy(data, policy),
                        is_shallow=hist["is_shallow"], rewritten=bool(hist["rewritten"]),
-                       period=period if period != "release" else "quarter")
+                       period=period if period != "release" else "quarter", carryover=carry)
     return list(claims.claims), ctx
 
 

@@ -4,7 +4,9 @@ from __future__ import annotations
 from dataclasses import replace
 from typing import Sequence
 
-from procmetrics.claims import at_date, growth, handling, lifetimes, shares, unsupportable
+from procmetrics.claims import (
+    at_date, carryover, growth, handling, lifetimes, shares, unsupportable,
+)
 from procmetrics.claims.handling import review_adoption_caveat
 from procmetrics.claims.base import (
     NOT_SUPPORTABLE_KINDS, POLICY, UNDECIDABLE, Claim, ClaimContext, ClaimVerdict, KindSpec,
@@ -12,7 +14,7 @@ from procmetrics.claims.base import (
 )
 from procmetrics.errors import ConfigError
 
-_FAMILIES = (at_date, shares, handling, lifetimes, growth, unsupportable)
+_FAMILIES = (at_date, shares, handling, lifetimes, growth, unsupportable, carryover)
 SPECS: dict[str, KindSpec] = {k: v for f in _FAMILIES for k, v in f.SPECS.items()}
 EVALUATORS = {k: v for f in _FAMILIES for k, v in f.EVALUATORS.items()}
 SHARE_METRICS = shares.SHARE_METRICS

@@ -19,7 +19,7 @@ from procmetrics.textsafe import PrintableStream
 
 # Order is the order shown in --help.
 COMMANDS: list[str] = ["mine", "export", "report", "check", "rerun", "diff", "series",
-                       "changes", "compare", "lifetimes", "growth"]
+                       "changes", "compare", "lifetimes", "growth", "carryover"]
 
 
 def build_parser() -> argparse.ArgumentParser:

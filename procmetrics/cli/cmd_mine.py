@@ -46,6 +46,10 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--rewrite-policy", choices=["fail", "remine"], default="fail",
                    help="when the stored history was rewritten: fail (default) or delete "
                    "this repository's rows and mine again")
+    p.add_argument("--upstream", metavar="PATH", action="append", default=[],
+                   help="an upstream clone to mine as the reference history of the tree PATH "
+                   "(repeatable; read-only, nothing fetched): fix references are resolved "
+                   "there and commit equivalence (backport lines, patch ids) is prepared")
     p.add_argument("--progress", action=argparse.BooleanOptionalAction, default=None,
                    help="progress bar on stderr (default: when stderr is a terminal)")
     p.set_defaults(func=run)
@@ -61,6 +65,8 @@ def run(args: argparse.Namespace) -> int:
                        use_maintainers=not args.no_maintainers, prefix_depth=args.prefix_depth,
                        repo_name=args.repo_name, rewrite_policy=args.rewrite_policy,
                        progress=args.progress)
+    if args.upstream and (len(paths) > 1 or args.jobs or args.scheduler):
+        raise ConfigError("--upstream goes with one tree PATH (mine several trees one by one)")
     if len(paths) > 1 or args.jobs or args.scheduler:
         return _run_many(paths, args, opts)
     s = mine_repository(paths[0], store=args.store, options=opts)
@@ -73,6 +79,13 @@ def run(args: argparse.Namespace) -> int:
           f"{fx.get('unresolved', 0)}, ambiguous {fx.get('ambiguous', 0)}, self "
           f"{fx.get('self', 0)}), {s.unparsed} unparsed, {s.reverts} reverts, {s.tags} tags")
     print(f"subsystems: {s.mapping_kind} ({s.mapping_source})")
+    for up_path in args.upstream:
+        from procmetrics.mine.upstream import mine_upstream
+        u = mine_upstream(s.repo, paths[0], up_path, store=args.store, options=opts)
+        print(f"upstream {u.upstream}: {u.mined.new_commits} new commit(s), {u.mined.commits} "
+              f"stored, {u.mined.fix_refs} fix references; patch ids computed: "
+              f"{u.new_patch_ids_upstream} upstream, {u.new_patch_ids_tree} tree; "
+              f"{u.backport_lines} backport line(s) in {s.repo}")
     return 0
 
 

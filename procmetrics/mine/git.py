@@ -369,3 +369,59 @@ def _explain_refusal(given: Path, err: str) -> None:
             f"if you trust it: git config --global --add safe.directory {shlex.quote(str(given))}")
     if "permission denied" in err.lower():
         raise NotARepository(f"{given}: permission denied while git read it ({first})")
+
+
+def patch_ids(repo: GitRepo, commits: Sequence[str]) -> list[tuple[str, str]]:
+    """``(commit, patch id)`` of each non-merge ``commit`` with a non-empty diff.
+
+    One ``git log -p --no-walk=unsorted --stdin`` process (the commits on its stdin)
+    piped straight into one ``git patch-id --stable``; both run in the same
+    controlled environment as every other call. Merges and empty commits get no
+    patch id (git prints none for them).
+    """
+    if not commits:
+        return []
+    env = git_environment()
+    log_argv = repo.argv(["log", "-p", "--no-walk=unsorted", "--stdin", "--no-merges",
+                          "--no-color", "--no-ext-diff", "--no-textconv", "--no-renames",
+                          "--format=commit %H", "--"])
+    pid_argv = repo.argv(["patch-id", "--stable"])
+    data = "".join(c + "\n" for c in commits).encode("ascii")
+    with tempfile.TemporaryFile() as err1, tempfile.TemporaryFile() as err2:
+        try:
+            log = subprocess.Popen(log_argv, stdin=subprocess.PIPE, stdout=subprocess.PIPE,
+                                   stderr=err1, env=env)
+            pid = subprocess.Popen(pid_argv, stdin=log.stdout, stdout=subprocess.PIPE,
+                                   stderr=err2, env=env)
+        except OSError as exc:
+            raise GitUnavailable(f"cannot run git: {exc}") from exc
+        if log.stdin is None or log.stdout is None:  # pragma: no cover - PIPE given
+            raise GitFailed("git gave no pipe")
+        log.stdout.close()          # patch-id owns the read end now
+        writer = threading.Thread(target=_feed, args=(log.stdin, data), daemon=True)
+        writer.start()
+        out, _ = pid.communicate()
+        writer.join()
+        code_log, code_pid = log.wait(), pid.returncode
+        for code, err, args in ((code_log, err1, ["log"]), (code_pid, err2, ["patch-id"])):
+            if code != 0:
+                err.seek(0)
+                raise GitFailed(_failure(args, code, err.read()))
+    rows = []
+    for line in out.decode("ascii", "replace").splitlines():
+        parts = line.split()
+        if len(parts) == 2:
+            rows.append((parts[1], parts[0]))
+    return rows
+
+
+def _feed(stream, data: bytes) -> None:
+    try:
+        stream.write(data)
+    except BrokenPipeError:     # git stopped early; its exit code tells why
+        pass
+    finally:
+        try:
+            stream.close()
+        except BrokenPipeError:
+            pass

@@ -10,7 +10,15 @@ from procmetrics.errors import SchemaError
 from procmetrics.store import schema
 
 # MIGRATIONS[n] upgrades a store from schema n to n + 1.
-MIGRATIONS: dict[int, Callable[[Connection], None]] = {}
+def _add_upstream_tables(conn: Connection) -> None:
+    """1 -> 2: the upstream-reference, patch-id and backport-line tables."""
+    schema.metadata.create_all(conn, tables=list(schema.UPSTREAM_TABLES))
+    for ix in schema.INDEXES:
+        if ix.table in schema.UPSTREAM_TABLES:
+            ix.create(conn, checkfirst=True)
+
+
+MIGRATIONS: dict[int, Callable[[Connection], None]] = {1: _add_upstream_tables}
 
 
 def migrate(engine: Engine, found: int) -> None:

@@ -113,7 +113,7 @@ class RunBook:
         with self.engine.begin() as conn:
             self._delete_commits(conn, select(g.c.commit_id).where(g.c.repo_id == repo_id))
             conn.execute(delete(g).where(g.c.repo_id == repo_id))
-            for t in (s.path_subsystem, s.tag):
+            for t in (s.path_subsystem, s.tag, s.patch_id, s.backport_line):
                 conn.execute(delete(t).where(t.c.repo_id == repo_id))
             conn.execute(delete(s.subsystem).where(s.subsystem.c.repo_id == repo_id))
             conn.execute(update(m).where(m.c.repo_id == repo_id, m.c.status == "complete")

@@ -12,7 +12,7 @@ from sqlalchemy import (
     Table, Text, UniqueConstraint,
 )
 
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 2     # 2: upstream references, patch ids, backport lines
 
 metadata = MetaData()
 
@@ -165,6 +165,32 @@ tag = Table(
     Column("is_annotated", Boolean, nullable=False),
 )
 
+# -- upstream reference histories (schema 2) ------------------------------------------
+upstream_reference = Table(     # tree repository -> an upstream clone mined as its reference
+    "upstream_reference", metadata,
+    Column("repo_id", Integer, ForeignKey("repository.repo_id"), nullable=False),
+    Column("upstream_repo_id", Integer, ForeignKey("repository.repo_id"), nullable=False),
+    UniqueConstraint("repo_id", "upstream_repo_id", name="uq_upstream_reference"),
+)
+
+patch_id = Table(               # git patch-id --stable, computed once per commit
+    "patch_id", metadata,
+    Column("repo_id", Integer, ForeignKey("repository.repo_id"), nullable=False),
+    Column("hash", String(64), nullable=False),
+    Column("patch_id", String(64), nullable=False),
+    UniqueConstraint("repo_id", "hash", name="uq_patch_id"),
+)
+
+backport_line = Table(          # "commit <id> upstream." and its kin in a commit message
+    "backport_line", metadata,
+    Column("repo_id", Integer, ForeignKey("repository.repo_id"), nullable=False),
+    Column("hash", String(64), nullable=False),
+    Column("style", String(32), nullable=False),
+    Column("cited_hash", String(64), nullable=False),
+)
+
+UPSTREAM_TABLES = (upstream_reference, patch_id, backport_line)
+
 # Indexes the analyses need; created after a bulk load (see writer).
 INDEXES = [
     Index("ix_commit_repo_time", commit.c.repo_id, commit.c.committer_time),
@@ -176,4 +202,6 @@ INDEXES = [
     Index("ix_fix_link_intro", fix_link.c.introducer_hash),
     Index("ix_path_subsystem", path_subsystem.c.repo_id, path_subsystem.c.path),
     Index("ix_tag_repo", tag.c.repo_id),
+    Index("ix_patch_id_value", patch_id.c.repo_id, patch_id.c.patch_id),
+    Index("ix_backport_line", backport_line.c.repo_id, backport_line.c.hash),
 ]

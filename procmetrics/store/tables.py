@@ -44,6 +44,10 @@ COLUMNS: dict[str, list[str]] = {
                     "n_file_changes", "n_trailers", "n_fix_refs", "message"],
     "repositories": ["repo", "path", "remote_url", "tip_hash", "tip_ref", "is_shallow",
                      "mapping_kind", "mapping_source"],
+    # upstream reference histories (see procmetrics.store.upstream)
+    "upstream_references": ["repo", "upstream_repo"],
+    "patch_ids": ["repo", "hash", "patch_id"],
+    "backport_lines": ["repo", "hash", "style", "cited_hash"],
 }
 
 _DATE_COLUMNS = {"author_date", "committer_date", "fix_author_date", "fix_committer_date",
@@ -317,11 +321,45 @@ def file_change_lines(conn: Connection, repo: str | None = None, *,
         yield [r[0] for r in rows]
 
 
+def upstream_references(engine: Engine, repo: str | None = None) -> pd.DataFrame:
+    """One row per (tree repository, upstream clone mined as its reference)."""
+    t, u, r = s.repository, s.repository.alias("u"), s.upstream_reference
+    stmt = (select(t.c.name.label("repo"), u.c.name.label("upstream_repo"))
+            .select_from(r).join(t, t.c.repo_id == r.c.repo_id)
+            .join(u, u.c.repo_id == r.c.upstream_repo_id).order_by(t.c.name, u.c.name))
+    return _read(engine, _repo_filter(stmt, repo), "upstream_references")
+
+
+def _per_commit(engine: Engine, table, cols, repo: str | None, name: str) -> pd.DataFrame:
+    """Rows of a per-commit table whose commit is stored by a complete run."""
+    g = s.commit
+    stmt = (select(s.repository.c.name.label("repo"), table.c.hash, *cols)
+            .select_from(table).join(s.repository, s.repository.c.repo_id == table.c.repo_id)
+            .join(g, and_(g.c.repo_id == table.c.repo_id, g.c.hash == table.c.hash))
+            .where(g.c.run_id.in_(_complete_runs()))
+            .order_by(s.repository.c.name, table.c.hash, *cols))
+    return _read(engine, _repo_filter(stmt, repo), name)
+
+
+def patch_ids(engine: Engine, repo: str | None = None) -> pd.DataFrame:
+    """One row per non-merge commit with a diff: its ``git patch-id --stable``."""
+    df = _per_commit(engine, s.patch_id, [s.patch_id.c.patch_id], repo, "patch_ids")
+    return df[df["patch_id"] != ""].reset_index(drop=True)     # "" = no diff (see mine.upstream)
+
+
+def backport_lines(engine: Engine, repo: str | None = None) -> pd.DataFrame:
+    """One row per backport line (style, cited hash as written) in a commit message."""
+    b = s.backport_line
+    return _per_commit(engine, b, [b.c.style, b.c.cited_hash], repo, "backport_lines")
+
+
 READERS: dict[str, Callable[..., pd.DataFrame]] = {
     "commits": commits, "commit_subsystems": commit_subsystems,
     "file_changes": file_changes, "trailers": trailers, "fix_links": fix_links,
     "reverts": reverts, "unparsed_references": unparsed_references, "tags": tags,
     "mining_runs": mining_runs, "repositories": repositories,
+    "upstream_references": upstream_references, "patch_ids": patch_ids,
+    "backport_lines": backport_lines,
 }
 
 

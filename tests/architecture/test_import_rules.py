@@ -11,7 +11,7 @@ from pathlib import Path
 import pytest
 
 ROOT = Path(__file__).resolve().parents[2] / "procmetrics"
-QUESTIONS = ("measures", "change", "lifetimes", "growth")
+QUESTIONS = ("measures", "change", "lifetimes", "growth", "carryover")
 SHARED = ("result", "glmfit", "diagnostics")
 
 

@@ -141,6 +141,15 @@ def _fill(engine) -> None:
             {"repo_id": 2, "name": "v0.1-rc1", "commit_hash": H[4], "tag_time": None,
              "tag_offset_min": None, "is_annotated": False},
         ])
+        c.execute(insert(s.upstream_reference), [{"repo_id": 1, "upstream_repo_id": 2}])
+        c.execute(insert(s.patch_id), [
+            {"repo_id": 1, "hash": H[0], "patch_id": "a" * 40},
+            {"repo_id": 1, "hash": H[1], "patch_id": "b" * 40},
+            {"repo_id": 2, "hash": H[4], "patch_id": "a" * 40},
+        ])
+        c.execute(insert(s.backport_line), [
+            {"repo_id": 1, "hash": H[1], "style": "upstream-commit", "cited_hash": H[4][:12]},
+        ])
 
 
 @pytest.mark.postgres

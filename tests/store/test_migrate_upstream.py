@@ -1,0 +1,35 @@
+"""Schema 1 -> 2: the upstream tables are added to an older store opened writable."""
+from __future__ import annotations
+
+import sqlite3
+
+import pytest
+
+from procmetrics.errors import SchemaError
+from procmetrics.store import SCHEMA_VERSION, open_store
+from procmetrics.store.tables import read_table
+
+
+def test_schema_1_store_gains_the_upstream_tables(tmp_path):
+    path = tmp_path / "old.sqlite"
+    open_store(str(path)).dispose()
+    con = sqlite3.connect(path)             # make it look like a schema-1 store
+    for t in ("upstream_reference", "patch_id", "backport_line"):
+        con.execute(f"DROP TABLE {t}")
+    con.execute("UPDATE pm_meta SET value = '1' WHERE key = 'schema_version'")
+    con.commit()
+    con.close()
+    with pytest.raises(SchemaError, match="older"):
+        open_store(str(path), create=False)
+    engine = open_store(str(path))
+    try:
+        for name in ("upstream_references", "patch_ids", "backport_lines"):
+            assert read_table(engine, name).empty
+    finally:
+        engine.dispose()
+    con = sqlite3.connect(path)
+    assert con.execute("SELECT value FROM pm_meta WHERE key='schema_version'").fetchone() == \
+        (str(SCHEMA_VERSION),)
+    names = {r[0] for r in con.execute("SELECT name FROM sqlite_master WHERE type='index'")}
+    con.close()
+    assert {"ix_patch_id_value", "ix_backport_line"} <= names
