@@ -41,22 +41,26 @@ def sig(x: float | None, digits: int = 3) -> str:
 
 
 def estimate_text(est: dict[str, Any] | None) -> str:
-    """``"odds ratio after/before 18.8 (95% interval 15.6 to 22.7)"``; shares as %."""
+    """``"odds ratio after/before 18.8 (95% interval 15.6 to 22.7)"``; shares as %.
+
+    Digits come from :mod:`procmetrics.textfmt`, as in the CLI, tables and claims.
+    """
+    from procmetrics import textfmt
+
     if not est or est.get("value") is None:
         return "no estimate"
     name = str(est.get("name") or "estimate").replace("_", " ")
-    pct = name.startswith("share")
-    unit = "%" if pct else (f" {est['unit']}" if est.get("unit") else "")
-    if unit.strip() and unit.strip() in name:      # "odds ratio per year ... ratio per year"
-        unit = ""
+    unit = str(est.get("unit") or "")
+    key = "share" if name.startswith("share") else unit
 
     def f(v: Any) -> str:
-        return sig(100 * v if pct else v).replace("-", "−")
+        return textfmt.number(v, key).replace("-", "−")
 
-    text = f"{name} {f(est['value'])}{unit}"
+    suffix = "" if key == "share" or not unit or unit in name else f" {unit}"
+    text = f"{name} {f(est['value'])}{suffix}"
     if est.get("low") is not None and est.get("high") is not None:
         text += f" ({float(est.get('level') or 0.95):.0%} interval {f(est['low'])} to " \
-                f"{f(est['high'])}{unit})"
+                f"{f(est['high'])}{suffix})"
     return text
 
 
@@ -75,6 +79,18 @@ def robustness_text(c: dict[str, Any]) -> str:
     if r.get("fragile") is False:
         return "robust: the verdict holds under every alternative choice tried"
     return str(r.get("summary") or "not assessed")
+
+
+def robustness_short(c: dict[str, Any]) -> str:
+    """The panel outcome in a few words for the page-one table."""
+    r = c.get("robustness")
+    if not isinstance(r, dict) or r.get("fragile") is None:
+        return "not assessed"
+    if r.get("fragile"):
+        flips = r.get("flipped_by") or r.get("flipping") or []
+        return "fragile: flips under " + "; ".join(str(x) for x in flips) if flips \
+            else "fragile"
+    return "robust"
 
 
 def warned_diagnostics(c: dict[str, Any]) -> list[str]:
@@ -111,7 +127,7 @@ def summary_rows(claims: list[dict[str, Any]]) -> list[dict[str, Any]]:
             "verdict": c.get("verdict", ""), "label": c.get("verdict_label", ""),
             "mark": VERDICT_MARKS.get(c.get("verdict", ""), ""),
             "estimate": estimate_text(ev.get("estimate")),
-            "n": ev.get("n"), "robustness": robustness_text(c),
+            "n": ev.get("n"), "robustness": robustness_short(c),
             "evidence": (pack.get("files") or [{}])[0].get("path"),
             "section": section,
         })
