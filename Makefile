@@ -44,7 +44,7 @@ demo: $(VENV)/.installed
 test: setup-test
 	@pgdir=$$(mktemp -d) && trap 'sh .ci/pg stop "$$pgdir"' EXIT INT TERM && \
 	PROCMETRICS_TEST_PG_URL=$$(sh .ci/pg start "$$pgdir") && export PROCMETRICS_TEST_PG_URL && \
-	$(BIN)/python -m pytest -q -p no:cacheprovider
+	$(BIN)/python -m pytest -q -p no:cacheprovider -n 2 --dist loadfile --durations=15
 
 $(VENV)/.installed-bench: $(VENV)/.installed-test
 	$(BIN)/python -m pip install --quiet -e '.[test,bench]'
