@@ -18,23 +18,14 @@ the store (or an ambiguous prefix) is the reachable history streamed once with
 """
 from __future__ import annotations
 
-import bisect
+from procmetrics.hexprefix import prefix_matches  # noqa: F401 - used and re-exported
+
 from typing import Callable, Iterable, Sequence
 
 from procmetrics.mine.git import GitRepo
 
 RESOLVED, UNRESOLVED, AMBIGUOUS, SELF = "resolved", "unresolved", "ambiguous", "self"
 EXCLUDED_REF_GLOBS = ("*/pull/*", "*/pr/*", "pull/*", "pr/*")
-
-
-def prefix_matches(sorted_hashes: Sequence[str], prefix: str, limit: int = 2) -> list[str]:
-    """Up to ``limit`` hashes of ``sorted_hashes`` starting with ``prefix`` (bisect)."""
-    i = bisect.bisect_left(sorted_hashes, prefix)
-    out = []
-    while i < len(sorted_hashes) and sorted_hashes[i].startswith(prefix) and len(out) < limit:
-        out.append(sorted_hashes[i])
-        i += 1
-    return out
 
 
 def classify(matches: Sequence[str], citing_hash: str) -> tuple[str, str | None]:

@@ -17,22 +17,14 @@ The arrival in the tree is the earliest matching tree commit's committer date.
 """
 from __future__ import annotations
 
-import bisect
+from procmetrics.hexprefix import prefix_matches
+
 
 import pandas as pd
 
 MATCH_COLUMNS = ["upstream_hash", "tree_hash", "method", "arrival_date", "n_candidates",
                  "ambiguous"]
 RESOLUTION_COLUMNS = ["fix_hash", "ref_hash", "status", "upstream_hash", "resolved_in"]
-
-
-def _prefix(sorted_hashes: list[str], prefix: str, limit: int = 2) -> list[str]:
-    i = bisect.bisect_left(sorted_hashes, prefix)
-    out = []
-    while i < len(sorted_hashes) and sorted_hashes[i].startswith(prefix) and len(out) < limit:
-        out.append(sorted_hashes[i])
-        i += 1
-    return out
 
 
 def match_commits(upstream_commits: pd.DataFrame, tree_commits: pd.DataFrame,
@@ -67,7 +59,7 @@ def match_commits(upstream_commits: pd.DataFrame, tree_commits: pd.DataFrame,
         if h in up_set:
             rows[h] = (h, "same-id", 1, False)
     for h, style, cited in backport_lines[["hash", "style", "cited_hash"]].itertuples(index=False):
-        found = _prefix(up_hashes, str(cited).lower()) if h in arrival else []
+        found = prefix_matches(up_hashes, str(cited).lower()) if h in arrival else []
         if len(found) != 1:         # no such upstream commit, or an ambiguous prefix
             continue
         best = rows.get(found[0])
@@ -103,7 +95,7 @@ def resolve_upstream_refs(tree_fix_links: pd.DataFrame, upstream_commits: pd.Dat
     todo = tree_fix_links[tree_fix_links["status"] == "unresolved"]
     rows = []
     for fix, ref in todo[["fix_hash", "ref_hash"]].itertuples(index=False):
-        found = _prefix(up_hashes, str(ref).lower())
+        found = prefix_matches(up_hashes, str(ref).lower())
         status = "resolved" if len(found) == 1 else "ambiguous" if found else "unresolved"
         rows.append((fix, ref, status, found[0] if len(found) == 1 else None,
                      upstream_repo if found else None))

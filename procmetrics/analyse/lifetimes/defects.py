@@ -68,7 +68,7 @@ DEFECT_COLUMNS: list[str] = [
     "subsystem", "subsystems", "period", "reviewed_introducer", "intro_lines", "intro_files",
 ]
 
-from procmetrics.analyse.lifetimes.ledger import (  # noqa: E402  (re-exported)
+from procmetrics.analyse.lifetimes.ledger import (  # noqa: E402,F401  (re-exported)
     EXCLUDED_COLUMNS, LEDGER_COLUMNS, _excluded, defect_ledger,
 )
 

@@ -167,10 +167,9 @@ def doubly_truncated_curve(lifetimes: np.ndarray, lower: np.ndarray, upper: np.n
     Efron & Petrosian (1999); Moreira & de Uña-Álvarez (2010), J. Nonparametr.
     Stat. 22 (bootstrap for doubly truncated data, resampling triplets).
     """
-    import pandas as pd
 
     from procmetrics.analyse.lifetimes.estimators import SurvivalCurve
-    from procmetrics.analyse.lifetimes.quantiles import support_cut
+    from procmetrics.analyse.lifetimes.quantiles import curve_table
 
     L, U, V = (np.asarray(a, float) for a in (lifetimes, lower, upper))
     rng = rng if rng is not None else np.random.default_rng(20240601)
@@ -196,18 +195,7 @@ def doubly_truncated_curve(lifetimes: np.ndarray, lower: np.ndarray, upper: np.n
                      else (np.full_like(F, np.nan), np.full_like(F, np.nan)))
     d = np.unique(L, return_counts=True)[1]
     R = np.searchsorted(np.sort(L), s, side="right") - np.searchsorted(np.sort(V), s, side="left")
-    times = np.concatenate([[0.0], s]) if s[0] > 0 else s
-    pad = len(times) - len(s)
-    tab = pd.DataFrame({
-        "time": times,
-        "survival": np.concatenate([[1.0] * pad, 1 - F]),
-        "low": np.concatenate([[1.0] * pad, 1 - F_high]),
-        "high": np.concatenate([[1.0] * pad, 1 - F_low]),
-        "at_risk": np.concatenate([[0] * pad, R]).astype(int),
-        "events": np.concatenate([[0] * pad, d]).astype(int),
-    })
-    cut = support_cut(s, R, min_at_risk) if (R >= min_at_risk).any() else float(s[0])
-    tab["shown"] = True if cut is None else tab["time"] < cut
+    tab, cut = curve_table(s, F, F_low, F_high, R, d, min_at_risk)
     n_left = int((U > 0).sum())
     pop = (f"defects eventually fixed with a link, {n_left} of them introduced before the "
            "link era and truncated at both ends (seen only when fixed after linking began "

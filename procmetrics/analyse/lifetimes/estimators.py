@@ -33,6 +33,7 @@ import pandas as pd
 from scipy import stats
 
 from procmetrics.analyse.lifetimes.quantiles import (
+    curve_table,
     Quantile, empirical_quantiles, make_quantile, order_statistic_interval, reverse_at_risk,
     support_cut,
 )
@@ -206,19 +207,7 @@ def truncated_product_limit(lifetimes: Any, windows: Any, *, level: float = 0.95
     a = (1 - level) / 2
     F_low, F_high = (np.quantile(boot, [a, 1 - a], axis=0) if n_boot
                      else (np.full_like(F, np.nan), np.full_like(F, np.nan)))
-    times = np.concatenate([[0.0], s]) if s[0] > 0 else s
-    pad = len(times) - len(s)
-    tab = pd.DataFrame({
-        "time": times,
-        "survival": np.concatenate([[1.0] * pad, 1 - F]),
-        "low": np.concatenate([[1.0] * pad, 1 - F_high]),
-        "high": np.concatenate([[1.0] * pad, 1 - F_low]),
-        "at_risk": np.concatenate([[0] * pad, R]).astype(int),
-        "events": np.concatenate([[0] * pad, d]).astype(int),
-    })
-    # cut only at the upper end: reverse-time risk sets are small at the start by design
-    cut = _cut(s, R, min_at_risk) if (R >= min_at_risk).any() else float(s[0])
-    tab["shown"] = True if cut is None else tab["time"] < cut
+    tab, cut = curve_table(s, F, F_low, F_high, R, d, min_at_risk)
     cav: list[Caveat] = []
     holes = int(((d >= R) & (np.arange(len(s)) > 0)).sum())
     if holes:

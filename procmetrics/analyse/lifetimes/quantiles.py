@@ -155,3 +155,30 @@ def empirical_quantiles(x: Any, *, quantiles: tuple[float, ...], level: float, u
             else (float(xs[-1]) if n else None),
             range_low=float(xs[0]) if n else None, min_at_risk=min_at_risk))
     return out
+
+
+def curve_table(s: np.ndarray, F: np.ndarray, F_low: np.ndarray, F_high: np.ndarray,
+                R: np.ndarray, d: np.ndarray, min_at_risk: int) -> tuple[Any, float | None]:
+    """The fixed-column curve table of a distribution estimate F at the times ``s``,
+    and the support cut (None: no cut).
+
+    Columns ``time`` (0 added first when the first event is later), ``survival``,
+    ``low``/``high`` (band from ``F_high``/``F_low``), ``at_risk``, ``events`` and
+    ``shown`` (False from the support cut on: fewer than ``min_at_risk`` at risk at
+    the upper end; reverse-time risk sets are small at the start by design).
+    """
+    import pandas as pd
+
+    times = np.concatenate([[0.0], s]) if s[0] > 0 else s
+    pad = len(times) - len(s)
+    tab = pd.DataFrame({
+        "time": times,
+        "survival": np.concatenate([[1.0] * pad, 1 - F]),
+        "low": np.concatenate([[1.0] * pad, 1 - F_high]),
+        "high": np.concatenate([[1.0] * pad, 1 - F_low]),
+        "at_risk": np.concatenate([[0] * pad, R]).astype(int),
+        "events": np.concatenate([[0] * pad, d]).astype(int),
+    })
+    cut = support_cut(s, R, min_at_risk) if (R >= min_at_risk).any() else float(s[0])
+    tab["shown"] = True if cut is None else tab["time"] < cut
+    return tab, cut
