@@ -100,7 +100,7 @@ def run(args: argparse.Namespace) -> int:
     era = ("every introducer" if table.links_from is None
            else f"from {table.links_from:%Y-%m-%d}")
     print(f"  link era: {era}; rule: {table.link_era_rule}")
-    print(f"  every defect and every left-out link, with the reason: "
+    print("  every defect and every left-out link, with the reason: "
           + ("defect_ledger.csv in --out" if not args.out else
              f"{Path(args.out) / 'defect_ledger.csv'}"))
     _print_analysis(res, args.horizon)
@@ -155,14 +155,14 @@ def _print_analysis(res: Any, horizon: float | None, indent: str = "  ") -> None
 
 
 def _qtext(row: Any, unit: str) -> str:
-    """A summary row as text: within the support, or why not."""
+    """A summary row as text: the report table's cell (one formatter for both), then
+    n and the range of lifetimes the estimate covers."""
+    from procmetrics.report.lifetime_tables import quantile_cell
+
+    cell = quantile_cell(pd.Series(row._asdict()))
     if not row.supported:
-        lim = "-" if pd.isna(row.support_limit) else f"{row.support_limit:,.0f}"
-        risk = "" if pd.isna(row.at_risk) else f", {int(row.at_risk)} at risk there"
-        return f"beyond what the data support (> {lim} {unit}{risk}) n={row.n}"
-    hi = (f"> {row.support_limit:,.0f}" if row.high_open else _num(row.high))
-    return (f"{_num(row.value)} [{_num(row.low)}, {hi}] n={row.n} at risk {int(row.at_risk)}; "
-            f"covers {row.range_low:,.0f}-{row.range_high:,.0f} {unit} "
+        return f"{cell} n={row.n}"
+    return (f"{cell} n={row.n}; covers {row.range_low:,.0f}-{row.range_high:,.0f} {unit} "
             f"({row.level:.0%} interval)")
 
 

@@ -232,22 +232,29 @@ def _links(pack: ClaimPack, cctx: Any, hashes: pd.Series | None = None) -> None:
 
 
 def _growth(pack: ClaimPack, claim: Any, cctx: Any) -> None:
+    """The fix events the claim counted, by the claim's own selection (one call), and
+    every other commit with a resolved fix link with the reason it is not an event."""
     from procmetrics.claims.common import window
+    from procmetrics.claims.growth import fix_event_times
 
     after, before = window(cctx, claim.params)
+    ft = fix_event_times(cctx.fix_links, cctx.commits, links_from=cctx.links_from,
+                         after=after, before=before, basis=cctx.date_basis)
+    events = set(ft.events["fix_hash"].astype(str))
     c = cctx.commits[~cctx.commits["is_merge"].astype("boolean").fillna(False).astype(bool)]
-    start = after if after is not None else c["committer_date"].min()
-    end = before if before is not None else c["committer_date"].max()
     fixing = c["n_resolved_fixes"].fillna(0) > 0
-    inside = (c["committer_date"] > start) & (c["committer_date"] <= end)
     rows = c.loc[fixing, ["hash", "committer_date", "n_resolved_fixes"]].rename(
         columns={"committer_date": "date"})
-    rows["counted"] = inside[fixing].to_numpy()
-    rows["exclusion_reason"] = ["" if k else "outside the window (the first commit's time is "
-                                "the origin, t = 0, and is not an event)" for k in rows["counted"]]
+    rows["counted"] = rows["hash"].astype(str).isin(events).to_numpy()
+    origin = f"{ft.origin:%Y-%m-%d %H:%M}"
+    rows["exclusion_reason"] = [
+        "" if k else (f"at or before the origin {origin} (the start of observation is not an "
+                      "event)" if d <= ft.origin else "after the end of the window"
+                      if d > ft.end_date else "not the first fix of any defect it names")
+        for k, d in zip(rows["counted"], rows["date"])]
     rows = rows.sort_values("date", kind="mergesort")
     pack.add("fixing-commits.csv", rows, "the commits with at least one resolved Fixes: "
-             "link; counted marks the fix times of the growth model")
+             "link; counted marks the fix events of the growth model")
     pack.counted = int(rows["counted"].sum())
     _links(pack, cctx, rows["hash"])
 

@@ -98,7 +98,9 @@ def _base(cmd: str, small, tmp_path) -> list[str]:
             "changes": ["--store", store, "--boot", "0"],
             "compare": ["--store", store, "--at", "v1.0", "--resamples", "9", "--boot", "9"],
             "lifetimes": ["--store", store, "--boot", "9"],
-            "growth": ["--store", store, "--boot", "9"]}[cmd]
+            "growth": ["--store", store, "--boot", "9"],
+            "diff": [tmp_path / "none-a", tmp_path / "none-b"],
+            "carryover": ["--store", store]}[cmd]
 
 
 def _walk():
