@@ -7,6 +7,8 @@ Kaplan & Meier (1958); Royston & Parmar (2013) (restricted mean lifetime).
 """
 from __future__ import annotations
 
+from typing import Any
+
 import numpy as np
 import pandas as pd
 from scipy import stats
@@ -44,7 +46,8 @@ def defect_table(kind: str, ctx: ClaimContext, cuts: list[pd.Timestamp] | None =
     One call for the verdict and for the rows the report's evidence pack lists, so
     both count the same defects: the median claim uses the settled link era, the
     before/after comparison every resolved link (its horizon conditioning is applied
-    by the evaluator).
+    by the evaluator). Both follow the context's clock (``date_basis``) and link-era
+    start (``links_from``), which the robustness panel varies.
     """
     from procmetrics.analyse.lifetimes.defects import build_defects
 
@@ -53,10 +56,21 @@ def defect_table(kind: str, ctx: ClaimContext, cuts: list[pd.Timestamp] | None =
         raise Undecidable(f"{share:.0%} of fix references are unresolved or ambiguous, above "
                           f"the {ctx.unresolved_limit:.0%} limit: the defects seen may not "
                           "represent the defects fixed")
-    extra = {"links_from": "settled"} if kind == "median_lifetime_below" else {}
-    return build_defects(ctx.fix_links, commits=ctx.commits,
-                         commit_subsystems=ctx.commit_subsystems, trailers=ctx.trailers,
-                         period_cuts=cuts, **extra)
+    def build(links_from: Any) -> Any:
+        return build_defects(ctx.fix_links, basis=ctx.date_basis, commits=ctx.commits,
+                             commit_subsystems=ctx.commit_subsystems, trailers=ctx.trailers,
+                             period_cuts=cuts, links_from=links_from)
+
+    if kind != "median_lifetime_below":
+        return build(ctx.links_from)
+    # the median starts at the settled link era; a later start asked for (the robustness
+    # panel's) moves it later, never earlier
+    table = build("settled")
+    later = ctx.links_from
+    if isinstance(later, pd.Timestamp) and (table.links_from is None
+                                            or later > table.links_from):
+        table = build(later)
+    return table
 
 
 #: a quantile is reported only where at least this many defects are at risk

@@ -63,3 +63,26 @@ def test_history_ending_before_the_date_is_undecidable():
     ctx = _ctx(4, n_visible=200)
     late = dataclasses.replace(ctx, policy_date=pd.Timestamp("2040-01-01", tz="UTC"))
     assert evaluate_claim(CLAIM, late).verdict == "undecidable"
+
+
+def test_lifetime_claims_follow_the_panels_link_era_and_clock():
+    """The robustness panel varies the link-era start and the clock through the context;
+    the lifetime kinds read both (they used to ignore them and show 'same evidence')."""
+    from procmetrics.analyse.lifetimes.defects import build_defects
+
+    ctx = _ctx(4, n_visible=700)
+    later = ctx.policy_date - pd.Timedelta(days=900)
+    base = lt.defect_table(CLAIM.kind, ctx)
+    moved = lt.defect_table(CLAIM.kind, dataclasses.replace(ctx, links_from=later))
+    # oracle: the defect table built directly with that start
+    want = build_defects(ctx.fix_links, commits=ctx.commits, links_from=later)
+    assert len(moved.defects) == len(want.defects) < len(base.defects)
+    v0 = evaluate_claim(CLAIM, ctx)
+    v1 = evaluate_claim(CLAIM, dataclasses.replace(ctx, links_from=later))
+    assert v1.n < v0.n
+    # the median claim starts at the settled era and a later start only moves it later
+    med = Claim("m", "half within 200 days", "median_lifetime_below", {"threshold_days": 200})
+    settled = lt.defect_table(med.kind, ctx)
+    earlier = lt.defect_table(med.kind, dataclasses.replace(
+        ctx, links_from=ctx.commits["committer_date"].min()))
+    assert len(earlier.defects) == len(settled.defects)
