@@ -100,9 +100,10 @@ def eval_median_lifetime(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
     if len(d) < ctx.min_n:
         raise Undecidable(f"only {len(d)} defects with a resolved fix link in the window "
                           f"(at least {ctx.min_n} needed)")
-    rng = np.random.default_rng(ctx.seed)
+    # rng=None: resamples keyed by the data, so the claim and the report's quantile table
+    # print one interval for the same defects
     (q50,) = quantile_estimates(d["lifetime"].to_numpy(float), d["window"].to_numpy(float),
-                                quantiles=(0.5,), level=claim.level, rng=rng,
+                                quantiles=(0.5,), level=claim.level, rng=None,
                                 min_at_risk=MEDIAN_MIN_AT_RISK)
     era = table.links_from
     extra = [f"link era from {era:%Y-%m-%d} ({table.link_era_rule})" if era is not None

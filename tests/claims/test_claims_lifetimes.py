@@ -86,3 +86,29 @@ def test_lifetime_claims_follow_the_panels_link_era_and_clock():
     earlier = lt.defect_table(med.kind, dataclasses.replace(
         ctx, links_from=ctx.commits["committer_date"].min()))
     assert len(earlier.defects) == len(settled.defects)
+
+
+def test_one_set_of_defects_has_one_median_interval_everywhere():
+    """The claim, the lifetimes analysis (CLI and report table) and a shuffled copy of
+    the same defects print one interval, whatever the seed: the bootstrap is keyed by
+    the data (invariance check: row order and seed must not matter)."""
+    from procmetrics.analyse.lifetimes.analysis import analyse_lifetimes
+    from procmetrics.analyse.lifetimes.defects import lifetimes_for_estimation
+    from procmetrics.analyse.lifetimes.estimators import quantile_estimates
+
+    ctx = _ctx(5, n_visible=400)
+    med = Claim("m", "half within 200 days", "median_lifetime_below", {"threshold_days": 200})
+    table = lt.defect_table(med.kind, ctx)
+    d, _ = lifetimes_for_estimation(table.defects)
+    L, W = d["lifetime"].to_numpy(float), d["window"].to_numpy(float)
+    (a,) = quantile_estimates(L, W, quantiles=(0.5,))
+    perm = np.random.default_rng(9).permutation(len(L))
+    (b,) = quantile_estimates(L[perm], W[perm], quantiles=(0.5,))
+    assert (a.value, a.low, a.high) == (b.value, b.low, b.high)
+    for seed in (1, 2):
+        s = analyse_lifetimes(table, n_boot=2000, rng=np.random.default_rng(seed)).summary
+        row = s[(s["group"] == "(all)") & (s["method"] == "truncation_aware")
+                & (s["quantile"] == 0.5)].iloc[0]
+        assert (row["value"], row["low"], row["high"]) == (a.value, a.low, a.high), seed
+    v = evaluate_claim(med, dataclasses.replace(ctx, seed=123))
+    assert (v.estimate.value, v.estimate.low, v.estimate.high) == (a.value, a.low, a.high)

@@ -245,7 +245,7 @@ def analyse_lifetimes(
                 curve = truncated_product_limit(L, W, level=level, n_boot=n_boot,
                                                 min_at_risk=min_at_risk, rng=rng)
             qe = quantile_estimates(L, W, quantiles=quantiles, level=level, n_boot=n_boot,
-                                    unit=unit, rng=rng, min_at_risk=min_at_risk, window_low=U)
+                                    unit=unit, rng=None, min_at_risk=min_at_risk, window_low=U)
         except NotIdentifiable as exc:
             cav.append(caveat("not_identifiable", f"{group}: truncation-aware curve and "
                               f"quantiles refused: {exc}"))

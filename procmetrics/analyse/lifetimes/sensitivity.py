@@ -72,7 +72,7 @@ def link_era_sensitivity(d: pd.DataFrame, start: pd.Timestamp, horizon: float | 
             q = lb_median if not k else quantile_estimates(
                 g["lifetime"].to_numpy(float), g["window"].to_numpy(float), quantiles=(0.5,),
                 n_boot=n_boot, level=level, unit=unit, min_at_risk=min_at_risk,
-                rng=rng if rng is not None else np.random.default_rng(20240601))[0]
+                rng=None)[0]
             rows.append({"start": s, "figure": LB_MEDIAN, "value": q.value,
                          "low": q.low, "high": q.high, "n": q.n,
                          "at_risk": q.at_risk, "supported": q.supported, "chosen": k == 0})
