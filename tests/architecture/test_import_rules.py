@@ -121,3 +121,16 @@ def test_the_rule_checker_sees_a_planted_violation(tmp_path: Path) -> None:
     src = "def f():\n    from procmetrics.report.build import make_report\n"
     found = {n.module for n in ast.walk(ast.parse(src)) if isinstance(n, ast.ImportFrom)}
     assert "procmetrics.report.build" in found
+
+
+@pytest.mark.parametrize("package", ["procmetrics.analyse.measures", "procmetrics.analyse.change",
+                                     "procmetrics.analyse.lifetimes", "procmetrics.analyse.growth",
+                                     "procmetrics.analyse.carryover", "procmetrics.claims"])
+def test_every_lazily_exported_name_resolves(package: str) -> None:
+    import importlib
+
+    mod = importlib.import_module(package)
+    missing = [n for n in mod.__all__ if not hasattr(mod, n)]
+    assert not missing, missing
+    with pytest.raises(AttributeError):
+        getattr(mod, "no_such_name")

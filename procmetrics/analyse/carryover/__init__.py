@@ -7,8 +7,7 @@ May import: ``procmetrics.analyse.measures``, the shared modules and ``errors``.
 """
 from __future__ import annotations
 
-from importlib import import_module
-from typing import Any
+from procmetrics.lazyexports import lazy_getattr
 
 _EXPORTS: dict[str, str] = {
     "MATCH_COLUMNS": "equivalence",
@@ -26,8 +25,4 @@ _EXPORTS: dict[str, str] = {
 }
 __all__ = sorted(_EXPORTS)
 
-
-def __getattr__(name: str) -> Any:
-    if name in _EXPORTS:
-        return getattr(import_module(f"{__name__}.{_EXPORTS[name]}"), name)
-    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+__getattr__ = lazy_getattr(__name__, _EXPORTS)

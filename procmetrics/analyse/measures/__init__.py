@@ -7,11 +7,9 @@ nothing from the other question packages.
 """
 from __future__ import annotations
 
-from importlib import import_module
-from typing import Any
+from procmetrics.lazyexports import lazy_getattr
 
-#: public name -> the module (in this package) that defines it; loaded on first use,
-#: so importing one module of the package does not load the others
+#: public name -> the module (in this package) that defines it (loaded on first use)
 _EXPORTS: dict[str, str] = {
     "wilson": "intervals",
     "poisson_exact": "intervals",
@@ -31,8 +29,4 @@ _EXPORTS: dict[str, str] = {
 }
 __all__ = sorted(_EXPORTS)
 
-
-def __getattr__(name: str) -> Any:
-    if name in _EXPORTS:
-        return getattr(import_module(f"{__name__}.{_EXPORTS[name]}"), name)
-    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+__getattr__ = lazy_getattr(__name__, _EXPORTS)
