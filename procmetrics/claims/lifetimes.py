@@ -73,6 +73,11 @@ def defect_table(kind: str, ctx: ClaimContext, cuts: list[pd.Timestamp] | None =
     return table
 
 
+#: what the before/after lifetime comparison can and cannot say (in every verdict)
+NO_ATTRIBUTION = ("this compares the defects introduced before the date with those introduced "
+                  "from it and attributes nothing to the date itself: lifetimes that were "
+                  "already getting shorter before the date give the same result")
+
 #: a quantile is reported only where at least this many defects are at risk
 MEDIAN_MIN_AT_RISK = 10
 LEDGER_NOTE = ("the defects behind this figure, and every fix link left out with the reason, "
@@ -203,7 +208,8 @@ def judge_shorter(claim: Claim, table, date: pd.Timestamp, *, horizon: float | N
     extra = [f"compared: {cohort.population}; {n_b} defects introduced before "
              f"{date:%Y-%m-%d} and {n_a} from it (median {med_b:.0f} and {med_a:.0f} days); "
              f"{cohort.n_too_recent} introduced less than {horizon:.0f} days before the end "
-             f"and {cohort.n_beyond_horizon} fixed later than that are not compared"]
+             f"and {cohort.n_beyond_horizon} fixed later than that are not compared",
+             NO_ATTRIBUTION]
     rm_text = (f"restricted mean lifetime up to {horizon:.0f} days, before minus after: "
                f"{rm.value:+.1f} days [{rm.low:+.1f}, {rm.high:+.1f}]")
     try:

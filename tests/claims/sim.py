@@ -115,9 +115,13 @@ def share_history(rng: np.random.Generator, *, n_periods: int = 48, per_period: 
 
 
 def lifetime_history(rng: np.random.Generator, *, n_visible: int, median_before: float = 120.0,
-                     factor_after: float = 1.0, sigma: float = 1.0, years: float = 10.0
-                     ) -> tuple[ClaimContext, pd.Timestamp]:
+                     factor_after: float = 1.0, sigma: float = 1.0, years: float = 10.0,
+                     trend_per_year: float = 0.0) -> tuple[ClaimContext, pd.Timestamp]:
     """Defects introduced uniformly over ``years``; log-normal lifetimes.
+
+    ``trend_per_year`` adds a steady change of the log median with the
+    introduction date (a pre-existing trend, no step at the date when
+    ``factor_after`` is 1).
 
     Median ``median_before`` days for defects introduced before the midpoint,
     ``median_before * factor_after`` after it (a scale change, so lifetimes are
@@ -128,14 +132,16 @@ def lifetime_history(rng: np.random.Generator, *, n_visible: int, median_before:
     T = years * 365.25
     date_day = T / 2
     # share of introduced defects that are visible, by Monte Carlo on a large draw
+    def log_median(u: np.ndarray) -> np.ndarray:
+        return (np.log(median_before * np.where(u >= date_day, factor_after, 1.0))
+                + trend_per_year * (u - date_day) / 365.25)
+
     u0 = rng.uniform(0, T, 20000)
-    l0 = np.exp(np.log(median_before * np.where(u0 >= date_day, factor_after, 1.0))
-                + sigma * rng.standard_normal(20000))
+    l0 = np.exp(log_median(u0) + sigma * rng.standard_normal(20000))
     vis = float(np.mean(u0 + l0 <= T))
     n = rng.poisson(n_visible / vis)
     u = rng.uniform(0, T, n)
-    life = np.exp(np.log(median_before * np.where(u >= date_day, factor_after, 1.0))
-                  + sigma * rng.standard_normal(n))
+    life = np.exp(log_median(u) + sigma * rng.standard_normal(n))
     keep = u + life <= T
     u, life = u[keep], life[keep]
     k = len(u)
