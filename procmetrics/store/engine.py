@@ -29,18 +29,21 @@ def resolve_url(store: str | os.PathLike[str] | None) -> str:
     return "sqlite:///" + str(Path(text).expanduser().resolve())
 
 
+BUSY_TIMEOUT_MS = 30000    # how long a SQLite write waits for another writer's lock
+
+
 def _sqlite_pragmas(dbapi_conn, _record) -> None:  # pragma: no cover - trivial
     cur = dbapi_conn.cursor()
     cur.execute("PRAGMA foreign_keys=ON")
     cur.execute("PRAGMA journal_mode=WAL")
     cur.execute("PRAGMA synchronous=NORMAL")
-    cur.execute("PRAGMA busy_timeout=30000")
+    cur.execute(f"PRAGMA busy_timeout={BUSY_TIMEOUT_MS}")
     cur.close()
 
 
 def _sqlite_read_pragmas(dbapi_conn, _record) -> None:  # pragma: no cover - trivial
     cur = dbapi_conn.cursor()
-    cur.execute("PRAGMA busy_timeout=30000")
+    cur.execute(f"PRAGMA busy_timeout={BUSY_TIMEOUT_MS}")
     cur.close()
 
 
@@ -119,6 +122,29 @@ def open_store(store: str | os.PathLike[str] | None = None, *, create: bool = Tr
     return engine
 
 
+def _release_sqlite_lock(ctx) -> None:
+    """Roll back a SQLite connection that Ctrl-C (or another exit exception)
+    interrupted inside a statement.
+
+    SQLAlchemy then only invalidates the connection, without rolling back
+    (it cannot know the driver's state), so the interrupted write transaction
+    kept the database's write lock until the object was garbage-collected: the
+    next write of the same process (marking the run failed) waited the whole
+    busy timeout. SQLite's own rollback is local and safe here; nothing is
+    done for servers, whose drivers cancel the statement themselves.
+    """
+    if ctx.engine is None or ctx.engine.dialect.name != "sqlite":
+        return
+    cursor = getattr(ctx.execution_context, "cursor", None)   # ctx.cursor is never set
+    dbapi = getattr(cursor, "connection", None)
+    if dbapi is None:
+        return
+    try:
+        dbapi.rollback()
+    except Exception:  # noqa: BLE001 - best effort on the way out; the run is re-done
+        pass
+
+
 def _as_store_error(ctx) -> None:
     """``handle_error`` hook: a database failure becomes one line of our own.
 
@@ -127,8 +153,11 @@ def _as_store_error(ctx) -> None:
     writer) :class:`StoreError`. The transaction has been rolled back.
     """
     orig = ctx.original_exception
-    if not isinstance(orig, Exception) or ctx.sqlalchemy_exception is None:
-        return None             # KeyboardInterrupt and non-database errors pass through
+    if not isinstance(orig, Exception):
+        _release_sqlite_lock(ctx)
+        return None             # KeyboardInterrupt and the like pass through
+    if ctx.sqlalchemy_exception is None:
+        return None             # non-database errors pass through
     lines = str(orig).strip().splitlines()
     text = lines[0] if lines else orig.__class__.__name__
     low = text.lower()

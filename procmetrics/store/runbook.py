@@ -14,6 +14,7 @@ from sqlalchemy import delete, insert, or_, select, update
 from sqlalchemy.engine import Connection, Engine
 
 from procmetrics.store import schema as s
+from procmetrics.store.engine import BUSY_TIMEOUT_MS
 
 
 class RunBook:
@@ -59,10 +60,20 @@ class RunBook:
             ).inserted_primary_key[0])
 
     def fail_run(self, run_id: int, message: str) -> None:
+        """Mark the run failed. Advisory (the next run repairs a run left
+        'running' anyway), so on SQLite it waits at most 2 s for a lock another
+        process holds instead of the full busy timeout: Ctrl-C ends promptly."""
+        sqlite = self.engine.dialect.name == "sqlite"
         with self.engine.begin() as conn:
-            conn.execute(update(s.mining_run).where(s.mining_run.c.run_id == run_id)
-                         .values(status="failed", ended_utc=int(time.time()),
-                                 message=message[:2000]))
+            if sqlite:
+                conn.exec_driver_sql("PRAGMA busy_timeout=2000")
+            try:
+                conn.execute(update(s.mining_run).where(s.mining_run.c.run_id == run_id)
+                             .values(status="failed", ended_utc=int(time.time()),
+                                     message=message[:2000]))
+            finally:
+                if sqlite:
+                    conn.exec_driver_sql(f"PRAGMA busy_timeout={BUSY_TIMEOUT_MS}")
 
     def complete_run(self, run_id: int, repo_id: int, *, tip_hash: str, tip_ref: str,
                      path: str, remote_url: str | None, is_shallow: bool, mapping_kind: str,
