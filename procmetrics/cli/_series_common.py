@@ -8,8 +8,6 @@ import numpy as np
 import pandas as pd
 
 from procmetrics.cli import add_store_argument
-from procmetrics.validate import arg, check_seed
-from procmetrics.resampling import SEED
 
 
 def add_series_arguments(p: argparse.ArgumentParser) -> None:
@@ -33,8 +31,6 @@ def add_series_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("--include-merges", action="store_true", help="count merge commits too")
     p.add_argument("--fix-keywords", action="store_true",
                    help="add fix_ratio_heuristic (subject keywords; flagged as heuristic)")
-    p.add_argument("--seed", type=arg(check_seed, "--seed"), default=SEED,
-                   help="random seed (bootstrap; default the report's)")
     p.add_argument("--out", metavar="DIR", help="write CSV/JSON and PNG+SVG figures here")
 
 

@@ -23,7 +23,6 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    import numpy as np
     import pandas as pd
 
     from procmetrics.analyse.change.changepoints import ChangePointConfig, changes_for_metric
@@ -32,7 +31,6 @@ def run(args: argparse.Namespace) -> int:
     tables, name = common.load(args)
     pm = common.compute(args, tables)
     cfg = ChangePointConfig(c=args.penalty, n_boot=args.boot)
-    rng = np.random.default_rng(args.seed)
     print(f"{name}: change points per {args.period}; {cfg.method.upper()}, c={cfg.c:g}, "
           f"min_size={cfg.min_size}, jump=1, {cfg.n_boot} bootstrap replicates")
     common.print_data_quality(tables, args.metric or DEFAULT)
@@ -40,7 +38,7 @@ def run(args: argparse.Namespace) -> int:
     for sub in pm.table["subsystem"].unique():
         for metric in args.metric or DEFAULT:
             try:
-                r = changes_for_metric(pm.table, metric, sub, config=cfg, rng=rng)
+                r = changes_for_metric(pm.table, metric, sub, config=cfg)
             except InsufficientData as exc:
                 print(f"\n{metric} [{sub}]: not searched ({exc})")
                 continue

@@ -5,7 +5,7 @@ import argparse
 
 from procmetrics.cli import _series_common as common
 from procmetrics.validate import arg, check_count
-from procmetrics.resampling import N_BOOT, N_PERMUTATIONS, analysis_rng
+from procmetrics.resampling import N_BOOT, N_PERMUTATIONS
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -39,7 +39,7 @@ def run(args: argparse.Namespace) -> int:
                          or args.control else None, config=cfg,
                          metrics=tuple(args.metric or DEFAULT_METRICS),
                          control_subsystem=args.control, n_resamples=args.resamples,
-                         n_boot=args.boot, rng=analysis_rng(args.seed, "compare"))
+                         n_boot=args.boot)
     f = common.fmt
     ci = common.ci
     for r in res.its:

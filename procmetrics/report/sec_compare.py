@@ -30,7 +30,7 @@ def _ci(e: Any, fmt: str = "") -> str:
 def run_compare(ctx: BuildContext) -> Any:
     from procmetrics.analyse.measures.metrics import MetricConfig
     from procmetrics.analyse.change.policy import compare_policy
-    from procmetrics.resampling import N_BOOT, N_PERMUTATIONS, SALTS
+    from procmetrics.resampling import N_BOOT, N_PERMUTATIONS
 
     d = ctx.data
     period = ctx.options.period
@@ -41,8 +41,7 @@ def run_compare(ctx: BuildContext) -> Any:
                               subsystems=tuple(ctx.options.subsystems) or None,
                               subsystem_limit=ctx.options.subsystem_limit,
                               subsystem_min_commits=ctx.options.subsystem_min_commits),
-                          alpha=ctx.alpha, n_boot=N_BOOT, n_resamples=N_PERMUTATIONS,
-                          rng=ctx.rng(SALTS["compare"]))
+                          alpha=ctx.alpha, n_boot=N_BOOT, n_resamples=N_PERMUTATIONS)
 
 
 def section_compare(ctx: BuildContext) -> None:

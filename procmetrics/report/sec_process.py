@@ -75,8 +75,7 @@ def section_process(ctx: BuildContext) -> None:
                 continue
             label = "all subsystems" if sub == ALL else f"subsystem “{sub}”"
             cp = ctx.attempt(f"Change points of {metric} ({label})", s, lambda: changes_for_metric(
-                ctx.metrics.table, metric, sub, config=ChangePointConfig(alpha=ctx.alpha),
-                rng=ctx.rng(hash_salt(metric, sub))))
+                ctx.metrics.table, metric, sub, config=ChangePointConfig(alpha=ctx.alpha)))
             tr = ctx.attempt(f"Trend of {metric} ({label})", s,
                              lambda: fit_trend(ctx.metrics.table, metric, sub, alpha=ctx.alpha))
             n = int(rows["denominator"].sum())
@@ -201,9 +200,3 @@ def slug(text: str) -> str:
     s = re.sub(r"[^a-z0-9]+", "-", text.lower()).strip("-")[:40]
     tail = hashlib.sha256(text.encode("utf-8", "surrogatepass")).hexdigest()[:6]
     return f"{s}-{tail}" if s else tail
-
-
-def hash_salt(*parts: str) -> int:
-    import hashlib
-
-    return int(hashlib.sha256("\x00".join(parts).encode()).hexdigest()[:8], 16)

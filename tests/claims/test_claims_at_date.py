@@ -72,8 +72,7 @@ def test_claim_and_before_after_section_fit_the_same_model_with_the_same_numbers
                        period="quarter")
     # the report's call (report/sec_compare.py run_compare), default options
     pc = compare_policy(data["commits"], data["trailers"], at=at, tags=data["tags"],
-                        config=MetricConfig(period="quarter", alpha=0.05), alpha=0.05,
-                        rng=np.random.default_rng(0))
+                        config=MetricConfig(period="quarter", alpha=0.05), alpha=0.05)
     sec = next(r for r in pc.its if r.metric == "review_coverage")
     r, _, _ = its_for_claim(ctx, "review_coverage", at)
     for a, b in ((r.level_change, sec.level_change), (r.slope_change, sec.slope_change),

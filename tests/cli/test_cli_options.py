@@ -30,7 +30,7 @@ def test_report_level_must_lie_in_the_open_unit_interval(level, tmp_path, capsys
 
 
 @pytest.mark.parametrize("argv", [
-    ["series", "--seed", "-1"], ["series", "--seed", "1.5"], ["report", "--out", "x", "--seed", "abc"],
+    ["lifetimes", "--seed", "-1"], ["lifetimes", "--seed", "1.5"], ["report", "--out", "x", "--seed", "abc"],
     ["compare", "--at", "2020-01-01", "--resamples", "0"], ["compare", "--at", "2020-01-01",
                                                             "--boot", "-3"],
     ["changes", "--penalty", "nan"], ["changes", "--boot", "-1"],

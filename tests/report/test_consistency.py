@@ -157,21 +157,30 @@ def _by_seed(capsys, demo: dict, *argv: str) -> list[str]:
             for seed in (1, 2)]
 
 
-def test_headline_before_after_intervals_do_not_move_with_the_seed(demo_report, capsys):
-    """ITS level and slope changes (GLM), share differences (Newcombe), medians and the
-    Hodges-Lehmann shift (order statistics) and Cliff's delta (DeLong, from 200 values a
-    side; the bootstrap it replaced moved in the third digit, -0.0275 vs -0.0278 at 2,000
-    resamples on the demo) are not resampled: two seeds print them alike."""
-    a, b = _by_seed(capsys, demo_report, "compare", "--at", demo_report["policy"])
-
-    def shown(out: str) -> list[str]:
-        keep = []
-        for line in out.splitlines():
-            if re.search(r"level change|slope change|difference|HL shift|Cliff's delta", line):
-                keep.append(line)
-        return keep
-
-    assert shown(a) and shown(a) == shown(b)
+def test_change_point_intervals_and_support_print_alike_in_the_command_and_the_table(
+        demo_report, capsys):
+    """The residual bootstrap of change-point positions draws from a stream keyed by
+    the series (procmetrics.resampling.data_keyed_rng). Before, ``changes`` drew from
+    one stream for all series and the report from one per series, so the same series
+    printed two supports; ``changes`` has no --seed any more."""
+    out = _cli(capsys, "changes", "--store", str(demo_report["store"]))
+    cli = {}
+    metric = None
+    for line in out.splitlines():
+        m = re.match(r"^(\w+) \[\(all\)\]: ", line)
+        if m:
+            metric = m.group(1)
+        m = re.match(r"^\s+from (\S+): position interval (\S+) \.\. (\S+), support (\S+);",
+                     line)
+        if m and metric:
+            cli[(metric, m.group(1))] = (m.group(2), m.group(3), m.group(4))
+    table = {(r["metric"], r["period"]): (r["date_low"], r["date_high"],
+                                          textfmt.number(float(r["support"])))
+             for r in _csv(demo_report, "change-points") if r["subsystem"] == "(all)"}
+    shared = set(cli) & set(table)
+    assert shared and len(shared) == len(table), (cli, table)
+    for k in shared:
+        assert cli[k] == table[k], (k, cli[k], table[k])
 
 
 def test_lifetime_quantile_intervals_do_not_move_with_the_seed(demo_report, capsys):

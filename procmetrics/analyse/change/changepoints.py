@@ -54,6 +54,7 @@ from scipy import stats
 
 from procmetrics.analyse.result import Caveat, Estimate, caveat, to_plain
 from procmetrics.errors import InsufficientData
+from procmetrics.resampling import data_keyed_rng
 
 STATED_FALSE_POSITIVE_RATE = 0.05
 MIN_PERIODS_FOR_STATED_RATE = 24
@@ -226,8 +227,7 @@ def _match(found: list[int], target: int, lo: int, hi: int) -> int | None:
 def detect_changes(y: np.ndarray, *, kind: str, trials: np.ndarray | None = None,
                    labels: list[str] | None = None, dates: list | None = None,
                    metric: str = "", subsystem: str = "",
-                   config: ChangePointConfig = ChangePointConfig(),
-                   rng: np.random.Generator | None = None) -> ChangePointResult:
+                   config: ChangePointConfig = ChangePointConfig()) -> ChangePointResult:
     """Detect changes in the level of a series (see the module docstring).
 
     Parameters
@@ -237,7 +237,10 @@ def detect_changes(y: np.ndarray, *, kind: str, trials: np.ndarray | None = None
     trials : trials per period for proportions.
     labels, dates : period labels and start dates (for reporting).
     config : :class:`ChangePointConfig`.
-    rng : generator for the bootstrap (required when ``config.n_boot > 0``).
+
+    The residual bootstrap of positions draws from a stream keyed by the series
+    itself (:func:`procmetrics.resampling.data_keyed_rng`): one series has one
+    position interval in the CLI, the report and every rerun, whatever the seed.
 
     Raises
     ------
@@ -278,8 +281,7 @@ def detect_changes(y: np.ndarray, *, kind: str, trials: np.ndarray | None = None
     # residual bootstrap of positions
     boot: list[list[int]] = []
     if config.n_boot > 0 and bkps:
-        if rng is None:
-            raise ValueError("pass rng (numpy Generator) for the bootstrap")
+        rng = data_keyed_rng(z, w, [pen], purpose="change-point positions")
         fitted = np.concatenate([np.full(b - a, m) for a, b, *_, m in segs])
         e = (z - fitted) * np.sqrt(w)
         e = e - e.mean()
@@ -362,8 +364,7 @@ def _caveats(changes, penalty_path, band, n, config) -> list[Caveat]:
 
 def changes_for_metric(table: pd.DataFrame, metric: str, subsystem: str = "(all)", *,
                        kind: str | None = None,
-                       config: ChangePointConfig = ChangePointConfig(),
-                       rng: np.random.Generator | None = None) -> ChangePointResult:
+                       config: ChangePointConfig = ChangePointConfig()) -> ChangePointResult:
     """:func:`detect_changes` on one series of the tidy metric table.
 
     Proportions use numerator/denominator (empty periods dropped), counts the
@@ -377,4 +378,4 @@ def changes_for_metric(table: pd.DataFrame, metric: str, subsystem: str = "(all)
     trials = s["denominator"].to_numpy(float) if kind == "proportion" else None
     return detect_changes(y, kind=kind, trials=trials, labels=list(s["period"]),
                           dates=list(s["period_start"]), metric=metric, subsystem=subsystem,
-                          config=config, rng=rng)
+                          config=config)

@@ -25,7 +25,6 @@ from __future__ import annotations
 from dataclasses import dataclass, field, replace
 from typing import Any
 
-import numpy as np
 import pandas as pd
 
 from procmetrics.analyse.change.changepoints import ChangePointConfig, changes_for_metric
@@ -90,8 +89,7 @@ def compare_policy(commits: pd.DataFrame, trailers: pd.DataFrame, *, at: pd.Time
                    control_subsystem: str | None = None, alpha: float = 0.05,
                    n_resamples: int = 999, n_boot: int = 1000,
                    cp_config: ChangePointConfig = ChangePointConfig(n_boot=100),
-                   tolerance_periods: int = 2,
-                   rng: np.random.Generator) -> PolicyComparison:
+                   tolerance_periods: int = 2) -> PolicyComparison:
     """Run every before/after comparison for the date ``at`` (see the module docstring).
 
     Analyses that the data cannot support (too few periods on a side) are
@@ -156,7 +154,7 @@ def compare_policy(commits: pd.DataFrame, trailers: pd.DataFrame, *, at: pd.Time
         try:
             dists.append(compare_distributions(before[col], after[col], quantity=label,
                                                alpha=alpha, n_resamples=n_resamples,
-                                               n_boot=n_boot, rng=rng))
+                                               n_boot=n_boot))
         except InsufficientData as exc:
             skipped.append(f"distribution {label}: {exc}")
     props = []
@@ -175,7 +173,7 @@ def compare_policy(commits: pd.DataFrame, trailers: pd.DataFrame, *, at: pd.Time
     cps = []
     for m in metrics:
         try:
-            cp = changes_for_metric(table, m, config=cp_config, rng=rng)
+            cp = changes_for_metric(table, m, config=cp_config)
         except InsufficientData as exc:
             skipped.append(f"change points {m}: {exc}")
             continue

@@ -47,6 +47,7 @@ from scipy import stats
 from procmetrics.analyse.measures import intervals as iv
 from procmetrics.analyse.result import Caveat, Estimate, caveat, to_plain
 from procmetrics.errors import InsufficientData
+from procmetrics.resampling import data_keyed_rng
 
 MIN_PER_SIDE = 10
 NEGLIGIBLE, SMALL, MEDIUM = 0.147, 0.33, 0.474
@@ -235,7 +236,7 @@ def magnitude(delta: float) -> str:
 def compare_distributions(a, b, *, quantity: str = "value", label_a: str = "before",
                           label_b: str = "after", alpha: float = 0.05,
                           n_resamples: int = 999, n_boot: int = 1000,
-                          rng: np.random.Generator) -> DistributionComparison:
+                          ) -> DistributionComparison:
     """Compare two samples as distributions (see the module docstring).
 
     Parameters
@@ -244,7 +245,10 @@ def compare_distributions(a, b, *, quantity: str = "value", label_a: str = "befo
     alpha : 1 - interval level and test level.
     n_resamples : permutations for the Anderson-Darling p-value.
     n_boot : bootstrap replicates for Cliff's delta and the median difference.
-    rng : numpy Generator (all resampling draws from it).
+
+    Every resampling (permutations, bootstraps) draws from one stream keyed by the
+    two samples (:func:`procmetrics.resampling.data_keyed_rng`): the same samples
+    give the same p-value and intervals in the CLI, the report and every rerun.
 
     Raises
     ------
@@ -267,6 +271,7 @@ def compare_distributions(a, b, *, quantity: str = "value", label_a: str = "befo
         raise InsufficientData(f"{quantity}: all {m + n} values are equal ({a[0]:g}); "
                                "no distribution to compare")
     level = 1 - alpha
+    rng = data_keyed_rng(a, [np.nan], b, purpose="two-sample comparison")
     mw = stats.mannwhitneyu(b, a, alternative="two-sided")
     ks = stats.ks_2samp(a, b)
     large = min(m, n) > LARGE_SAMPLE

@@ -39,6 +39,7 @@ from procmetrics.analyse.lifetimes.quantiles import (
 )
 from procmetrics.analyse.result import Caveat, caveat, to_plain
 from procmetrics.errors import InsufficientData
+from procmetrics.resampling import data_keyed_rng
 
 CURVE_COLUMNS = ["time", "survival", "low", "high", "at_risk", "events", "shown"]
 
@@ -245,18 +246,6 @@ def _lb_cut(x: np.ndarray, W: np.ndarray, min_at_risk: int) -> float | None:
     s = np.unique(x)
     R = np.searchsorted(np.sort(x), s, side="right") - np.searchsorted(np.sort(W), s, side="left")
     return support_cut(s, R, min_at_risk) if (R >= min_at_risk).any() else float(s[0])
-
-
-def data_keyed_rng(*arrays: Any) -> np.random.Generator:
-    """A generator seeded by the bytes of ``arrays`` (None entries skipped): the same data
-    always draw the same resamples, independent of any seed or call order."""
-    import hashlib
-
-    h = hashlib.sha256()
-    for a in arrays:
-        if a is not None:
-            h.update(np.ascontiguousarray(np.asarray(a, float)).tobytes())
-    return np.random.default_rng(int.from_bytes(h.digest()[:16], "big"))
 
 
 def quantile_estimates(lifetimes: Any, windows: Any | None = None, *,
