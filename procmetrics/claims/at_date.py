@@ -37,7 +37,6 @@ from dataclasses import replace
 from typing import Any, Sequence
 
 import pandas as pd
-from scipy import stats
 
 from procmetrics.claims import base as cl
 from procmetrics.claims.base import Claim, ClaimContext, ClaimVerdict, KindSpec, Param, Undecidable
@@ -74,7 +73,7 @@ SPECS: dict[str, KindSpec] = {
 
 def its_for_claim(ctx: ClaimContext, metric: str, at: pd.Timestamp, *,
                   subsystem: str | None = None, control: str | None = None,
-                  level: float = 0.95) -> tuple[Any, pd.DataFrame, Any | None]:
+                  level: float = 0.95) -> tuple[Any, pd.DataFrame]:
     """The before/after section's segmented fit of one share at ``at``.
 
     The same call as :func:`~procmetrics.analyse.change.policy.compare_policy`
@@ -83,8 +82,9 @@ def its_for_claim(ctx: ClaimContext, metric: str, at: pd.Timestamp, *,
     ``at`` (``ctx.period``, committer dates, default review keys), then
     :func:`~procmetrics.analyse.change.its.interrupted_time_series` with
     ``alpha = 1 - level`` and the default dispersion threshold and HAC rule.
-    Returns the result, the series it was fitted on and the
-    :func:`model_based_refit` the verdict also consults (:func:`decision_interval`).
+    Returns the result and the series it was fitted on; the level change's
+    guarded interval (see :mod:`procmetrics.analyse.change.its`) is the one the
+    section prints and the one the verdict uses.
     """
     from procmetrics.analyse.measures.metrics import MetricConfig, compute_period_metrics
 
@@ -97,7 +97,7 @@ def its_for_claim(ctx: ClaimContext, metric: str, at: pd.Timestamp, *,
         split_at=at, extra_subsystems=named)
     r, series = its_on_table(pm.table, metric, at, subsystem=subsystem, control=control,
                              level=level, placebo_shifts=ctx.placebo_shifts)
-    return r, series, model_based_refit(pm.table, r, level)
+    return r, series
 
 
 def its_on_table(table: pd.DataFrame, metric: str, at: pd.Timestamp, *,
@@ -114,76 +114,6 @@ def its_on_table(table: pd.DataFrame, metric: str, at: pd.Timestamp, *,
                                   control_subsystem=control, alpha=round(1.0 - level, 10),
                                   placebo_shifts=placebo_shifts)
     return res, select_series(table, metric, series)
-
-
-def model_based_refit(table: pd.DataFrame, r: Any, level: float = 0.95) -> Any:
-    """The same segmented fit, model-based errors with any overdispersion allowed for.
-
-    The same function as the section with ``dispersion_threshold=1`` (quasi-
-    binomial whenever the Pearson dispersion exceeds 1) and ``hac="never"``.
-    See :func:`decision_interval` for why a verdict needs it.
-    """
-    from procmetrics.analyse.change.its import interrupted_time_series
-
-    return interrupted_time_series(table, r.metric, r.at, subsystem=r.subsystem,
-                                   control_subsystem=r.control_subsystem,
-                                   alpha=round(1.0 - level, 10), placebo_shifts=0,
-                                   dispersion_threshold=1.0, hac="never")
-
-
-def decision_interval(r: Any, refit: Any | None) -> tuple[Estimate, str]:
-    """The interval a verdict uses: the widest of the section's and the refit's.
-
-    The point estimate is the section's (the fits differ only in their
-    standard errors). Three departures of the section's interval from what a
-    one-sided test at alpha/2 needs were measured in simulated 48-month series
-    with a trend and no step (``tests/claims/test_calibration_at_date.py``):
-
-    * the section keeps the plain binomial model up to a Pearson dispersion of
-      1.5, so mild overdispersion goes unnoticed (dispersion about 1.4: a false
-      "rose at the date" in 20 of 400 series, 0.050, against 0.025);
-    * Newey-West errors, switched on when the Ljung-Box test flags the
-      residuals, are too small in short series (a false rise in 7 of 78 such
-      series, 0.09);
-    * a quasi-binomial scale is estimated from ``periods - 4`` degrees of
-      freedom, so its interval uses Student's t quantile, not the normal one.
-
-    The verdict therefore takes the widest of: the section's interval and the
-    model-based quasi-binomial refit (:func:`model_based_refit`), each with
-    the t quantile when its scale is estimated. Returns the estimate and a
-    sentence saying which interval decided (empty when the section's did, as
-    printed).
-    """
-    lv = r.level_change
-    if lv.value is None or lv.low is None or lv.high is None:
-        return lv, ""
-    z = float(stats.norm.ppf(0.5 + lv.level / 2))
-    df = max(r.n_before + r.n_after - 4, 1)
-    t = float(stats.t.ppf(0.5 + lv.level / 2, df))
-    cands = []
-    for name, fit in (("section", r), ("refit", refit)):
-        if fit is None or fit.level_change.low is None:
-            continue
-        e = fit.level_change
-        half = (e.high - e.low) / 2 * (t / z if fit.model.startswith("quasi") else 1.0)
-        cands.append((half, name, fit))
-    half, name, fit = max(cands, key=lambda c: c[0])
-    est = Estimate(lv.name, lv.value, lv.value - half, lv.value + half, lv.level,
-                   f"{fit.model}; {fit.cov_type} SE"
-                   + (f"; t quantile, {df} df" if fit.model.startswith("quasi") else ""),
-                   lv.n, lv.unit)
-    if name == "section" and abs(half - (lv.high - lv.low) / 2) < 1e-12:
-        return est, ""
-    phi = next((d.value for d in r.diagnostics if d.name == "dispersion"), float("nan"))
-    why = []
-    if r.cov_type.startswith("HAC"):
-        why.append("Newey-West errors are too small in short series")
-    if fit.model.startswith("quasi"):
-        why.append(f"the Pearson dispersion is {phi:.2f} and the scale is estimated from "
-                   f"{df} degrees of freedom (t quantile)")
-    return est, ("the verdict uses the widest interval of the section's fit and a "
-                 "model-based quasi-binomial refit, " + _ci(est) + f" {lv.unit}"
-                 + (" (" + "; ".join(why) + ")" if why else ""))
 
 
 def _refs(metric: str, subsystem: str | None) -> tuple[str, ...]:
@@ -209,25 +139,24 @@ def eval_change_at_date(claim: Claim, ctx: ClaimContext, direction: str) -> Clai
     at = cl.resolve_date(p["date"], ctx, "date")
     sub, control = p.get("subsystem"), p.get("control")
     try:
-        r, s, refit = its_for_claim(ctx, metric, at, subsystem=sub, control=control,
+        r, s = its_for_claim(ctx, metric, at, subsystem=sub, control=control,
                                     level=claim.level)
     except InsufficientData as exc:
         raise Undecidable(f"the segmented model cannot be fitted: {exc}") from exc
     return judge_change_at_date(claim, r, s, up=direction == "up", period=ctx.period,
-                                min_n=ctx.min_n, caveats=adoption_caveat(ctx, metric),
-                                refit=refit)
+                                min_n=ctx.min_n, caveats=adoption_caveat(ctx, metric))
 
 
 def judge_change_at_date(claim: Claim, r: Any, s: pd.DataFrame, *, up: bool,
                          period: str = "quarter", min_n: int = 20,
-                         caveats: Sequence[Caveat] = (), refit: Any | None = None
+                         caveats: Sequence[Caveat] = ()
                          ) -> ClaimVerdict:
     """The verdict from a segmented fit ``r`` (an ``ITSResult``) of the series ``s``.
 
     Supported only when the whole interval of the level change lies on the
     claimed side of 0; see the module docstring. The interval is
-    :func:`decision_interval` of ``r`` and ``refit``; ``r``'s numbers are shown
-    beside it, as the section shows them.
+    ``r.level_change``: the guarded interval the before/after section prints too
+    (:mod:`procmetrics.analyse.change.its`), so claim and section read alike.
     """
     metric, at, control = r.metric, r.at, r.control_subsystem
     sub = None if r.subsystem == "(all)" else r.subsystem
@@ -241,7 +170,7 @@ def judge_change_at_date(claim: Claim, r: Any, s: pd.DataFrame, *, up: bool,
                               f"(at least {min_n} are needed)")
     x_b, x_a = float(s.loc[~post, "numerator"].sum()), float(s.loc[post, "numerator"].sum())
     lv, sl, pre = r.level_change, r.slope_change, r.pre_slope
-    dec, why = decision_interval(r, refit)
+    dec, why = lv, r.guard_note
     est = Estimate(f"level change of {words} at {at:%Y-%m-%d} beyond the pre-date trend",
                    dec.value, dec.low, dec.high, dec.level, dec.method, dec.n, dec.unit)
     extra = [f"{words}: {pct(x_b / n_b)} of {n_b:,} commits in the {r.n_before} "
@@ -251,7 +180,7 @@ def judge_change_at_date(claim: Claim, r: Any, s: pd.DataFrame, *, up: bool,
              f"pre-date trend {_ci(pre)} {pre.unit}; slope change at the date {_ci(sl)} "
              f"{sl.unit} (evidence only: the level change decides)"]
     if why:
-        extra.append(f"the before/after section shows {_ci(lv)} {lv.unit}; {why}")
+        extra.append(why)
     if r.level_ratio is not None and lv.value is not None:
         extra.append(f"odds ratio at the date {_ci(r.level_ratio, '.3g')}")
     if r.placebo_p_level is not None:
@@ -262,10 +191,10 @@ def judge_change_at_date(claim: Claim, r: Any, s: pd.DataFrame, *, up: bool,
                      f"{_ci(r.control_level_change)} {lv.unit}")
     cav = list(r.caveats) + list(caveats)
     one_p = None
-    if dec.value is not None and dec.high > dec.low:
-        zq = float(stats.norm.ppf(0.5 + dec.level / 2))
-        zz = dec.value / ((dec.high - dec.low) / (2 * zq))
-        one_p = float(stats.norm.sf(zz if up else -zz))
+    if dec.value is not None and r.level_p_value is not None:
+        # one-sided from the two-sided p of the interval shown (same quantile, t or normal)
+        on_side = (dec.value > 0) == up
+        one_p = r.level_p_value / 2 if on_side else 1 - r.level_p_value / 2
     v = cl.decide(claim, est, side="above" if up else "below", threshold=0.0,
                   what=f"level change at the date beyond the pre-date trend ({lv.unit})",
                   method=f"{ITS_METHOD}; decided on: {dec.method}", n=r.n,

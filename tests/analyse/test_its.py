@@ -119,7 +119,7 @@ def test_level_and_slope_change_equal_a_direct_statsmodels_fit():
     # table itself: period midpoints in years from the date.
     import statsmodels.api as sm
     table = _table(1, 0.4, 0.7)
-    r = interrupted_time_series(table, "review_coverage", AT)
+    r = interrupted_time_series(table, "review_coverage", AT, guard=False)
     assert r.cov_type == "nonrobust" and "quasi" not in r.model   # plain binomial here
     s = table[(table.metric == "review_coverage") & (table.subsystem == "(all)")]
     s = s[(s.period_end <= AT) | (s.period_start >= AT)].sort_values("period_start")
@@ -134,3 +134,39 @@ def test_level_and_slope_change_equal_a_direct_statsmodels_fit():
     assert r.level_change.value == pytest.approx(ref.params[2], rel=1e-3)
     assert (r.level_change.low, r.level_change.high) == pytest.approx(tuple(ci[2]), rel=1e-2)
     assert r.slope_change.value == pytest.approx(ref.params[3], rel=1e-2)
+
+
+def test_guarded_interval_is_the_wider_of_the_binomial_and_the_quasi_binomial_fit():
+    """Oracle: two statsmodels GLMs on the same design, the binomial one (normal
+    quantile) and the quasi-binomial one (scale = Pearson X2/df, Student t quantile on
+    periods - 4 df, as the verdicts need): the level change's printed interval is the
+    wider of the two around the binomial estimate, and its p-value comes from it."""
+    import statsmodels.api as sm
+    from scipy import stats
+
+    table = _table(1, 0.4, 0.7)
+    r = interrupted_time_series(table, "review_coverage", AT)
+    s = table[(table.metric == "review_coverage") & (table.subsystem == "(all)")]
+    s = s[(s.period_end <= AT) | (s.period_start >= AT)].sort_values("period_start")
+    X = np.column_stack([np.ones(len(s)), r.fitted["time_years"].to_numpy(),
+                         r.fitted["post"].to_numpy(float),
+                         r.fitted["post"].to_numpy(float) * r.fitted["time_years"].to_numpy()])
+    y, n = s.numerator.to_numpy(), s.denominator.to_numpy()
+    endog = np.column_stack([y, n - y])
+    plain = sm.GLM(endog, X, family=sm.families.Binomial()).fit()
+    phi = plain.pearson_chi2 / plain.df_resid
+    z = stats.norm.ppf(0.975)
+    half = z * plain.bse[2]
+    if phi > 1:
+        t = stats.t.ppf(0.975, len(s) - 4)
+        half = max(half, t * plain.bse[2] * np.sqrt(phi))
+    assert r.level_change.value == pytest.approx(plain.params[2], rel=1e-6)
+    assert (r.level_change.low, r.level_change.high) == pytest.approx(
+        (plain.params[2] - half, plain.params[2] + half), rel=1e-3)
+    own = interrupted_time_series(table, "review_coverage", AT, guard=False).level_change
+    assert r.level_change.high - r.level_change.low >= own.high - own.low
+    if phi > 1:
+        se = half / t
+        assert r.level_p_value == pytest.approx(
+            2 * stats.t.sf(abs(plain.params[2]) / se, len(s) - 4), rel=1e-3)
+        assert "refit" in r.level_change.method and r.guard_note

@@ -17,11 +17,11 @@ printed line.
 Measured while building this (other seeds, for the record): trend, no step,
 1,000 replicates: 25 supported (0.025, MC interval 0.016-0.037). Beta-binomial
 months, dispersion about 3.4 (rho = 0.02): 20 of 600 (0.033, 0.020-0.051) with
-the section's interval, 19 of 1,000 (0.019, 0.011-0.030) with the interval the
-verdict now uses (:func:`~procmetrics.claims.at_date.decision_interval`: the
-widest of the section's and a model-based quasi-binomial refit, t quantile).
-Dispersion about 1.4 (rho = 0.003, below the section's switch to quasi-binomial
-at 1.5): 20 of 400 (0.050, 0.031-0.076) with the section's binomial interval,
+the fit's own interval, 19 of 1,000 (0.019, 0.011-0.030) with the guarded interval
+that the section and the verdict now share (:mod:`procmetrics.analyse.change.its`: the
+widest of the fit's own and a model-based quasi-binomial refit, t quantile).
+Dispersion about 1.4 (rho = 0.003, below the fit's switch to quasi-binomial
+at 1.5): 20 of 400 (0.050, 0.031-0.076) with the fit's own binomial interval,
 14 of 400 (0.035, 0.019-0.058) with the quasi-binomial refit alone.
 """
 from __future__ import annotations
@@ -30,7 +30,7 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from procmetrics.claims.at_date import model_based_refit, its_on_table, judge_change_at_date
+from procmetrics.claims.at_date import its_on_table, judge_change_at_date
 from procmetrics.claims.base import SUPPORTED, Claim, Undecidable
 from tests.claims.sim import rate_line, share_table
 
@@ -49,7 +49,7 @@ def _rate(seed: int, reps: int, claim: Claim, **kw) -> int:
         r, s = its_on_table(table, "review_coverage", at, placebo_shifts=0)
         try:
             v = judge_change_at_date(claim, r, s, up=claim.kind == "rose_after",
-                                     period="month", refit=model_based_refit(table, r))
+                                     period="month")
         except Undecidable:
             continue
         k += v.verdict == SUPPORTED

@@ -134,7 +134,7 @@ def compare_policy(commits: pd.DataFrame, trailers: pd.DataFrame, *, at: pd.Time
                 skipped.append(f"ITS {m} [{s}]: level change not estimable (a share of 0 "
                                "or 1, or no events, on one side of the date)")
                 continue
-            p = float(r.fit.params.set_index("term").loc["post", "p_value"])
+            p = r.level_p_value     # from the interval shown (guarded, same quantile)
             rows.append((s, m, r.level_change.value, r.level_change.low, r.level_change.high,
                          p, r.n_before, r.n_after))
     sub = pd.DataFrame(rows, columns=["subsystem", "metric", "level_change", "ci_low",
