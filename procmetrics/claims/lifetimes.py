@@ -158,6 +158,32 @@ def eval_lifetimes_shorter(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
                          subsystem=p.get("subsystem"), min_n=ctx.min_n)
 
 
+def horizon_cohort(table, date: pd.Timestamp, *, horizon: float | None = None,
+                   subsystem: str | None = None, min_n: int = 20):
+    """The defects a before/after lifetime claim compares: introduced at least H
+    before the end and fixed within H (H = ``horizon`` or min(365, half the time from
+    the date to the end)), with ``after`` = introduced on or after ``date``. Returns
+    the rows, the cohort (its population text and exclusion counts) and H;
+    :class:`Undecidable` with fewer than ``min_n`` on a side."""
+    from procmetrics.analyse.lifetimes.analysis import restrict_to_horizon
+
+    end = table.end_date
+    if pd.isna(end) or date >= end:
+        raise Undecidable(f"the history ends before {date:%Y-%m-%d}")
+    horizon = float(horizon or min(365.0, (end - date).days / 2))
+    cohort = restrict_to_horizon(table.defects, horizon)
+    d = cohort.defects
+    if subsystem:
+        d = d[d["subsystems"].str.split(";").apply(lambda s: subsystem in s)]
+    d = d.assign(after=(d["intro_date"] >= date).astype(float))
+    n_b, n_a = int((d["after"] == 0).sum()), int((d["after"] == 1).sum())
+    if min(n_a, n_b) < min_n:
+        raise Undecidable(f"within a common follow-up of {horizon:.0f} days there are {n_b} "
+                          f"defects introduced before and {n_a} after {date:%Y-%m-%d} "
+                          f"(at least {min_n} each are needed)")
+    return d, cohort, horizon
+
+
 def judge_shorter(claim: Claim, table, date: pd.Timestamp, *, horizon: float | None = None,
                   subsystem: str | None = None, min_n: int = 20) -> ClaimVerdict:
     """Shorter lifetimes after ``date``, one-sided, on a common follow-up horizon H.
@@ -183,24 +209,12 @@ def judge_shorter(claim: Claim, table, date: pd.Timestamp, *, horizon: float | N
     Kalbfleisch & Lawless (1989) (a common observation window under right
     truncation).
     """
-    from procmetrics.analyse.lifetimes.analysis import restrict_to_horizon
     from procmetrics.analyse.lifetimes.cox import fit_cox
     from procmetrics.analyse.lifetimes.rmst import rmst_difference
 
-    end = table.end_date
-    if pd.isna(end) or date >= end:
-        raise Undecidable(f"the history ends before {date:%Y-%m-%d}")
-    horizon = float(horizon or min(365.0, (end - date).days / 2))
-    cohort = restrict_to_horizon(table.defects, horizon)
-    d = cohort.defects
-    if subsystem:
-        d = d[d["subsystems"].str.split(";").apply(lambda s: subsystem in s)]
-    d = d.assign(after=(d["intro_date"] >= date).astype(float))
+    d, cohort, horizon = horizon_cohort(table, date, horizon=horizon, subsystem=subsystem,
+                                        min_n=min_n)
     n_b, n_a = int((d["after"] == 0).sum()), int((d["after"] == 1).sum())
-    if min(n_a, n_b) < min_n:
-        raise Undecidable(f"within a common follow-up of {horizon:.0f} days there are {n_b} "
-                          f"defects introduced before and {n_a} after {date:%Y-%m-%d} "
-                          f"(at least {min_n} each are needed)")
     before = d.loc[d["after"] == 0, "lifetime"].to_numpy(float)
     after = d.loc[d["after"] == 1, "lifetime"].to_numpy(float)
     rm = rmst_difference(before, after, horizon=horizon, level=claim.level)

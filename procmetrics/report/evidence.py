@@ -265,6 +265,7 @@ def claim_pack(claim: Any, cctx: Any, verdict: dict[str, Any]) -> ClaimPack:
     kind = claim.kind
     makers = {**{k: _shares for k in SHARE_KINDS}, **{k: _trend for k in TREND_KINDS},
               "median_lifetime_below": _lifetimes, "lifetimes_shorter_after": _lifetimes,
+              "lifetimes_shortened_at": _lifetimes,
               "fix_rate_declining": _growth}
     maker = makers.get(kind)
     if maker is None:

@@ -167,18 +167,22 @@ def lifetime_history(rng: np.random.Generator, *, n_visible: int, median_before:
 
 
 def defect_table(rng: np.random.Generator, *, n_visible: int, median_before: float = 120.0,
-                 factor_after: float = 1.0, sigma: float = 1.0, years: float = 10.0):
+                 factor_after: float = 1.0, sigma: float = 1.0, years: float = 10.0,
+                 trend_per_year: float = 0.0):
     """The defect table :func:`lifetime_history` would give after ``build_defects``,
     drawn directly (fast), with dates at whole days (lifetimes in whole days, ties
-    broken by Efron's method in the Cox fit). Returns the table and the change date."""
+    broken by Efron's method in the Cox fit). ``trend_per_year``: a steady change of
+    the log median with the introduction date, as in :func:`lifetime_history`.
+    Returns the table and the change date."""
     from procmetrics.analyse.lifetimes.defects import DEFECT_COLUMNS, DefectTable
 
     T = np.floor(years * 365.25)
     date_day = np.floor(T / 2)
-    vis = _visible_share(rng, T, date_day, median_before, factor_after, sigma)
+    vis = _visible_share(rng, T, date_day, median_before, factor_after, sigma, trend_per_year)
     n = rng.poisson(n_visible / vis)
     u = np.floor(rng.uniform(0, T, n))
     life = np.ceil(np.exp(np.log(median_before * np.where(u >= date_day, factor_after, 1.0))
+                          + trend_per_year * (u - date_day) / 365.25
                           + sigma * rng.standard_normal(n)))
     keep = u + life <= T
     u, life = u[keep], life[keep]
@@ -194,8 +198,10 @@ def defect_table(rng: np.random.Generator, *, n_visible: int, median_before: flo
     return table, START + pd.to_timedelta(date_day, "D")
 
 
-def _visible_share(rng, T, date_day, median_before, factor_after, sigma) -> float:
+def _visible_share(rng, T, date_day, median_before, factor_after, sigma,
+                   trend_per_year=0.0) -> float:
     u0 = rng.uniform(0, T, 20000)
     l0 = np.exp(np.log(median_before * np.where(u0 >= date_day, factor_after, 1.0))
+                + trend_per_year * (u0 - date_day) / 365.25
                 + sigma * rng.standard_normal(20000))
     return float(np.mean(u0 + l0 <= T))
