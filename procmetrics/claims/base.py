@@ -147,7 +147,9 @@ class ClaimContext:
     #: only, they never change a verdict (simulations set 0 to run faster)
     placebo_shifts: int = 8
     #: analysis choices the robustness panel varies (claims/robustness.py); the
-    #: defaults are the report's: committer dates, link era from the first linked fix
+    #: defaults are the report's: committer dates; "first_link" lets each kind use its
+    #: own default era (growth and the median: settled; before/after comparisons: the
+    #: first linked fix); a date replaces it (the growth claim) or moves it later
     date_basis: str = "committer"
     links_from: Any = "first_link"
     #: per-upstream-fix carry-over table of a tree mined with an upstream reference

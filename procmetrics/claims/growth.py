@@ -30,7 +30,7 @@ def _utc(x: Any) -> pd.Timestamp:
 
 
 def fix_event_times(fix_links: pd.DataFrame, commits: pd.DataFrame, *,
-                    links_from: Any = "first_link", after: Any = None, before: Any = None,
+                    links_from: Any = "settled", after: Any = None, before: Any = None,
                     commit_subsystems: pd.DataFrame | None = None, subsystem: str | None = None,
                     after_tag: str | None = None, tags: pd.DataFrame | None = None,
                     tag_containment: pd.DataFrame | None = None, batch_hours: float = 0.0,
@@ -40,8 +40,12 @@ def fix_event_times(fix_links: pd.DataFrame, commits: pd.DataFrame, *,
 
     Every defect with a resolved ``Fixes:`` link counts, whatever its introducer's
     age (``build_defects(links_from=None)``); observation starts at the link era:
-    ``links_from="first_link"`` (default) = the first linked fix, which starts the
-    clock and is not counted; a date; or None = the first commit of the history.
+    ``links_from="settled"`` (default) = the month from which ``Fixes:`` linking has
+    settled (:mod:`procmetrics.analyse.lifetimes.linkera`, the rule of the lifetime
+    median: while linking is still being adopted, fix counts rise with the habit and
+    not with the defects, which reads as a rising fix rate); ``"first_link"`` = the
+    first linked fix, which starts the clock and is not counted; a date; or None =
+    the first commit of the history.
     ``after``/``before`` narrow the window (a claim's); ``basis`` is the clock
     (committer or author dates). The events are chosen by
     :func:`procmetrics.analyse.growth.analysis.select_fix_times`; its
@@ -55,6 +59,11 @@ def fix_event_times(fix_links: pd.DataFrame, commits: pd.DataFrame, *,
     d = table.defects
     if links_from is None:
         origin = commits[f"{basis}_date"].min() if len(commits) else None
+    elif links_from == "settled":
+        origin = build_defects(fix_links, basis=basis, commits=commits,
+                               links_from="settled").links_from
+        if origin is None or pd.isna(origin):
+            origin = d["fix_date"].min() if len(d) else None
     elif isinstance(links_from, str):
         origin = d["fix_date"].min() if len(d) else None
     else:
@@ -69,14 +78,23 @@ def fix_event_times(fix_links: pd.DataFrame, commits: pd.DataFrame, *,
                             batch_hours=batch_hours)
 
 
+def claim_fix_events(claim: Claim, ctx: ClaimContext):
+    """The fix events a ``fix_rate_declining`` claim counts (its verdict and its
+    evidence rows call this one function): the settled link era, as the growth command
+    and the report; a start date in the context (the robustness panel's: the first
+    linked fix, or a year after it) replaces it; the claim's window narrows it."""
+    after, before = window(ctx, claim.params)
+    start = ctx.links_from if isinstance(ctx.links_from, pd.Timestamp) else "settled"
+    return fix_event_times(ctx.fix_links, ctx.commits, links_from=start,
+                           after=after, before=before, basis=ctx.date_basis)
+
+
 def eval_fix_rate(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
     from procmetrics.analyse.growth.analysis import FIX_EVENTS_DEFINITION
     from procmetrics.analyse.growth.nhpp import fit_power_law
     from procmetrics.analyse.growth.trendtests import trend_tests
 
-    after, before = window(ctx, claim.params)
-    ft = fix_event_times(ctx.fix_links, ctx.commits, links_from=ctx.links_from,
-                         after=after, before=before, basis=ctx.date_basis)
+    ft = claim_fix_events(claim, ctx)
     t = ft.times
     if len(t) < ctx.min_n:
         raise Undecidable(f"only {len(t)} fix events in the window "

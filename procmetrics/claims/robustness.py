@@ -41,8 +41,10 @@ PANEL: tuple[tuple[str, str], ...] = (
     ("period", "month and quarter (per-period models of shares, trends, before/after)"),
     ("date basis", "committer dates and author dates (windows, periods, fix times)"),
     ("lifetime horizon", "the claim's follow-up horizon ×0.5 and ×2 (lifetime comparisons)"),
-    ("link era start", f"the first linked fix, and {LATER_LINK_ERA_DAYS} days later, when "
-                       "linking has settled (fix-event and defect selections)"),
+    ("link era start", f"the first linked fix, and {LATER_LINK_ERA_DAYS} days after it "
+                       "(fix-event and defect selections; the growth and median claims "
+                       "start by default where linking has settled, and the median never "
+                       "starts earlier than that)"),
     ("change-point penalty", "not used by any claim kind of this version (change points "
                              "inform the report's before/after section only)"),
 )
@@ -137,6 +139,8 @@ def variants(ctx: ClaimContext) -> list[Variant]:
                            lambda c, x, f=f: _horizon(c, x, f)))
     first = _first_link(ctx)
     if first is not None:
+        out.append(Variant("link era start", f"{first:%Y-%m-%d} (the first linked fix)",
+                           lambda c, x, t=first: (c, replace(x, links_from=t))))
         later = first + pd.Timedelta(days=LATER_LINK_ERA_DAYS)
         out.append(Variant("link era start", f"{later:%Y-%m-%d} ({LATER_LINK_ERA_DAYS} days "
                            "after the first linked fix)",

@@ -19,10 +19,11 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--subsystem", metavar="NAME", help="only defects introduced in this subsystem")
     p.add_argument("--after-tag", metavar="TAG", help="only defects shipped in release TAG, "
                    "fixed after the tag (time counted from the tag)")
-    p.add_argument("--links-from", metavar="DATE|first|all", default="first",
-                   help="start of observation: 'first' (default) = the first linked fix "
-                   "(it starts the clock and is not counted), a DATE, or 'all' = the first "
-                   "commit of the history")
+    p.add_argument("--links-from", metavar="DATE|settled|first|all", default="settled",
+                   help="start of observation: 'settled' (default) = the month from which "
+                   "Fixes: linking has settled (as lifetimes), 'first' = the first linked "
+                   "fix (it starts the clock and is not counted), a DATE, tag or commit, or "
+                   "'all' = the first commit of the history")
     p.add_argument("--batch-hours", type=arg(check_nonnegative, "--batch-hours"), default=0.0, metavar="H",
                    help="count fixing commits within H hours of each other as one fix event "
                    "(patch series applied together; default 0: every commit)")
@@ -52,7 +53,7 @@ def run(args: argparse.Namespace) -> int:
                            [args.after_tag])
     # the same selection as the report's growth section and the fix_rate_declining claim
     ft = fix_event_times(tables["fix_links"], tables["commits"],
-                         links_from=links_from(args.links_from),
+                         links_from=links_from(args.links_from, tables),
                          commit_subsystems=tables["commit_subsystems"],
                          subsystem=args.subsystem, after_tag=args.after_tag,
                          tags=tables["tags"], tag_containment=cont,

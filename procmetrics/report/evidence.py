@@ -234,12 +234,9 @@ def _links(pack: ClaimPack, cctx: Any, hashes: pd.Series | None = None) -> None:
 def _growth(pack: ClaimPack, claim: Any, cctx: Any) -> None:
     """The fix events the claim counted, by the claim's own selection (one call), and
     every other commit with a resolved fix link with the reason it is not an event."""
-    from procmetrics.claims.common import window
-    from procmetrics.claims.growth import fix_event_times
+    from procmetrics.claims.growth import claim_fix_events
 
-    after, before = window(cctx, claim.params)
-    ft = fix_event_times(cctx.fix_links, cctx.commits, links_from=cctx.links_from,
-                         after=after, before=before, basis=cctx.date_basis)
+    ft = claim_fix_events(claim, cctx)
     events = set(ft.events["fix_hash"].astype(str))
     c = cctx.commits[~cctx.commits["is_merge"].astype("boolean").fillna(False).astype(bool)]
     fixing = c["n_resolved_fixes"].fillna(0) > 0

@@ -55,8 +55,8 @@ from procmetrics.errors import InsufficientData
 #: what one fix event is, in words; printed beside every count of fix events
 FIX_EVENTS_DEFINITION = ("fix events (commits that are the first resolved Fixes: fix of at "
                          "least one defect, each commit counted once, dated after the start "
-                         "of observation: by default the first linked fix, which starts the "
-                         "clock and is not counted)")
+                         "of observation: by default the month from which Fixes: linking "
+                         "has settled, the lifetimes' rule)")
 CURVE_COLUMNS = ["model", "time", "observed", "fitted", "low", "high", "extrapolated"]
 EVENT_COLUMNS = ["fix_hash", "fix_date", "time_days", "n_defects"]
 MODELS = ("goel_okumoto", "power_law")
