@@ -18,6 +18,9 @@ def load_tables(store: str | None, repo: str | None) -> tuple[dict[str, pd.DataF
     from procmetrics.store import open_store
     from procmetrics.store.tables import read_table
 
+    from procmetrics import progress
+
+    progress.advance("reading the store")
     engine = open_store(store, create=False, readonly=True)
     try:
         repos = read_table(engine, "repositories", repo)

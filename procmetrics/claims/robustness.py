@@ -183,8 +183,11 @@ def judge_with_panel(claims: Sequence[Claim], ctx: ClaimContext
     """Every claim's verdict with its robustness panel."""
     from procmetrics.claims.registry import evaluate_claim
 
+    from procmetrics import progress
+
     out = []
-    for c in claims:
+    for i, c in enumerate(claims, 1):
+        progress.detail(f"claim {i} of {len(claims)}: {c.id} and its robustness panel")
         v = evaluate_claim(c, ctx)
         out.append((v, panel(c, v, ctx)))
     return out

@@ -12,6 +12,7 @@ import os
 import sys
 from typing import Sequence
 
+from procmetrics import progress
 from procmetrics import __version__
 from procmetrics.errors import ProcmetricsError
 from procmetrics.cli.warnlines import warning_lines
@@ -54,6 +55,11 @@ def _main(argv: Sequence[str] | None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
     try:
+        # analysis commands: numbered steps on stderr when it is a terminal (the report
+        # opens its own, with an estimate of the time left; mine has its own bar)
+        if hasattr(args, "progress") and args.command not in ("mine", "report"):
+            with progress.steps(args.command, enabled=args.progress):
+                return int(args.func(args) or 0)
         return int(args.func(args) or 0)
     except ProcmetricsError as exc:
         print(f"procmetrics: error: {exc}", file=sys.stderr)
@@ -70,6 +76,13 @@ def _main(argv: Sequence[str] | None) -> int:
               "(set PROCMETRICS_DEBUG=1 for a traceback and please report it)",
               file=sys.stderr)
         return 70
+
+
+def add_progress_argument(parser: argparse.ArgumentParser) -> None:
+    """``--progress`` / ``--no-progress`` of the analysis commands and the report."""
+    parser.add_argument("--progress", action=argparse.BooleanOptionalAction, default=None,
+                        help="progress steps and time so far on stderr (default: when "
+                        "stderr is a terminal)")
 
 
 def add_store_argument(parser: argparse.ArgumentParser) -> None:

@@ -7,7 +7,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from procmetrics.cli import add_store_argument
+from procmetrics.cli import add_progress_argument, add_store_argument
 
 
 def add_series_arguments(p: argparse.ArgumentParser) -> None:
@@ -16,6 +16,7 @@ def add_series_arguments(p: argparse.ArgumentParser) -> None:
     from procmetrics.analyse.measures.periods import DEFAULT_PERIOD, PERIODS
 
     add_store_argument(p)
+    add_progress_argument(p)
     p.add_argument("--repo", help="repository name in the store (needed when it holds several)")
     p.add_argument("--period", choices=PERIODS, default=DEFAULT_PERIOD,
                    help=f"period length (default: {DEFAULT_PERIOD}, as in check and report); "
@@ -60,6 +61,9 @@ def compute(args: argparse.Namespace, tables: dict[str, pd.DataFrame]) -> Any:
     """PeriodMetrics for the options (per subsystem only when asked)."""
     from procmetrics.analyse.measures.metrics import compute_period_metrics
 
+    from procmetrics import progress
+
+    progress.advance("per-period metrics")
     cfg = metric_config(args, tables)
     cs = tables["commit_subsystems"] if cfg.subsystems else None
     return compute_period_metrics(tables["commits"], tables["trailers"], commit_subsystems=cs,

@@ -3,7 +3,7 @@ from __future__ import annotations
 
 import argparse
 
-from procmetrics.cli import add_store_argument
+from procmetrics.cli import add_progress_argument, add_store_argument
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -14,6 +14,7 @@ def register(sub: argparse._SubParsersAction) -> None:
                        "fix to its arrival (Kaplan-Meier; fixes not yet carried are censored "
                        "at the tree's tip).")
     add_store_argument(p)
+    add_progress_argument(p)
     p.add_argument("--repo", help="the tree (default: the only one with an upstream reference)")
     p.add_argument("--upstream", metavar="NAME", help="upstream reference by store name")
     p.add_argument("--exclusions", metavar="FILE", help="TOML file of [[exclude]] tables "

@@ -4,7 +4,7 @@ from __future__ import annotations
 import argparse
 import sys
 
-from procmetrics.cli import add_store_argument
+from procmetrics.cli import add_progress_argument, add_store_argument
 from procmetrics.analyse.measures.periods import DEFAULT_PERIOD
 from procmetrics.report.model import PERIODS
 from procmetrics.textsafe import data_stdout
@@ -25,6 +25,7 @@ def register(sub: argparse._SubParsersAction) -> None:
         formatter_class=argparse.RawDescriptionHelpFormatter)
     p.add_argument("claims", metavar="CLAIMS.toml", nargs="?", help="claims file")
     add_store_argument(p)
+    add_progress_argument(p)
     p.add_argument("--repo", metavar="NAME", help="repository in the store")
     p.add_argument("--policy-date", metavar="DATE|REV", dest="policy",
                    help="what date = \"policy\" means in the claims file")

@@ -3,7 +3,7 @@ from __future__ import annotations
 
 import argparse
 
-from procmetrics.cli import add_store_argument
+from procmetrics.cli import add_progress_argument, add_store_argument
 from procmetrics.resampling import N_BOOT, SEED, analysis_rng
 from procmetrics.session import containment, links_from, load_tables
 from procmetrics.validate import arg, check_count, check_nonnegative, check_positive, check_seed
@@ -15,6 +15,7 @@ def register(sub: argparse._SubParsersAction) -> None:
                        "Goel-Okumoto and power-law NHPP models only where a trend test shows "
                        "a falling fix rate, with fit checks and guarded predictions.")
     add_store_argument(p)
+    add_progress_argument(p)
     p.add_argument("--repo", help="repository name in the store (needed when it holds several)")
     p.add_argument("--subsystem", metavar="NAME", help="only defects introduced in this subsystem")
     p.add_argument("--after-tag", metavar="TAG", help="only defects shipped in release TAG, "

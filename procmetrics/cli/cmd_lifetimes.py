@@ -8,7 +8,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from procmetrics.cli import add_store_argument
+from procmetrics.cli import add_progress_argument, add_store_argument
 from procmetrics.errors import ConfigError
 from procmetrics.resampling import N_BOOT, SEED, analysis_rng
 from procmetrics import textfmt  # noqa: F401 - estimates print through it
@@ -25,6 +25,7 @@ def register(sub: argparse._SubParsersAction) -> None:
                        "(SZZ) candidate introducers of fixes that have no Fixes: link, "
                        "reported apart and labelled heuristic.")
     add_store_argument(p)
+    add_progress_argument(p)
     p.add_argument("--repo", help="repository name in the store (needed when it holds several)")
     p.add_argument("--basis", choices=["committer", "author", "releases"], default="committer",
                    help="clock for lifetimes: committer dates (default), author dates, or "

@@ -3,7 +3,8 @@ from __future__ import annotations
 
 import argparse
 
-from procmetrics.cli import add_store_argument
+from procmetrics import progress
+from procmetrics.cli import add_progress_argument, add_store_argument
 from procmetrics.report.model import PERIODS, ReportOptions
 from procmetrics.validate import arg, check_level, check_seed
 
@@ -16,6 +17,7 @@ def register(sub: argparse._SubParsersAction) -> None:
         "(the data behind each figure and table) and manifest.json (provenance and "
         "checksums). Figures the data cannot carry are flagged automatically.")
     add_store_argument(p)
+    add_progress_argument(p)
     p.add_argument("--out", required=True, metavar="DIR",
                    help="output folder: new or empty; an earlier report folder only with "
                    "--overwrite (written beside it, then moved into place)")
@@ -57,9 +59,10 @@ def run(args: argparse.Namespace) -> int:
                          claims_path=args.claims, level=args.level, seed=args.seed,
                          pdf_engine=args.pdf_engine, meta_path=args.meta,
                          commit_url=args.commit_url, raw_csv=args.raw_csv)
-    from procmetrics.report.build import make_report  # heavy: imported when run
+    from procmetrics.report.build import REPORT_STEPS, make_report  # heavy: imported when run
 
-    files = make_report(args.store, args.out, opts, overwrite=args.overwrite)
+    with progress.steps("report", REPORT_STEPS, enabled=args.progress):
+        files = make_report(args.store, args.out, opts, overwrite=args.overwrite)
     print(f"report written to {files.html} (PDF: {files.pdf_engine}; "
           f"{len(files.csv)} tables; manifest {files.manifest.name})")
     return 0

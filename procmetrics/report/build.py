@@ -34,8 +34,13 @@ from procmetrics.report.meta import check_commit_url, copy_input, input_record, 
 from procmetrics.report.model import PERIODS, Report, ReportOptions
 from procmetrics.report.outdir import check_target, fresh_folder
 from procmetrics.validate import check_level, check_seed
+from procmetrics import progress
 from procmetrics.report.pdf import write_pdf
 from procmetrics.analyse.measures.periods import resolve_policy
+
+#: the steps make_report announces (procmetrics.progress), for the time-left estimate
+REPORT_STEPS = 10
+
 
 def build_report(data: StoreData, options: ReportOptions, *,
                  claims: ClaimsFile | None = None) -> Report:
@@ -72,15 +77,22 @@ def _analyses(ctx: BuildContext) -> None:
     report.scope = sec_scope.scope(ctx)
     report.provenance = sec_scope.provenance(ctx)
     sec_scope.section_scope(ctx)
+    progress.advance("process metrics per period")
     ctx.metrics = ctx.attempt("Process metrics", report.sections[0],
                               lambda: sec_process.compute_metrics(ctx))
     sec_scope.section_quality(ctx)
+    progress.advance("trends and change points")
     sec_process.section_process(ctx)
+    progress.advance("defect table")
     ctx.defects = ctx.attempt("Defect table", report.sections[0],
                               lambda: sec_defects.compute_defects(ctx))
+    progress.advance("before and after the process change")
     sec_compare.section_compare(ctx)
+    progress.advance("defect lifetimes")
     sec_defects.section_lifetimes(ctx)
+    progress.advance("reliability growth")
     sec_defects.section_growth(ctx)
+    progress.advance("claims and their robustness panels")
     sec_claims.section_claims(ctx)
     adoption = any(c.code == "tag_adoption_rising" for c in
                    (ctx.metrics.caveats if ctx.metrics is not None else ()))
@@ -218,12 +230,14 @@ def write_report(report: Report, out: Path, *, manifest_info: dict[str, Any],
         prepared = dt.datetime.now(dt.timezone.utc).replace(microsecond=0)
         info = dict(manifest_info)
         inputs_written = _copy_inputs(report, tmp, info, final=out)
+        progress.advance("tables, evidence, JSON and HTML")
         csv_names = write_csvs(report, tmp)
         evidence_names = write_evidence(report, tmp)
         write_json(report, tmp / "report.json", csv_names)
         html_path = tmp / "report.html"
         html_path.write_text(render_html(report, csv_names=csv_names,
                                          prepared=f"{prepared:%Y-%m-%d}"), encoding="utf-8")
+        progress.advance("PDF")
         pdf = write_pdf(report, html_path, tmp / "report.pdf", csv_names=csv_names,
                         prepared=f"{prepared:%Y-%m-%d}", engine=report.options.pdf_engine)
         written = sorted(set(csv_names.values()) | {"report.json", "report.html"}
@@ -258,6 +272,7 @@ def make_report(store: str | None, out: str | Path, options: ReportOptions, *,
     claims = load_claims(options.claims_path) if options.claims_path else None
     meta = load_meta(options.meta_path)
     check_commit_url(options.commit_url)
+    progress.advance("reading the store")
     engine = open_store(store, create=False, readonly=True)
     try:
         repo = choose_repo(engine, options.repo)

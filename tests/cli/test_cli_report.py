@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 import json
+import re
 import shutil
 
 import pytest
@@ -79,10 +80,16 @@ def test_report_then_rerun_matches_and_notices_a_moved_head(mined, tmp_path, cap
     store2 = tmp_path / "pm.sqlite"
     assert main(["mine", str(repo2), "--store", str(store2), "--no-progress"]) == 0
     out = tmp_path / "rep"
-    assert main(["report", "--store", str(store2), "--out", str(out), "--policy-date", policy,
-                 "--pdf-engine", "none"]) == 0
-    assert (out / "report.html").exists() and (out / "manifest.json").exists()
     capsys.readouterr()
+    assert main(["report", "--store", str(store2), "--out", str(out), "--policy-date", policy,
+                 "--pdf-engine", "none", "--progress"]) == 0
+    assert (out / "report.html").exists() and (out / "manifest.json").exists()
+    # progress on stderr only: numbered steps that never pass their total, with time so
+    # far and (from the second step) an estimate of the time left
+    err = capsys.readouterr().err
+    counts = [tuple(map(int, m)) for m in re.findall(r"^report: \[(\d+)/(\d+)\]", err, re.M)]
+    assert counts and all(k <= n for k, n in counts) and counts[-1][0] == counts[-1][1]
+    assert "so far; about" in err and "report.html" not in err
     assert main(["rerun", str(out / "manifest.json"), "--out", str(tmp_path / "r1")]) == 0
     assert "figures match" in capsys.readouterr().out
     # the store disappears and HEAD moves: re-mined at the recorded HEAD, figures still match

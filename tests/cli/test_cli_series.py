@@ -3,6 +3,7 @@ demo history, checked against plain git and the generator's ground truth."""
 from __future__ import annotations
 
 import json
+import re
 import subprocess
 import sys
 from pathlib import Path
@@ -109,3 +110,38 @@ def test_distribution_figures_state_n_and_bin_width(tmp_path):
     assert "n=60" in fig._suptitle.get_text()
     paths = save_figure(fig, tmp_path / "ecdf")
     assert [p.suffix for p in paths] == [".png", ".svg"] and all(p.exists() for p in paths)
+
+
+def test_progress_goes_to_stderr_only_when_asked_or_on_a_terminal(demo, capsys):
+    """Not a terminal (pytest captures stderr): silent by default; --progress prints
+    the steps on stderr and leaves stdout as it was."""
+    capsys.readouterr()
+    assert main(["series", "--store", str(demo["store"]), "--metric", "commits"]) == 0
+    quiet = capsys.readouterr()
+    assert quiet.err == ""
+    assert main(["series", "--store", str(demo["store"]), "--metric", "commits",
+                 "--progress"]) == 0
+    loud = capsys.readouterr()
+    assert loud.out == quiet.out
+    assert re.findall(r"^series: \[(\d)\] (.+?) \(", loud.err, re.M) == [
+        ("1", "reading the store"), ("2", "per-period metrics")]
+
+
+def test_progress_steps_estimate_the_time_left():
+    import io
+
+    from procmetrics import progress
+
+    progress.advance("nobody listens")            # no command open: nothing happens
+    buf = io.StringIO()
+    with progress.steps("job", 3, enabled=True, stream=buf):
+        progress.advance("one")
+        progress.advance("two")
+        progress.detail("half way")
+        progress.advance("three")
+    lines = buf.getvalue().splitlines()
+    assert [ln.split(" (")[0] for ln in lines] == [
+        "job: [1/3] one", "job: [2/3] two", "job: [2/3] two: half way", "job: [3/3] three"]
+    assert "left" not in lines[0] and all("left" in ln for ln in lines[1:])
+    with progress.steps("job", 3, enabled=False, stream=buf) as s:
+        assert s is None
