@@ -153,6 +153,14 @@ class ClaimContext:
     #: per-upstream-fix carry-over table of a tree mined with an upstream reference
     #: (:func:`procmetrics.analyse.carryover.carryover_table`); None without one
     carryover: pd.DataFrame | None = None
+    #: every commit up to the window's end, for defect analyses under a scope
+    #: (procmetrics.scope.apply); None: ``commits``
+    defect_commits: pd.DataFrame | None = None
+
+    @property
+    def history(self) -> pd.DataFrame:
+        """The commits defect analyses read (end of observation, introducer look-ups)."""
+        return self.commits if self.defect_commits is None else self.defect_commits
 
 
 @dataclass(frozen=True)

@@ -75,7 +75,7 @@ def eval_fix_rate(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
     from procmetrics.analyse.growth.trendtests import trend_tests
 
     after, before = window(ctx, claim.params)
-    ft = fix_event_times(ctx.fix_links, ctx.commits, links_from=ctx.links_from,
+    ft = fix_event_times(ctx.fix_links, ctx.history, links_from=ctx.links_from,
                          after=after, before=before, basis=ctx.date_basis)
     t = ft.times
     if len(t) < ctx.min_n:

@@ -95,7 +95,7 @@ class Robustness:
 def _first_link(ctx: ClaimContext) -> pd.Timestamp | None:
     fl = ctx.fix_links
     ok = fl[fl["status"].astype(str) == "resolved"]["fix_hash"]
-    d = ctx.commits.loc[ctx.commits["hash"].isin(set(ok)), "committer_date"]
+    d = ctx.history.loc[ctx.history["hash"].isin(set(ok)), "committer_date"]
     return None if d.empty else pd.Timestamp(d.min())
 
 
@@ -109,7 +109,7 @@ def _horizon(claim: Claim, ctx: ClaimContext, factor: float) -> tuple[Claim, Cla
             date = cl.resolve_date(claim.params["date"], ctx, "date")
         except cl.Undecidable:
             return None
-        end = ctx.commits[f"{ctx.date_basis}_date"].max()
+        end = ctx.history[f"{ctx.date_basis}_date"].max()
         if pd.isna(end) or date >= end:
             return None
         h = min(365.0, (end - date).days / 2)

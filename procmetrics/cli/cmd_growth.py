@@ -51,7 +51,7 @@ def run(args: argparse.Namespace) -> int:
         cont = containment(tables, list(ok["introducer_hash"].dropna().unique()),
                            [args.after_tag])
     # the same selection as the report's growth section and the fix_rate_declining claim
-    ft = fix_event_times(tables["fix_links"], tables["commits"],
+    ft = fix_event_times(tables["fix_links"], tables.get("defect_commits", tables["commits"]),
                          links_from=links_from(args.links_from),
                          commit_subsystems=tables["commit_subsystems"],
                          subsystem=args.subsystem, after_tag=args.after_tag,

@@ -86,7 +86,8 @@ def run(args: argparse.Namespace) -> int:
         ok = links[links["status"] == "resolved"]
         cont = containment(tables, list(pd.unique(pd.concat([ok["introducer_hash"],
                                                              ok["fix_hash"]]).dropna())))
-    table = build_defects(links, basis=args.basis, commits=tables["commits"],
+    table = build_defects(links, basis=args.basis,
+                          commits=tables.get("defect_commits", tables["commits"]),
                           commit_subsystems=tables["commit_subsystems"],
                           trailers=tables["trailers"], tag_containment=cont,
                           period_cuts=[change_date(args.change_date, tables)]
