@@ -69,6 +69,7 @@ def links_from(value: str | None, tables: dict[str, Any] | None = None) -> Any:
     if value == "all":
         return None
     tables = tables or {}
+    tables = tables.get("whole_tree", tables)    # a commit outside a scope still names a date
     return resolve_when(value, commits=tables.get("commits"), tags=tables.get("tags"),
                         option="--links-from")
 
@@ -78,6 +79,7 @@ def change_date(value: str | None, tables: dict[str, Any]) -> Any:
     from procmetrics.analyse.measures.periods import resolve_when
     if value is None:
         return None
+    tables = tables.get("whole_tree", tables)    # a commit outside a scope still names a date
     return resolve_when(value, commits=tables.get("commits"), tags=tables.get("tags"),
                         option="--change-date")
 

@@ -156,6 +156,8 @@ class ClaimContext:
     #: every commit up to the window's end, for defect analyses under a scope
     #: (procmetrics.scope.apply); None: ``commits``
     defect_commits: pd.DataFrame | None = None
+    #: what a scope or window selected (procmetrics.scope.apply.ScopeSummary), or None
+    scope: Any = None
 
     @property
     def history(self) -> pd.DataFrame:

@@ -3,7 +3,7 @@ from __future__ import annotations
 
 import argparse
 
-from procmetrics.cli import add_store_argument
+from procmetrics.cli import add_scope_arguments, add_store_argument
 from procmetrics.report.model import PERIODS, ReportOptions
 from procmetrics.validate import arg, check_level, check_seed
 
@@ -48,6 +48,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--raw-csv", action="store_true",
                    help="exact text in tables/*.csv (default: a leading ' before text cells "
                    "starting with = + - @ tab or CR, so spreadsheets do not run them)")
+    add_scope_arguments(p)
     p.set_defaults(func=run)
 
 
@@ -56,7 +57,8 @@ def run(args: argparse.Namespace) -> int:
                          subsystems=tuple(dict.fromkeys(args.subsystems)), period=args.period,
                          claims_path=args.claims, level=args.level, seed=args.seed,
                          pdf_engine=args.pdf_engine, meta_path=args.meta,
-                         commit_url=args.commit_url, raw_csv=args.raw_csv)
+                         commit_url=args.commit_url, raw_csv=args.raw_csv, scope=args.scope,
+                         since=args.since, until=args.until)
     from procmetrics.report.build import make_report  # heavy: imported when run
 
     files = make_report(args.store, args.out, opts, overwrite=args.overwrite)

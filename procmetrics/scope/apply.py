@@ -30,8 +30,11 @@ DEFECT_RULE = ("a defect (a resolved Fixes: link) is in scope when its introduci
                "unresolved reference is kept when its fixing commit is in scope")
 WINDOW_RULE = ("the window keeps commits whose committer date lies between --since and "
                "--until, both included (a bare date is 00:00 UTC; a tag is its commit's "
-               "committer date); a fix link is kept when its fixing commit is in the window, "
-               "its introducer may be older; defect analyses end at --until (or the tip)")
+               "committer date); a defect is in the window when its introducing commit was "
+               "committed on/after --since and its fix on/before --until (a cohort born in the "
+               "window: no defect is seen only because it lived long), and defect analyses "
+               "end at --until (or the tip); an unresolved reference when its fixing commit "
+               "is in the window")
 
 #: tables cut to the kept commits (scope and window) by their commit column
 _BY_HASH = {"reverts": "hash", "unparsed_references": "hash", "file_changes": "hash",
@@ -95,7 +98,8 @@ class ScopeSummary:
                        f"{sc['file_sha256'][:16]}...): {self.n_paths} of "
                        f"{self.n_stored_paths} stored paths")
         if self.since is not None or self.until is not None:
-            out.append(f"window: committer date {_day(self.since)} .. {_day(self.until)}")
+            out.append(f"window: committer date {_day(self.since)} .. "
+                       + ("the tip" if self.until is None else _day(self.until)))
         share = "-" if self.share is None else f"{self.share:.1%}"
         out.append(f"selected: {self.n_commits} of {self.n_commits_window} non-merge commits "
                    f"({share}; {self.n_commits_history} in the whole history), "
@@ -115,7 +119,7 @@ class ScopeSummary:
 
 
 def _day(ts: pd.Timestamp | None) -> str:
-    return "start" if ts is None else ts.strftime("%Y-%m-%d %H:%M:%S UTC")
+    return "the first commit" if ts is None else ts.strftime("%Y-%m-%d %H:%M:%S UTC")
 
 
 def resolve_window(tables: Mapping[str, pd.DataFrame], since: str | None, until: str | None
@@ -147,7 +151,6 @@ def apply_scope(tables: Mapping[str, pd.DataFrame], selection: Any | None,
     if until is not None:
         in_window &= date <= until
     merge = commits["is_merge"].astype("boolean").fillna(False).astype(bool)
-    window_hashes = set(commits.loc[in_window, "hash"])
     if selection is not None:
         scope_hashes = set(selection.commits["hash"])
         keep = in_window & commits["hash"].isin(scope_hashes)
@@ -169,8 +172,14 @@ def apply_scope(tables: Mapping[str, pd.DataFrame], selection: Any | None,
     out["defect_commits"] = (commits if until is None else commits[date <= until]
                              ).reset_index(drop=True)
     fl = tables["fix_links"]
-    fix_in_window = fl["fix_hash"].isin(window_hashes)
     resolved = fl["status"].astype(str) == "resolved"
+    fix_in_window = pd.Series(True, index=fl.index)
+    if until is not None:
+        fix_in_window &= fl["fix_committer_date"] <= until
+    if since is not None:
+        born = fl["intro_committer_date"] >= since
+        fix_in_window &= (resolved & born.fillna(False).astype(bool)) | (
+            ~resolved & (fl["fix_committer_date"] >= since))
     if scope_hashes is not None:
         fl_keep = fix_in_window & ((resolved & fl["introducer_hash"].isin(scope_hashes))
                                    | (~resolved & fl["fix_hash"].isin(scope_hashes)))

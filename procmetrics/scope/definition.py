@@ -93,13 +93,13 @@ def read_scope(spec: str, repo_root: str | None = None) -> ScopeDef:
             raise ConfigError("a compilation database needs the repository's folder",
                               key="--scope")
         paths, notes = compiled_paths(raw, file, repo_root)
-        return ScopeDef(Path(file).stem, PatternSet.build(paths, literal=True, where=file),
+        return ScopeDef("compiled files", PatternSet.build(paths, literal=True, where=file),
                         PatternSet((), ()), "compile_commands", file, digest,
-                        "files compiled according to " + Path(file).name, tuple(notes))
-    return ScopeDef(Path(file).stem, PatternSet.build(read_path_list(raw, file), literal=True,
-                                                      where=file),
+                        "the main source files the compilation database lists", tuple(notes))
+    return ScopeDef("listed paths", PatternSet.build(read_path_list(raw, file), literal=True,
+                                                     where=file),
                     PatternSet((), ()), "path_list", file, digest,
-                    "paths listed in " + Path(file).name)
+                    "the paths the list names")
 
 
 def read_path_list(raw: bytes, file: str) -> list[str]:

@@ -106,6 +106,17 @@ def test_window_bounds_match_git_since_until(demo, scopes, name):
     assert data.scope.n_commits_window == window
     # defect analyses end at the window's end, not at the last in-scope commit
     assert data["defect_commits"]["committer_date"].max() == pd.Timestamp(hi).tz_convert("UTC")
+    # defects of the window: introducer in scope and committed from --since, fix by --until
+    touched = set(git(repo, "rev-list", "--full-history", f"--since={lo}", "HEAD", "--",
+                      *PATHSPECS[name]).split())
+    by_until = set(git(repo, "rev-list", f"--until={hi}", "HEAD").split())
+    fl = data.whole_tree["fix_links"]
+    fl = fl[fl["status"] == "resolved"]
+    want = fl[fl["introducer_hash"].isin(touched) & fl["fix_hash"].isin(by_until)]
+    got = data["fix_links"][data["fix_links"]["status"] == "resolved"]
+    assert set(got["fix_hash"] + got["introducer_hash"]) == set(
+        want["fix_hash"] + want["introducer_hash"])
+    assert 0 < data.scope.n_defects == len(want)
 
 
 def test_a_defect_is_in_scope_when_its_introducer_touched_the_scope(demo, scopes):
