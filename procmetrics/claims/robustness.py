@@ -35,6 +35,8 @@ from procmetrics.claims.base import Claim, ClaimContext, ClaimVerdict
 LATER_LINK_ERA_DAYS = 365
 #: multipliers of the lifetime comparison's follow-up horizon
 HORIZON_FACTORS = (0.5, 2.0)
+#: with --since/--until: the window started this much later, ended this much earlier
+WINDOW_SHIFT_DAYS = 365
 
 #: the panel's choices and ranges, as listed in the report and the README
 PANEL: tuple[tuple[str, str], ...] = (
@@ -45,6 +47,8 @@ PANEL: tuple[tuple[str, str], ...] = (
                        "linking has settled (fix-event and defect selections)"),
     ("change-point penalty", "not used by any claim kind of this version (change points "
                              "inform the report's before/after section only)"),
+    ("window", f"only with --since/--until: the window started {WINDOW_SHIFT_DAYS} days later "
+               f"and ended {WINDOW_SHIFT_DAYS} days earlier (same scope rules)"),
 )
 
 
@@ -141,7 +145,35 @@ def variants(ctx: ClaimContext) -> list[Variant]:
         out.append(Variant("link era start", f"{later:%Y-%m-%d} ({LATER_LINK_ERA_DAYS} days "
                            "after the first linked fix)",
                            lambda c, x, t=later: (c, replace(x, links_from=t))))
+    sc = ctx.scope
+    shift = pd.Timedelta(days=WINDOW_SHIFT_DAYS)
+    if sc is not None and sc.since is not None:
+        out.append(Variant("window", f"from {sc.since + shift:%Y-%m-%d} ({WINDOW_SHIFT_DAYS} "
+                           "days later)", lambda c, x, t=sc.since + shift: _window(c, x, t, None)))
+    if sc is not None and sc.until is not None:
+        out.append(Variant("window", f"to {sc.until - shift:%Y-%m-%d} ({WINDOW_SHIFT_DAYS} "
+                           "days earlier)", lambda c, x, t=sc.until - shift: _window(c, x, None, t)))
     return out
+
+
+def _window(claim: Claim, ctx: ClaimContext, since: pd.Timestamp | None,
+            until: pd.Timestamp | None) -> tuple[Claim, ClaimContext] | None:
+    """The context cut to a narrower window by the rules of procmetrics.scope.apply."""
+    c, fl, h = ctx.commits, ctx.fix_links, ctx.history
+    resolved = fl["status"].astype(str) == "resolved"
+    if since is not None:
+        c = c[c["committer_date"] >= since]
+        born = (fl["intro_committer_date"] >= since).fillna(False).astype(bool)
+        fl = fl[(resolved & born) | (~resolved & (fl["fix_committer_date"] >= since))]
+    if until is not None:
+        c = c[c["committer_date"] <= until]
+        fl = fl[fl["fix_committer_date"] <= until]
+        h = h[h["committer_date"] <= until]
+    if not len(c):
+        return None
+    return claim, replace(ctx, commits=c.reset_index(drop=True),
+                          fix_links=fl.reset_index(drop=True),
+                          defect_commits=h.reset_index(drop=True))
 
 
 def _evidence(v: ClaimVerdict) -> str:
@@ -180,9 +212,12 @@ def judge_with_panel(claims: Sequence[Claim], ctx: ClaimContext
     from procmetrics.claims.registry import evaluate_claim
 
     out = []
+    for c in claims:                      # a scope the claims name must exist: exit 2 first
+        ctx.for_claim(c)
     for c in claims:
-        v = evaluate_claim(c, ctx)
-        out.append((v, panel(c, v, ctx)))
+        cctx = ctx.for_claim(c)           # the claim's scope: its panel varies that context
+        v = evaluate_claim(c, cctx)
+        out.append((v, panel(c, v, cctx)))
     return out
 
 

@@ -97,6 +97,14 @@ def add_scope_arguments(parser: argparse.ArgumentParser) -> None:
                    "end here")
 
 
+def add_scope_file_argument(parser: argparse.ArgumentParser) -> None:
+    """``--scope-file FILE`` (check, report): where claims' ``scope = "NAME"`` are found."""
+    parser.add_argument("--scope-file", metavar="FILE",
+                        help="scope file (.toml) whose [scope.NAME] tables the claims name "
+                        "with scope = \"NAME\"; such a claim is judged on its scope (cut "
+                        "from the whole tree, in the --since/--until window)")
+
+
 def scope_request(args: argparse.Namespace) -> object:
     """The :class:`procmetrics.scope.apply.ScopeRequest` of the options (inactive if none)."""
     from procmetrics.scope.apply import ScopeRequest

@@ -4,7 +4,8 @@ from __future__ import annotations
 import argparse
 import sys
 
-from procmetrics.cli import add_scope_arguments, add_store_argument, print_scope, scope_request
+from procmetrics.cli import (add_scope_arguments, add_scope_file_argument, add_store_argument,
+                             print_scope, scope_request)
 from procmetrics.analyse.measures.periods import DEFAULT_PERIOD
 from procmetrics.report.model import PERIODS
 from procmetrics.textsafe import data_stdout
@@ -40,6 +41,7 @@ def register(sub: argparse._SubParsersAction) -> None:
                    "a later link era); bit 16 of the exit code is then never set")
     p.add_argument("--list-kinds", action="store_true", help="list the claim kinds and exit")
     add_scope_arguments(p)
+    add_scope_file_argument(p)
     p.set_defaults(func=run)
 
 
@@ -59,9 +61,13 @@ def run(args: argparse.Namespace) -> int:
         print("procmetrics check: error: give a claims file (or --list-kinds)", file=sys.stderr)
         return 2
     opts = dict(store=args.store, repo=args.repo, policy=args.policy, period=args.period)
-    claims, ctx = claims_and_context(args.claims, **opts, scope=scope_request(args))
+    claims, ctx = claims_and_context(args.claims, **opts, scope=scope_request(args),
+                                     scope_file=args.scope_file)
     if args.json != "-":
         print_scope(ctx.scope)
+        for name, sctx in sorted(ctx.scopes.items()):
+            print(f"claims naming the scope {name!r}:")
+            print_scope(sctx.scope)
     if args.no_panel:
         verdicts, panels = evaluate_claims(claims, ctx), None
     else:
@@ -79,7 +85,9 @@ def run(args: argparse.Namespace) -> int:
         prov = check_provenance(args.store, repo=args.repo, policy=args.policy,
                                 period=args.period, claims_path=args.claims,
                                 claims_sha256=load_claims(args.claims).sha256,
-                                scope=None if ctx.scope is None else ctx.scope.to_dict())
+                                scope=None if ctx.scope is None else ctx.scope.to_dict(),
+                                claim_scopes={n: c.scope.to_dict()
+                                              for n, c in sorted(ctx.scopes.items())})
     doc = ""
     if args.json:
         from procmetrics.report.gate import check_document

@@ -184,6 +184,10 @@ def _copy_inputs(report: Report, out: Path, info: dict[str, Any], *,
         rel = copy_input(file, out, "scope" + (Path(file).suffix or ".txt"))
         inputs["scope"] = input_record(file, rel, sha256_file(out / rel), name=name)
         written.append(rel)
+    if opts.scope_file:
+        rel = copy_input(opts.scope_file, out, "claim-scopes.toml")
+        inputs["scope_file"] = input_record(opts.scope_file, rel, sha256_file(out / rel))
+        written.append(rel)
     if opts.meta_path:
         rel = copy_input(opts.meta_path, out, "report-meta.toml")
         inputs["report_meta"] = input_record(opts.meta_path, rel, sha256_file(out / rel))
@@ -269,10 +273,12 @@ def make_report(store: str | None, out: str | Path, options: ReportOptions, *,
     engine = open_store(store, create=False, readonly=True)
     try:
         repo = choose_repo(engine, options.repo)
+        from procmetrics.claims.check import claim_scope_request
         from procmetrics.scope.apply import ScopeRequest
 
-        data = load_store_data(engine, repo, within=ScopeRequest(
-            options.scope, options.since, options.until))
+        data = load_store_data(engine, repo, within=claim_scope_request(
+            claims.claims if claims is not None else (),
+            ScopeRequest(options.scope, options.since, options.until), options.scope_file))
         dialect = engine.dialect.name
     finally:
         engine.dispose()

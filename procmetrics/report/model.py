@@ -53,6 +53,8 @@ class ReportOptions:
     scope: str | None = None
     since: str | None = None
     until: str | None = None
+    #: the scope file claims take ``scope = "NAME"`` from (copied into ``inputs/``)
+    scope_file: str | None = None
 
     def scope_label(self) -> dict[str, Any] | None:
         """The scope as the JSON records it: NAME and the file's SHA-256 (no file name or

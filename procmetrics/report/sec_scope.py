@@ -99,8 +99,9 @@ def section_scope(ctx: BuildContext) -> None:
         f"Periods are calendar {ctx.options.period}s unless stated otherwise"
         + (", and releases are the repository's tags." if ctx.options.period == "release"
            else "."))
-    if sc.get("selection"):
-        _scope_selection(ctx, s, sc["selection"])
+    from procmetrics.report.scope_tables import scope_tables
+
+    scope_tables(ctx, s)
     if ctx.policy_date is not None:
         s.p(f"The process change under examination took effect on "
             f"{ctx.policy_date:%Y-%m-%d} (given as “{ctx.options.policy}”). Comparisons split "
@@ -136,56 +137,6 @@ def section_scope(ctx: BuildContext) -> None:
         s.p("Mining options of the last run: " + mining_options_text(opts) + ".")
     from procmetrics.report.sec_claims import CAUTION_SHORT
     s.blocks.append(Block("caution", text=CAUTION_SHORT))
-
-
-def _pct(x: Any) -> str:
-    return "–" if x is None else f"{100 * x:.1f}%"
-
-
-def _scope_selection(ctx: BuildContext, s: Any, sel: dict[str, Any]) -> None:
-    """The scope and window the tables were cut to, and the rules that cut them."""
-    sc = sel.get("scope")
-    when = ("from " + (sel["since"][:10] if sel.get("since") else "the first commit") + " to "
-            + (sel["until"][:10] if sel.get("until") else "the tip"))
-    if sc is not None:
-        s.p(f"Every figure below is about the scope “{sc['name']}” (a "
-            f"{sc['kind'].replace('_', ' ')} file, SHA-256 {sc['file_sha256'][:16]}…) and the "
-            f"committer-date window {when}: "
-            f"{sel['n_commits']:,} of the {sel['n_commits_window']:,} non-merge commits of the "
-            f"window ({_pct(sel['commit_share'])}) and {sel['n_defects']:,} of its "
-            f"{sel['n_defects_window']:,} defects. Rules: {sel['rule']}; {sel['defect_rule']}.")
-    else:
-        s.p(f"Every figure below is about the committer-date window {when}: "
-            f"{sel['n_commits']:,} of the {sel['n_commits_history']:,} non-merge commits.")
-    if sel.get("window_rule"):
-        s.p("Window: " + sel["window_rule"] + ".")
-    rows = []
-    if sc is not None:
-        rows += [("Scope", sc["name"]), ("Kind", sc["kind"].replace("_", " ")),
-                 ("Scope file SHA-256", sc["file_sha256"]),
-                 ("Include patterns", str(len(sc["include"]))),
-                 ("Exclude patterns", str(len(sc["exclude"]))),
-                 ("Paths selected", f"{sel['n_paths']:,} of {sel['n_stored_paths']:,} "
-                                    "paths the history touched")]
-    rows += [("Window", when),
-             ("Commits selected", f"{sel['n_commits']:,} of {sel['n_commits_window']:,} "
-                                  f"non-merge commits ({_pct(sel['commit_share'])}; "
-                                  f"{sel['n_commits_history']:,} in the whole history)"),
-             ("Defects selected", f"{sel['n_defects']:,} of {sel['n_defects_window']:,}")]
-    if sel.get("line_share") is not None:
-        rows.append(("In-scope share of the selected commits' changed lines",
-                     _pct(sel["line_share"])))
-    for kind in ("include", "exclude"):
-        pats = sel.get(f"unmatched_{kind}") or []
-        if pats:
-            rows.append((f"{kind.title()} patterns matching no path of the history",
-                         ", ".join(pats[:20]) + (f" … ({len(pats)} in all)"
-                                                 if len(pats) > 20 else "")))
-    for n in sel.get("notes") or []:
-        rows.append(("Note", n))
-    ctx.report.add_table(s, Table("scope-selection", "The scope and window of this report.",
-                                  [("item", "Item"), ("value", "Value")],
-                                  pd.DataFrame(rows, columns=["item", "value"])))
 
 
 def section_quality(ctx: BuildContext) -> None:

@@ -219,16 +219,36 @@ class ScopeRequest:
     spec: str | None = None
     since: str | None = None
     until: str | None = None
+    #: the scope file claims take their named scopes from, and the names they use
+    claim_file: str | None = None
+    claim_names: tuple[str, ...] = ()
 
     @property
     def active(self) -> bool:
-        return any(v is not None for v in (self.spec, self.since, self.until))
+        return any(v is not None for v in (self.spec, self.since, self.until)) \
+            or bool(self.claim_names)
+
+    def variants(self, conn: Any, repo: str, tables: Mapping[str, pd.DataFrame]
+                 ) -> dict[str, tuple[dict[str, pd.DataFrame], ScopeSummary]]:
+        """The tables (from the whole tree, in this window) of every scope claims name."""
+        if not self.claim_names:
+            return {}
+        from procmetrics.errors import ConfigError
+
+        if self.claim_file is None:
+            raise ConfigError("claims name the scope(s) " + ", ".join(sorted(
+                self.claim_names)) + ": give the scope file with --scope-file",
+                key="--scope-file")
+        return {name: ScopeRequest(f"{self.claim_file}:{name}", self.since, self.until)(
+            conn, repo, tables) for name in sorted(set(self.claim_names))}
 
     def __call__(self, conn: Any, repo: str, tables: Mapping[str, pd.DataFrame]
-                 ) -> tuple[dict[str, pd.DataFrame], ScopeSummary]:
+                 ) -> tuple[dict[str, pd.DataFrame], ScopeSummary | None]:
         from procmetrics.scope.definition import read_scope
         from procmetrics.scope.select import select_scope
 
+        if all(v is None for v in (self.spec, self.since, self.until)):
+            return dict(tables), None          # only claims' named scopes (see variants)
         lo, hi = resolve_window(tables, self.since, self.until)
         selection = None
         if self.spec is not None:

@@ -51,6 +51,8 @@ class StoreData:
     #: when a scope or window cut the tables: its summary, and the whole-tree tables
     scope: Any = None
     whole_tree: Mapping[str, pd.DataFrame] | None = None
+    #: scopes claims name: name -> (tables cut from the whole tree, summary)
+    named_scopes: Mapping[str, Any] | None = None
 
     def __getitem__(self, name: str) -> pd.DataFrame:
         return self.tables[name]
@@ -97,8 +99,9 @@ def load_store_data(engine: Engine, repo: str, within: Callable[..., Any] | None
         parts["file_changes"] = (n_fc, fc)
         if within is not None and getattr(within, "active", True):
             scoped, summary = within(conn, repo, tables)
+            named = within.variants(conn, repo, tables) if hasattr(within, "variants") else {}
             return StoreData(repo, scoped, checksum=_combine(parts), scope=summary,
-                             whole_tree=tables)
+                             whole_tree=tables, named_scopes=named)
     return StoreData(repo, tables, checksum=_combine(parts))
 
 
