@@ -37,7 +37,7 @@ demo: $(VENV)/.installed
 	$(BIN)/procmetrics mine $(DEMO_REPO) --store $(DEMO_STORE)
 	$(BIN)/procmetrics report --store $(DEMO_STORE) --out $(DEMO_OUT) --overwrite \
 		--policy-date "$$($(BIN)/python sample_repos/generate.py --print-change-date)" \
-		--claims sample_repos/demo_claims.toml
+		--claims sample_repos/demo_claims.toml --scope-file sample_repos/demo_scopes.toml
 	@echo "report written to $(DEMO_OUT)/report.html"
 
 # Starts a throw-away PostgreSQL server (.ci/pg) for the `postgres` tests; stopped even on failure.

@@ -13,10 +13,14 @@ import pandas as pd
 from procmetrics.errors import ConfigError, InsufficientData
 
 
-def load_tables(store: str | None, repo: str | None) -> tuple[dict[str, pd.DataFrame], str]:
-    """Read the tidy tables the lifetime and growth commands need (one repository)."""
+def load_tables(store: str | None, repo: str | None, scope: Any = None
+                ) -> tuple[dict[str, pd.DataFrame], str]:
+    """Read the tidy tables the analysis commands need (one repository), cut to
+    ``scope`` (a :class:`procmetrics.scope.apply.ScopeRequest`) when one is active; the
+    scope's summary is then ``tables["scope_summary"]`` (and the whole-tree tables
+    ``tables["whole_tree"]``)."""
     from procmetrics.store import open_store
-    from procmetrics.store.tables import read_table
+    from procmetrics.store.tables import read_table, snapshot
 
     from procmetrics import progress
 
@@ -32,9 +36,15 @@ def load_tables(store: str | None, repo: str | None) -> tuple[dict[str, pd.DataF
             raise ConfigError("the store holds several repositories ("
                                    + ", ".join(repos["repo"]) + "); choose one with --repo")
         name = str(repos["repo"].iloc[0])
-        tables = {t: read_table(engine, t, name) for t in
-                  ("fix_links", "commits", "commit_subsystems", "trailers", "tags")}
-        tables["repositories"] = repos
+        with snapshot(engine) as conn:
+            tables = {t: read_table(conn, t, name) for t in
+                      ("fix_links", "commits", "commit_subsystems", "trailers", "tags")}
+            tables["repositories"] = repos
+            if scope is not None and scope.active:
+                whole = dict(tables)
+                tables, summary = scope(conn, name, tables)
+                tables["scope_summary"] = summary
+                tables["whole_tree"] = whole
     finally:
         engine.dispose()
     return tables, name
@@ -62,6 +72,7 @@ def links_from(value: str | None, tables: dict[str, Any] | None = None) -> Any:
     if value == "all":
         return None
     tables = tables or {}
+    tables = tables.get("whole_tree", tables)    # a commit outside a scope still names a date
     return resolve_when(value, commits=tables.get("commits"), tags=tables.get("tags"),
                         option="--links-from")
 
@@ -71,6 +82,7 @@ def change_date(value: str | None, tables: dict[str, Any]) -> Any:
     from procmetrics.analyse.measures.periods import resolve_when
     if value is None:
         return None
+    tables = tables.get("whole_tree", tables)    # a commit outside a scope still names a date
     return resolve_when(value, commits=tables.get("commits"), tags=tables.get("tags"),
                         option="--change-date")
 

@@ -57,7 +57,9 @@ def test_make_demo_end_to_end(tmp_path):
     check = subprocess.run([str(ROOT / ".venv" / "bin" / "procmetrics"), "check",
                             str(ROOT / "sample_repos" / "demo_claims.toml"), "--store",
                             str(out / "procmetrics.sqlite"), "--policy-date",
-                            doc["scope"]["policy"]], capture_output=True, text=True,
+                            doc["scope"]["policy"], "--scope-file",
+                            str(ROOT / "sample_repos" / "demo_scopes.toml")],
+                           capture_output=True, text=True,
                            timeout=300)
     # 8 + 4 (not supportable) + the other verdict bits; + 16 when a verdict is fragile
     assert check.returncode & ~16 in range(12, 16), check.stdout + check.stderr

@@ -114,11 +114,14 @@ class Claim:
     params: Mapping[str, Any] = field(default_factory=dict)
     level: float = 0.95
     line: int | None = None
+    #: the named scope (of the ``--scope-file``) the claim is about; None: the whole tree
+    #: (or the command's ``--scope``)
+    scope: str | None = None
 
     def to_dict(self) -> dict[str, Any]:
         return {"id": self.id, "text": self.text, "kind": self.kind,
                 "params": {k: _param_plain(v) for k, v in sorted(self.params.items())},
-                "level": self.level}
+                "level": self.level, **({"scope": self.scope} if self.scope else {})}
 
 
 def _param_plain(v: Any) -> Any:
@@ -155,6 +158,49 @@ class ClaimContext:
     #: per-upstream-fix carry-over table of a tree mined with an upstream reference
     #: (:func:`procmetrics.analyse.carryover.carryover_table`); None without one
     carryover: pd.DataFrame | None = None
+    #: every commit up to the window's end, for defect analyses under a scope
+    #: (procmetrics.scope.apply); None: ``commits``
+    defect_commits: pd.DataFrame | None = None
+    #: what a scope or window selected (procmetrics.scope.apply.ScopeSummary), or None
+    scope: Any = None
+    #: the scope these tables are cut to (None: whole tree), and the contexts of the named
+    #: scopes claims may ask for (``scope = "NAME"``), each cut from the whole tree
+    scope_name: str | None = None
+    scopes: Mapping[str, "ClaimContext"] = field(default_factory=dict)
+
+    def for_claim(self, claim: "Claim") -> "ClaimContext":
+        """The context a claim is judged in: its named scope's, else this one."""
+        name = claim.scope
+        if name is None or name == self.scope_name:
+            return self
+        if name not in self.scopes:
+            from procmetrics.errors import ConfigError
+
+            where = f"claim {claim.id!r}" + (f" (line {claim.line})" if claim.line else "")
+            have = ", ".join(sorted(self.scopes))
+            raise ConfigError(f"{where} names the scope {name!r}: give the scope file with "
+                              "--scope-file" + (f" (it has: {have})" if have else ""),
+                              key="scope")
+        return self.scopes[name]
+
+    def with_named_scopes(self, named: Mapping[str, tuple[Mapping[str, pd.DataFrame], Any]]
+                          ) -> "ClaimContext":
+        """This context with one context per named scope (tables cut from the whole tree
+        by :class:`procmetrics.scope.apply.ScopeRequest`, with their summaries)."""
+        from dataclasses import replace
+
+        scopes = {name: replace(self, commits=t["commits"], trailers=t["trailers"],
+                                fix_links=t["fix_links"],
+                                commit_subsystems=t.get("commit_subsystems"),
+                                defect_commits=t.get("defect_commits"), scope=summary,
+                                scope_name=name, scopes={})
+                  for name, (t, summary) in named.items()}
+        return replace(self, scopes=scopes)
+
+    @property
+    def history(self) -> pd.DataFrame:
+        """The commits defect analyses read (end of observation, introducer look-ups)."""
+        return self.commits if self.defect_commits is None else self.defect_commits
 
 
 @dataclass(frozen=True)

@@ -3,7 +3,7 @@ from __future__ import annotations
 
 import textwrap
 from pathlib import Path
-from typing import Sequence
+from typing import Any, Sequence
 
 from procmetrics.claims.base import Claim, ClaimContext, ClaimVerdict
 from procmetrics.claims.robustness import Robustness, judge_with_panel
@@ -19,44 +19,74 @@ from procmetrics.claims.base import VERDICT_LABELS as cl_labels
 
 
 def check_claims(claims_path: str, *, store: str | None, repo: str | None = None,
-                 policy: str | None = None, period: str = DEFAULT_PERIOD) -> list[ClaimVerdict]:
+                 policy: str | None = None, period: str = DEFAULT_PERIOD,
+                 scope: Any = None, scope_file: str | None = None) -> list[ClaimVerdict]:
     """Parse the claims file, read the store and judge every claim."""
     claims, ctx = claims_and_context(claims_path, store=store, repo=repo, policy=policy,
-                                     period=period)
+                                     period=period, scope=scope, scope_file=scope_file)
     return evaluate_claims(claims, ctx)
 
 
 def check_claims_robust(claims_path: str, *, store: str | None, repo: str | None = None,
-                        policy: str | None = None, period: str = DEFAULT_PERIOD
+                        policy: str | None = None, period: str = DEFAULT_PERIOD,
+                        scope: Any = None, scope_file: str | None = None
                         ) -> tuple[list[ClaimVerdict], list[Robustness]]:
     """As :func:`check_claims`, with every claim's robustness panel."""
     claims, ctx = claims_and_context(claims_path, store=store, repo=repo, policy=policy,
-                                     period=period)
+                                     period=period, scope=scope, scope_file=scope_file)
     pairs = judge_with_panel(claims, ctx)
     return [v for v, _ in pairs], [p for _, p in pairs]
 
 
 def claims_and_context(claims_path: str, *, store: str | None, repo: str | None,
-                       policy: str | None, period: str) -> tuple[list[Claim], ClaimContext]:
-    """The claims of a file and the context they are judged in."""
+                       policy: str | None, period: str, scope: Any = None,
+                       scope_file: str | None = None) -> tuple[list[Claim], ClaimContext]:
+    """The claims of a file and the context they are judged in; ``scope`` (a
+    :class:`procmetrics.scope.apply.ScopeRequest`) cuts the tables first, and its summary
+    is ``ctx.scope``; claims naming a scope (``scope = "NAME"``) get theirs from
+    ``scope_file``, cut from the whole tree (``ctx.scopes``)."""
     from procmetrics.analyse.measures.periods import resolve_policy
     from procmetrics.store import open_store
 
     claims = load_claims(claims_path)
+    request = claim_scope_request(claims.claims, scope, scope_file)
     engine = open_store(store, create=False, readonly=True)
     try:
         name = choose_repo(engine, repo)
-        data = load_store_data(engine, name)
+        data = load_store_data(engine, name, within=request)
         carry = carryover_for(engine, name)
     finally:
         engine.dispose()
     hist = ql.history_state(data)
     ctx = ClaimContext(commits=data["commits"], trailers=data["trailers"],
                        fix_links=data["fix_links"], commit_subsystems=data["commit_subsystems"],
-                       tags=data["tags"], policy_date=resolve_policy(data, policy),
+                       tags=data["tags"],
+                       # a date given as a commit may lie outside the scope: resolve it whole
+                       policy_date=resolve_policy(data.whole_tree or data, policy),
                        is_shallow=hist["is_shallow"], rewritten=bool(hist["rewritten"]),
-                       period=period if period != "release" else "quarter", carryover=carry)
-    return list(claims.claims), ctx
+                       period=period if period != "release" else "quarter", carryover=carry,
+                       defect_commits=data.get("defect_commits"), scope=data.scope,
+                       scope_name=scope_name(data.scope))
+    return list(claims.claims), ctx.with_named_scopes(data.named_scopes or {})
+
+
+def claim_scope_request(claims: Sequence[Claim], scope: Any, scope_file: str | None) -> Any:
+    """The scope request of a command (``--scope``/``--since``/``--until``), with the scopes
+    the claims name taken from ``scope_file``."""
+    from dataclasses import replace
+
+    from procmetrics.scope.apply import ScopeRequest
+
+    req = scope if scope is not None else ScopeRequest()
+    names = tuple(sorted({c.scope for c in claims if c.scope}))
+    return replace(req, claim_file=scope_file, claim_names=names) if names else req
+
+
+def scope_name(summary: Any) -> str | None:
+    """The name of the scope a summary describes (None: whole tree, or a window only)."""
+    if summary is None or summary.scope is None:
+        return None
+    return str(summary.scope["name"])
 
 
 def render_verdicts(verdicts: Sequence[ClaimVerdict],

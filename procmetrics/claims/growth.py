@@ -85,7 +85,7 @@ def claim_fix_events(claim: Claim, ctx: ClaimContext):
     linked fix, or a year after it) replaces it; the claim's window narrows it."""
     after, before = window(ctx, claim.params)
     start = ctx.links_from if isinstance(ctx.links_from, pd.Timestamp) else "settled"
-    return fix_event_times(ctx.fix_links, ctx.commits, links_from=start,
+    return fix_event_times(ctx.fix_links, ctx.history, links_from=start,
                            after=after, before=before, basis=ctx.date_basis)
 
 

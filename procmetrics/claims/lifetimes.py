@@ -57,7 +57,7 @@ def defect_table(kind: str, ctx: ClaimContext, cuts: list[pd.Timestamp] | None =
                           f"the {ctx.unresolved_limit:.0%} limit: the defects seen may not "
                           "represent the defects fixed")
     def build(links_from: Any) -> Any:
-        return build_defects(ctx.fix_links, basis=ctx.date_basis, commits=ctx.commits,
+        return build_defects(ctx.fix_links, basis=ctx.date_basis, commits=ctx.history,
                              commit_subsystems=ctx.commit_subsystems, trailers=ctx.trailers,
                              period_cuts=cuts, links_from=links_from)
 

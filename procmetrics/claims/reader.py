@@ -32,7 +32,7 @@ from procmetrics.claims.registry import SHARE_METRICS, SPECS
 from procmetrics.errors import ConfigError
 
 TOP_KEYS = {"format", "level", "claim"}
-CLAIM_KEYS = {"id", "text", "kind", "level"}
+CLAIM_KEYS = {"id", "text", "kind", "level", "scope"}
 _ID = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,63}$")
 _HEADER = re.compile(r"^\s*(\[\[?)\s*([^\]]+?)\s*(\]\]?)\s*(#.*)?$")
 _KEYLINE = re.compile(r"""^\s*("([^"]+)"|'([^']+)'|([A-Za-z0-9_-]+))\s*=""")
@@ -199,7 +199,12 @@ def parse_claims(text: str, path: str = "<claims>") -> ClaimsFile:
         if not isinstance(text_, str):
             raise err(f"expected a text, got {text_!r}", "text")
         level = _level(c["level"], err, "level") if "level" in c else default_level
-        claims.append(Claim(cid, text_.strip(), kind, params, level, where.claim(i)))
+        scope_name = c.get("scope")
+        if scope_name is not None and (not isinstance(scope_name, str) or not scope_name):
+            raise err(f"'scope' names one scope of the scope file (--scope-file), got "
+                      f"{scope_name!r}", "scope")
+        claims.append(Claim(cid, text_.strip(), kind, params, level, where.claim(i),
+                            scope=scope_name))
     return ClaimsFile(path, tuple(claims), hashlib.sha256(text.encode("utf-8")).hexdigest())
 
 

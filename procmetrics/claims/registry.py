@@ -2,7 +2,7 @@
 from __future__ import annotations
 
 from dataclasses import replace
-from typing import Sequence
+from typing import Any, Sequence
 
 from procmetrics.claims import (
     at_date, carryover, growth, handling, lifetime_step, lifetimes, shares, unsupportable,
@@ -58,6 +58,7 @@ def evaluate_claim(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
     The verdict carries the report places of its evidence (``see``). Raises
     :class:`ConfigError` for a usage mistake (:func:`check_usable`).
     """
+    ctx = ctx.for_claim(claim)
     check_usable([claim], ctx)
     spec = SPECS[claim.kind]
     if claim.kind in NOT_SUPPORTABLE_KINDS:
@@ -70,7 +71,25 @@ def evaluate_claim(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
         except Undecidable as exc:
             v = undecidable(claim, spec.method, str(exc))
     v = v if v.see else replace(v, see=spec.see)
+    if ctx.scope is not None:
+        v = replace(v, reasons=(*v.reasons, scope_reason(ctx.scope)))
     return with_review_adoption(v, ctx)
+
+
+def scope_reason(summary: Any) -> str:
+    """What the claim's data were cut to (procmetrics.scope), as one reason line."""
+    d = summary.to_dict()
+    parts = []
+    if d["scope"] is not None:
+        parts.append(f"judged on the scope {d['scope']['name']!r} (file SHA-256 "
+                     f"{d['scope']['file_sha256'][:16]}...): {d['n_commits']:,} of "
+                     f"{d['n_commits_window']:,} non-merge commits"
+                     + (f" ({d['commit_share']:.1%})" if d["commit_share"] is not None else "")
+                     + f", {d['n_defects']:,} of {d['n_defects_window']:,} defects")
+    if d["since"] or d["until"]:
+        parts.append("committer-date window " + (d["since"] or "start")[:10] + " to "
+                     + (d["until"] or "tip")[:10])
+    return "; ".join(parts)
 
 
 def with_review_adoption(verdict: ClaimVerdict, ctx: ClaimContext) -> ClaimVerdict:
@@ -86,4 +105,6 @@ def with_review_adoption(verdict: ClaimVerdict, ctx: ClaimContext) -> ClaimVerdi
 def evaluate_claims(claims: Sequence[Claim], ctx: ClaimContext) -> list[ClaimVerdict]:
     """Check that the claims fit the store (:func:`check_usable`), then judge each."""
     check_usable(claims, ctx)
+    for c in claims:                      # a scope the claims name must exist: exit 2 first
+        ctx.for_claim(c)
     return [evaluate_claim(c, ctx) for c in claims]

@@ -35,6 +35,8 @@ from procmetrics.claims.base import Claim, ClaimContext, ClaimVerdict
 LATER_LINK_ERA_DAYS = 365
 #: multipliers of the lifetime comparison's follow-up horizon
 HORIZON_FACTORS = (0.5, 2.0)
+#: with --since/--until: the window started this much later, ended this much earlier
+WINDOW_SHIFT_DAYS = 365
 
 #: the panel's choices and ranges, as listed in the report and the README
 PANEL: tuple[tuple[str, str], ...] = (
@@ -47,6 +49,8 @@ PANEL: tuple[tuple[str, str], ...] = (
                        "starts earlier than that)"),
     ("change-point penalty", "not used by any claim kind of this version (change points "
                              "inform the report's before/after section only)"),
+    ("window", f"only with --since/--until: the window started {WINDOW_SHIFT_DAYS} days later "
+               f"and ended {WINDOW_SHIFT_DAYS} days earlier (same scope rules)"),
 )
 
 
@@ -97,7 +101,7 @@ class Robustness:
 def _first_link(ctx: ClaimContext) -> pd.Timestamp | None:
     fl = ctx.fix_links
     ok = fl[fl["status"].astype(str) == "resolved"]["fix_hash"]
-    d = ctx.commits.loc[ctx.commits["hash"].isin(set(ok)), "committer_date"]
+    d = ctx.history.loc[ctx.history["hash"].isin(set(ok)), "committer_date"]
     return None if d.empty else pd.Timestamp(d.min())
 
 
@@ -111,7 +115,7 @@ def _horizon(claim: Claim, ctx: ClaimContext, factor: float) -> tuple[Claim, Cla
             date = cl.resolve_date(claim.params["date"], ctx, "date")
         except cl.Undecidable:
             return None
-        end = ctx.commits[f"{ctx.date_basis}_date"].max()
+        end = ctx.history[f"{ctx.date_basis}_date"].max()
         if pd.isna(end) or date >= end:
             return None
         h = min(365.0, (end - date).days / 2)
@@ -145,7 +149,35 @@ def variants(ctx: ClaimContext) -> list[Variant]:
         out.append(Variant("link era start", f"{later:%Y-%m-%d} ({LATER_LINK_ERA_DAYS} days "
                            "after the first linked fix)",
                            lambda c, x, t=later: (c, replace(x, links_from=t))))
+    sc = ctx.scope
+    shift = pd.Timedelta(days=WINDOW_SHIFT_DAYS)
+    if sc is not None and sc.since is not None:
+        out.append(Variant("window", f"from {sc.since + shift:%Y-%m-%d} ({WINDOW_SHIFT_DAYS} "
+                           "days later)", lambda c, x, t=sc.since + shift: _window(c, x, t, None)))
+    if sc is not None and sc.until is not None:
+        out.append(Variant("window", f"to {sc.until - shift:%Y-%m-%d} ({WINDOW_SHIFT_DAYS} "
+                           "days earlier)", lambda c, x, t=sc.until - shift: _window(c, x, None, t)))
     return out
+
+
+def _window(claim: Claim, ctx: ClaimContext, since: pd.Timestamp | None,
+            until: pd.Timestamp | None) -> tuple[Claim, ClaimContext] | None:
+    """The context cut to a narrower window by the rules of procmetrics.scope.apply."""
+    c, fl, h = ctx.commits, ctx.fix_links, ctx.history
+    resolved = fl["status"].astype(str) == "resolved"
+    if since is not None:
+        c = c[c["committer_date"] >= since]
+        born = (fl["intro_committer_date"] >= since).fillna(False).astype(bool)
+        fl = fl[(resolved & born) | (~resolved & (fl["fix_committer_date"] >= since))]
+    if until is not None:
+        c = c[c["committer_date"] <= until]
+        fl = fl[fl["fix_committer_date"] <= until]
+        h = h[h["committer_date"] <= until]
+    if not len(c):
+        return None
+    return claim, replace(ctx, commits=c.reset_index(drop=True),
+                          fix_links=fl.reset_index(drop=True),
+                          defect_commits=h.reset_index(drop=True))
 
 
 def _evidence(v: ClaimVerdict) -> str:
@@ -186,10 +218,13 @@ def judge_with_panel(claims: Sequence[Claim], ctx: ClaimContext
     from procmetrics import progress
 
     out = []
+    for c in claims:                      # a scope the claims name must exist: exit 2 first
+        ctx.for_claim(c)
     for i, c in enumerate(claims, 1):
         progress.detail(f"claim {i} of {len(claims)}: {c.id} and its robustness panel")
-        v = evaluate_claim(c, ctx)
-        out.append((v, panel(c, v, ctx)))
+        cctx = ctx.for_claim(c)           # the claim's scope: its panel varies that context
+        v = evaluate_claim(c, cctx)
+        out.append((v, panel(c, v, cctx)))
     return out
 
 

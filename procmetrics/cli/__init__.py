@@ -93,5 +93,53 @@ def add_store_argument(parser: argparse.ArgumentParser) -> None:
               "default: $PROCMETRICS_STORE or ./procmetrics.sqlite"))
 
 
+def add_scope_arguments(parser: argparse.ArgumentParser) -> None:
+    """``--scope FILE[:NAME]``, ``--since WHEN``, ``--until WHEN`` (procmetrics.scope)."""
+    g = parser.add_argument_group(
+        "scope and window (the tables are cut once; every figure is about them)")
+    g.add_argument("--scope", metavar="FILE[:NAME]",
+                   help="only commits touching these paths: a scope file (.toml, NAME picks "
+                   "one of its [scope.NAME] tables), a compilation database (.json: the "
+                   "compiled files) or a path list (one path a line); defects whose "
+                   "introducing commit touched them")
+    g.add_argument("--since", metavar="DATE|TAG",
+                   help="only commits with committer date on/after this (a date, a tag or a "
+                   "commit)")
+    g.add_argument("--until", metavar="DATE|TAG",
+                   help="only commits with committer date on/before this; defect analyses "
+                   "end here")
+
+
+def add_scope_file_argument(parser: argparse.ArgumentParser) -> None:
+    """``--scope-file FILE`` (check, report): where claims' ``scope = "NAME"`` are found."""
+    parser.add_argument("--scope-file", metavar="FILE",
+                        help="scope file (.toml) whose [scope.NAME] tables the claims name "
+                        "with scope = \"NAME\"; such a claim is judged on its scope (cut "
+                        "from the whole tree, in the --since/--until window)")
+
+
+def scope_request(args: argparse.Namespace) -> object:
+    """The :class:`procmetrics.scope.apply.ScopeRequest` of the options (inactive if none)."""
+    from procmetrics.scope.apply import ScopeRequest
+
+    return ScopeRequest(getattr(args, "scope", None), getattr(args, "since", None),
+                        getattr(args, "until", None))
+
+
+def print_scope(summary: object, out: object = None) -> None:
+    """The scope header (before any figure) and, with an output folder, ``scope.json``."""
+    if summary is None:
+        return
+    for line in summary.lines():  # type: ignore[attr-defined]
+        print(line)
+    if out is not None:
+        import json
+        from pathlib import Path
+
+        (Path(str(out)) / "scope.json").write_text(
+            json.dumps(summary.to_dict(), indent=1, sort_keys=True) + "\n",  # type: ignore
+            encoding="utf-8")
+
+
 if __name__ == "__main__":  # pragma: no cover
     sys.exit(main())

@@ -7,7 +7,8 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from procmetrics.cli import add_progress_argument, add_store_argument
+from procmetrics.cli import (add_progress_argument, add_scope_arguments, add_store_argument,
+                             print_scope, scope_request)
 
 
 def add_series_arguments(p: argparse.ArgumentParser) -> None:
@@ -33,12 +34,18 @@ def add_series_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("--fix-keywords", action="store_true",
                    help="add fix_ratio_heuristic (subject keywords; flagged as heuristic)")
     p.add_argument("--out", metavar="DIR", help="write CSV/JSON and PNG+SVG figures here")
+    add_scope_arguments(p)
 
 
 def load(args: argparse.Namespace) -> tuple[dict[str, pd.DataFrame], str]:
+    """The tables cut to ``--scope``/``--since``/``--until``; the scope header is printed
+    (and ``scope.json`` written into ``--out``) before any figure."""
     from procmetrics.session import load_tables
 
-    return load_tables(args.store, args.repo)
+    tables, name = load_tables(args.store, args.repo, scope_request(args))
+    summary = tables.get("scope_summary")
+    print_scope(summary, out_dir(args) if summary is not None else None)
+    return tables, name
 
 
 def metric_config(args: argparse.Namespace, tables: dict[str, pd.DataFrame]) -> Any:

@@ -4,7 +4,8 @@ from __future__ import annotations
 import argparse
 import sys
 
-from procmetrics.cli import add_progress_argument, add_store_argument
+from procmetrics.cli import (add_progress_argument, add_scope_arguments, add_scope_file_argument,
+                             add_store_argument, print_scope, scope_request)
 from procmetrics.analyse.measures.periods import DEFAULT_PERIOD
 from procmetrics.report.model import PERIODS
 from procmetrics.textsafe import data_stdout
@@ -40,14 +41,18 @@ def register(sub: argparse._SubParsersAction) -> None:
                    "claim re-judged by month/quarter, committer/author dates, horizon x0.5/x2, "
                    "a later link era); bit 16 of the exit code is then never set")
     p.add_argument("--list-kinds", action="store_true", help="list the claim kinds and exit")
+    add_scope_arguments(p)
+    add_scope_file_argument(p)
     p.set_defaults(func=run)
 
 
 def run(args: argparse.Namespace) -> int:
     # heavy analysis imports happen only when the command runs
     from procmetrics.claims.base import exit_code
-    from procmetrics.claims.check import (check_claims, check_claims_robust, list_kinds,
-                                          render_verdicts, write_text)
+    from procmetrics.claims.check import (claims_and_context, list_kinds, render_verdicts,
+                                          write_text)
+    from procmetrics.claims.registry import evaluate_claims
+    from procmetrics.claims.robustness import judge_with_panel
     from procmetrics.report.jsonout import dumps
 
     if args.list_kinds:
@@ -57,10 +62,18 @@ def run(args: argparse.Namespace) -> int:
         print("procmetrics check: error: give a claims file (or --list-kinds)", file=sys.stderr)
         return 2
     opts = dict(store=args.store, repo=args.repo, policy=args.policy, period=args.period)
+    claims, ctx = claims_and_context(args.claims, **opts, scope=scope_request(args),
+                                     scope_file=args.scope_file)
+    if args.json != "-":
+        print_scope(ctx.scope)
+        for name, sctx in sorted(ctx.scopes.items()):
+            print(f"claims naming the scope {name!r}:")
+            print_scope(sctx.scope)
     if args.no_panel:
-        verdicts, panels = check_claims(args.claims, **opts), None
+        verdicts, panels = evaluate_claims(claims, ctx), None
     else:
-        verdicts, panels = check_claims_robust(args.claims, **opts)
+        pairs = judge_with_panel(claims, ctx)
+        verdicts, panels = [v for v, _ in pairs], [p for _, p in pairs]
     code = exit_code(verdicts, fragile=any(p.fragile for p in panels or ()))
     rob = {p.claim_id: p.to_dict() for p in panels or ()}
     plain = [{**v.to_dict(), **({"robustness": rob[v.claim.id]} if v.claim.id in rob else {})}
@@ -72,7 +85,10 @@ def run(args: argparse.Namespace) -> int:
 
         prov = check_provenance(args.store, repo=args.repo, policy=args.policy,
                                 period=args.period, claims_path=args.claims,
-                                claims_sha256=load_claims(args.claims).sha256)
+                                claims_sha256=load_claims(args.claims).sha256,
+                                scope=None if ctx.scope is None else ctx.scope.to_dict(),
+                                claim_scopes={n: c.scope.to_dict()
+                                              for n, c in sorted(ctx.scopes.items())})
     doc = ""
     if args.json:
         from procmetrics.report.gate import check_document

@@ -30,7 +30,8 @@ def run(args: argparse.Namespace) -> int:
     from procmetrics.analyse.change.policy import DEFAULT_METRICS, compare_policy, resolve_date
 
     tables, name = common.load(args)
-    at = resolve_date(args.at, tables["commits"], tables["tags"])
+    whole = tables.get("whole_tree", tables)     # a commit outside a scope still names a date
+    at = resolve_date(args.at, whole["commits"], whole["tags"])
     cfg = common.metric_config(args, tables)
     print(f"{name}: before/after {at:%Y-%m-%d %H:%M} UTC, per {args.period}")
     common.print_data_quality(tables, args.metric or DEFAULT_METRICS)

@@ -3,7 +3,8 @@ from __future__ import annotations
 
 import argparse
 
-from procmetrics.cli import add_progress_argument, add_store_argument
+from procmetrics.cli import (add_progress_argument, add_scope_arguments, add_store_argument,
+                             print_scope, scope_request)
 from procmetrics.resampling import N_BOOT, SEED, analysis_rng
 from procmetrics.session import containment, links_from, load_tables
 from procmetrics.validate import arg, check_count, check_nonnegative, check_positive, check_seed
@@ -38,6 +39,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--seed", type=arg(check_seed, "--seed"), default=SEED,
                    help="random seed (bootstrap; default the report's)")
     p.add_argument("--out", metavar="DIR", help="write JSON, CSV and figures here")
+    add_scope_arguments(p)
     p.set_defaults(func=run)
 
 
@@ -45,7 +47,9 @@ def run(args: argparse.Namespace) -> int:
     from procmetrics.analyse.growth.analysis import FIX_EVENTS_DEFINITION, analyse_growth
     from procmetrics.claims.growth import fix_event_times
 
-    tables, name = load_tables(args.store, args.repo)
+    tables, name = load_tables(args.store, args.repo, scope_request(args))
+    summary = tables.get("scope_summary")
+    print_scope(summary)
     cont = None
     if args.after_tag:
         ok = tables["fix_links"]
@@ -53,7 +57,7 @@ def run(args: argparse.Namespace) -> int:
         cont = containment(tables, list(ok["introducer_hash"].dropna().unique()),
                            [args.after_tag])
     # the same selection as the report's growth section and the fix_rate_declining claim
-    ft = fix_event_times(tables["fix_links"], tables["commits"],
+    ft = fix_event_times(tables["fix_links"], tables.get("defect_commits", tables["commits"]),
                          links_from=links_from(args.links_from, tables),
                          commit_subsystems=tables["commit_subsystems"],
                          subsystem=args.subsystem, after_tag=args.after_tag,
@@ -87,6 +91,8 @@ def run(args: argparse.Namespace) -> int:
         from procmetrics.report.command_outputs import write_growth_outputs
 
         opts = {k: v for k, v in vars(args).items() if k not in ("func", "store")}
+        if summary is not None:
+            opts["scope_summary"] = summary.to_dict()
         for path in write_growth_outputs(args.out, res, options=opts):
             print(f"  wrote {path}")
     return 0

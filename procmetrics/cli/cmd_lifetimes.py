@@ -8,7 +8,8 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from procmetrics.cli import add_progress_argument, add_store_argument
+from procmetrics.cli import (add_progress_argument, add_scope_arguments, add_store_argument,
+                             print_scope, scope_request)
 from procmetrics.errors import ConfigError
 from procmetrics.resampling import N_BOOT, SEED, analysis_rng
 from procmetrics import textfmt  # noqa: F401 - estimates print through it
@@ -72,6 +73,7 @@ def register(sub: argparse._SubParsersAction) -> None:
                    "skip)")
     g.add_argument("--jobs", type=arg(check_count, "--jobs"), default=2, metavar="N", help="git blame processes "
                    "at once (default 2)")
+    add_scope_arguments(p)
     p.set_defaults(func=run)
 
 
@@ -80,14 +82,17 @@ def run(args: argparse.Namespace) -> int:
     from procmetrics.analyse.lifetimes.analysis import analyse_lifetimes
     from procmetrics.report.command_outputs import write_lifetime_outputs
 
-    tables, name = load_tables(args.store, args.repo)
+    tables, name = load_tables(args.store, args.repo, scope_request(args))
+    summary = tables.get("scope_summary")
+    print_scope(summary)
     links = tables["fix_links"]
     cont = None
     if args.basis == "releases":
         ok = links[links["status"] == "resolved"]
         cont = containment(tables, list(pd.unique(pd.concat([ok["introducer_hash"],
                                                              ok["fix_hash"]]).dropna())))
-    table = build_defects(links, basis=args.basis, commits=tables["commits"],
+    table = build_defects(links, basis=args.basis,
+                          commits=tables.get("defect_commits", tables["commits"]),
                           commit_subsystems=tables["commit_subsystems"],
                           trailers=tables["trailers"], tag_containment=cont,
                           period_cuts=[change_date(args.change_date, tables)]
@@ -108,6 +113,8 @@ def run(args: argparse.Namespace) -> int:
     heuristic = _heuristic(args, tables, name) if args.szz else None
     if args.out:
         opts = {k: v for k, v in vars(args).items() if k not in ("func", "store")}
+        if summary is not None:
+            opts["scope_summary"] = summary.to_dict()
         for path in write_lifetime_outputs(args.out, table, res, options=opts,
                                            heuristic=heuristic):
             print(f"  wrote {path}")

@@ -4,7 +4,8 @@ from __future__ import annotations
 import argparse
 
 from procmetrics import progress
-from procmetrics.cli import add_progress_argument, add_store_argument
+from procmetrics.cli import (add_progress_argument, add_scope_arguments, add_scope_file_argument,
+                             add_store_argument)
 from procmetrics.report.model import PERIODS, ReportOptions
 from procmetrics.validate import arg, check_level, check_seed
 
@@ -50,6 +51,8 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--raw-csv", action="store_true",
                    help="exact text in tables/*.csv (default: a leading ' before text cells "
                    "starting with = + - @ tab or CR, so spreadsheets do not run them)")
+    add_scope_arguments(p)
+    add_scope_file_argument(p)
     p.set_defaults(func=run)
 
 
@@ -58,7 +61,8 @@ def run(args: argparse.Namespace) -> int:
                          subsystems=tuple(dict.fromkeys(args.subsystems)), period=args.period,
                          claims_path=args.claims, level=args.level, seed=args.seed,
                          pdf_engine=args.pdf_engine, meta_path=args.meta,
-                         commit_url=args.commit_url, raw_csv=args.raw_csv)
+                         commit_url=args.commit_url, raw_csv=args.raw_csv, scope=args.scope,
+                         since=args.since, until=args.until, scope_file=args.scope_file)
     from procmetrics.report.build import REPORT_STEPS, make_report  # heavy: imported when run
 
     with progress.steps("report", REPORT_STEPS, enabled=args.progress):

@@ -53,7 +53,8 @@ def build_report(data: StoreData, options: ReportOptions, *,
     if options.period not in PERIODS:
         raise ConfigError(f"unknown period {options.period!r}; choose one of "
                           + ", ".join(PERIODS), key="--period")
-    policy_date = resolve_policy(data, options.policy)
+    # a date given as a commit may lie outside a scope: resolve it on the whole tree
+    policy_date = resolve_policy(data.whole_tree or data, options.policy)
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         quality = ql.summary(data, options.period)
@@ -188,6 +189,17 @@ def _copy_inputs(report: Report, out: Path, info: dict[str, Any], *,
                                       n_claims=info["claims"].get("n_claims"))
         written.append(rel)
     inputs: dict[str, Any] = {}
+    if opts.scope:
+        from procmetrics.scope.definition import split_spec
+
+        file, name = split_spec(opts.scope)
+        rel = copy_input(file, out, "scope" + (Path(file).suffix or ".txt"))
+        inputs["scope"] = input_record(file, rel, sha256_file(out / rel), name=name)
+        written.append(rel)
+    if opts.scope_file:
+        rel = copy_input(opts.scope_file, out, "claim-scopes.toml")
+        inputs["scope_file"] = input_record(opts.scope_file, rel, sha256_file(out / rel))
+        written.append(rel)
     if opts.meta_path:
         rel = copy_input(opts.meta_path, out, "report-meta.toml")
         inputs["report_meta"] = input_record(opts.meta_path, rel, sha256_file(out / rel))
@@ -276,7 +288,12 @@ def make_report(store: str | None, out: str | Path, options: ReportOptions, *,
     engine = open_store(store, create=False, readonly=True)
     try:
         repo = choose_repo(engine, options.repo)
-        data = load_store_data(engine, repo)
+        from procmetrics.claims.check import claim_scope_request
+        from procmetrics.scope.apply import ScopeRequest
+
+        data = load_store_data(engine, repo, within=claim_scope_request(
+            claims.claims if claims is not None else (),
+            ScopeRequest(options.scope, options.since, options.until), options.scope_file))
         dialect = engine.dialect.name
     finally:
         engine.dispose()

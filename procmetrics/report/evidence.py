@@ -238,8 +238,11 @@ def _growth(pack: ClaimPack, claim: Any, cctx: Any) -> None:
 
     ft = claim_fix_events(claim, cctx)
     events = set(ft.events["fix_hash"].astype(str))
-    c = cctx.commits[~cctx.commits["is_merge"].astype("boolean").fillna(False).astype(bool)]
-    fixing = c["n_resolved_fixes"].fillna(0) > 0
+    h = cctx.history
+    c = h[~h["is_merge"].astype("boolean").fillna(False).astype(bool)]
+    # under a scope, the fixes of in-scope defects (the fix itself may touch anything)
+    fixing = (c["n_resolved_fixes"].fillna(0) > 0) & c["hash"].isin(set(
+        cctx.fix_links.loc[cctx.fix_links["status"].astype(str) == "resolved", "fix_hash"]))
     rows = c.loc[fixing, ["hash", "committer_date", "n_resolved_fixes"]].rename(
         columns={"committer_date": "date"})
     rows["counted"] = rows["hash"].astype(str).isin(events).to_numpy()

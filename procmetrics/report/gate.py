@@ -25,7 +25,9 @@ _NOT_XML = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\ud800-\udfff\ufffe\uffff]")
 
 
 def check_provenance(store: str | None, *, repo: str | None, policy: str | None,
-                     period: str, claims_path: str, claims_sha256: str) -> dict[str, Any]:
+                     period: str, claims_path: str, claims_sha256: str,
+                     scope: dict[str, Any] | None = None,
+                     claim_scopes: dict[str, Any] | None = None) -> dict[str, Any]:
     """What a set of verdicts was computed from (reads the store again, read-only)."""
     from procmetrics.analyse.measures.periods import resolve_policy
     from procmetrics.store import open_store, resolve_url
@@ -56,6 +58,8 @@ def check_provenance(store: str | None, *, repo: str | None, policy: str | None,
         "claims_file": {"path": claims_path, "sha256": claims_sha256},
         "options": {"repo": repo, "policy": policy, "period": period},
         "version": __version__,
+        **({"scope": scope} if scope is not None else {}),
+        **({"claim_scopes": claim_scopes} if claim_scopes else {}),
     }
 
 

@@ -48,6 +48,29 @@ class ReportOptions:
     commit_url: str | None = None
     #: exact text in tables/*.csv (no leading ' before cells that start like a formula)
     raw_csv: bool = False
+    #: ``--scope FILE[:NAME]``, ``--since``, ``--until`` (procmetrics.scope): the tables are
+    #: cut once before any analysis; the file is copied into ``inputs/``
+    scope: str | None = None
+    since: str | None = None
+    until: str | None = None
+    #: the scope file claims take ``scope = "NAME"`` from (copied into ``inputs/``)
+    scope_file: str | None = None
+
+    def scope_label(self) -> dict[str, Any] | None:
+        """The scope as the JSON records it: NAME and the file's SHA-256 (no file name or
+        folder, so a rerun from the copy in ``inputs/`` records the same)."""
+        if self.scope is None:
+            return None
+        import hashlib
+        from pathlib import Path
+        from procmetrics.scope.definition import split_spec
+
+        file, name = split_spec(self.scope)
+        try:
+            digest: str | None = hashlib.sha256(Path(file).read_bytes()).hexdigest()
+        except OSError:
+            digest = None
+        return {"name": name, "file_sha256": digest}
 
     def to_dict(self) -> dict[str, Any]:
         """Options that change figures (no local paths: those go in the manifest)."""
@@ -59,6 +82,9 @@ class ReportOptions:
             "subsystem_limit": self.subsystem_limit,
             "subsystem_min_commits": self.subsystem_min_commits,
             **({"raw_csv": True} if self.raw_csv else {}),
+            **({"scope": self.scope_label()} if self.scope else {}),
+            **({"since": self.since} if self.since else {}),
+            **({"until": self.until} if self.until else {}),
         }
 
 

@@ -9,6 +9,7 @@ from typing import Any
 import pandas as pd
 
 from procmetrics.claims.base import VERDICT_LABELS, ClaimContext
+from procmetrics.claims.check import scope_name
 from procmetrics.claims.robustness import PANEL, judge_with_panel, variants
 from procmetrics.analyse.result import CAVEAT_CODES
 from procmetrics.report.context import BuildContext
@@ -69,7 +70,8 @@ def claim_context(ctx: BuildContext) -> ClaimContext:
         rewritten=bool(q["history"]["rewritten"]),
         unresolved_limit=ctx.options.unresolved_share_limit, min_n=ctx.options.min_n,
         period=ctx.options.period if ctx.options.period != "release" else "quarter",
-        seed=ctx.seed)
+        seed=ctx.seed, defect_commits=d.get("defect_commits"), scope=d.scope,
+        scope_name=scope_name(d.scope)).with_named_scopes(d.named_scopes or {})
 
 
 def section_claims(ctx: BuildContext) -> None:
@@ -84,7 +86,7 @@ def section_claims(ctx: BuildContext) -> None:
     verdicts = [v for v, _ in pairs]
     rep.claims = [{**v.to_dict(), "robustness": p.to_dict()} for v, p in pairs]
     for claim, c in zip(ctx.claims.claims, rep.claims, strict=True):
-        pack = claim_pack(claim, cctx, c)
+        pack = claim_pack(claim, cctx.for_claim(claim), c)
         for name, rows in pack.files.items():
             rep.evidence[f"{EVIDENCE_DIR}/{claim.id}/{name}"] = rows
         c["evidence_pack"] = pack.to_dict()

@@ -21,7 +21,7 @@ def compute_defects(ctx: BuildContext) -> Any:
 
     d = ctx.data
     cuts = [ctx.policy_date] if ctx.policy_date is not None else None
-    return build_defects(d["fix_links"], commits=d["commits"],
+    return build_defects(d["fix_links"], commits=d.get("defect_commits", d["commits"]),
                          commit_subsystems=d["commit_subsystems"], trailers=d["trailers"],
                          period_cuts=cuts)
 
@@ -40,7 +40,7 @@ def lifetime_defects(ctx: BuildContext) -> Any:
 
     d = ctx.data
     cuts = [ctx.policy_date] if ctx.policy_date is not None else None
-    return build_defects(d["fix_links"], commits=d["commits"],
+    return build_defects(d["fix_links"], commits=d.get("defect_commits", d["commits"]),
                          commit_subsystems=d["commit_subsystems"], trailers=d["trailers"],
                          period_cuts=cuts, links_from="settled")
 
@@ -191,7 +191,7 @@ def section_growth(ctx: BuildContext) -> None:
         return
     d = ctx.data
     ft = ctx.attempt("Fix times", s, lambda: fix_event_times(
-        d["fix_links"], d["commits"], commit_subsystems=d["commit_subsystems"]))
+        d["fix_links"], d.get("defect_commits", d["commits"]), commit_subsystems=d["commit_subsystems"]))
     if ft is None:
         return
     g = ctx.attempt("Reliability growth", s, lambda: analyse_growth(

@@ -35,6 +35,7 @@ def scope(ctx: BuildContext) -> dict[str, Any]:
         "subsystems": list(ctx.options.subsystems),
         "period": ctx.options.period,
         "mining_options": ctx.quality["history"]["mining_options"],
+        **({"selection": d.scope.to_dict()} if getattr(d, "scope", None) is not None else {}),
     }
 
 
@@ -98,6 +99,9 @@ def section_scope(ctx: BuildContext) -> None:
         f"Periods are calendar {ctx.options.period}s unless stated otherwise"
         + (", and releases are the repository's tags." if ctx.options.period == "release"
            else "."))
+    from procmetrics.report.scope_tables import scope_tables
+
+    scope_tables(ctx, s)
     if ctx.policy_date is not None:
         s.p(f"The process change under examination took effect on "
             f"{ctx.policy_date:%Y-%m-%d} (given as “{ctx.options.policy}”). Comparisons split "

@@ -25,7 +25,7 @@ from __future__ import annotations
 import hashlib
 import math
 from dataclasses import dataclass
-from typing import Any, Iterable, Iterator, Mapping
+from typing import Any, Callable, Iterable, Iterator, Mapping
 
 import numpy as np
 import pandas as pd
@@ -48,9 +48,17 @@ class StoreData:
     tables: Mapping[str, pd.DataFrame]
     #: checksum computed while loading (same snapshot); "" = compute from ``tables``
     checksum: str = ""
+    #: when a scope or window cut the tables: its summary, and the whole-tree tables
+    scope: Any = None
+    whole_tree: Mapping[str, pd.DataFrame] | None = None
+    #: scopes claims name: name -> (tables cut from the whole tree, summary)
+    named_scopes: Mapping[str, Any] | None = None
 
     def __getitem__(self, name: str) -> pd.DataFrame:
         return self.tables[name]
+
+    def get(self, name: str, default: Any = None) -> Any:
+        return self.tables.get(name, default)
 
 
 def choose_repo(engine: Engine, repo: str | None) -> str:
@@ -72,11 +80,15 @@ def choose_repo(engine: Engine, repo: str | None) -> str:
     return names[0]
 
 
-def load_store_data(engine: Engine, repo: str) -> StoreData:
+def load_store_data(engine: Engine, repo: str, within: Callable[..., Any] | None = None
+                    ) -> StoreData:
     """The tidy tables the report needs for ``repo`` and the store checksum.
 
     One snapshot: a miner writing at the same time is never seen half-way, and
-    the checksum describes exactly the data the report was built from.
+    the checksum describes exactly the data the report was built from (the whole
+    store; a scope names its own file checksum). ``within(conn, repo, tables)``, when
+    given (a :class:`procmetrics.scope.apply.ScopeRequest`), returns the tables cut to a
+    scope and window and its summary, computed in the same snapshot.
     """
     with snapshot(engine) as conn:
         tables = {name: read_table(conn, name, repo) for name in REPORT_TABLES}
@@ -85,6 +97,11 @@ def load_store_data(engine: Engine, repo: str) -> StoreData:
             if name != "file_changes"}
         n_fc, fc = _count_and_digest(file_change_lines(conn, repo))
         parts["file_changes"] = (n_fc, fc)
+        if within is not None and getattr(within, "active", True):
+            scoped, summary = within(conn, repo, tables)
+            named = within.variants(conn, repo, tables) if hasattr(within, "variants") else {}
+            return StoreData(repo, scoped, checksum=_combine(parts), scope=summary,
+                             whole_tree=tables, named_scopes=named)
     return StoreData(repo, tables, checksum=_combine(parts))
 
 

@@ -58,7 +58,7 @@ def test_the_tree_has_the_rooms_the_guide_describes() -> None:
 @pytest.mark.parametrize("name", sorted(m for m in MODULES if _within(m, "procmetrics.analyse")))
 def test_analyse_imports_no_room_downstream_or_upstream(name: str) -> None:
     banned = [f"procmetrics.{r}" for r in ("claims", "report", "plot", "cli", "mine", "store",
-                                           "session")]
+                                           "session", "scope")]
     bad = sorted(d for d in MODULES[name] for b in banned if _within(d, b))
     assert not bad, f"{name} imports {bad}"
 
@@ -82,7 +82,9 @@ def test_question_packages_import_only_measures_and_the_shared_modules(name: str
 
 @pytest.mark.parametrize("room,banned", [
     ("procmetrics.mine", ("store.tables", "analyse", "claims", "plot", "report", "cli")),
-    ("procmetrics.store", ("mine", "analyse", "claims", "plot", "report", "cli")),
+    ("procmetrics.store", ("mine", "analyse", "claims", "plot", "report", "cli", "scope")),
+    # scope: a question-free utility between store and claims (globs, selection, window)
+    ("procmetrics.scope", ("claims", "report", "plot", "cli", "mine", "session")),
     ("procmetrics.claims", ("report", "plot", "cli", "mine")),
     ("procmetrics.plot", ("claims", "report", "cli", "mine", "store")),
     ("procmetrics.report", ("cli",)),
@@ -93,6 +95,17 @@ def test_rooms_import_only_downstream(room: str, banned: tuple[str, ...]) -> Non
             continue
         bad = sorted(d for d in deps for b in banned if _within(d, f"procmetrics.{b}"))
         assert not bad, f"{name} imports {bad}"
+
+
+def test_scope_uses_only_the_one_date_parser_of_analyse() -> None:
+    """The scope room reads dates through analyse.measures.periods and nothing else there."""
+    assert "procmetrics.scope" in MODULES
+    for name, deps in MODULES.items():
+        if _within(name, "procmetrics.scope"):
+            bad = sorted(d for d in deps if _within(d, "procmetrics.analyse")
+                         and not _within(d, "procmetrics.analyse.measures.periods")
+                         and d != "procmetrics.analyse.measures")
+            assert not bad, f"{name} imports {bad}"
 
 
 def test_only_report_and_cli_import_plot() -> None:
@@ -125,7 +138,8 @@ def test_the_rule_checker_sees_a_planted_violation(tmp_path: Path) -> None:
 
 @pytest.mark.parametrize("package", ["procmetrics.analyse.measures", "procmetrics.analyse.change",
                                      "procmetrics.analyse.lifetimes", "procmetrics.analyse.growth",
-                                     "procmetrics.analyse.carryover", "procmetrics.claims"])
+                                     "procmetrics.analyse.carryover", "procmetrics.claims",
+                                     "procmetrics.scope"])
 def test_every_lazily_exported_name_resolves(package: str) -> None:
     import importlib
 

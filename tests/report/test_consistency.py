@@ -43,7 +43,7 @@ def demo_report(tmp_path_factory) -> dict:
     out = base / "report"
     make_report(str(store), out, ReportOptions(
         policy=policy, claims_path=str(ROOT / "sample_repos" / "demo_claims.toml"),
-        pdf_engine="none"))
+        scope_file=str(ROOT / "sample_repos" / "demo_scopes.toml"), pdf_engine="none"))
     doc = json.loads((out / "report.json").read_text(encoding="utf-8"))
     return {"store": store, "out": out, "policy": policy, "json": doc,
             "figures": {f["key"]: f for f in doc["figures"]},
@@ -196,7 +196,8 @@ def test_check_marks_fragile_verdicts_in_text_json_and_exit_code(demo_report, ca
     capsys.readouterr()
     js = tmp_path / "verdicts.json"
     code = main(["check", claims, "--store", str(demo_report["store"]), "--policy-date",
-                 demo_report["policy"], "--json", str(js)])
+                 demo_report["policy"], "--json", str(js), "--scope-file",
+                 str(ROOT / "sample_repos" / "demo_scopes.toml")])
     out = capsys.readouterr().out
     full = json.loads(js.read_text(encoding="utf-8"))
     assert full["exit_code"] == code          # the JSON carries provenance and the exit code

@@ -53,7 +53,8 @@ def demo(built, tmp_path_factory):
     out = tmp_path_factory.mktemp("evidence") / "rep"
     make_report(str(built.store), out, ReportOptions(
         policy=built.policy, claims_path=str(ROOT / "sample_repos" / "demo_claims.toml"),
-        pdf_engine="none", commit_url=URL))
+        scope_file=str(ROOT / "sample_repos" / "demo_scopes.toml"), pdf_engine="none",
+        commit_url=URL))
     html = (out / "report.html").read_text("utf-8")
     parser = Links()
     parser.feed(html)

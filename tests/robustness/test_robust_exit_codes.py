@@ -80,7 +80,7 @@ def _values(action: argparse.Action) -> list[str]:
     if any(k in opt for k in ("date", "--at", "--since", "--until", "--links-from")):
         return BAD_DATES
     if opt in ("--out", "-o", "--output", "--json", "--claims", "--subsystem-rules", "--list",
-               "--szz-commits", "--store"):
+               "--szz-commits", "--store", "--scope", "--junit"):
         return BAD_PATHS
     if opt in ("--repo", "--ref"):
         return ["no-such-repo", "-x"]
