@@ -129,9 +129,21 @@ def commits_of_part(git: Any, args: list[str], rev_range: list[str], *, line_cou
             m = _UNREADABLE.search(str(exc))
             if not m:
                 raise
-            bad = chunk[got]             # --no-walk=unsorted: in the order given
-        yield from parse_log(git.stream(_no_walk(args, [bad], line_counts=False)))
-        lacking.append((bad, m.group(1)))
+        # --no-walk=unsorted shows the chunk in the order given, so the failing commit is
+        # chunk[got] or later: git may die before its buffered output shows the header
+        # of the commit it failed on, and then the last complete commit is not yielded
+        # either. Try chunk[got] alone first; only a commit that fails alone lacks a blob.
+        cand = chunk[got]
+        try:
+            alone = list(parse_log(git.stream(_no_walk(args, [cand], line_counts=True))))
+        except GitFailed as exc:
+            m = _UNREADABLE.search(str(exc))
+            if not m:
+                raise
+            yield from parse_log(git.stream(_no_walk(args, [cand], line_counts=False)))
+            lacking.append((cand, m.group(1)))
+        else:
+            yield from alone
         i += got + 1
 
 
