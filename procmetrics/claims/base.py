@@ -153,6 +153,8 @@ class ClaimContext:
     #: per-upstream-fix carry-over table of a tree mined with an upstream reference
     #: (:func:`procmetrics.analyse.carryover.carryover_table`); None without one
     carryover: pd.DataFrame | None = None
+    #: the date the carry-over table judges the tree at (its tip unless ``--as-of``)
+    carryover_as_of: pd.Timestamp | None = None
 
 
 @dataclass(frozen=True)

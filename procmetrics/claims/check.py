@@ -7,9 +7,9 @@ from typing import Sequence
 
 from procmetrics.claims.base import Claim, ClaimContext, ClaimVerdict
 from procmetrics.claims.robustness import Robustness, judge_with_panel
-from procmetrics.claims.carryover import carryover_for
+from procmetrics.claims.carryover_source import carryover_for, read_exclusions
 from procmetrics.claims.registry import SPECS, evaluate_claims
-from procmetrics.errors import OutputPathError
+from procmetrics.errors import ConfigError, OutputPathError
 from procmetrics.analyse.measures import quality as ql
 from procmetrics.analyse.measures.periods import DEFAULT_PERIOD
 from procmetrics.claims.reader import load_claims
@@ -19,35 +19,43 @@ from procmetrics.claims.base import VERDICT_LABELS as cl_labels
 
 
 def check_claims(claims_path: str, *, store: str | None, repo: str | None = None,
-                 policy: str | None = None, period: str = DEFAULT_PERIOD) -> list[ClaimVerdict]:
+                 policy: str | None = None, period: str = DEFAULT_PERIOD,
+                 exclusions: str | None = None) -> list[ClaimVerdict]:
     """Parse the claims file, read the store and judge every claim."""
     claims, ctx = claims_and_context(claims_path, store=store, repo=repo, policy=policy,
-                                     period=period)
+                                     period=period, exclusions=exclusions)
     return evaluate_claims(claims, ctx)
 
 
 def check_claims_robust(claims_path: str, *, store: str | None, repo: str | None = None,
-                        policy: str | None = None, period: str = DEFAULT_PERIOD
+                        policy: str | None = None, period: str = DEFAULT_PERIOD,
+                        exclusions: str | None = None
                         ) -> tuple[list[ClaimVerdict], list[Robustness]]:
     """As :func:`check_claims`, with every claim's robustness panel."""
     claims, ctx = claims_and_context(claims_path, store=store, repo=repo, policy=policy,
-                                     period=period)
+                                     period=period, exclusions=exclusions)
     pairs = judge_with_panel(claims, ctx)
     return [v for v, _ in pairs], [p for _, p in pairs]
 
 
 def claims_and_context(claims_path: str, *, store: str | None, repo: str | None,
-                       policy: str | None, period: str) -> tuple[list[Claim], ClaimContext]:
-    """The claims of a file and the context they are judged in."""
+                       policy: str | None, period: str, exclusions: str | None = None
+                       ) -> tuple[list[Claim], ClaimContext]:
+    """The claims of a file and the context they are judged in (``exclusions``: the
+    carry-over exclusions file, read as the ``carryover`` command reads it)."""
     from procmetrics.analyse.measures.periods import resolve_policy
     from procmetrics.store import open_store
 
     claims = load_claims(claims_path)
+    excl = read_exclusions(exclusions)
     engine = open_store(store, create=False, readonly=True)
     try:
         name = choose_repo(engine, repo)
         data = load_store_data(engine, name)
-        carry = carryover_for(engine, name)
+        carry = carryover_for(engine, name, excl)
+        if carry is None and exclusions is not None:
+            raise ConfigError(f"--exclusions: {name} has no single upstream reference (mine "
+                              "it with --upstream) for the exclusions to apply to")
     finally:
         engine.dispose()
     hist = ql.history_state(data)
@@ -55,7 +63,9 @@ def claims_and_context(claims_path: str, *, store: str | None, repo: str | None,
                        fix_links=data["fix_links"], commit_subsystems=data["commit_subsystems"],
                        tags=data["tags"], policy_date=resolve_policy(data, policy),
                        is_shallow=hist["is_shallow"], rewritten=bool(hist["rewritten"]),
-                       period=period if period != "release" else "quarter", carryover=carry)
+                       period=period if period != "release" else "quarter",
+                       carryover=None if carry is None else carry["table"],
+                       carryover_as_of=None if carry is None else carry["as_of"])
     return list(claims.claims), ctx
 
 

@@ -40,7 +40,8 @@ HORIZON_FACTORS = (0.5, 2.0)
 PANEL: tuple[tuple[str, str], ...] = (
     ("period", "month and quarter (per-period models of shares, trends, before/after)"),
     ("date basis", "committer dates and author dates (windows, periods, fix times)"),
-    ("lifetime horizon", "the claim's follow-up horizon ×0.5 and ×2 (lifetime comparisons)"),
+    ("lifetime horizon", "the claim's follow-up horizon ×0.5 and ×2 (lifetime and carry-over "
+                         "comparisons)"),
     ("link era start", f"the first linked fix, and {LATER_LINK_ERA_DAYS} days later, when "
                        "linking has settled (fix-event and defect selections)"),
     ("change-point penalty", "not used by any claim kind of this version (change points "

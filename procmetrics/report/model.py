@@ -48,6 +48,8 @@ class ReportOptions:
     commit_url: str | None = None
     #: exact text in tables/*.csv (no leading ' before cells that start like a formula)
     raw_csv: bool = False
+    #: carry-over exclusions file (TOML, :mod:`procmetrics.claims.carryover_source`)
+    exclusions_path: str | None = None
 
     def to_dict(self) -> dict[str, Any]:
         """Options that change figures (no local paths: those go in the manifest)."""

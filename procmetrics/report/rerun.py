@@ -64,7 +64,8 @@ class RerunResult:
 
 
 def _options(man: dict[str, Any], *, claims: str | None = None,
-             meta: str | None = None, where: str | None = None) -> ReportOptions:
+             meta: str | None = None, where: str | None = None,
+             excl: str | None = None) -> ReportOptions:
     """The recorded report options, each number checked by the one validator the
     command line uses (a tampered manifest ends in exit 2 naming the key)."""
     from procmetrics.validate import check_count, check_level, check_seed
@@ -91,7 +92,7 @@ def _options(man: dict[str, Any], *, claims: str | None = None,
                          subsystem_limit=num(check_count, "subsystem_limit", 12),
                          subsystem_min_commits=num(check_count, "subsystem_min_commits", 30),
                          meta_path=meta, commit_url=o.get("commit_url"),
-                         raw_csv=bool(o.get("raw_csv", False)))
+                         raw_csv=bool(o.get("raw_csv", False)), exclusions_path=excl)
 
 
 def _input_file(rec: dict[str, Any] | None, folder: Path, what: str, key: str,
@@ -224,10 +225,12 @@ def rerun(manifest_path: str | Path, out: str | Path | None = None) -> RerunResu
     inputs = man.get("inputs") or {}
     meta = _input_file(inputs.get("report_meta"), old_dir, "report metadata file",
                        "inputs.report_meta", notes)
+    excl = _input_file(inputs.get("carryover_exclusions"), old_dir,
+                       "carry-over exclusions file", "inputs.carryover_exclusions", notes)
     created = not new_dir.exists()
     try:
         return _rerun_into(man, mpath, old_dir, new_dir, _options(man, claims=claims, meta=meta,
-                                                                  where=str(mpath)),
+                                                                  where=str(mpath), excl=excl),
                            notes, runs)
     except BaseException:
         if created and new_dir.exists():

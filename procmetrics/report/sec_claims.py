@@ -27,6 +27,7 @@ _RELATED = {
     "lifetimes": ("lifetime-curves", "lifetime-before-after", "lifetime-quantiles",
                   "fix-references"),
     "growth": ("growth-curve", "growth-trend-tests", "growth-models", "fix-references"),
+    "carryover": ("carryover-curves", "carryover-latency", "carryover-missing"),
 }
 
 
@@ -35,6 +36,9 @@ def related_items(rep: Report, claim: object) -> list[dict[str, str]]:
     kind, p = getattr(claim, "kind", ""), dict(getattr(claim, "params", {}) or {})
     if "lifetime" in kind:
         group = "lifetimes"
+    elif kind in ("no_missing_upstream_fix_older_than", "half_carried_within",
+                  "carryover_faster_after"):
+        group = "carryover"
     elif kind == "fix_rate_declining":
         group = "growth"
     elif kind == "fix_ratio_declining":
@@ -69,7 +73,9 @@ def claim_context(ctx: BuildContext) -> ClaimContext:
         rewritten=bool(q["history"]["rewritten"]),
         unresolved_limit=ctx.options.unresolved_share_limit, min_n=ctx.options.min_n,
         period=ctx.options.period if ctx.options.period != "release" else "quarter",
-        seed=ctx.seed)
+        seed=ctx.seed,
+        carryover=None if ctx.carryover is None else ctx.carryover["table"],
+        carryover_as_of=None if ctx.carryover is None else ctx.carryover["as_of"])
 
 
 def section_claims(ctx: BuildContext) -> None:
