@@ -8,6 +8,7 @@ wherever they are printed.
 """
 from __future__ import annotations
 
+import json
 from typing import Any, Sequence
 
 import pandas as pd
@@ -70,10 +71,23 @@ def carryover_from_engine(engine: Any, repo: str | None, upstream: str | None = 
     from procmetrics.store.upstream import carryover_tables
 
     data = carryover_tables(engine, repo, upstream)
+    pm = json.loads(data["path_map"]) if data["path_map"] else None
     out = build_carryover(data["tree_tables"], data["upstream_tables"], data["upstream"],
-                          list(exclusions), as_of)
-    out.update(tree=data["tree"], upstream=data["upstream"], exclusions=list(exclusions))
+                          list(exclusions), as_of,
+                          None if pm is None else [tuple(p) for p in pm["pairs"]])
+    out.update(tree=data["tree"], upstream=data["upstream"], exclusions=list(exclusions),
+               path_map=pm, path_map_text=describe_path_map(pm))
     return out
+
+
+def describe_path_map(pm: dict[str, Any] | None) -> str:
+    """One line on which upstream paths count and how the map was obtained."""
+    if pm is None:
+        return "the whole upstream counts (no path map)"
+    maps = ", ".join(f"{u or '(root)'} -> {t or '(root)'}" for u, t in pm["pairs"])
+    note = f"; {pm['note']}" if pm.get("note") else ""
+    return (f"only upstream changes to mirrored paths count: {maps} ({pm['how']} when the "
+            f"upstream was mined{note})")
 
 
 def carryover_for(engine: Any, repo: str, exclusions: Sequence[Any] = ()

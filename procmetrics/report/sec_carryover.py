@@ -18,7 +18,8 @@ from procmetrics.report.model import Figure, Table
 MISSING_KEY = "carryover-missing"
 LATENCY_KEY = "carryover-latency"
 FIGURE_KEY = "carryover-curves"
-STATUSES = ("missing", "excluded", "carried", "shared", "not-relevant", "not-due")
+STATUSES = ("missing", "excluded", "carried", "shared", "not-relevant", "not-due",
+            "not-mirrored")
 EVIDENCE_FILE = "evidence/carryover/upstream_fixes.csv"
 LIMITS = (
     "Upstream fixes without a “Fixes:” line are invisible here: the list holds only the "
@@ -73,6 +74,7 @@ def section_carryover(ctx: BuildContext) -> None:
         + ", ".join(f"{k} {int(counts.get(k, 0))}" for k in STATUSES) + ". Carried by: "
         + (", ".join(f"{k} {v}" for k, v in carried.items()) or "none")
         + f"; ambiguous patch-id matches {int(table['ambiguous'].sum())} (counted apart).")
+    s.p("Paths: " + co["path_map_text"] + ".")
     excl = co.get("exclusions") or []
     s.p(f"Exclusions file: {len(excl)} entr{'y' if len(excl) == 1 else 'ies'}; "
         f"{int(counts.get('excluded', 0))} of the absent fixes are excluded by it."
