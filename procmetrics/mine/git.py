@@ -436,7 +436,8 @@ def mapped_patch_ids(repo: GitRepo, commits: Sequence[str],
                 f"--src-prefix=a/{tree}", f"--dst-prefix=b/{tree}"]
         if up:
             args.append(f"--relative={up}")
-        out = repo._run(args + ["--"], input=data).stdout
+        # the pathspec lets git skip the diffs of other folders (and commits without one)
+        out = repo._run(args + ["--"] + ([up] if up else []), input=data).stdout
         for chunk in re.split(rb"(?m)^(?=commit [0-9a-f]{40,64}$)", out):
             head, _, body = chunk.partition(b"\n")
             if head.startswith(b"commit ") and body.strip():

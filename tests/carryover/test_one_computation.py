@@ -129,3 +129,13 @@ def test_claims_read_the_exclusions_like_the_command(outputs):
     assert chk["half-5"]["evidence"]["estimate"] == rep["half-5"]["evidence"]["estimate"]
     # 10 fixes concern the tree: too few for a before/after comparison, in both places
     assert chk["faster"]["verdict"] == rep["faster"]["verdict"] == "undecidable"
+
+
+def test_claim_evidence_packs_list_the_fixes_counted(outputs):
+    rep = _verdicts({"claims": outputs["report"]["claims"]})
+    pack = rep["none-10"]["evidence_pack"]
+    assert pack["reproduces_n"] is True and pack["counted_rows"] == 10   # 6 + 3 + 1 excluded
+    path = outputs["root"] / "rep" / pack["files"][0]["path"]
+    with path.open(encoding="utf-8") as fh:
+        rows = list(csv.DictReader(fh))
+    assert len(rows) == 13 and sum(r["counted"].lower() == "true" for r in rows) == 10
