@@ -88,60 +88,26 @@ def change_date(value: str | None, tables: dict[str, Any]) -> Any:
 
 
 def read_exclusions(path: str | None) -> list[Any]:
-    """The exclusions file (TOML): ``[[exclude]]`` tables with ``upstream`` and ``reason``."""
-    from procmetrics.analyse.carryover.missing import Exclusion
-    from procmetrics.errors import ConfigError
+    """The exclusions file (see :func:`procmetrics.claims.carryover_source.read_exclusions`)."""
+    from procmetrics.claims.carryover_source import read_exclusions as read
 
-    if path is None:
-        return []
-    import tomllib
-    try:
-        with open(path, "rb") as fh:
-            data = tomllib.load(fh)
-    except OSError as exc:
-        raise ConfigError(f"cannot read the exclusions file {path}: {exc.strerror}") from exc
-    except tomllib.TOMLDecodeError as exc:
-        raise ConfigError(f"{path}: not valid TOML ({exc})") from exc
-    items = data.get("exclude", [])
-    unknown = set(data) - {"exclude"}
-    if unknown or not isinstance(items, list):
-        raise ConfigError(f"{path}: expected only [[exclude]] tables, found {sorted(unknown)}")
-    out = []
-    for i, item in enumerate(items, 1):
-        up, reason = item.get("upstream"), item.get("reason")
-        if (not isinstance(up, str) or len(up) < 7
-                or any(ch not in "0123456789abcdefABCDEF" for ch in up)):
-            raise ConfigError(f"{path}: exclusion {i}: 'upstream' must be a commit id "
-                              "(7 to 40 hex digits)")
-        if not isinstance(reason, str) or not reason.strip():
-            raise ConfigError(f"{path}: exclusion {i} ({up}): a 'reason' is required")
-        out.append(Exclusion(up.lower(), reason.strip()))
-    return out
+    return read(path)
 
 
 def load_carryover(store: str | None, repo: str | None, upstream: str | None = None,
                    exclusions: str | None = None, as_of: str | None = None) -> dict[str, Any]:
     """Everything the carry-over questions need for one tree and one upstream reference:
     the per-fix table (``table``), the matches, the tree's fix references resolved
-    upstream (``tree_refs_upstream``), the tip date, and the names of both."""
-    from procmetrics.analyse.carryover.build import build_carryover
+    upstream (``tree_refs_upstream``), the tip date, and the names of both (the one
+    computation the claims and the report use too:
+    :func:`procmetrics.claims.carryover_source.carryover_from_engine`)."""
+    from procmetrics.claims.carryover_source import carryover_from_engine, parse_as_of
     from procmetrics.store import open_store
-    from procmetrics.store.upstream import carryover_tables
 
     excl = read_exclusions(exclusions)
-    when = None
-    if as_of is not None:
-        try:
-            when = pd.Timestamp(as_of)
-        except ValueError as exc:
-            raise ConfigError(f"--as-of: not a date: {as_of!r}") from exc
-        when = when.tz_localize("UTC") if when.tzinfo is None else when.tz_convert("UTC")
+    when = parse_as_of(as_of)
     engine = open_store(store, create=False)
     try:
-        data = carryover_tables(engine, repo, upstream)
+        return carryover_from_engine(engine, repo, upstream, excl, when)
     finally:
         engine.dispose()
-    out = build_carryover(data["tree_tables"], data["upstream_tables"], data["upstream"], excl,
-                          when)
-    out.update(tree=data["tree"], upstream=data["upstream"], exclusions=excl)
-    return out

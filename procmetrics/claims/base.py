@@ -201,6 +201,8 @@ class ClaimContext:
     def history(self) -> pd.DataFrame:
         """The commits defect analyses read (end of observation, introducer look-ups)."""
         return self.commits if self.defect_commits is None else self.defect_commits
+    #: the date the carry-over table judges the tree at (its tip unless ``--as-of``)
+    carryover_as_of: pd.Timestamp | None = None
 
 
 @dataclass(frozen=True)

@@ -1,8 +1,11 @@
 """Claim kinds about carrying upstream fixes over into a tree (vendor tree, mirror).
 
-Both need a tree mined with ``--upstream`` (``ClaimContext.carryover``); without
-one they are undecidable. Fixes the exclusions file names are not read here, so
-they count as missing: that can only make these claims harder to support.
+All need a tree mined with ``--upstream`` (``ClaimContext.carryover``); without
+one they are undecidable. The table is built by
+:func:`procmetrics.claims.carryover_source.carryover_from_engine` with the
+exclusions file given to ``check`` or ``report`` (``--exclusions``), the same
+computation as the ``carryover`` command: an excluded fix is not counted as
+missing, and every excluded fix is named in the verdict with its reason.
 
 References
 ----------
@@ -47,7 +50,8 @@ def eval_no_missing(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
     t = _table(ctx)
     days = float(claim.params["days"])
     concern = t[t["status"].isin(["carried", "missing", "excluded"])]
-    old = concern[(concern["status"] != "carried") & (concern["gap_days"] > days)]
+    old = concern[(concern["status"] == "missing") & (concern["gap_days"] > days)]
+    excl = concern[(concern["status"] == "excluded") & (concern["gap_days"] > days)]
     k = len(old)
     n = len(concern)
     if n == 0:
@@ -61,6 +65,12 @@ def eval_no_missing(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
             f"{h[:12]} ({g:.0f} d)" for h, g in
             old.sort_values("gap_days", ascending=False)[["fix_hash", "gap_days"]]
             .head(5).itertuples(index=False)))
+    if len(excl):
+        extra.append(f"{len(excl)} upstream fix(es) older than {days:g} days are absent but "
+                     "excluded by the exclusions file, so not counted: " + "; ".join(
+                         f"{h[:12]} ({g:.0f} d): {r}" for h, g, r in
+                         excl[["fix_hash", "gap_days", "exclusion_reason"]]
+                         .itertuples(index=False)))
     return cl.decide(claim, est, side="below", threshold=0.5, what="number of missing "
                      f"upstream fixes older than {days:g} days", method=SPECS[claim.kind].method,
                      n=n, fmt=lambda x: f"{x:.0f}" if x != 0.5 else "0.5", extra=extra)
@@ -97,17 +107,3 @@ def eval_half_within(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
 
 EVALUATORS = {"no_missing_upstream_fix_older_than": eval_no_missing,
               "half_carried_within": eval_half_within}
-
-
-def carryover_for(engine, repo: str):
-    """The carry-over table of ``repo`` when an upstream reference is mined, else None."""
-    from procmetrics.analyse.carryover.build import build_carryover
-    from procmetrics.store.upstream import carryover_tables
-    from procmetrics.store.tables import read_table
-
-    refs = read_table(engine, "upstream_references", repo)
-    if refs.empty or refs["upstream_repo"].nunique() > 1:
-        return None         # none, or several: the carryover command chooses one
-    data = carryover_tables(engine, repo)
-    return build_carryover(data["tree_tables"], data["upstream_tables"],
-                           data["upstream"])["table"]

@@ -7,9 +7,9 @@ from typing import Any, Sequence
 
 from procmetrics.claims.base import Claim, ClaimContext, ClaimVerdict
 from procmetrics.claims.robustness import Robustness, judge_with_panel
-from procmetrics.claims.carryover import carryover_for
+from procmetrics.claims.carryover_source import carryover_for, read_exclusions
 from procmetrics.claims.registry import SPECS, evaluate_claims
-from procmetrics.errors import OutputPathError
+from procmetrics.errors import ConfigError, OutputPathError
 from procmetrics.analyse.measures import quality as ql
 from procmetrics.analyse.measures.periods import DEFAULT_PERIOD
 from procmetrics.claims.reader import load_claims
@@ -20,41 +20,51 @@ from procmetrics.claims.base import VERDICT_LABELS as cl_labels
 
 def check_claims(claims_path: str, *, store: str | None, repo: str | None = None,
                  policy: str | None = None, period: str = DEFAULT_PERIOD,
-                 scope: Any = None, scope_file: str | None = None) -> list[ClaimVerdict]:
+                 scope: Any = None, scope_file: str | None = None,
+                 exclusions: str | None = None) -> list[ClaimVerdict]:
     """Parse the claims file, read the store and judge every claim."""
     claims, ctx = claims_and_context(claims_path, store=store, repo=repo, policy=policy,
-                                     period=period, scope=scope, scope_file=scope_file)
+                                     period=period, scope=scope, scope_file=scope_file,
+                                     exclusions=exclusions)
     return evaluate_claims(claims, ctx)
 
 
 def check_claims_robust(claims_path: str, *, store: str | None, repo: str | None = None,
                         policy: str | None = None, period: str = DEFAULT_PERIOD,
-                        scope: Any = None, scope_file: str | None = None
+                        scope: Any = None, scope_file: str | None = None,
+                        exclusions: str | None = None
                         ) -> tuple[list[ClaimVerdict], list[Robustness]]:
     """As :func:`check_claims`, with every claim's robustness panel."""
     claims, ctx = claims_and_context(claims_path, store=store, repo=repo, policy=policy,
-                                     period=period, scope=scope, scope_file=scope_file)
+                                     period=period, scope=scope, scope_file=scope_file,
+                                     exclusions=exclusions)
     pairs = judge_with_panel(claims, ctx)
     return [v for v, _ in pairs], [p for _, p in pairs]
 
 
 def claims_and_context(claims_path: str, *, store: str | None, repo: str | None,
                        policy: str | None, period: str, scope: Any = None,
-                       scope_file: str | None = None) -> tuple[list[Claim], ClaimContext]:
+                       scope_file: str | None = None, exclusions: str | None = None
+                       ) -> tuple[list[Claim], ClaimContext]:
     """The claims of a file and the context they are judged in; ``scope`` (a
     :class:`procmetrics.scope.apply.ScopeRequest`) cuts the tables first, and its summary
     is ``ctx.scope``; claims naming a scope (``scope = "NAME"``) get theirs from
-    ``scope_file``, cut from the whole tree (``ctx.scopes``)."""
+    ``scope_file``, cut from the whole tree (``ctx.scopes``); ``exclusions``: the
+    carry-over exclusions file, read as the ``carryover`` command reads it."""
     from procmetrics.analyse.measures.periods import resolve_policy
     from procmetrics.store import open_store
 
     claims = load_claims(claims_path)
     request = claim_scope_request(claims.claims, scope, scope_file)
+    excl = read_exclusions(exclusions)
     engine = open_store(store, create=False, readonly=True)
     try:
         name = choose_repo(engine, repo)
         data = load_store_data(engine, name, within=request)
-        carry = carryover_for(engine, name)
+        carry = carryover_for(engine, name, excl)
+        if carry is None and exclusions is not None:
+            raise ConfigError(f"--exclusions: {name} has no single upstream reference (mine "
+                              "it with --upstream) for the exclusions to apply to")
     finally:
         engine.dispose()
     hist = ql.history_state(data)
@@ -64,7 +74,9 @@ def claims_and_context(claims_path: str, *, store: str | None, repo: str | None,
                        # a date given as a commit may lie outside the scope: resolve it whole
                        policy_date=resolve_policy(data.whole_tree or data, policy),
                        is_shallow=hist["is_shallow"], rewritten=bool(hist["rewritten"]),
-                       period=period if period != "release" else "quarter", carryover=carry,
+                       period=period if period != "release" else "quarter",
+                       carryover=None if carry is None else carry["table"],
+                       carryover_as_of=None if carry is None else carry["as_of"],
                        defect_commits=data.get("defect_commits"), scope=data.scope,
                        scope_name=scope_name(data.scope))
     return list(claims.claims), ctx.with_named_scopes(data.named_scopes or {})

@@ -5,7 +5,8 @@ from dataclasses import replace
 from typing import Any, Sequence
 
 from procmetrics.claims import (
-    at_date, carryover, growth, handling, lifetime_step, lifetimes, shares, unsupportable,
+    at_date, carryover, carryover_faster, growth, handling, lifetime_step, lifetimes, shares,
+    unsupportable,
 )
 from procmetrics.claims.handling import review_adoption_caveat
 from procmetrics.claims.base import (
@@ -15,7 +16,7 @@ from procmetrics.claims.base import (
 from procmetrics.errors import ConfigError
 
 _FAMILIES = (at_date, shares, handling, lifetimes, lifetime_step, growth, unsupportable,
-             carryover)
+             carryover, carryover_faster)
 SPECS: dict[str, KindSpec] = {k: v for f in _FAMILIES for k, v in f.SPECS.items()}
 EVALUATORS = {k: v for f in _FAMILIES for k, v in f.EVALUATORS.items()}
 SHARE_METRICS = shares.SHARE_METRICS

@@ -42,7 +42,8 @@ WINDOW_SHIFT_DAYS = 365
 PANEL: tuple[tuple[str, str], ...] = (
     ("period", "month and quarter (per-period models of shares, trends, before/after)"),
     ("date basis", "committer dates and author dates (windows, periods, fix times)"),
-    ("lifetime horizon", "the claim's follow-up horizon ×0.5 and ×2 (lifetime comparisons)"),
+    ("lifetime horizon", "the claim's follow-up horizon ×0.5 and ×2 (lifetime and carry-over "
+                         "comparisons)"),
     ("link era start", f"the first linked fix, and {LATER_LINK_ERA_DAYS} days after it "
                        "(fix-event and defect selections; the growth and median claims "
                        "start by default where linking has settled, and the median never "

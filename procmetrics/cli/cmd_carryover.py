@@ -42,7 +42,10 @@ def run(args: argparse.Namespace) -> int:
           f"{res['tip_date']:%Y-%m-%d}, judged at {res['as_of']:%Y-%m-%d}); upstream fixes "
           "by status: "
           + ", ".join(f"{k} {int(counts.get(k, 0))}" for k in
-                      ("missing", "excluded", "carried", "shared", "not-relevant", "not-due")))
+                      ("missing", "excluded", "carried", "shared", "not-relevant", "not-due"))
+          + (f", not-mirrored {int(counts.get('not-mirrored', 0))}"
+             if res["path_map"] is not None else ""))
+    print("paths: " + res["path_map_text"])
     amb = int(table["ambiguous"].sum())
     methods = table.loc[table["status"] == "carried", "method"].value_counts()
     print("carried by: " + (", ".join(f"{k} {v}" for k, v in methods.items()) or "none")

@@ -32,6 +32,10 @@ def register(sub: argparse._SubParsersAction) -> None:
                    help="what date = \"policy\" means in the claims file")
     p.add_argument("--period", choices=PERIODS, default=DEFAULT_PERIOD,
                    help=f"period used by the per-period models (default: {DEFAULT_PERIOD})")
+    p.add_argument("--exclusions", metavar="FILE", help="carry-over exclusions file (TOML "
+                   "[[exclude]] tables with upstream and reason), read as 'procmetrics "
+                   "carryover --exclusions' reads it: excluded upstream fixes are not counted "
+                   "as missing and are named in the verdicts")
     p.add_argument("--json", metavar="FILE", help="also write the verdicts as JSON with their "
                    "provenance (repository, HEAD, store checksum, policy date, options, "
                    "version) and each verdict's robustness panel ('-' = stdout)")
@@ -61,7 +65,8 @@ def run(args: argparse.Namespace) -> int:
     if not args.claims:
         print("procmetrics check: error: give a claims file (or --list-kinds)", file=sys.stderr)
         return 2
-    opts = dict(store=args.store, repo=args.repo, policy=args.policy, period=args.period)
+    opts = dict(store=args.store, repo=args.repo, policy=args.policy, period=args.period,
+                exclusions=args.exclusions)
     claims, ctx = claims_and_context(args.claims, **opts, scope=scope_request(args),
                                      scope_file=args.scope_file)
     if args.json != "-":

@@ -50,6 +50,11 @@ def register(sub: argparse._SubParsersAction) -> None:
                    help="an upstream clone to mine as the reference history of the tree PATH "
                    "(repeatable; read-only, nothing fetched): fix references are resolved "
                    "there and commit equivalence (backport lines, patch ids) is prepared")
+    p.add_argument("--upstream-path-map", metavar="UPSTREAM_PREFIX=TREE_PREFIX",
+                   action="append", default=[], help="the tree mirrors part of the upstream: "
+                   "upstream folder UPSTREAM_PREFIX ships as the tree's TREE_PREFIX "
+                   "(repeatable; 'infer' to infer the map from the file names at both tips); "
+                   "only upstream changes to mapped paths count")
     p.add_argument("--progress", action=argparse.BooleanOptionalAction, default=None,
                    help="progress bar on stderr (default: when stderr is a terminal)")
     p.set_defaults(func=run)
@@ -65,6 +70,8 @@ def run(args: argparse.Namespace) -> int:
                        use_maintainers=not args.no_maintainers, prefix_depth=args.prefix_depth,
                        repo_name=args.repo_name, rewrite_policy=args.rewrite_policy,
                        progress=args.progress)
+    if args.upstream_path_map and not args.upstream:
+        raise ConfigError("--upstream-path-map goes with --upstream")
     if args.upstream and (len(paths) > 1 or args.jobs or args.scheduler):
         raise ConfigError("--upstream goes with one tree PATH (mine several trees one by one)")
     if len(paths) > 1 or args.jobs or args.scheduler:
@@ -81,11 +88,14 @@ def run(args: argparse.Namespace) -> int:
     print(f"subsystems: {s.mapping_kind} ({s.mapping_source})")
     for up_path in args.upstream:
         from procmetrics.mine.upstream import mine_upstream
-        u = mine_upstream(s.repo, paths[0], up_path, store=args.store, options=opts)
+        u = mine_upstream(s.repo, paths[0], up_path, store=args.store, options=opts,
+                          path_map=args.upstream_path_map or None)
         print(f"upstream {u.upstream}: {u.mined.new_commits} new commit(s), {u.mined.commits} "
               f"stored, {u.mined.fix_refs} fix references; patch ids computed: "
               f"{u.new_patch_ids_upstream} upstream, {u.new_patch_ids_tree} tree; "
               f"{u.backport_lines} backport line(s) in {s.repo}")
+        if u.path_map is not None:
+            print(f"path map: {u.path_map.describe()}")
     return 0
 
 

@@ -48,6 +48,10 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--commit-url", metavar="TEMPLATE", help="URL template with {hash}, e.g. "
                    "'https://git.example.org/fw/commit/{hash}': every commit hash becomes a "
                    "link (http/https only)")
+    p.add_argument("--exclusions", metavar="FILE", help="carry-over exclusions file (TOML "
+                   "[[exclude]] tables with upstream and reason; as for 'procmetrics "
+                   "carryover'): used by the carry-over section and claims, copied into the "
+                   "folder")
     p.add_argument("--raw-csv", action="store_true",
                    help="exact text in tables/*.csv (default: a leading ' before text cells "
                    "starting with = + - @ tab or CR, so spreadsheets do not run them)")
@@ -62,7 +66,8 @@ def run(args: argparse.Namespace) -> int:
                          claims_path=args.claims, level=args.level, seed=args.seed,
                          pdf_engine=args.pdf_engine, meta_path=args.meta,
                          commit_url=args.commit_url, raw_csv=args.raw_csv, scope=args.scope,
-                         since=args.since, until=args.until, scope_file=args.scope_file)
+                         since=args.since, until=args.until, scope_file=args.scope_file,
+                         exclusions_path=args.exclusions)
     from procmetrics.report.build import REPORT_STEPS, make_report  # heavy: imported when run
 
     with progress.steps("report", REPORT_STEPS, enabled=args.progress):

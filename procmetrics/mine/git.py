@@ -415,6 +415,45 @@ def patch_ids(repo: GitRepo, commits: Sequence[str]) -> list[tuple[str, str]]:
     return rows
 
 
+def mapped_patch_ids(repo: GitRepo, commits: Sequence[str],
+                     pairs: Sequence[tuple[str, str]]) -> list[tuple[str, str]]:
+    """``(commit, patch id)`` of the part of each commit under the upstream prefixes of
+    ``pairs``, with those prefixes renamed to the tree's (a mirrored subtree).
+
+    One ``git log -p --relative=<upstream prefix>`` per pair, its paths written under the
+    tree prefix (``--src-prefix``/``--dst-prefix``); the parts of one commit are joined
+    and handed to one ``git patch-id --stable``, which sums per-file hashes, so the order
+    of the parts does not matter. A commit that changes nothing under the prefixes gets
+    no patch id.
+    """
+    if not commits:
+        return []
+    data = "".join(c + "\n" for c in commits).encode("ascii")
+    parts: dict[bytes, list[bytes]] = {}
+    for up, tree in pairs:
+        args = ["log", "-p", "--no-walk=unsorted", "--stdin", "--no-merges", "--no-color",
+                "--no-ext-diff", "--no-textconv", "--no-renames", "--format=commit %H",
+                f"--src-prefix=a/{tree}", f"--dst-prefix=b/{tree}"]
+        if up:
+            args.append(f"--relative={up}")
+        # the pathspec lets git skip the diffs of other folders (and commits without one)
+        out = repo._run(args + ["--"] + ([up] if up else []), input=data).stdout
+        for chunk in re.split(rb"(?m)^(?=commit [0-9a-f]{40,64}$)", out):
+            head, _, body = chunk.partition(b"\n")
+            if head.startswith(b"commit ") and body.strip():
+                parts.setdefault(head[7:].strip(), []).append(body)
+    if not parts:
+        return []
+    joined = b"".join(b"commit " + h + b"\n" + b"".join(bodies) for h, bodies in parts.items())
+    out = repo._run(["patch-id", "--stable"], input=joined).stdout
+    rows = []
+    for line in out.decode("ascii", "replace").splitlines():
+        f = line.split()
+        if len(f) == 2:
+            rows.append((f[1], f[0]))
+    return rows
+
+
 def _feed(stream, data: bytes) -> None:
     try:
         stream.write(data)

@@ -20,7 +20,8 @@ import pandas as pd
 
 from procmetrics.errors import ConfigError, InsufficientData, ProcmetricsError
 from procmetrics.analyse.measures import quality as ql
-from procmetrics.report import sec_claims, sec_compare, sec_defects, sec_process, sec_scope
+from procmetrics.report import (sec_carryover, sec_claims, sec_compare, sec_defects,
+                                sec_process, sec_scope)
 from procmetrics.claims.reader import ClaimsFile, load_claims
 from procmetrics.claims.registry import check_usable
 from procmetrics.report.context import BuildContext, apply_store_flags
@@ -43,7 +44,7 @@ REPORT_STEPS = 10
 
 
 def build_report(data: StoreData, options: ReportOptions, *,
-                 claims: ClaimsFile | None = None) -> Report:
+                 claims: ClaimsFile | None = None, carryover: Any = None) -> Report:
     """Run every analysis and assemble the :class:`Report` (no files written).
 
     Warnings raised by the numerical libraries while the analyses run are
@@ -61,7 +62,8 @@ def build_report(data: StoreData, options: ReportOptions, *,
         report = Report(title=f"Development-process evidence for {data.repo}",
                         options=options, scope={}, store_checksum=store_checksum(data))
         ctx = BuildContext(data=data, options=options, report=report, quality=quality,
-                           policy_date=policy_date, seed=options.seed, claims=claims)
+                           policy_date=policy_date, seed=options.seed, claims=claims,
+                           carryover=carryover)
         # usage mistakes stop the report at once (exit 2), before any analysis runs
         _check_subsystems(data, options.subsystems)
         if claims is not None:
@@ -93,6 +95,7 @@ def _analyses(ctx: BuildContext) -> None:
     sec_defects.section_lifetimes(ctx)
     progress.advance("reliability growth")
     sec_defects.section_growth(ctx)
+    sec_carryover.section_carryover(ctx)
     progress.advance("claims and their robustness panels")
     sec_claims.section_claims(ctx)
     adoption = any(c.code == "tag_adoption_rising" for c in
@@ -204,6 +207,11 @@ def _copy_inputs(report: Report, out: Path, info: dict[str, Any], *,
         rel = copy_input(opts.meta_path, out, "report-meta.toml")
         inputs["report_meta"] = input_record(opts.meta_path, rel, sha256_file(out / rel))
         written.append(rel)
+    if opts.exclusions_path:
+        rel = copy_input(opts.exclusions_path, out, "carryover-exclusions.toml")
+        inputs["carryover_exclusions"] = input_record(opts.exclusions_path, rel,
+                                                      sha256_file(out / rel))
+        written.append(rel)
     for run in info.get("mining_runs", []):
         o = run.get("options_json") or {}
         rules = o.get("subsystem_rules") if isinstance(o, dict) else None
@@ -285,6 +293,9 @@ def make_report(store: str | None, out: str | Path, options: ReportOptions, *,
     meta = load_meta(options.meta_path)
     check_commit_url(options.commit_url)
     progress.advance("reading the store")
+    from procmetrics.claims.carryover_source import carryover_for, read_exclusions
+
+    exclusions = read_exclusions(options.exclusions_path)
     engine = open_store(store, create=False, readonly=True)
     try:
         repo = choose_repo(engine, options.repo)
@@ -294,13 +305,17 @@ def make_report(store: str | None, out: str | Path, options: ReportOptions, *,
         data = load_store_data(engine, repo, within=claim_scope_request(
             claims.claims if claims is not None else (),
             ScopeRequest(options.scope, options.since, options.until), options.scope_file))
+        carryover = carryover_for(engine, repo, exclusions)
         dialect = engine.dialect.name
     finally:
         engine.dispose()
     _require_something_to_measure(data, repo)
+    if carryover is None and options.exclusions_path is not None:
+        raise ConfigError(f"--exclusions: {repo} has no single upstream reference (mine it "
+                          "with --upstream) for the exclusions to apply to", key="--exclusions")
     opts = options if options.repo == repo else ReportOptions(
         **{**options.__dict__, "repo": repo})
-    report, library_warnings = _build_recording_warnings(data, opts, claims)
+    report, library_warnings = _build_recording_warnings(data, opts, claims, carryover)
     report.meta = meta
     if meta.title:
         report.title = meta.title
@@ -319,8 +334,8 @@ def make_report(store: str | None, out: str | Path, options: ReportOptions, *,
     return write_report(report, Path(out), manifest_info=info, overwrite=overwrite, adopt=adopt)
 
 
-def _build_recording_warnings(data: Any, opts: ReportOptions, claims: Any
-                              ) -> tuple[Report, list[dict[str, Any]]]:
+def _build_recording_warnings(data: Any, opts: ReportOptions, claims: Any,
+                              carryover: Any = None) -> tuple[Report, list[dict[str, Any]]]:
     """Build the report; numerical warnings of libraries (numpy, statsmodels, matplotlib
     ...) are recorded for the manifest instead of reaching the console, ours are
     passed on (the CLI prints them as one line each)."""
@@ -329,7 +344,7 @@ def _build_recording_warnings(data: Any, opts: ReportOptions, claims: Any
     from procmetrics.errors import ProcmetricsWarning
 
     with warnings.catch_warnings(record=True) as caught:
-        report = build_report(data, opts, claims=claims)
+        report = build_report(data, opts, claims=claims, carryover=carryover)
     library: Counter = Counter()
     for w in caught:
         if issubclass(w.category, ProcmetricsWarning):

@@ -26,6 +26,9 @@ class BuildContext:
     metrics: Any = None               # PeriodMetrics for every subsystem of interest
     defects: Any = None               # DefectTable
     claims: Any = None                # ClaimsFile
+    #: carry-over of the tree against its upstream reference
+    #: (:func:`procmetrics.claims.carryover_source.carryover_from_engine`), or None
+    carryover: Any = None
     skipped: list[str] = field(default_factory=list)
     #: warnings of the numerical libraries captured during the build (see build.py)
     numerical: Any = None

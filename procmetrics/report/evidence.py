@@ -259,6 +259,30 @@ def _growth(pack: ClaimPack, claim: Any, cctx: Any) -> None:
     _links(pack, cctx, rows["hash"])
 
 
+def _carryover(pack: ClaimPack, claim: Any, cctx: Any) -> None:
+    """Every upstream fix with its status; counted marks the population the claim's n is
+    (carried, missing and - for the count of missing fixes - excluded)."""
+    from procmetrics.claims import base as cl
+
+    t = cctx.carryover
+    if t is None:
+        pack.notes.append("no upstream reference is mined for this tree: no rows")
+        return
+    pop = ["carried", "missing"] + (["excluded"] if claim.kind ==
+                                    "no_missing_upstream_fix_older_than" else [])
+    rows = t[["fix_hash", "fix_date", "status", "method", "tree_hash", "latency_days",
+              "gap_days", "exclusion_reason"]].copy()
+    rows["counted"] = rows["status"].isin(pop).to_numpy()
+    if "date" in claim.params:
+        date = cl.resolve_date(claim.params["date"], cctx, "date")
+        rows["landed"] = ["from the date" if d >= date else "before the date"
+                          for d in rows["fix_date"]]
+    pack.add("upstream-fixes.csv", rows, "every upstream fix with its status; counted marks "
+             "the fixes the claim is judged on (the others do not concern the tree, are in "
+             "the shared history, or are not yet due)")
+    pack.counted = int(rows["counted"].sum())
+
+
 def claim_pack(claim: Any, cctx: Any, verdict: dict[str, Any]) -> ClaimPack:
     """The evidence rows of one claim (never raises for a data problem: says so instead)."""
     pack = ClaimPack(claim.id, claim_n=(verdict.get("evidence") or {}).get("n"))
@@ -266,7 +290,8 @@ def claim_pack(claim: Any, cctx: Any, verdict: dict[str, Any]) -> ClaimPack:
     makers = {**{k: _shares for k in SHARE_KINDS}, **{k: _trend for k in TREND_KINDS},
               "median_lifetime_below": _lifetimes, "lifetimes_shorter_after": _lifetimes,
               "lifetimes_shortened_at": _lifetimes,
-              "fix_rate_declining": _growth}
+              "fix_rate_declining": _growth, "no_missing_upstream_fix_older_than": _carryover,
+              "half_carried_within": _carryover, "carryover_faster_after": _carryover}
     maker = makers.get(kind)
     if maker is None:
         pack.notes.append("no rows: no commit data can support this kind of claim, so none "

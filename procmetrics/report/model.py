@@ -71,6 +71,8 @@ class ReportOptions:
         except OSError:
             digest = None
         return {"name": name, "file_sha256": digest}
+    #: carry-over exclusions file (TOML, :mod:`procmetrics.claims.carryover_source`)
+    exclusions_path: str | None = None
 
     def to_dict(self) -> dict[str, Any]:
         """Options that change figures (no local paths: those go in the manifest)."""

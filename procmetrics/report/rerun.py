@@ -65,7 +65,8 @@ class RerunResult:
 
 def _options(man: dict[str, Any], *, claims: str | None = None,
              meta: str | None = None, where: str | None = None,
-             scope: str | None = None, scope_file: str | None = None) -> ReportOptions:
+             scope: str | None = None, scope_file: str | None = None,
+             excl: str | None = None) -> ReportOptions:
     """The recorded report options, each number checked by the one validator the
     command line uses (a tampered manifest ends in exit 2 naming the key)."""
     from procmetrics.validate import check_count, check_level, check_seed
@@ -93,7 +94,8 @@ def _options(man: dict[str, Any], *, claims: str | None = None,
                          subsystem_min_commits=num(check_count, "subsystem_min_commits", 30),
                          meta_path=meta, commit_url=o.get("commit_url"),
                          raw_csv=bool(o.get("raw_csv", False)), scope=scope,
-                         since=o.get("since"), until=o.get("until"), scope_file=scope_file)
+                         since=o.get("since"), until=o.get("until"), scope_file=scope_file,
+                         exclusions_path=excl)
 
 
 def _input_file(rec: dict[str, Any] | None, folder: Path, what: str, key: str,
@@ -231,12 +233,15 @@ def rerun(manifest_path: str | Path, out: str | Path | None = None) -> RerunResu
         scope = f"{scope}:{inputs['scope']['name']}"
     scope_file = _input_file(inputs.get("scope_file"), old_dir, "scope file",
                              "inputs.scope_file", notes)
+    excl = _input_file(inputs.get("carryover_exclusions"), old_dir,
+                       "carry-over exclusions file", "inputs.carryover_exclusions", notes)
     created = not new_dir.exists()
     try:
         return _rerun_into(man, mpath, old_dir, new_dir, _options(man, claims=claims, meta=meta,
                                                                   where=str(mpath),
                                                                   scope=scope,
-                                                                  scope_file=scope_file),
+                                                                  scope_file=scope_file,
+                                                                  excl=excl),
                            notes, runs)
     except BaseException:
         if created and new_dir.exists():

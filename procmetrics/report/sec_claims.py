@@ -28,6 +28,7 @@ _RELATED = {
     "lifetimes": ("lifetime-curves", "lifetime-before-after", "lifetime-quantiles",
                   "fix-references"),
     "growth": ("growth-curve", "growth-trend-tests", "growth-models", "fix-references"),
+    "carryover": ("carryover-curves", "carryover-latency", "carryover-missing"),
 }
 
 
@@ -36,6 +37,9 @@ def related_items(rep: Report, claim: object) -> list[dict[str, str]]:
     kind, p = getattr(claim, "kind", ""), dict(getattr(claim, "params", {}) or {})
     if "lifetime" in kind:
         group = "lifetimes"
+    elif kind in ("no_missing_upstream_fix_older_than", "half_carried_within",
+                  "carryover_faster_after"):
+        group = "carryover"
     elif kind == "fix_rate_declining":
         group = "growth"
     elif kind == "fix_ratio_declining":
@@ -71,7 +75,10 @@ def claim_context(ctx: BuildContext) -> ClaimContext:
         unresolved_limit=ctx.options.unresolved_share_limit, min_n=ctx.options.min_n,
         period=ctx.options.period if ctx.options.period != "release" else "quarter",
         seed=ctx.seed, defect_commits=d.get("defect_commits"), scope=d.scope,
-        scope_name=scope_name(d.scope)).with_named_scopes(d.named_scopes or {})
+        scope_name=scope_name(d.scope),
+        carryover=None if ctx.carryover is None else ctx.carryover["table"],
+        carryover_as_of=None if ctx.carryover is None else ctx.carryover["as_of"]
+    ).with_named_scopes(d.named_scopes or {})
 
 
 def section_claims(ctx: BuildContext) -> None:

@@ -21,7 +21,7 @@ VERDICT_MARKS = {"supported": "✓", "not_supported": "✗", "undecidable": "?",
                  "not_supportable": "⊘"}
 #: table columns whose cells are commit hashes (links with --commit-url)
 HASH_COLUMNS = frozenset({"hash", "fix", "fix_hash", "introducer_hash", "head_hash",
-                          "base_hash", "commit"})
+                          "base_hash", "commit", "target_hash", "tree_hash"})
 #: verdict-dict keys another part of the tool may use to name where the evidence is shown
 _SECTION_KEYS = ("report_section", "section", "shown_in", "report_ref", "evidence_ref")
 

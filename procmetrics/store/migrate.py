@@ -3,7 +3,7 @@ from __future__ import annotations
 
 from typing import Callable
 
-from sqlalchemy import update
+from sqlalchemy import inspect, text, update
 from sqlalchemy.engine import Connection, Engine
 
 from procmetrics.errors import SchemaError
@@ -18,7 +18,17 @@ def _add_upstream_tables(conn: Connection) -> None:
             ix.create(conn, checkfirst=True)
 
 
-MIGRATIONS: dict[int, Callable[[Connection], None]] = {1: _add_upstream_tables}
+def _add_path_map(conn: Connection) -> None:
+    """2 -> 3: the path map of an upstream reference (a mirrored subtree). A store that
+    came from schema 1 got the table with the column already (step 1 creates the
+    current table)."""
+    have = {c["name"] for c in inspect(conn).get_columns("upstream_reference")}
+    if "path_map" not in have:
+        conn.execute(text("ALTER TABLE upstream_reference ADD COLUMN path_map TEXT"))
+
+
+MIGRATIONS: dict[int, Callable[[Connection], None]] = {1: _add_upstream_tables,
+                                                       2: _add_path_map}
 
 
 def migrate(engine: Engine, found: int) -> None:

@@ -12,7 +12,7 @@ from sqlalchemy import (
     Table, Text, UniqueConstraint,
 )
 
-SCHEMA_VERSION = 2     # 2: upstream references, patch ids, backport lines
+SCHEMA_VERSION = 3     # 2: upstream references, patch ids, backport lines; 3: path maps
 
 metadata = MetaData()
 
@@ -170,6 +170,8 @@ upstream_reference = Table(     # tree repository -> an upstream clone mined as 
     "upstream_reference", metadata,
     Column("repo_id", Integer, ForeignKey("repository.repo_id"), nullable=False),
     Column("upstream_repo_id", Integer, ForeignKey("repository.repo_id"), nullable=False),
+    # schema 3: how upstream paths map onto the tree's (a mirrored subtree), JSON, or NULL
+    Column("path_map", Text, nullable=True),
     UniqueConstraint("repo_id", "upstream_repo_id", name="uq_upstream_reference"),
 )
 

@@ -45,7 +45,7 @@ COLUMNS: dict[str, list[str]] = {
     "repositories": ["repo", "path", "remote_url", "tip_hash", "tip_ref", "is_shallow",
                      "mapping_kind", "mapping_source"],
     # upstream reference histories (see procmetrics.store.upstream)
-    "upstream_references": ["repo", "upstream_repo"],
+    "upstream_references": ["repo", "upstream_repo", "path_map"],
     "patch_ids": ["repo", "hash", "patch_id"],
     "backport_lines": ["repo", "hash", "style", "cited_hash"],
 }
@@ -324,7 +324,7 @@ def file_change_lines(conn: Connection, repo: str | None = None, *,
 def upstream_references(engine: Engine, repo: str | None = None) -> pd.DataFrame:
     """One row per (tree repository, upstream clone mined as its reference)."""
     t, u, r = s.repository, s.repository.alias("u"), s.upstream_reference
-    stmt = (select(t.c.name.label("repo"), u.c.name.label("upstream_repo"))
+    stmt = (select(t.c.name.label("repo"), u.c.name.label("upstream_repo"), r.c.path_map)
             .select_from(r).join(t, t.c.repo_id == r.c.repo_id)
             .join(u, u.c.repo_id == r.c.upstream_repo_id).order_by(t.c.name, u.c.name))
     return _read(engine, _repo_filter(stmt, repo), "upstream_references")

@@ -5,7 +5,7 @@ from __future__ import annotations
 
 from typing import Iterable, Iterator
 
-from sqlalchemy import and_, delete, insert, select
+from sqlalchemy import and_, delete, insert, select, update
 from sqlalchemy.engine import Engine
 
 from procmetrics.errors import StoreError
@@ -23,14 +23,32 @@ def repo_id(engine: Engine, name: str) -> int:
     return int(found)
 
 
-def link_reference(engine: Engine, tree: int, upstream: int) -> None:
-    """Record ``upstream`` as a reference history of ``tree`` (idempotent)."""
+def link_reference(engine: Engine, tree: int, upstream: int, path_map: str | None = None
+                   ) -> bool:
+    """Record ``upstream`` as a reference history of ``tree`` with its path map (JSON or
+    None). Returns True when the path map changed (the upstream's patch ids, computed
+    under the old map, must then be computed again)."""
     r = s.upstream_reference
     with engine.begin() as conn:
-        known = conn.execute(select(r.c.repo_id).where(
+        known = conn.execute(select(r.c.path_map).where(
             r.c.repo_id == tree, r.c.upstream_repo_id == upstream)).first()
         if known is None:
-            conn.execute(insert(r).values(repo_id=tree, upstream_repo_id=upstream))
+            conn.execute(insert(r).values(repo_id=tree, upstream_repo_id=upstream,
+                                          path_map=path_map))
+            others = conn.execute(select(r.c.path_map).where(
+                r.c.upstream_repo_id == upstream, r.c.repo_id != tree)).scalars().all()
+            return any(o != path_map for o in others)
+        if known[0] != path_map:
+            conn.execute(update(r).where(r.c.repo_id == tree, r.c.upstream_repo_id == upstream)
+                         .values(path_map=path_map))
+            return True
+    return False
+
+
+def forget_patch_ids(engine: Engine, repo: int) -> None:
+    """Drop the stored patch ids of ``repo`` (its path map changed)."""
+    with engine.begin() as conn:
+        conn.execute(delete(s.patch_id).where(s.patch_id.c.repo_id == repo))
 
 
 def commits_without_patch_id(engine: Engine, repo: int) -> list[str]:
@@ -108,5 +126,8 @@ def carryover_tables(engine: Engine, repo: str | None, upstream: str | None = No
         raise StoreError(f"{up_name!r} is not an upstream reference of {tree}")
     t = read_tables(engine, ["commits", "backport_lines", "patch_ids", "fix_links",
                              "repositories"], tree)
-    u = read_tables(engine, ["commits", "patch_ids", "fix_links", "commit_subsystems"], up_name)
-    return {"tree": tree, "upstream": up_name, "tree_tables": t, "upstream_tables": u}
+    pm = refs.loc[refs["upstream_repo"] == up_name, "path_map"].iloc[0]
+    names = ["commits", "patch_ids", "fix_links", "commit_subsystems"]
+    u = read_tables(engine, names + (["file_changes"] if isinstance(pm, str) else []), up_name)
+    return {"tree": tree, "upstream": up_name, "tree_tables": t, "upstream_tables": u,
+            "path_map": pm if isinstance(pm, str) else None}

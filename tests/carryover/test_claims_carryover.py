@@ -84,8 +84,8 @@ def test_verdicts_on_the_generated_pair(tmp_path):
     mine_upstream("orbitkit-vendor", pair.tree, pair.upstream, store=store,
                   options=MineOptions(progress=False))
     claims = tmp_path / "claims.toml"
-    # the oldest missing fix has a gap of 25 days (F5); the exclusions file is not read
-    # by claims, so F9 (15 days) counts as missing there
+    # the oldest missing fix has a gap of 25 days (F5); no exclusions file is given here,
+    # so F9 (15 days) counts as missing (with the file: test_one_computation.py)
     claims.write_text('format = 1\n'
                       '[[claim]]\nid = "none-30"\ntext = "t"\n'
                       'kind = "no_missing_upstream_fix_older_than"\ndays = 30\n'

@@ -33,3 +33,25 @@ def test_schema_1_store_gains_the_upstream_tables(tmp_path):
     names = {r[0] for r in con.execute("SELECT name FROM sqlite_master WHERE type='index'")}
     con.close()
     assert {"ix_patch_id_value", "ix_backport_line"} <= names
+
+
+def test_schema_2_store_gains_the_path_map_column(tmp_path):
+    path = tmp_path / "two.sqlite"
+    open_store(str(path)).dispose()
+    con = sqlite3.connect(path)             # a schema-2 store: no path_map column
+    con.execute("DROP TABLE upstream_reference")
+    con.execute("CREATE TABLE upstream_reference (repo_id INTEGER NOT NULL, "
+                "upstream_repo_id INTEGER NOT NULL)")
+    con.execute("UPDATE pm_meta SET value = '2' WHERE key = 'schema_version'")
+    con.commit()
+    con.close()
+    engine = open_store(str(path))
+    try:
+        assert list(read_table(engine, "upstream_references").columns) == \
+            ["repo", "upstream_repo", "path_map"]
+    finally:
+        engine.dispose()
+    con = sqlite3.connect(path)
+    cols = [r[1] for r in con.execute("PRAGMA table_info(upstream_reference)")]
+    con.close()
+    assert "path_map" in cols and SCHEMA_VERSION == 3

@@ -10,6 +10,8 @@ on or before the tree's tip. Each upstream fix gets one status:
 * ``missing``      - due, concerns the tree, not carried: the list to act on;
 * ``excluded``     - as ``missing`` but named in the exclusions file (with its reason);
   listed apart, never dropped;
+* ``not-mirrored`` - the tree mirrors part of the upstream (a path map) and the fix
+  touches none of the mirrored paths;
 * ``not-relevant`` - no target of the fix is carried by the tree;
 * ``not-due``      - landed upstream after the tree's tip.
 """
@@ -51,7 +53,8 @@ def _exclusion_map(exclusions: list[Exclusion], fixes: list[str]) -> dict[str, s
 def carryover_table(upstream_fix_links: pd.DataFrame, upstream_commits: pd.DataFrame,
                     upstream_subsystems: pd.DataFrame, matches: pd.DataFrame,
                     tip_date: pd.Timestamp, exclusions: list[Exclusion] | None = None,
-                    as_of: pd.Timestamp | None = None) -> pd.DataFrame:
+                    as_of: pd.Timestamp | None = None,
+                    mirrored: set[str] | None = None) -> pd.DataFrame:
     """One row per upstream fix (columns :data:`CARRYOVER_COLUMNS`).
 
     Parameters
@@ -65,6 +68,8 @@ def carryover_table(upstream_fix_links: pd.DataFrame, upstream_commits: pd.DataF
     as_of : the date the tree is judged at (default ``tip_date``); later than the tip
         only when the mined tip is still the tree's state then (a shipped release):
         fixes landed upstream up to ``as_of`` are due and gaps run to ``as_of``.
+    mirrored : under a path map, the upstream commits that touch a mirrored path
+        (:func:`touching`); None when the whole upstream counts.
 
     Returns
     -------
@@ -109,6 +114,8 @@ def carryover_table(upstream_fix_links: pd.DataFrame, upstream_commits: pd.DataF
         elif row["method"] is not None:
             status = "carried"
             row["latency_days"] = (m["arrival_date"] - fd).total_seconds() / DAY
+        elif mirrored is not None and fix not in mirrored:
+            status = "not-mirrored"
         elif not carried_targets:
             status = "not-relevant"
         elif fd > cutoff:
@@ -121,6 +128,18 @@ def carryover_table(upstream_fix_links: pd.DataFrame, upstream_commits: pd.DataF
     out = pd.DataFrame(rows, columns=CARRYOVER_COLUMNS)
     out["ambiguous"] = out["ambiguous"].astype(bool)
     return out.sort_values(["fix_date", "fix_hash"], kind="mergesort", ignore_index=True)
+
+
+def touching(file_changes: pd.DataFrame, pairs: list[tuple[str, str]]) -> set[str]:
+    """Commits of ``file_changes`` (``hash``, ``path``, ``old_path``) that touch a path
+    under an upstream prefix of ``pairs`` (an empty prefix: every path)."""
+    ups = tuple(u for u, _ in pairs)
+    if "" in ups:
+        return set(file_changes["hash"])
+    hit = pd.Series(False, index=file_changes.index)
+    for col in ("path", "old_path"):
+        hit |= file_changes[col].fillna("").astype(str).str.startswith(ups)
+    return set(file_changes.loc[hit, "hash"])
 
 
 def missing_fixes(table: pd.DataFrame) -> pd.DataFrame:
