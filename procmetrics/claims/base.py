@@ -82,7 +82,7 @@ def one_sided_level(level: float) -> float:
 class Param:
     """One parameter of a claim kind: its type and whether it is required."""
 
-    type: str            # "date" | "share" | "days" | "count" | "text" | "number"
+    type: str            # "date" | "share" | "days" | "years" | "count" | "text" | "number"
     required: bool = False
     help: str = ""
 

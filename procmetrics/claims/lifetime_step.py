@@ -80,7 +80,7 @@ SPECS: dict[str, KindSpec] = {
         "defects introduced from the date on are fixed sooner than the trend before the "
         "date predicts",
         {"date": Param("date", True), "horizon_days": Param("days"),
-         "window_years": Param("number", help="years either side of the date (default 3)"),
+         "window_years": Param("years", help="years either side of the date (default 3)"),
          "subsystem": SUBSYSTEM},
         METHOD, "shorter at the date: lifetime ratio of the step < 1",
         ("section:lifetimes", "figure:lifetime-before-after")),

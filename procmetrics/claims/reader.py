@@ -103,14 +103,14 @@ def _check_value(ptype: str, value: Any, *, err: Any, key: str) -> Any:
             except ValueError:
                 pass
         raise err(f"expected a date (YYYY-MM-DD) or \"{POLICY}\", got {value!r}", key)
-    if ptype in ("share", "number", "days"):
+    if ptype in ("share", "number", "days", "years"):
         if isinstance(value, bool) or not isinstance(value, (int, float)):
             raise err(f"expected a number, got {value!r}", key)
         x = float(value)
         if ptype == "share" and not 0.0 <= x <= 1.0:
             raise err(f"a share is a number from 0 to 1 (e.g. 0.8 for 80%), got {value!r}", key)
-        if ptype == "days" and not x > 0:
-            raise err(f"expected a positive number of days, got {value!r}", key)
+        if ptype in ("days", "years") and not 0 < x < float("inf"):
+            raise err(f"expected a positive number of {ptype}, got {value!r}", key)
         return x
     if ptype == "count":
         if isinstance(value, bool) or not isinstance(value, int) or value < 0:

@@ -114,3 +114,14 @@ def test_round_trip_of_generated_files(ids, threshold, blank):
     # every claim's recorded line is its [[claim]] header
     lines = "\n".join(parts).splitlines()
     assert all(lines[c.line - 1] == "[[claim]]" for c in cf.claims)
+
+
+@pytest.mark.parametrize("value", ["-1", "0", "inf", "nan"])
+def test_lengths_of_time_must_be_positive_and_finite(value):
+    """``horizon_days`` and ``window_years`` name a span of time: zero, negative, infinite
+    or NaN spans are usage mistakes (exit 2 in check and report), not undecidable data."""
+    for key in ("horizon_days", "window_years"):
+        text = ('[[claim]]\nid = "s"\nkind = "lifetimes_shortened_at"\ndate = "policy"\n'
+                f"{key} = {value}\n")
+        with pytest.raises(ConfigError, match=rf"c.toml:5, key '{key}'.*positive number"):
+            parse_claims(text, "c.toml")
