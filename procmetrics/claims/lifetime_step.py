@@ -100,8 +100,13 @@ def eval_shortened_at(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
 
 def judge_shortened_at(claim: Claim, table, date: pd.Timestamp, *,
                        horizon: float | None = None, window_years: float | None = None,
-                       subsystem: str | None = None, min_n: int = 20) -> ClaimVerdict:
-    """The verdict of :data:`KIND` on a defect table (module docstring)."""
+                       subsystem: str | None = None, min_n: int = 20,
+                       cox_evidence: bool = True) -> ClaimVerdict:
+    """The verdict of :data:`KIND` on a defect table (module docstring).
+
+    ``cox_evidence=False`` leaves out the Cox model shown beside the verdict (it never
+    decides; the calibration simulations skip it to run faster).
+    """
     import statsmodels.api as sm
 
     d, cohort, horizon = horizon_cohort(table, date, horizon=horizon, subsystem=subsystem,
@@ -156,7 +161,7 @@ def judge_shortened_at(claim: Claim, table, date: pd.Timestamp, *,
              "were already getting shorter before the date)",
              f"trend change after the date ×{_ci(slope)} per year (evidence only: the step "
              "decides)"]
-    cox = _cox_step(years, after, days, claim.level)
+    cox = _cox_step(years, after, days, claim.level) if cox_evidence else ""
     if cox:
         extra.append(cox)
     tval = float(b[2] / se[2]) if se[2] > 0 else float("-inf")

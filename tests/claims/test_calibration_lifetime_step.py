@@ -5,7 +5,9 @@ visible defects introduced uniformly over 10 years, log-normal lifetimes (sigma 
 median 120 days at the date), right-truncated at the end of the history; the
 claimed date is the midpoint. ``trend_per_year`` moves the log median steadily
 with the introduction date (no step); ``factor_after`` is a step at the date.
-Judged by the code of ``procmetrics check`` (``judge_shortened_at``).
+Judged by the code of ``procmetrics check`` (``judge_shortened_at``), without the Cox
+model it shows beside the verdict as evidence (it never decides, and its Schoenfeld test
+cost 85% of the time).
 
 Nominal level: one-sided alpha/2 = 0.025 (default 95% level). A rate that must not
 exceed nominal is asserted against ``binom.ppf(0.99, R, 0.025)`` (allows the
@@ -20,7 +22,8 @@ of 300, a Monte-Carlo extreme; the z statistics had mean -0.03 and sd 1.00), and
 300,000-defect draw showed a bias of the step of -0.03 standard errors (at 700
 defects). Without the window (the whole decade in one segmented fit) the
 -0.3/year trend gave 19 of 400 (0.048), which is why the fit is local. The seeds
-below were fixed before their outcomes were seen.
+below were fixed before their outcomes were seen. No change, pooled over the five
+seeds run so far: 44 of 1,600 (0.0275; the suite's seed 501 gives 15 of 400).
 """
 from __future__ import annotations
 
@@ -43,7 +46,7 @@ def _count(seed: int, reps: int, **kw) -> tuple[int, int]:
     for _ in range(reps):
         table, at = defect_table(rng, n_visible=700, **kw)
         try:
-            v = judge_shortened_at(CLAIM, table, at)
+            v = judge_shortened_at(CLAIM, table, at, cox_evidence=False)   # never decides
         except Undecidable:
             undecided += 1
             continue
@@ -57,11 +60,11 @@ def _max_false(reps: int) -> int:
 
 @pytest.mark.slow
 @pytest.mark.parametrize("seed,reps,kw", [
-    (501, 150, {}),
-    (502, 150, {"trend_per_year": -0.15}),
-    (503, 200, {"trend_per_year": -0.3}),
-    (504, 100, {"trend_per_year": 0.2}),
-    (505, 100, {"factor_after": 1.15}),
+    (501, 400, {}),
+    (502, 300, {"trend_per_year": -0.15}),
+    (503, 400, {"trend_per_year": -0.3}),
+    (504, 200, {"trend_per_year": 0.2}),
+    (505, 200, {"factor_after": 1.15}),
 ], ids=["no-change", "trend-shorter-0.15", "trend-shorter-0.3", "trend-longer-0.2",
         "15pct-longer-after"])
 def test_no_step_shorter_is_supported_at_most_at_the_nominal_rate(seed, reps, kw):
@@ -72,7 +75,7 @@ def test_no_step_shorter_is_supported_at_most_at_the_nominal_rate(seed, reps, kw
 
 
 def test_median_120_to_45_days_at_the_date_is_found():
-    reps = 50
+    reps = 100
     k, u = _count(311, reps, factor_after=45 / 120)
     print(rate_line("700 defects, median 120 -> 45 days at the date: supported (power)",
                     k, reps), f"undecidable {u}")
