@@ -30,7 +30,7 @@ from pathlib import Path, PurePath
 from typing import Iterable, Sequence
 from urllib.parse import urlsplit
 
-from procmetrics.errors import ConfigError, ProcmetricsError
+from procmetrics.errors import ConfigError, ProcmetricsError, StoreBusy
 from procmetrics.mine.miner import mine_repository
 from procmetrics.mine.options import MineOptions, MiningSummary
 from procmetrics.store import open_store, resolve_url
@@ -127,14 +127,32 @@ def assign_names(paths: Sequence[str]) -> list[str]:
     return final
 
 
+#: attempts per repository when PostgreSQL picks this worker as a deadlock victim
+DEADLOCK_ATTEMPTS = 3
+
+
 def _mine_one(path: str, name: str, store_url: str,
               options: MineOptions) -> MiningSummary | RepoFailure:
-    """Worker body: mine one repository; library errors become a :class:`RepoFailure`."""
-    try:
-        return mine_repository(path, store=store_url,
-                               options=replace(options, repo_name=name, progress=False))
-    except ProcmetricsError as exc:
-        return RepoFailure(name, path, exc.__class__.__name__, str(exc), exc.exit_code)
+    """Worker body: mine one repository; library errors become a :class:`RepoFailure`.
+
+    Workers writing to one PostgreSQL store at once can deadlock (a CI run saw
+    "deadlock detected" once in a few hundred runs of the two-worker test); the server
+    then rolls back one transaction. That worker mines its repository again, up to
+    :data:`DEADLOCK_ATTEMPTS` times: the next run removes the rows of the interrupted
+    one (as after Ctrl-C), so the store ends as after a clean run.
+    """
+    for attempt in range(1, DEADLOCK_ATTEMPTS + 1):
+        try:
+            return mine_repository(path, store=store_url,
+                                   options=replace(options, repo_name=name, progress=False))
+        except StoreBusy as exc:
+            if "deadlock detected" not in str(exc) or attempt == DEADLOCK_ATTEMPTS:
+                return RepoFailure(name, path, exc.__class__.__name__, str(exc),
+                                   exc.exit_code)
+            time.sleep(0.2 * attempt)
+        except ProcmetricsError as exc:
+            return RepoFailure(name, path, exc.__class__.__name__, str(exc), exc.exit_code)
+    raise AssertionError("unreachable")  # pragma: no cover - the loop always returns
 
 
 def _is_local(address: str) -> bool:

@@ -179,3 +179,49 @@ def test_cli_mines_paths_and_a_list(three_repos, tmp_path: Path, capsys) -> None
     finally:
         engine.dispose()
     assert main(["mine", "--store", str(store)]) == ConfigError.exit_code
+
+
+def test_a_deadlock_victim_mines_its_repository_again(three_repos, tmp_path: Path,
+                                                      monkeypatch) -> None:
+    """PostgreSQL rolls back one transaction of a deadlock ("deadlock detected", a
+    StoreBusy here). The worker mines its repository again; the retry removes the rows
+    the interrupted run had written, so the store equals a clean run (oracle). Simulated
+    after the commits are written (link resolution fails once), on SQLite; another
+    StoreBusy (a held lock) is not retried."""
+    import procmetrics.mine.miner as miner
+    from procmetrics.errors import StoreBusy
+    from procmetrics.mine.multi import _mine_one
+
+    repo = three_repos[0]
+    real = miner.resolve_links
+    calls = {"n": 0}
+
+    def once(*args, **kw):
+        calls["n"] += 1
+        if calls["n"] == 1:
+            raise StoreBusy("the store is busy: another process holds its lock "
+                            "(deadlock detected); run again when it has finished")
+        return real(*args, **kw)
+
+    monkeypatch.setattr(miner, "resolve_links", once)
+    url = "sqlite:///" + str(tmp_path / "retry.sqlite")
+    got = _mine_one(str(repo.path), "fw", url, MineOptions(progress=False))
+    assert calls["n"] == 2 and got.repo == "fw" and got.cleaned_runs == (1,)
+    clean = tmp_path / "clean.sqlite"
+    monkeypatch.setattr(miner, "resolve_links", real)
+    mine_repository(repo.path, store=clean, options=MineOptions(progress=False,
+                                                                repo_name="fw"))
+    for t in ("commits", "file_changes", "trailers", "fix_links"):
+        a = read_table(open_store(url), t)
+        b = read_table(open_store(clean), t)
+        pd.testing.assert_frame_equal(a.reset_index(drop=True), b.reset_index(drop=True),
+                                      check_dtype=False)
+
+    def busy(*args, **kw):
+        raise StoreBusy("the store is busy: another process holds its lock (database is "
+                        "locked); run again when it has finished")
+
+    monkeypatch.setattr(miner, "resolve_links", busy)
+    failed = _mine_one(str(repo.path), "fw2", "sqlite:///" + str(tmp_path / "b.sqlite"),
+                       MineOptions(progress=False))
+    assert failed.exit_code == 6 and "database is locked" in failed.message
