@@ -73,6 +73,16 @@ ONE_SIDED_NOTE = ("one-sided test in the claimed direction at level alpha/2 = {h
                   "claimed side")
 
 
+def wald_p_above(est: Estimate) -> float:
+    """One-sided p-value of "the quantity exceeds 0" from a normal (Wald) interval
+    symmetric about the estimate: z = value / (half-width / z_(level))."""
+    from scipy import stats
+
+    half = (est.high - est.low) / 2
+    z = est.value / (half / float(stats.norm.ppf(0.5 + est.level / 2)))
+    return float(stats.norm.sf(z))
+
+
 def one_sided_level(level: float) -> float:
     """The one-sided test level alpha/2 that a two-sided ``level`` interval carries."""
     return round((1.0 - level) / 2.0, 10)

@@ -249,9 +249,8 @@ def judge_shorter(claim: Claim, table, date: pd.Timestamp, *, horizon: float | N
         return cl.decide(claim, est, side="above", threshold=1.0, what="hazard ratio of "
                          "fixing (after/before)", method=method + "; used: Cox", n=res.n,
                          test=test, diagnostics=res.diagnostics, caveats=cav, extra=extra)
-    z = rm.value / ((rm.high - rm.low) / (2 * stats.norm.ppf(0.5 + claim.level / 2)))
     test = {"name": "Wald z of the restricted-mean difference, one-sided (shorter after)",
-            "p_value": float(stats.norm.sf(z))}
+            "p_value": cl.wald_p_above(rm)}
     extra += [f"proportional hazards do not hold (Schoenfeld test), so no single hazard "
               f"ratio describes the change; the restricted mean lifetime up to {horizon:.0f} "
               "days decides (a difference above 0 means shorter lifetimes after the date)",
