@@ -210,6 +210,13 @@ def _lifetimes(pack: ClaimPack, claim: Any, cctx: Any) -> None:
             f"introduced less than the {horizon:.0f}-day horizon before the end of the history")
         reason[(reason == "") & (d["lifetime"] > horizon)] = (
             f"fixed after the {horizon:.0f}-day horizon")
+        if claim.kind == "lifetimes_shortened_at":     # its local window, as the verdict
+            from procmetrics.claims.lifetime_step import WINDOW_YEARS
+
+            w = float(p.get("window_years") or WINDOW_YEARS)
+            years = (d["intro_date"] - date).dt.total_seconds() / (365.25 * 86400)
+            reason[(reason == "") & (years.abs() > w)] = (
+                f"introduced more than {w:g} years from the date")
         rows.insert(2, "side", ["after" if t >= date else "before" for t in d["intro_date"]])
         pack.notes.append(f"common follow-up horizon {horizon:.0f} days, date {date:%Y-%m-%d}")
     rows["counted"] = (reason == "").to_numpy()

@@ -144,3 +144,24 @@ def test_commit_hashes_become_links(demo, built):
     assert URL.format(hash=head) in parser.all_hrefs
     links = [h for h in parser.all_hrefs if h.startswith("https://git.example.org/")]
     assert all(h[len(URL) - len("{hash}"):].isalnum() for h in links)
+
+
+def test_lifetime_step_rows_count_only_its_local_window():
+    """``lifetimes_shortened_at`` fits only defects introduced within ``window_years`` of
+    the date: its evidence rows mark the others excluded, so the counted rows reproduce
+    the verdict's n (a simulated history with defects over ten years, window 1 year)."""
+    import numpy as np
+
+    from procmetrics.claims.base import Claim
+    from procmetrics.claims.registry import evaluate_claim
+    from procmetrics.report.evidence import claim_pack
+    from tests.claims.sim import lifetime_history
+
+    ctx, at = lifetime_history(np.random.default_rng(3), n_visible=900)
+    claim = Claim("s", "x", "lifetimes_shortened_at",
+                  {"date": at.date(), "window_years": 1.0})
+    v = evaluate_claim(claim, ctx)
+    pack = claim_pack(claim, ctx, v.to_dict())
+    assert v.n and pack.counted == v.n and pack.reproduces_n
+    reasons = pack.files["defects.csv"]["exclusion_reason"]
+    assert (reasons == "introduced more than 1 years from the date").sum() > 100
