@@ -91,3 +91,31 @@ def test_a_steady_trend_is_named_as_the_reason():
     assert v.verdict != SUPPORTED
     assert "already getting shorter before the date" in v.reasons[0]
     assert "no change at the date beyond that trend" in v.reasons[0]
+
+
+def test_step_equals_a_formula_fit_of_statsmodels():
+    """Oracle: statsmodels' formula interface (patsy design, OLS, HC3) on the defects of
+    the common-horizon cohort within three years of the date, built here from the defect
+    table; the claim's lifetime ratio and interval are exp() of its 'after' coefficient
+    with the t quantile on the residual degrees of freedom."""
+    import pandas as pd
+    import statsmodels.formula.api as smf
+
+    rng = np.random.default_rng(8)
+    table, at = defect_table(rng, n_visible=1500, factor_after=0.6)
+    v = judge_shortened_at(CLAIM, table, at, cox_evidence=False)
+    d = table.defects
+    end = table.end_date
+    h = min(365.0, (end - at).days / 2)
+    d = d[((end - d["intro_date"]).dt.total_seconds() / 86400 >= h) & (d["lifetime"] <= h)]
+    years = (d["intro_date"] - at).dt.total_seconds() / (365.25 * 86400)
+    f = pd.DataFrame({"y": np.log1p(d["lifetime"].to_numpy(float)), "years": years,
+                      "after": (d["intro_date"] >= at).astype(float)})
+    f = f[f["years"].abs() <= 3]
+    fit = smf.ols("y ~ years + after + after:years", data=f).fit(cov_type="HC3")
+    b, se = fit.params["after"], fit.bse["after"]
+    q = stats.t.ppf(0.975, fit.df_resid)
+    assert v.n == len(f)
+    assert v.estimate.value == pytest.approx(np.exp(b), rel=1e-9)
+    assert (v.estimate.low, v.estimate.high) == pytest.approx(
+        (np.exp(b - q * se), np.exp(b + q * se)), rel=1e-9)
