@@ -60,8 +60,10 @@ def fix_event_times(fix_links: pd.DataFrame, commits: pd.DataFrame, *,
     if links_from is None:
         origin = commits[f"{basis}_date"].min() if len(commits) else None
     elif links_from == "settled":
-        origin = build_defects(fix_links, basis=basis, commits=commits,
-                               links_from="settled").links_from
+        # the lifetimes' rule, computed once here (not a second pass over the defects)
+        from procmetrics.analyse.lifetimes.linkera import settled_link_start
+
+        origin = settled_link_start(fix_links, commits, clock=basis).start
         if origin is None or pd.isna(origin):
             origin = d["fix_date"].min() if len(d) else None
     elif isinstance(links_from, str):
