@@ -6,19 +6,32 @@ Sits below ``cli`` (every command imports it; it imports no command) and above
 """
 from __future__ import annotations
 
-from typing import Any
+from typing import Any, Iterable
 
 import pandas as pd
 
 from procmetrics.errors import ConfigError, InsufficientData
 
 
-def load_tables(store: str | None, repo: str | None, scope: Any = None
+#: the tidy tables the analysis commands read (each command names the ones it uses)
+ANALYSIS_TABLES: tuple[str, ...] = ("fix_links", "commits", "commit_subsystems", "trailers",
+                                    "tags")
+
+
+def load_tables(store: str | None, repo: str | None, scope: Any = None, *,
+                names: Iterable[str] = ANALYSIS_TABLES,
+                trailer_keys: Iterable[str] | None = None
                 ) -> tuple[dict[str, pd.DataFrame], str]:
     """Read the tidy tables the analysis commands need (one repository), cut to
     ``scope`` (a :class:`procmetrics.scope.apply.ScopeRequest`) when one is active; the
     scope's summary is then ``tables["scope_summary"]`` (and the whole-tree tables
-    ``tables["whole_tree"]``)."""
+    ``tables["whole_tree"]``).
+
+    ``names`` are the tables to read (``repositories`` always comes too): a table not
+    read is absent, never empty, so a command that forgets one fails loudly.
+    ``trailer_keys`` keeps only the trailer lines with those keys (case-blind), for a
+    command that only counts review trailers (see :func:`procmetrics.store.tables.trailers`).
+    """
     from procmetrics.store import open_store
     from procmetrics.store.tables import read_table, snapshot
 
@@ -37,8 +50,13 @@ def load_tables(store: str | None, repo: str | None, scope: Any = None
                                    + ", ".join(repos["repo"]) + "); choose one with --repo")
         name = str(repos["repo"].iloc[0])
         with snapshot(engine) as conn:
-            tables = {t: read_table(conn, t, name) for t in
-                      ("fix_links", "commits", "commit_subsystems", "trailers", "tags")}
+            wanted = list(names)
+            unknown = sorted(set(wanted) - set(ANALYSIS_TABLES))
+            if unknown:
+                raise ValueError(f"load_tables cannot read {unknown}")
+            tables = {t: read_table(conn, t, name, **(
+                {"keys": tuple(trailer_keys)} if t == "trailers" and trailer_keys is not None
+                else {})) for t in ANALYSIS_TABLES if t in wanted}
             tables["repositories"] = repos
             if scope is not None and scope.active:
                 whole = dict(tables)

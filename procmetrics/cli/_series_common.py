@@ -40,9 +40,15 @@ def add_series_arguments(p: argparse.ArgumentParser) -> None:
 def load(args: argparse.Namespace) -> tuple[dict[str, pd.DataFrame], str]:
     """The tables cut to ``--scope``/``--since``/``--until``; the scope header is printed
     (and ``scope.json`` written into ``--out``) before any figure."""
+    from procmetrics.analyse.measures.metrics import DEFAULT_REVIEW_KEYS
     from procmetrics.session import load_tables
 
-    tables, name = load_tables(args.store, args.repo, scope_request(args))
+    # only what these commands use: subsystems when asked for, review trailers only
+    names = ["fix_links", "commits", "trailers", "tags"]
+    if args.subsystem or getattr(args, "all_subsystems", False):
+        names.append("commit_subsystems")
+    tables, name = load_tables(args.store, args.repo, scope_request(args), names=names,
+                               trailer_keys=tuple(args.review_key or DEFAULT_REVIEW_KEYS))
     summary = tables.get("scope_summary")
     print_scope(summary, out_dir(args) if summary is not None else None)
     return tables, name

@@ -47,7 +47,10 @@ def run(args: argparse.Namespace) -> int:
     from procmetrics.analyse.growth.analysis import FIX_EVENTS_DEFINITION, analyse_growth
     from procmetrics.claims.growth import fix_event_times
 
-    tables, name = load_tables(args.store, args.repo, scope_request(args))
+    # no trailers; subsystems only for --subsystem (fix events do not depend on them)
+    tables, name = load_tables(args.store, args.repo, scope_request(args),
+                               names=("fix_links", "commits", "tags")
+                               + (("commit_subsystems",) if args.subsystem else ()))
     summary = tables.get("scope_summary")
     print_scope(summary)
     cont = None
@@ -59,7 +62,7 @@ def run(args: argparse.Namespace) -> int:
     # the same selection as the report's growth section and the fix_rate_declining claim
     ft = fix_event_times(tables["fix_links"], tables.get("defect_commits", tables["commits"]),
                          links_from=links_from(args.links_from, tables),
-                         commit_subsystems=tables["commit_subsystems"],
+                         commit_subsystems=tables.get("commit_subsystems"),
                          subsystem=args.subsystem, after_tag=args.after_tag,
                          tags=tables["tags"], tag_containment=cont,
                          batch_hours=args.batch_hours)

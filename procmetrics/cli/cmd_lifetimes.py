@@ -82,7 +82,11 @@ def run(args: argparse.Namespace) -> int:
     from procmetrics.analyse.lifetimes.analysis import analyse_lifetimes
     from procmetrics.report.command_outputs import write_lifetime_outputs
 
-    tables, name = load_tables(args.store, args.repo, scope_request(args))
+    from procmetrics.analyse.lifetimes.defects import REVIEW_KEYS
+
+    # review trailers only (build_defects' reviewed_introducer is all they feed)
+    tables, name = load_tables(args.store, args.repo, scope_request(args),
+                               trailer_keys=REVIEW_KEYS)
     summary = tables.get("scope_summary")
     print_scope(summary)
     links = tables["fix_links"]
