@@ -137,7 +137,7 @@ def _evidence_for_figures(ctx: BuildContext) -> None:
     from procmetrics.report.evidence import commit_ledger, denominator_note
 
     d = ctx.data
-    flags = commit_flags(d["commits"], d["trailers"], MetricConfig(period=ctx.options.period))
+    flags = ctx.commit_flags(MetricConfig(period=ctx.options.period))
     ledger = commit_ledger(d["commits"], d["trailers"], d["fix_links"], flags)
     ctx.report.evidence["evidence/commits.csv"] = ledger
     for fig in ctx.report.figures.values():

@@ -69,7 +69,14 @@ def _save(ax: Any, path: Path) -> Path:
 
 
 def _table_meta(table: Any) -> dict[str, Any]:
-    return {k: v for k, v in table.to_dict().items() if k not in ("defects", "excluded")}
+    """The defect table's fields without its rows (those go to the CSV files); the rows
+    are never converted at all (a per-cell conversion of every defect at kernel scale)."""
+    from dataclasses import fields
+
+    from procmetrics.analyse.result import to_plain
+
+    return {f.name: to_plain(getattr(table, f.name)) for f in fields(table)
+            if f.metadata.get("json", True) and f.name not in ("defects", "excluded")}
 
 
 def write_lifetime_outputs(out: Path | str, table: Any, analysis: Any, *,

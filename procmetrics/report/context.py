@@ -32,6 +32,20 @@ class BuildContext:
     skipped: list[str] = field(default_factory=list)
     #: warnings of the numerical libraries captured during the build (see build.py)
     numerical: Any = None
+    #: commit flags of the report's (whole-report) tables, per flag-relevant option
+    _flags: dict[Any, pd.DataFrame] = field(default_factory=dict)
+
+    def commit_flags(self, config: Any) -> pd.DataFrame:
+        """:func:`procmetrics.analyse.measures.metrics.commit_flags` of the report's
+        commits and trailers, computed once per set of options it depends on (the
+        tables do not change while the report is built); callers must not modify it."""
+        from procmetrics.analyse.measures.metrics import commit_flags
+
+        key = (config.include_merges, tuple(config.review_keys), config.date_column,
+               tuple(config.heuristic_keywords or ()))
+        if key not in self._flags:
+            self._flags[key] = commit_flags(self.data["commits"], self.data["trailers"], config)
+        return self._flags[key]
 
     @property
     def alpha(self) -> float:

@@ -42,12 +42,33 @@ def _cell(v: Any, raw: bool = False) -> str:
     return csv_text_cell(str(v), raw=raw)   # text: neutralised against formula injection
 
 
+def _float_cell(x: float) -> str:
+    if x != x:
+        return ""
+    if math.isinf(x):
+        return "inf" if x > 0 else "-inf"
+    return format(x, ".10g")
+
+
+def _column_cells(col: pd.Series, raw: bool) -> list[str]:
+    """:func:`_cell` of every value of one column; plain numpy booleans, integers and
+    floats take a path without the per-value type dispatch (same text)."""
+    dt = col.dtype
+    if dt == np.bool_:
+        return np.where(col.to_numpy(), "true", "false").tolist()
+    if isinstance(dt, np.dtype) and dt.kind in "iu":
+        return [str(v) for v in col.to_numpy().tolist()]
+    if isinstance(dt, np.dtype) and dt.kind == "f":
+        return [_float_cell(v) for v in col.to_numpy(dtype=float).tolist()]
+    return [_cell(v, raw) for v in col.astype(object)]
+
+
 def frame_to_csv(df: pd.DataFrame, *, raw: bool = False) -> str:
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n", quoting=csv.QUOTE_MINIMAL)
     w.writerow([str(c) for c in df.columns])
-    for row in df.astype(object).itertuples(index=False):
-        w.writerow([_cell(v, raw) for v in row])
+    cols = [_column_cells(df.iloc[:, j], raw) for j in range(df.shape[1])]
+    w.writerows(zip(*cols))          # no columns: no rows (as itertuples gives none)
     return buf.getvalue()
 
 

@@ -24,12 +24,18 @@ SIGNIFICANT_DIGITS = 10
 
 
 def canonical(value: Any) -> Any:
-    """JSON-ready value with floats rounded to :data:`SIGNIFICANT_DIGITS`."""
-    value = to_plain(value)
+    """JSON-ready value with floats rounded to :data:`SIGNIFICANT_DIGITS`.
+
+    ``to_plain`` converts the whole tree once (it recurses itself); converting again
+    at every level made the cost grow with the depth times the size."""
+    return _rounded(to_plain(value))
+
+
+def _rounded(value: Any) -> Any:
     if isinstance(value, dict):
-        return {str(k): canonical(v) for k, v in value.items()}
+        return {str(k): _rounded(v) for k, v in value.items()}
     if isinstance(value, (list, tuple)):
-        return [canonical(v) for v in value]
+        return [_rounded(v) for v in value]
     if isinstance(value, (float, np.floating)):
         x = float(value)
         if math.isnan(x) or math.isinf(x):

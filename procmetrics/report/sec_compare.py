@@ -133,8 +133,7 @@ def _distributions(ctx: BuildContext, s: Any, pc: Any) -> None:
 
     if not pc.distributions:
         return
-    f = commit_flags(ctx.data["commits"], ctx.data["trailers"],
-                     MetricConfig(period=ctx.options.period))
+    f = ctx.commit_flags(MetricConfig(period=ctx.options.period))
     side = pd.Series(["after" if d >= ctx.policy_date else "before" for d in f["date"]],
                      index=f.index)
     cols = {"lines changed per commit": "churn", "reviewers per commit": "n_reviewers"}

@@ -36,7 +36,7 @@ def compute_metrics(ctx: BuildContext) -> Any:
                        subsystems=tuple(ctx.options.subsystems) or None)
     subs = d["commit_subsystems"] if ctx.options.subsystems else None
     return compute_period_metrics(d["commits"], d["trailers"], commit_subsystems=subs,
-                                  tags=d["tags"], config=cfg)
+                                  tags=d["tags"], config=cfg, flags=ctx.commit_flags(cfg))
 
 
 def _series_rows(ctx: BuildContext, metric: str, subsystem: str) -> pd.DataFrame:

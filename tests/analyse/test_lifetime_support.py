@@ -244,3 +244,28 @@ def test_small_groups_do_not_take_the_headline_away():
     res = analyse_lifetimes(t, by="subsystem", n_boot=20, rng=np.random.default_rng(1))
     assert set(res.headline["group"]) == {"(all)", "big"}
     assert any("fewer than 30 defects: tiny" in c.message for c in res.caveats)
+
+
+def test_bootstrap_replicates_without_sorting_equal_the_sorting_estimate() -> None:
+    """The O(n) resampler (counts per observation) gives the Lynden-Bell replicate of the
+    resample number for number: the estimate computed by sorting the drawn (lifetime,
+    window) pairs is the oracle, on ties, zero lifetimes and windows equal to lifetimes."""
+    import numpy as np
+
+    from procmetrics.analyse.lifetimes import estimators as est
+
+    rng = np.random.default_rng(20261202)
+    for _ in range(60):
+        n = int(rng.integers(1, 200))
+        L = np.round(rng.exponential(40.0, n), int(rng.integers(0, 2)))
+        W = L + np.round(rng.exponential(90.0, n) * (rng.random(n) > 0.2), 1)
+        resample = est._LyndenBellResampler(L, W)
+        for _ in range(4):
+            i = rng.integers(0, n, n)
+            grid = np.unique(L[i])
+            F, g = resample(i)
+            assert np.array_equal(g, grid)
+            assert np.array_equal(F, est._lynden_bell(L[i], W[i], grid)[0], equal_nan=True)
+            full = np.unique(L)
+            assert np.array_equal(resample(i, full)[0],
+                                  est._lynden_bell(L[i], W[i], full)[0], equal_nan=True)

@@ -40,3 +40,20 @@ def test_checksum_ignores_row_order_and_sees_one_change(built) -> None:
     fc.loc[fc.index[0], "lines_added"] = int(fc["lines_added"].fillna(0).iloc[0]) + 1
     changed["file_changes"] = fc
     assert store_checksum(StoreData(full.repo, changed)) != store_checksum(full)
+
+
+def test_column_lines_escape_text_as_the_value_by_value_definition() -> None:
+    """The fast text path (no value needs escaping) and the escaping path give the lines
+    of the value-by-value definition: NULL, a literal backslash-N, tab, newline and
+    backslash inside values, NaN in a text column, integers, a missing column."""
+    import pandas as pd
+
+    df = pd.DataFrame({"a": ["x", None, "\\N", "a\tb", "c\\d\ne"],
+                       "b": [1, 2, 3, 4, 5],
+                       "c": [None] * 5,
+                       "d": ["p", np.nan, "q", "r", "s"],
+                       "e": ["plain", "text", "only", "here", None]})
+    cols = ["a", "b", "c", "d", "e", "missing"]
+    assert sorted(canonical_column_lines(df, cols)) == canonical_lines(df, cols)
+    assert canonical_column_lines(df, ["a"])[2] == "\\\\N"     # a literal \N is escaped
+    assert canonical_column_lines(df, ["a"])[1] == "\\N"       # NULL

@@ -58,3 +58,30 @@ def test_export_neutralises_and_raw_csv_keeps_exact_text(evil_store, tmp_path, c
     ran = cli("export", "--store", evil_store, "--table", "commit_subsystems", "-o", out,
               "--raw-csv")
     assert EVIL in pd.read_csv(out, dtype=str)["subsystem"].tolist()
+
+
+def test_column_fast_paths_write_the_cells_of_the_per_value_rule():
+    """Plain boolean, integer and float columns take a column-wise path; read back with
+    the csv module, every cell is what the per-value rule (``_cell``) gives, next to
+    nullable, text, mixed-object and date columns (NaN, infinities, -0.0, 10 digits)."""
+    import numpy as np
+
+    from procmetrics.report.csvout import _cell
+
+    rng = np.random.default_rng(11)
+    n = 200
+    df = pd.DataFrame({
+        "b": rng.random(n) > 0.5, "i": rng.integers(-5, 10**12, n),
+        "u": rng.integers(0, 5, n).astype("uint8"),
+        "f": np.where(rng.random(n) > 0.9, np.nan, rng.normal(0, 1e6, n)),
+        "g": np.r_[[np.inf, -np.inf, -0.0, 1e-300, 123456789012.5], rng.random(n - 5)],
+        "I": pd.array(np.where(rng.random(n) > 0.8, None, rng.integers(0, 9, n)), dtype="Int64"),
+        "s": np.where(rng.random(n) > 0.5, EVIL, 'a,b"c'),
+        "o": [None, 1, 2.5, "x", True] * (n // 5),
+        "t": pd.to_datetime(rng.integers(0, 2 * 10**9, n), unit="s", utc=True),
+    })
+    rows = list(csv.reader(io.StringIO(frame_to_csv(df))))
+    assert rows[0] == list(df.columns)
+    want = [[_cell(v) for v in row] for row in df.astype(object).itertuples(index=False)]
+    assert rows[1:] == want
+    assert rows[1][df.columns.get_loc("g")] == "inf" and rows[3][4] == "-0"

@@ -89,7 +89,8 @@ def compare_policy(commits: pd.DataFrame, trailers: pd.DataFrame, *, at: pd.Time
                    control_subsystem: str | None = None, alpha: float = 0.05,
                    n_resamples: int = 999, n_boot: int = 1000,
                    cp_config: ChangePointConfig = ChangePointConfig(n_boot=100),
-                   tolerance_periods: int = 2) -> PolicyComparison:
+                   tolerance_periods: int = 2,
+                   flags: pd.DataFrame | None = None) -> PolicyComparison:
     """Run every before/after comparison for the date ``at`` (see the module docstring).
 
     Analyses that the data cannot support (too few periods on a side) are
@@ -100,7 +101,9 @@ def compare_policy(commits: pd.DataFrame, trailers: pd.DataFrame, *, at: pd.Time
     Wagner et al. (2002); Benjamini & Hochberg (1995); Benjamini & Yekutieli (2001).
     """
     # the per-commit pass, once: for the per-period series and the distributions below
-    flags = commit_flags(commits, trailers, config)
+    # (``flags``: the caller's ``commit_flags(commits, trailers, config)``, if it has it)
+    if flags is None:
+        flags = commit_flags(commits, trailers, config)
     pm = compute_period_metrics(commits, trailers, commit_subsystems=commit_subsystems,
                                 tags=tags, config=replace(config, alpha=alpha), split_at=at,
                                 extra_subsystems=(control_subsystem,) if control_subsystem

@@ -230,10 +230,9 @@ def build_defects(
     first["n_fixes"] = n_fixes.loc[first.index].astype("int64")
     later = links[grp.cumcount() > 0]
     follow = later.groupby(["repo", "introducer_hash"], sort=False)["fix_hash"].agg(" ".join)
-    first["follow_up_fixes"] = (pd.MultiIndex.from_arrays([first["repo"],
-                                                           first["introducer_hash"]])
-                                .map(lambda k: follow.get(k, "")) if len(follow)
-                                else "")
+    first["follow_up_fixes"] = (follow.reindex(pd.MultiIndex.from_arrays(
+        [first["repo"], first["introducer_hash"]])).fillna("").to_numpy(object)
+        if len(follow) else "")
     n_follow = int(len(links) - len(first))
     # the first linked fix of each repository (histories adopt Fixes: at different times)
     first_by_repo = links.groupby(links["repo"].astype(str))["_fix"].min()
@@ -307,7 +306,9 @@ def build_defects(
 
     subs = pd.Series(dtype=object)
     if commit_subsystems is not None and len(commit_subsystems):
-        subs = (commit_subsystems.dropna(subset=["subsystem"])
+        # only the introducers' rows (a few per cent of the commits at kernel scale)
+        wanted = commit_subsystems["hash"].isin(d["introducer_hash"])
+        subs = (commit_subsystems[wanted.to_numpy(bool)].dropna(subset=["subsystem"])
                 .groupby(["repo", "hash"])["subsystem"]
                 .agg(lambda s: ";".join(sorted(set(map(str, s))))))
     keys = list(zip(d["repo"], d["introducer_hash"]))

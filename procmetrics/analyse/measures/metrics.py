@@ -151,13 +151,15 @@ def commit_flags(commits: pd.DataFrame, trailers: pd.DataFrame,
     c = c.merge(per, on=["repo", "hash"], how="left")
     out = pd.DataFrame({"repo": c["repo"], "hash": c["hash"],
                         "date": pd.to_datetime(c[config.date_column], utc=True)})
-    out["author"] = _lower(c["author_email"]).to_numpy()
+    # lower-cased once each (the merge above reset c's index)
+    author_low, committer = _lower(c["author_email"]), _lower(c["committer_email"])
+    out["author"] = author_low.to_numpy()
     out["reviewed"] = _true(c["reviewed"])
     out["independent"] = _true(c["independent"])
     out["n_reviewers"] = c["n_reviewers"].fillna(0).astype(int).to_numpy()
-    self_commit = (_lower(c["author_email"]) == _lower(c["committer_email"])).fillna(False)
+    self_commit = (author_low == committer).fillna(False)
     out["unreviewed_self"] = self_commit.to_numpy(dtype=bool) & ~out["reviewed"].to_numpy()
-    other = _lower(c["author_email"]) != _lower(c["committer_email"])
+    other = author_low != committer
     out["applied_other"] = other.fillna(False).to_numpy(dtype=bool)
     out["fix"] = (c["n_resolved_fixes"].fillna(0) > 0).to_numpy()
     out["fix_ref"] = (c["n_fix_refs"].fillna(0) > 0).to_numpy()

@@ -115,8 +115,10 @@ def assign_periods(dates: pd.Series, period: str,
         frame = calendar_frame(first, last, period)
         freq = _FREQ[period]
         per = d.dt.tz_convert("UTC").dt.tz_localize(None).dt.to_period(freq)
-        labels = pd.Series([_label(p, period) if not pd.isna(p) else None for p in per],
-                           index=d.index, dtype="object")
+        # one label per distinct period (a few hundred), not per commit
+        codes, uniques = pd.factorize(per)
+        names = np.array([_label(p, period) for p in uniques] + [None], dtype=object)
+        labels = pd.Series(names[codes], index=d.index, dtype="object")
         return labels, frame
     frame = release_frame(tags if tags is not None else pd.DataFrame(), first, last)
     ends = frame["period_end"].to_numpy(dtype="datetime64[ns]")
