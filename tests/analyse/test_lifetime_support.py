@@ -269,3 +269,24 @@ def test_bootstrap_replicates_without_sorting_equal_the_sorting_estimate() -> No
             full = np.unique(L)
             assert np.array_equal(resample(i, full)[0],
                                   est._lynden_bell(L[i], W[i], full)[0], equal_nan=True)
+
+
+def test_pointwise_band_without_the_replicate_matrix_equals_numpy_quantile() -> None:
+    """The band kept from the few extreme values per column is numpy's
+    ``quantile(boot, [a, 1 - a], axis=0)`` of the whole matrix (oracle), for small and
+    large resample counts, ties, several levels and block sizes."""
+    import numpy as np
+
+    from procmetrics.analyse.lifetimes.estimators import pointwise_band
+
+    rng = np.random.default_rng(20261202)
+    for n_boot in (1, 2, 3, 50, 199, 2000):
+        for level in (0.8, 0.95, 0.99):
+            width = int(rng.integers(1, 120))
+            boot = rng.random((n_boot, width))
+            boot[:, : width // 3] = np.round(boot[:, : width // 3], 1)
+            a = (1 - level) / 2
+            want = np.quantile(boot, [a, 1 - a], axis=0)
+            low, high = pointwise_band(iter(boot), n_boot, width, a,
+                                       block=int(rng.integers(1, 100)))
+            assert np.array_equal(low, want[0]) and np.array_equal(high, want[1])

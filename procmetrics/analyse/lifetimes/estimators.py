@@ -26,7 +26,7 @@ fewer than ``min_at_risk`` observations support the curve).
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Any
+from typing import Any, Iterator
 
 import numpy as np
 import pandas as pd
@@ -155,8 +155,56 @@ def _lb_from_counts(s: np.ndarray, d: np.ndarray, R: np.ndarray,
         logf = np.where(frac >= 1.0, -np.inf, np.log1p(-np.minimum(frac, 1.0)))
     # F(t) = prod_{s_j > t} (1 - d_j/R_j); cumulative from the right
     tail = np.concatenate([np.cumsum(logf[::-1])[::-1], [0.0]])
+    if grid is s:                 # the distinct lifetimes themselves: s[k] sits at k + 1
+        return np.exp(tail[1:]), s, d, R
     idx = np.searchsorted(s, grid, side="right")
     return np.exp(tail[idx]), s, d, R
+
+
+def pointwise_band(replicates: Iterator[np.ndarray], n_boot: int, width: int, a: float,
+                   block: int = 64) -> tuple[np.ndarray, np.ndarray]:
+    """``np.quantile(boot, [a, 1 - a], axis=0)`` of the ``n_boot`` replicate rows, without
+    holding the ``n_boot x width`` matrix (2,000 x 110,000 floats is 1.8 GB at kernel scale).
+
+    The linear-interpolation quantile at ``a`` depends only on the order statistics next
+    to position ``(n_boot - 1) a`` of each column: only the smallest few (and for
+    ``1 - a`` the largest few) values per column are kept, merged block by block with
+    ``np.partition``. At the end ``np.quantile`` runs on columns holding those values and
+    +/-inf in the places of the dropped ones, which are beyond the positions it reads:
+    the band is the one of the full matrix, number for number.
+    """
+    k_low = min(n_boot, int(np.floor((n_boot - 1) * a)) + 3)
+    k_high = min(n_boot, n_boot - int(np.floor((n_boot - 1) * (1 - a))) + 2)
+    low = np.empty((0, width))
+    high = np.empty((0, width))
+    buf: list[np.ndarray] = []
+
+    def merge() -> None:
+        nonlocal low, high
+        stack = np.vstack([low, *buf])
+        low = (np.partition(stack, k_low - 1, axis=0)[:k_low] if len(stack) > k_low
+               else stack)
+        stack = np.vstack([high, *buf])
+        high = (np.partition(stack, len(stack) - k_high, axis=0)[-k_high:]
+                if len(stack) > k_high else stack)
+        buf.clear()
+
+    for row in replicates:
+        buf.append(np.asarray(row, float)[None, :])
+        if len(buf) == block:
+            merge()
+    if buf:
+        merge()
+    out = []
+    for kept, q, fill in ((low, a, np.inf), (high, 1 - a, -np.inf)):
+        col = max(1, (64 << 20) // (8 * max(n_boot, 1)))   # 64 MB column blocks
+        res = np.empty(width)
+        for j in range(0, width, col):
+            part = np.full((n_boot, min(col, width - j)), fill)
+            part[:len(kept)] = kept[:, j:j + col]
+            res[j:j + col] = np.quantile(part, q, axis=0)
+        out.append(res)
+    return out[0], out[1]
 
 
 class _LyndenBellResampler:
@@ -239,14 +287,12 @@ def truncated_product_limit(lifetimes: Any, windows: Any, *, level: float = 0.95
     rng = rng if rng is not None else np.random.default_rng(20240601)
     F, s, d, R = _lynden_bell(L, W, np.unique(L))
     grid = s
-    boot = np.empty((n_boot, len(grid)))
     n = len(L)
     resample = _LyndenBellResampler(L, W)
-    for b in range(n_boot):
-        boot[b] = resample(rng.integers(0, n, n), grid)[0]
     a = (1 - level) / 2
-    F_low, F_high = (np.quantile(boot, [a, 1 - a], axis=0) if n_boot
-                     else (np.full_like(F, np.nan), np.full_like(F, np.nan)))
+    F_low, F_high = (pointwise_band((resample(rng.integers(0, n, n), grid)[0]
+                                     for _ in range(n_boot)), n_boot, len(grid), a)
+                     if n_boot else (np.full_like(F, np.nan), np.full_like(F, np.nan)))
     tab, cut = curve_table(s, F, F_low, F_high, R, d, min_at_risk)
     cav: list[Caveat] = []
     holes = int(((d >= R) & (np.arange(len(s)) > 0)).sum())
