@@ -308,9 +308,12 @@ def build_defects(
     if commit_subsystems is not None and len(commit_subsystems):
         # only the introducers' rows (a few per cent of the commits at kernel scale)
         wanted = commit_subsystems["hash"].isin(d["introducer_hash"])
-        subs = (commit_subsystems[wanted.to_numpy(bool)].dropna(subset=["subsystem"])
-                .groupby(["repo", "hash"])["subsystem"]
-                .agg(lambda s: ";".join(sorted(set(map(str, s))))))
+        # each introducer's distinct names in code-point order, joined with ";"
+        cs = commit_subsystems[wanted.to_numpy(bool)].dropna(subset=["subsystem"])
+        cs = (cs.assign(subsystem=cs["subsystem"].map(str))
+              .drop_duplicates(["repo", "hash", "subsystem"])
+              .sort_values(["repo", "hash", "subsystem"], kind="mergesort"))
+        subs = cs.groupby(["repo", "hash"])["subsystem"].agg(";".join)
     keys = list(zip(d["repo"], d["introducer_hash"]))
     d["subsystems"] = [subs.get(k, "") if len(subs) else "" for k in keys]
     d["subsystem"] = [NONE if not s else (MULTIPLE if ";" in s else s) for s in d["subsystems"]]
@@ -324,7 +327,9 @@ def build_defects(
     else:
         d["reviewed_introducer"] = pd.array([pd.NA] * len(d), dtype="boolean")
     if commits is not None and len(commits):
-        c = commits.set_index(["repo", "hash"])
+        # only the introducers' rows are looked up (a tenth of the commits, or less)
+        c = commits[commits["hash"].isin(d["introducer_hash"]).to_numpy(bool)]
+        c = c.set_index(["repo", "hash"])
         la = c["lines_added"].astype("Float64") + c["lines_deleted"].astype("Float64")
         kidx = pd.MultiIndex.from_tuples(keys, names=["repo", "hash"]) if keys else None
         la = la[~la.index.duplicated()]
