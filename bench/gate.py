@@ -8,7 +8,7 @@ command failed or timed out in this run. A figure (or size) the committed result
 do not have is "new", not a failure; so is a size whose committed history was
 built with other generator parameters (the figures would not be like for like).
 
-    python bench/gate.py bench/results/latest-20000-50000.json            # against the committed file
+    python bench/gate.py bench/results/latest-20000-50000.json   # against the committed results
     python bench/gate.py /tmp/run.json --baseline bench/results/latest.json
 """
 from __future__ import annotations
@@ -113,13 +113,22 @@ def gate(sizes: dict[str, dict], baselines: dict[str, tuple[dict, str]],
 
 
 def read_committed(path: Path) -> tuple[dict, str] | None:
-    """The committed (git HEAD) version of a results file, else the file on disk."""
+    """The committed (git HEAD) version of a results file.
+
+    Outside a git checkout (an unpacked release) the file on disk stands in; inside
+    one, a file never committed is no baseline (a run that regressed and overwrote
+    it must not become the reference by itself).
+    """
+    if not path.parent.is_dir():
+        return None
     r = subprocess.run(["git", "-C", str(path.parent), "show", f"HEAD:./{path.name}"],
                        capture_output=True, text=True)
     if r.returncode == 0:
         return json.loads(r.stdout), f"{path.name} (committed, HEAD)"
-    if path.exists():
-        return json.loads(path.read_text()), f"{path.name} (file on disk, not committed)"
+    inside = subprocess.run(["git", "-C", str(path.parent), "rev-parse", "--is-inside-work-tree"],
+                            capture_output=True, text=True).returncode == 0
+    if not inside and path.exists():
+        return json.loads(path.read_text()), f"{path.name} (file on disk, no git checkout)"
     return None
 
 

@@ -102,7 +102,8 @@ def _size_section(n: str, res: dict) -> list[str]:
             out.append(f"Store size per commit, {label}: {_fmt(res[key], ' B')}.")
     an = res.get("analyses") or {}
     if an.get("policy_date"):
-        out += ["", f"Analyses on the {an.get('store', 'line-count store')}; policy date "
+        out += ["", f"Analyses on the {'line-count' if 'lines' in an.get('store', 'lines') else 'paths-only'} "
+                    f"store; policy date "
                     f"{an['policy_date']} ({an.get('policy_date_source', 'prefix ref')})."]
     mem = res.get("memory")
     if mem:
