@@ -146,8 +146,11 @@ def find_baselines(sizes: list[str], candidates: list[tuple[dict, str]]
 
 
 def default_candidates(results_dir: Path, name: str, sizes: list[str]) -> list[tuple[dict, str]]:
-    """Committed results to compare with: this run's own file, latest.json, latest-<N>.json."""
-    paths = [results_dir / f"{name}.json", results_dir / "latest.json"]
+    """Committed results to compare with: this run's own file, the file of the same sizes
+    (``latest-<size>-<size>.json``), ``latest.json``, then ``latest-<N>.json``."""
+    same = "latest-" + "-".join(str(n) for n in sorted(sizes, key=int))
+    paths = [results_dir / f"{name}.json", results_dir / f"{same}.json",
+             results_dir / "latest.json"]
     paths += [results_dir / f"latest-{n}.json" for n in sizes]
     seen, out = set(), []
     for p in paths:
@@ -180,7 +183,7 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("current", type=Path, help="results JSON of a run")
     ap.add_argument("--baseline", type=Path, action="append", default=[],
                     help="results JSON to compare with (repeatable; default: the committed "
-                         "version of CURRENT, then latest.json, then latest-<N>.json beside it)")
+                         "version of CURRENT, latest-<sizes>.json, latest.json, latest-<N>.json beside it)")
     ap.add_argument("--tolerance", type=float, default=TOLERANCE)
     a = ap.parse_args(argv)
     sizes = per_size(json.loads(a.current.read_text()))

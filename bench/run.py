@@ -228,7 +228,7 @@ def parse_args(argv: list[str] | None) -> argparse.Namespace:
     ap.add_argument("--no-gate", action="store_true", help="report the comparison, never fail")
     ap.add_argument("--baseline", type=Path, action="append", default=[],
                     help="results JSON to gate against (repeatable; default: the committed "
-                         "results of this name, latest.json, latest-<N>.json)")
+                         "results of this name, latest-<sizes>.json, latest.json, latest-<N>.json)")
     ap.add_argument("--tolerance", type=float, default=gate.TOLERANCE,
                     help="allowed rise of a figure before the gate fails (default: %(default)s)")
     args = ap.parse_args(argv)
