@@ -159,3 +159,14 @@ def test_report_renders_growth_targets_and_gate():
     md = report_md.render(res)
     assert "| `series` | 2.00 | 8.00 | 1.00 |" in md
     assert "REGRESSED" in md and "Two sizes" in md
+
+
+def test_quick_sizes_never_write_the_default_results_file():
+    import run
+    assert run.output_name([100_000, 300_000, 1_000_000], None) == "latest"
+    assert run.output_name([20_000, 50_000], None) == "latest-20000-50000"
+    assert run.output_name([20_000], "trial") == "trial"
+    assert run.parse_args(["--sizes", "50000,20000,20000"]).sizes == [20_000, 50_000]
+    assert run.parse_args(["--commits", "20000"]).sizes == [20_000]
+    with pytest.raises(SystemExit):
+        run.parse_args(["--sizes", "20k"])
