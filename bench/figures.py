@@ -8,8 +8,13 @@ runs on machines of different speed or load can be compared:
 * mining, paths only: over ``git log --raw --no-merges main``;
 * mining with line counts: over ``git log --numstat --no-merges main``;
 * incremental mining and every analysis command: over ``git log --raw --no-merges main``.
+
+The ``git log --raw`` baseline is timed before mining and again after the analyses;
+its runs are pooled (``baseline``) and their spread is reported (``baseline_spread``).
 """
 from __future__ import annotations
+
+import statistics
 
 MIB_PER_GIB = 1024
 
@@ -32,6 +37,27 @@ def _entry(m: dict, baseline: dict | None, baseline_name: str) -> dict[str, obje
             "exit_code": m.get("exit_code"), "ok": ok, "timed_out": bool(m.get("timed_out"))}
 
 
+def baseline(res: dict, key: str = "git_raw") -> dict | None:
+    """A ``git log`` baseline of one size, with its repeat taken after the analyses if any.
+
+    ``<key>_after`` (timed again at the end of the size) is pooled with ``<key>``:
+    the seconds are the median of all runs, so load that changed during the size's
+    measurements weighs on the baseline as on the figures.
+    """
+    first, after = res.get(key), res.get(f"{key}_after")
+    if not isinstance(first, dict) or not isinstance(after, dict):
+        return first
+    runs = list(first.get("runs", [])) + list(after.get("runs", []))
+    return {**first, "seconds": round(statistics.median(runs), 3), "runs": runs,
+            "exit_code": max(first.get("exit_code", 0), after.get("exit_code", 0))}
+
+
+def baseline_spread(res: dict, key: str = "git_raw") -> float | None:
+    """max / min − 1 of the baseline's runs at one size (None with fewer than two runs)."""
+    runs = [r for r in (baseline(res, key) or {}).get("runs", []) if r]
+    return round(max(runs) / min(runs) - 1, 4) if len(runs) >= 2 else None
+
+
 def figures(res: dict) -> dict[str, dict[str, object]]:
     """Every timed figure of one size: seconds, same-run ratio, peak RSS, exit code.
 
@@ -40,13 +66,14 @@ def figures(res: dict) -> dict[str, dict[str, object]]:
     (not available in that procmetrics) are left out; failed or timed-out ones
     are kept with ``ok`` false and no ratio.
     """
-    raw, numstat = res.get("git_raw"), res.get("git_numstat")
+    raw, numstat = baseline(res, "git_raw"), res.get("git_numstat")
     out: dict[str, dict[str, object]] = {}
     for key, base, name in (("git_raw", raw, "git_raw"), ("git_numstat", numstat, "git_numstat"),
                             ("mine_paths", raw, "git_raw"), ("mine_lines", numstat, "git_numstat"),
                             ("incremental", raw, "git_raw")):
-        if isinstance(res.get(key), dict):
-            out[key] = _entry(res[key], base, name)
+        m = raw if key == "git_raw" else res.get(key)
+        if isinstance(m, dict):
+            out[key] = _entry(m, base, name)
     for cmd, m in (res.get("analyses") or {}).items():
         if isinstance(m, dict) and "skipped" not in m:
             out[f"analyses.{cmd}"] = _entry(m, raw, "git_raw")

@@ -101,6 +101,13 @@ def gate(sizes: dict[str, dict], baselines: dict[str, tuple[dict, str]],
             entry["baseline_note"] = "history built differently: " + "; ".join(differs)
         rows = compare(sizes[n], found[0] if found and not differs else None, tolerance)
         entry["rows"] = rows
+        spreads = {"this run": figmod.baseline_spread(sizes[n]),
+                   "committed": figmod.baseline_spread(found[0]) if found else None}
+        noisy = {k: v for k, v in spreads.items() if v is not None and v > tolerance}
+        if noisy:
+            entry["noise_note"] = ("git log --raw varied by " + ", ".join(
+                f"{v:.0%} ({k})" for k, v in noisy.items()) + " between its runs, more than the "
+                "tolerance: a failure here may be load on the machine, not procmetrics")
         out["sizes"][n] = entry
         for r in rows:
             if r["status"] in ("REGRESSED", "FAILED"):
@@ -174,6 +181,8 @@ def summary(result: dict) -> list[str]:
         note = f"; {e['baseline_note']}" if e.get("baseline_note") else ""
         lines.append(f"  {int(n):,} commits against {base}{note}: "
                      + ", ".join(f"{v} {k}" for k, v in sorted(counts.items())))
+        if e.get("noise_note"):
+            lines.append(f"    note: {e['noise_note']}")
     lines += [f"  {f}" for f in result["failures"]]
     return lines
 

@@ -91,6 +91,12 @@ def _size_section(n: str, res: dict) -> list[str]:
                    f"{_fmt(f['peak_rss_main_mib'], ' MiB')} | {_fmt(f['peak_rss_mib'], ' MiB')} | "
                    f"{'timed out' if f['timed_out'] else f['exit_code']} | {tgt_t} | "
                    f"{v(fig, 'peak RSS with children')} |")
+    raw = figmod.baseline(res)
+    if raw and raw.get("runs"):
+        after = " (before mining and after the analyses)" if "git_raw_after" in res else ""
+        out += ["", f"`git log --raw --no-merges` runs{after}: "
+                    + ", ".join(f"{r:.2f}" for r in raw["runs"]) + f" s; median {raw['seconds']:.2f} s, "
+                    f"max/min − 1 = {figmod.baseline_spread(res) or 0:.0%}."]
     ca = verdicts.get(("analyses.compare_all", "time over compare"))
     if ca:
         out += ["", f"`compare --all-subsystems` over `compare`: {_fmt(ca['value'], '×')} "
@@ -129,7 +135,8 @@ def _gate_section(g: dict) -> list[str]:
         out[-1] += " (not enforced: `--no-gate`)"
     for n, e in g["sizes"].items():
         out += ["", f"{int(n):,} commits, against {e['baseline'] or 'no committed results'}"
-                + (f" ({e['baseline_note']})" if e.get("baseline_note") else "") + ":", "",
+                + (f" ({e['baseline_note']})" if e.get("baseline_note") else "")
+                + (f". Note: {e['noise_note']}" if e.get("noise_note") else "") + ":", "",
                 "| figure | measure | committed | this run | change | status |",
                 "|---|---|---|---|---|---|"]
         for r in e["rows"]:

@@ -192,6 +192,8 @@ def measure_size(n: int, args: argparse.Namespace, work: Path, res: dict,
     if "analyses" not in args.skip:
         print(f"[{n:,} commits] analyses and report ...", file=sys.stderr)
         res["analyses"] = analyses(store, repo, work, n, args.analysis_timeout)
+    print(f"[{n:,} commits] git log --raw baseline again ...", file=sys.stderr)
+    res["git_raw_after"] = git_log(repo, "main", "raw", args.repeats)
     res["load_avg_end"] = os.getloadavg()
 
 

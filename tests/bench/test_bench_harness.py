@@ -170,3 +170,14 @@ def test_quick_sizes_never_write_the_default_results_file():
     assert run.parse_args(["--commits", "20000"]).sizes == [20_000]
     with pytest.raises(SystemExit):
         run.parse_args(["--sizes", "20k"])
+
+
+def test_baseline_runs_before_and_after_are_pooled():
+    res = size(10.0, series=dict(seconds=20.0))
+    res["git_raw"].update(runs=[9.0, 10.0, 11.0], seconds=10.0)
+    res["git_raw_after"] = {"seconds": 14.0, "runs": [13.0, 14.0, 15.0], "exit_code": 0}
+    assert figures.baseline(res)["seconds"] == pytest.approx(12.0)    # median of 6 runs
+    assert figures.baseline_spread(res) == pytest.approx(15 / 9 - 1, abs=1e-4)
+    assert figures.figures(res)["analyses.series"]["ratio"] == pytest.approx(20 / 12, abs=1e-4)
+    g = gate.gate({"1000": res}, {"1000": (res, "self.json")})
+    assert g["passed"] and "may be load" in g["sizes"]["1000"]["noise_note"]   # 67% > 25%
