@@ -50,8 +50,12 @@ $(VENV)/.installed-bench: $(VENV)/.installed-test
 	$(BIN)/python -m pip install --quiet -e '.[test,bench]'
 	touch $@
 
+# Not part of `make test`. Sizes 100k, 300k and 1M commits by default (over an hour on 2 cores);
+# fails (exit 1) when a figure regressed by more than 25% against bench/results/, e.g.
+# make bench BENCH_ARGS="--sizes 20000,50000"   or   BENCH_ARGS=--no-gate
+BENCH_ARGS ?=
 bench: $(VENV)/.installed-bench
-	$(BIN)/python bench/run.py
+	$(BIN)/python bench/run.py $(BENCH_ARGS)
 
 clean:
 	rm -rf $(VENV) sample_repos/build reports/demo

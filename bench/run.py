@@ -1,162 +1,39 @@
-"""procmetrics benchmark: kernel-scale mining speed, memory, incremental runs, analyses.
+"""procmetrics benchmark: mining, incremental runs and analyses at several history sizes.
 
-Every speed figure is a ratio to a baseline measured in the same run on the same
-history (``git log --raw`` / ``--numstat``), so machines of different speed give
-comparable figures. Small measurements are repeated (``--repeats``, median);
-runs on the full history once. Results: ``bench/results/latest.json`` and
-``bench/results/latest.md``. Not part of the test suite.
+Every figure is measured at each size (default 100,000, 300,000 and 1,000,000
+non-merge commits; each size has its own cached history), given as a ratio to
+``git log`` timed in the same run on the same history, and fitted across sizes
+for its growth exponent (time ∝ N^k). The run ends with the regression gate
+against the committed results (``gate.py``): exit code 1 when a figure regressed
+by more than 25% or a command failed. Not part of the test suite.
 
-    python bench/run.py                      # 1,000,000 commits (first run builds it)
-    python bench/run.py --commits 20000      # quick check
+    python bench/run.py                          # 100k, 300k, 1M: results/latest.*
+    python bench/run.py --sizes 20000,50000      # quick: results/latest-20000-50000.*
 """
 from __future__ import annotations
 
 import argparse
 import json
 import os
-import platform
 import shutil
 import sqlite3
-import statistics
 import subprocess
 import sys
 import tempfile
-import threading
 import time
 from pathlib import Path
 
-import psutil
-
 HERE = Path(__file__).resolve().parent
-CACHE = HERE / "cache"
 RESULTS = HERE / "results"
 sys.path.insert(0, str(HERE))
-import generate  # noqa: E402  (bench/generate.py)
+import gate  # noqa: E402  (bench/gate.py)
+import generate  # noqa: E402,F401  (bench/generate.py; used through run.generate)
+import growth_fit  # noqa: E402  (bench/growth_fit.py)
 import report_md  # noqa: E402  (bench/report_md.py)
+from measure import (CACHE, SMALL_TREE, git_env, history, history_info, machine,  # noqa: E402,F401
+                     median_of, policy_date, timed)
 
-TARGETS = {"paths_ratio": 1.3, "lines_ratio": 1.3, "peak_rss_mib": 1024,
-           "incremental_s": 5.0, "report_s": 60.0}
-
-
-def git_env() -> dict[str, str]:
-    env = {k: v for k, v in os.environ.items() if not k.startswith("GIT_")}
-    env.update({"GIT_CONFIG_NOSYSTEM": "1", "GIT_CONFIG_GLOBAL": os.devnull, "LC_ALL": "C"})
-    return env
-
-
-SMALL_TREE = ["--files", "6000", "--dirs", "120", "--maintainers", "300"]
-
-
-def history(commits: int, *, prefixes: list[int], extra: int, small_tree: bool = False) -> Path:
-    """The cached synthetic history with these parameters, built when missing."""
-    out = CACHE / (f"small-{commits}" if small_tree else f"kernel-{commits}")
-    marker = out / ".git" / "bench-complete.json"
-    if marker.exists():
-        return out
-    if out.exists():
-        shutil.rmtree(out)          # an interrupted build
-    CACHE.mkdir(parents=True, exist_ok=True)
-    argv = ["--commits", str(commits), "--extra", str(extra), "--out", str(out)]
-    for p in prefixes:
-        argv += ["--prefix", str(p)]
-    if small_tree:
-        argv += SMALL_TREE
-    print(f"building the {commits}-commit history (cached in {out}) ...", file=sys.stderr)
-    generate.main(argv)
-    return out
-
-
-def machine() -> dict[str, object]:
-    cpu = platform.processor() or ""
-    try:
-        for line in Path("/proc/cpuinfo").read_text().splitlines():
-            if line.startswith("model name"):
-                cpu = line.split(":", 1)[1].strip()
-                break
-    except OSError:
-        pass
-    git = subprocess.run(["git", "--version"], capture_output=True, text=True).stdout.strip()
-    head = subprocess.run(["git", "-C", str(HERE.parent), "describe", "--always", "--dirty"],
-                          capture_output=True, text=True).stdout.strip()
-    from importlib import metadata
-    return {
-        "cpu_model": cpu, "logical_cpus": os.cpu_count(),
-        "physical_cores": psutil.cpu_count(logical=False),
-        "ram_gib": round(psutil.virtual_memory().total / 2**30, 1),
-        "os": f"{platform.system()} {platform.release()}", "git": git,
-        "python": platform.python_version(), "procmetrics": f"{metadata.version('procmetrics')} ({head})",
-        "sqlalchemy": metadata.version("sqlalchemy"), "sqlite": sqlite3.sqlite_version,
-    }
-
-
-class Peak:
-    """Sample the summed RSS of a process tree (procmetrics + its git children)."""
-
-    def __init__(self, pid: int, interval: float = 0.05) -> None:
-        self.pid, self.interval, self.peak, self.peak_root = pid, interval, 0, 0
-        self._stop = threading.Event()
-        self._t = threading.Thread(target=self._run, daemon=True)
-        self._t.start()
-
-    def _run(self) -> None:
-        try:
-            root = psutil.Process(self.pid)
-        except psutil.NoSuchProcess:
-            return
-        while not self._stop.is_set():
-            try:
-                procs = [root] + root.children(recursive=True)
-                rss = 0
-                for p in procs:
-                    try:
-                        one = p.memory_info().rss
-                    except psutil.NoSuchProcess:
-                        continue
-                    rss += one
-                    if p.pid == self.pid:   # git's RSS includes its mapped pack files
-                        self.peak_root = max(self.peak_root, one)
-                self.peak = max(self.peak, rss)
-            except psutil.NoSuchProcess:
-                return
-            self._stop.wait(self.interval)
-
-    def stop(self) -> int:
-        self._stop.set()
-        self._t.join()
-        return self.peak
-
-
-def timed(argv: list[str], *, env: dict[str, str] | None = None,
-          stdout=subprocess.DEVNULL, timeout: float | None = None) -> dict[str, object]:
-    """Run argv; wall seconds, peak tree RSS (MiB) and exit code (-9: timed out)."""
-    start = time.perf_counter()
-    proc = subprocess.Popen(argv, stdout=stdout, stderr=subprocess.PIPE, env=env)
-    peak = Peak(proc.pid)
-    try:
-        _, err = proc.communicate(timeout=timeout)
-    except subprocess.TimeoutExpired:
-        for child in psutil.Process(proc.pid).children(recursive=True):
-            child.kill()
-        proc.kill()
-        _, err = proc.communicate()
-        err = b"timed out after %d s\n" % timeout + err
-    seconds = time.perf_counter() - start
-    rss = peak.stop()
-    out = {"seconds": round(seconds, 3), "peak_rss_mib": round(rss / 2**20, 1),
-           "peak_rss_main_mib": round(peak.peak_root / 2**20, 1),
-           "exit_code": proc.returncode}
-    if proc.returncode != 0:
-        out["stderr"] = err.decode("utf-8", "replace")[-2000:]
-    return out
-
-
-def median_of(runs: list[dict[str, object]]) -> dict[str, object]:
-    ok = [r for r in runs if r["exit_code"] == 0] or runs
-    return {"seconds": round(statistics.median(r["seconds"] for r in ok), 3),
-            "peak_rss_mib": round(max(r["peak_rss_mib"] for r in ok), 1),
-            "peak_rss_main_mib": round(max(r.get("peak_rss_main_mib", 0) for r in ok), 1),
-            "runs": [r["seconds"] for r in runs], "exit_code": max(r["exit_code"] for r in runs),
-            **({"stderr": runs[-1]["stderr"]} if "stderr" in runs[-1] else {})}
+DEFAULT_SIZES = [100_000, 300_000, 1_000_000]
 
 
 def git_log(repo: Path, ref: str, kind: str, repeats: int) -> dict[str, object]:
@@ -210,27 +87,31 @@ def incremental(repo: Path, base_store: Path, work: Path, *, lines: bool,
     return out
 
 
-def analyses(store: Path, repo: Path, work: Path, commits: int,
-             timeout: float) -> dict[str, object]:
-    """Time every analysis command that exists, and the full report."""
-    sys.path.insert(0, str(HERE.parent))
-    from procmetrics.cli import COMMANDS
-    half = subprocess.run(["git", "-C", str(repo), "log", "-1", "--format=%cs",
-                           f"prefix/{commits // 2}"], capture_output=True, text=True,
-                          env=git_env()).stdout.strip()
-    at = half or "2015-01-01"
-    planned = {
-        "series": ["series", "--store", str(store)],
-        "changes": ["changes", "--store", str(store)],
-        "compare": ["compare", "--store", str(store), "--at", at],
-        "lifetimes": ["lifetimes", "--store", str(store), "--out", str(work / "lifetimes")],
-        "growth": ["growth", "--store", str(store), "--out", str(work / "growth")],
-        "report": ["report", "--store", str(store), "--out", str(work / "report"),
+def planned_analyses(store: Path, work: Path, at: str) -> dict[str, list[str]]:
+    """The analysis commands timed at every size (argv after ``procmetrics``)."""
+    s = str(store)
+    return {
+        "series": ["series", "--store", s],
+        "changes": ["changes", "--store", s],
+        "compare": ["compare", "--store", s, "--at", at],
+        "compare_all": ["compare", "--store", s, "--at", at, "--all-subsystems"],
+        "lifetimes": ["lifetimes", "--store", s, "--out", str(work / "lifetimes")],
+        "growth": ["growth", "--store", s, "--out", str(work / "growth")],
+        "report": ["report", "--store", s, "--out", str(work / "report"),
                    "--policy-date", at, "--pdf-engine", "none"],
     }
-    out: dict[str, object] = {"policy_date": at}
-    for name, argv in planned.items():
-        if name not in COMMANDS:
+
+
+def analyses(store: Path, repo: Path, work: Path, commits: int,
+             timeout: float) -> dict[str, object]:
+    """Time every planned analysis command that exists, and the full report."""
+    sys.path.insert(0, str(HERE.parent))
+    from procmetrics.cli import COMMANDS
+    at, source = policy_date(repo, commits)
+    out: dict[str, object] = {"policy_date": at, "policy_date_source": source,
+                              "store": store.name}
+    for name, argv in planned_analyses(store, work, at).items():
+        if argv[0] not in COMMANDS:
             out[name] = {"skipped": "command not available in this procmetrics"}
             continue
         print(f"  {name} ...", file=sys.stderr)
@@ -265,91 +146,145 @@ def pydriller_ratio(small: Path, work: Path, repeats: int) -> dict[str, object]:
             "ratio": round(pyd["seconds"] / ours["seconds"], 1)}
 
 
-def save(out: Path, n: int, res: dict[str, object]) -> Path:
+def measure_size(n: int, args: argparse.Namespace, work: Path, res: dict,
+                 save) -> None:
+    """Every figure at one size into ``res`` (saved after each step)."""
+    prefixes = [n // 4, n // 2]
+    repo = history(n, prefixes=prefixes, extra=1000)
+    res["history"] = history_info(repo)
+    res["history"]["non_merge_commits"] = n
+    res["load_avg_start"] = os.getloadavg()
+    print(f"[{n:,} commits] git log --raw baseline ...", file=sys.stderr)
+    res["git_raw"] = git_log(repo, "main", "raw", args.repeats)
+    print(f"[{n:,} commits] mining, paths only ...", file=sys.stderr)
+    paths, paths_store = mined_pair(repo, "main", work, lines=False, repeats=args.big_repeats)
+    res["mine_paths"] = paths
+    res["stored_commits"] = count_commits(paths_store)
+    res["store_bytes_per_commit_paths"] = round(store_size(paths_store) / res["stored_commits"])
+    res["paths_ratio"] = round(paths["seconds"] / res["git_raw"]["seconds"], 2)
+    save()
+    store = paths_store
+    if "lines" not in args.skip:
+        print(f"[{n:,} commits] git log --numstat baseline, mining with line counts ...",
+              file=sys.stderr)
+        res["git_numstat"] = git_log(repo, "main", "numstat", args.repeats)
+        lines, store = mined_pair(repo, "main", work, lines=True, repeats=args.big_repeats)
+        res["mine_lines"] = lines
+        res["store_bytes_per_commit_lines"] = round(store_size(store) / count_commits(store))
+        res["lines_ratio"] = round(lines["seconds"] / res["git_numstat"]["seconds"], 2)
+        save()
+    if "memory" not in args.skip and n == max(args.sizes):
+        res["memory"] = {}
+        for p in prefixes:
+            print(f"[{n:,} commits] memory at {p:,} commits ...", file=sys.stderr)
+            r, st = mined_pair(repo, f"prefix/{p}", work, lines=False, repeats=1)
+            res["memory"][str(p)] = {k: r[k] for k in ("peak_rss_mib", "peak_rss_main_mib",
+                                                       "seconds", "exit_code")}
+            st.unlink()
+            save()
+        res["memory"][str(n)] = {k: paths[k] for k in ("peak_rss_mib", "peak_rss_main_mib",
+                                                       "seconds", "exit_code")}
+    if "incremental" not in args.skip:
+        print(f"[{n:,} commits] incremental mining of 1,000 commits ...", file=sys.stderr)
+        res["incremental"] = incremental(repo, paths_store, work, lines=False,
+                                         repeats=args.repeats)
+        save()
+    if "analyses" not in args.skip:
+        print(f"[{n:,} commits] analyses and report ...", file=sys.stderr)
+        res["analyses"] = analyses(store, repo, work, n, args.analysis_timeout)
+    print(f"[{n:,} commits] git log --raw baseline again ...", file=sys.stderr)
+    res["git_raw_after"] = git_log(repo, "main", "raw", args.repeats)
+    res["load_avg_end"] = os.getloadavg()
+
+
+def output_name(sizes: list[int], name: str | None) -> str:
+    """``latest`` for the default sizes, else ``latest-<size>-<size>...``."""
+    if name:
+        return name
+    return "latest" if sizes == DEFAULT_SIZES else "latest-" + "-".join(map(str, sizes))
+
+
+def write(out: Path, name: str, res: dict[str, object]) -> Path:
     """Write the results so far (a long run that is stopped keeps what it measured)."""
-    name = "latest" if n >= 1_000_000 else f"latest-{n}"
     out.mkdir(parents=True, exist_ok=True)
     (out / f"{name}.json").write_text(json.dumps(res, indent=2, sort_keys=True) + "\n")
     (out / f"{name}.md").write_text(report_md.render(res))
     return out / f"{name}.md"
 
 
-def main(argv: list[str] | None = None) -> int:
+def parse_args(argv: list[str] | None) -> argparse.Namespace:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
-    ap.add_argument("--commits", type=int, default=1_000_000)
+    ap.add_argument("--sizes", default=",".join(map(str, DEFAULT_SIZES)),
+                    help="history sizes, non-merge commits, comma-separated (default: %(default)s)")
+    ap.add_argument("--commits", type=int, help="one size only (same as --sizes N)")
     ap.add_argument("--small", type=int, default=2000, help="history size for pydriller")
     ap.add_argument("--repeats", type=int, default=3, help="repeats of small measurements")
     ap.add_argument("--big-repeats", type=int, default=1, help="repeats of full-history runs")
     ap.add_argument("--skip", action="append", default=[],
                     choices=["lines", "memory", "incremental", "analyses", "pydriller"])
-    ap.add_argument("--out", type=Path, default=RESULTS)
+    ap.add_argument("--out", type=Path, default=RESULTS, help="results folder")
+    ap.add_argument("--name", help="results file name without suffix (default: latest for the "
+                                   "default sizes, else latest-<sizes>); keeps committed files")
     ap.add_argument("--analysis-timeout", type=float, default=1800.0,
                     help="seconds before an analysis command is stopped and recorded as such")
+    ap.add_argument("--no-gate", action="store_true", help="report the comparison, never fail")
+    ap.add_argument("--baseline", type=Path, action="append", default=[],
+                    help="results JSON to gate against (repeatable; default: the committed "
+                         "results of this name, latest-<sizes>.json, latest.json, latest-<N>.json)")
+    ap.add_argument("--tolerance", type=float, default=gate.TOLERANCE,
+                    help="allowed rise of a figure before the gate fails (default: %(default)s)")
     args = ap.parse_args(argv)
-    n = args.commits
-    prefixes = [n // 4, n // 2]
-    repo = history(n, prefixes=prefixes, extra=1000)
-    args.out.mkdir(parents=True, exist_ok=True)
-    work = Path(tempfile.mkdtemp(prefix="tmp-", dir=args.out))
-    res: dict[str, object] = {"machine": machine(), "targets": TARGETS,
-                              "started": time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime()),
-                              "load_avg_start": os.getloadavg(),
-                              "history": json.loads((repo / ".git" / "bench-complete.json")
-                                                    .read_text())}
     try:
-        res["history"]["non_merge_commits"] = n
-        print("git log --raw baseline ...", file=sys.stderr)
-        res["git_raw"] = git_log(repo, "main", "raw", args.repeats)
-        print("mining, paths only ...", file=sys.stderr)
-        paths, paths_store = mined_pair(repo, "main", work, lines=False, repeats=args.big_repeats)
-        res["mine_paths"] = paths
-        res["stored_commits"] = count_commits(paths_store)
-        res["store_bytes_per_commit_paths"] = round(store_size(paths_store) / res["stored_commits"])
-        res["paths_ratio"] = round(paths["seconds"] / res["git_raw"]["seconds"], 2)
-        save(args.out, n, res)
-        if "lines" not in args.skip:
-            print("git log --numstat baseline ...", file=sys.stderr)
-            res["git_numstat"] = git_log(repo, "main", "numstat", args.repeats)
-            print("mining with line counts ...", file=sys.stderr)
-            lines, lines_store = mined_pair(repo, "main", work, lines=True,
-                                            repeats=args.big_repeats)
-            res["mine_lines"] = lines
-            res["store_bytes_per_commit_lines"] = round(store_size(lines_store)
-                                                        / count_commits(lines_store))
-            res["lines_ratio"] = round(lines["seconds"] / res["git_numstat"]["seconds"], 2)
-            save(args.out, n, res)
-        if "memory" not in args.skip:
-            res["memory"] = {}
-            for p in prefixes:
-                print(f"memory at {p} commits ...", file=sys.stderr)
-                r, st = mined_pair(repo, f"prefix/{p}", work, lines=False, repeats=1)
-                res["memory"][str(p)] = {"peak_rss_mib": r["peak_rss_mib"],
-                                         "peak_rss_main_mib": r["peak_rss_main_mib"],
-                                         "seconds": r["seconds"]}
-                st.unlink()
-                save(args.out, n, res)
-            res["memory"][str(n)] = {"peak_rss_mib": paths["peak_rss_mib"],
-                                     "peak_rss_main_mib": paths["peak_rss_main_mib"],
-                                     "seconds": paths["seconds"]}
-        if "incremental" not in args.skip:
-            print("incremental mining of 1,000 commits ...", file=sys.stderr)
-            res["incremental"] = incremental(repo, paths_store, work, lines=False,
-                                             repeats=args.repeats)
-            save(args.out, n, res)
-        if "analyses" not in args.skip and "lines" not in args.skip:
-            print("analyses and report ...", file=sys.stderr)
-            res["analyses"] = analyses(lines_store, repo, work, n, args.analysis_timeout)
+        sizes = [args.commits] if args.commits else [int(s) for s in args.sizes.split(",") if s]
+    except ValueError:
+        ap.error(f"--sizes: not a comma-separated list of integers: {args.sizes!r}")
+    if not sizes or min(sizes) < 1000:
+        ap.error("--sizes: give sizes of at least 1000 commits")
+    args.sizes = sorted(set(sizes))
+    return args
+
+
+def main(argv: list[str] | None = None) -> int:
+    args = parse_args(argv)
+    name = output_name(args.sizes, args.name)
+    keys = [str(n) for n in args.sizes]
+    # read before this run writes anything: the committed results it is gated against
+    cands = ([(json.loads(p.read_text()), str(p)) for p in args.baseline] if args.baseline
+             else gate.default_candidates(args.out, name, keys))
+    baselines = gate.find_baselines(keys, cands)
+    res: dict[str, object] = {"machine": machine(), "sizes": {}, "skip": args.skip,
+                              "started": time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime()),
+                              "load_avg_start": os.getloadavg()}
+    args.out.mkdir(parents=True, exist_ok=True)
+    written = None
+    try:
+        for n in args.sizes:
+            work = Path(tempfile.mkdtemp(prefix="tmp-", dir=args.out))
+            res["sizes"][str(n)] = {}
+            try:
+                measure_size(n, args, work, res["sizes"][str(n)], lambda: write(args.out, name, res))
+            finally:
+                shutil.rmtree(work, ignore_errors=True)
+            res["growth"] = growth_fit.growth_table(res["sizes"])
+            written = write(args.out, name, res)
         if "pydriller" not in args.skip:
-            print(f"pydriller loop vs procmetrics on {args.small} commits ...", file=sys.stderr)
-            small = history(args.small, prefixes=[], extra=0, small_tree=True)
-            res["pydriller"] = pydriller_ratio(small, work, args.repeats)
+            work = Path(tempfile.mkdtemp(prefix="tmp-", dir=args.out))
+            try:
+                print(f"pydriller loop vs procmetrics on {args.small} commits ...", file=sys.stderr)
+                small = history(args.small, prefixes=[], extra=0, small_tree=True)
+                res["pydriller"] = pydriller_ratio(small, work, args.repeats)
+            finally:
+                shutil.rmtree(work, ignore_errors=True)
+        res["gate"] = gate.gate(res["sizes"], baselines, args.tolerance)
+        res["gate"]["enforced"] = not args.no_gate
     finally:
         res["load_avg_end"] = os.getloadavg()
         res["finished"] = time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime())
-        written = save(args.out, n, res)
-        shutil.rmtree(work, ignore_errors=True)
-        print(f"wrote {written}", file=sys.stderr)
-    return 0
+        written = write(args.out, name, res)
+        print(f"wrote {written} and {written.with_suffix('.json').name}", file=sys.stderr)
+    print("\n".join(report_md.growth_lines(res)), file=sys.stderr)
+    print("\n".join(gate.summary(res["gate"])), file=sys.stderr)
+    return 0 if res["gate"]["passed"] or args.no_gate else 1
 
 
 if __name__ == "__main__":
