@@ -251,7 +251,15 @@ def fit_model(endog: np.ndarray, exog: np.ndarray, *, kind: str,
     use_hac = hac == "always" or (hac == "auto" and lb.verdict == "warn")
     if use_hac:
         ckw, cov_label = _cov_kwargs(True, n)
-        res = _fit_quiet(glm.fit, **fit_kw, **ckw)
+        try:
+            res = _fit_quiet(glm.fit, **fit_kw, **ckw)
+        except np.linalg.LinAlgError as exc:
+            # the residuals are autocorrelated, so the plain standard errors would be too
+            # narrow; without the HAC ones no interval can be given (a weighted design
+            # that is singular: e.g. a share of 0 or 1 in most periods of a small subsystem)
+            raise InsufficientData(
+                "the residuals are autocorrelated but the autocorrelation-robust (HAC) "
+                f"covariance cannot be computed ({exc}): no interval is given") from exc
         if hac == "auto":
             notes.append("residual autocorrelation: HAC standard errors")
     else:
