@@ -201,3 +201,24 @@ def test_resampled_figures_depend_on_the_data_only():
     other = stats.anderson_ksamp([a, b], variant="midrank", method=stats.PermutationMethod(
         n_resamples=299, rng=np.random.default_rng(1))).pvalue
     assert abs(ad - other) < 4 * np.sqrt(0.25 / 299) * np.sqrt(2)   # two independent MC errors
+
+
+def test_kth_difference_of_whole_numbers_is_the_materialised_one() -> None:
+    """The integer bisection (lines changed, reviewers) gives the k-th smallest of the
+    materialised, sorted differences b_j - a_i (oracle), at the ends and in between,
+    with ties and negative values; non-integer data take the general search."""
+    import numpy as np
+
+    from procmetrics.analyse.change.twosample import _kth_difference
+
+    rng = np.random.default_rng(20261202)
+    for _ in range(200):
+        m, n = int(rng.integers(1, 50)), int(rng.integers(1, 50))
+        a = rng.integers(-20, 200, m).astype(float)
+        b = rng.integers(-20, 400, n).astype(float)
+        d = np.sort(np.subtract.outer(b, a).ravel())
+        for k in {1, m * n, int(rng.integers(1, m * n + 1))}:
+            assert _kth_difference(a, b, k) == d[k - 1]
+    a, b = rng.random(40) * 10, rng.random(30) * 10 + 0.5
+    d = np.sort(np.subtract.outer(b, a).ravel())
+    assert _kth_difference(a, b, 600) == d[599]

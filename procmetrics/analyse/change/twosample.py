@@ -147,9 +147,27 @@ def _moses_k(m: int, n: int, alpha: float) -> int:
     return int(np.floor(m * n / 2 - z * np.sqrt(m * n * (m + n + 1) / 12.0)))
 
 
+def _whole_numbers(x: np.ndarray) -> bool:
+    """Finite whole numbers small enough that float arithmetic on them is exact."""
+    return bool(len(x)) and bool(np.all(np.isfinite(x))) and bool(
+        np.all(np.abs(x) < 2.0 ** 50)) and bool(np.all(x == np.floor(x)))
+
+
 def _kth_difference(a: np.ndarray, b: np.ndarray, k: int) -> float:
     """k-th smallest (1-based) of all differences b_j - a_i without materialising them."""
     a = np.sort(a)
+    if _whole_numbers(a) and _whole_numbers(b):
+        # whole numbers (lines changed, reviewers): the differences are whole numbers
+        # too, so a bisection over the integers ends in ~log2(range) counts and lands
+        # on the difference itself (the same value the general search snaps to)
+        ilo, ihi = int(b.min() - a.max()), int(b.max() - a.min())
+        while ilo < ihi:
+            mid = (ilo + ihi) // 2
+            if int((len(a) - np.searchsorted(a, b - mid, side="left")).sum()) >= k:
+                ihi = mid
+            else:
+                ilo = mid + 1
+        return float(ilo)
     lo, hi = float(b.min() - a.max()), float(b.max() - a.min())
     for _ in range(200):
         mid = (lo + hi) / 2
