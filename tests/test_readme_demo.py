@@ -1,13 +1,13 @@
 """End to end, as the README says: `make demo` generates the aurora-fw history, mines
 it and writes the report; then `procmetrics check` gates on the demo claims.
 
-Runs the real Makefile target in a subprocess, with the demo's folders moved under
-tmp_path (make variables on the command line) so the source tree is left alone.
+Runs the real Makefile target in a subprocess (the session fixture ``make_demo`` in
+tests/conftest.py, whose output tests/report/test_consistency.py reuses), with the demo's
+folders moved under pytest's temporary root so the source tree is left alone.
 """
 from __future__ import annotations
 
 import json
-import shutil
 import subprocess
 import sys
 from pathlib import Path
@@ -18,15 +18,9 @@ ROOT = Path(__file__).resolve().parents[1]
 
 
 @pytest.mark.slow
-def test_make_demo_end_to_end(tmp_path):
-    if shutil.which("make") is None:
-        pytest.skip("make is not installed")
-    repo, out = tmp_path / "aurora-fw", tmp_path / "demo"
-    # -o: do not reinstall the package when pyproject.toml is newer than the stamp
-    proc = subprocess.run(["make", "-C", str(ROOT), "-o", ".venv/.installed", "demo",
-                           f"DEMO_REPO={repo}", f"DEMO_OUT={out}"],
-                          capture_output=True, text=True, timeout=600)
-    assert proc.returncode == 0, proc.stdout[-3000:] + proc.stderr[-3000:]
+def test_make_demo_end_to_end(make_demo):
+    out = make_demo.out
+    assert make_demo.returncode == 0, make_demo.output
     for name in ("report.html", "report.pdf", "report.json", "manifest.json"):
         assert (out / name).stat().st_size > 0, name
     doc = json.loads((out / "report.json").read_text("utf-8"))
@@ -37,7 +31,7 @@ def test_make_demo_end_to_end(tmp_path):
     verdicts = {c["id"]: c["verdict"] for c in doc["claims"]}
     assert verdicts["few-remain"] == "not_supportable"
     # the planted process change (ground truth written by the generator) is found
-    truth = json.loads((tmp_path / "aurora-fw.truth.json").read_text("utf-8"))
+    truth = json.loads((make_demo.repo.parent / "aurora-fw.truth.json").read_text("utf-8"))
     assert doc["scope"]["policy"] == truth["change"]["date"]
     assert verdicts["review-rose"] == "supported"
     assert verdicts["fixed-faster"] == "supported"   # truth: lifetimes halved after the date

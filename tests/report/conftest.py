@@ -1,11 +1,13 @@
 """One real report, built once per session from a small generated history.
 
-The demo generator writes a 600-commit history; one more commit is added whose
+Built once per test session even under xdist (:mod:`tests.shared_builds`: the first
+worker builds, the other reuses the folder), so tests must not change it. The demo
+generator writes a 600-commit history; one more commit is added whose
 subject and Fixes: line carry markup and script, so the report must show them
 as text. The history is mined with the real miner and the report written
 twice from the same store (PDF by Chromium when present, then by the
-matplotlib fallback) to check that the
-JSON and CSV outputs are byte-identical.
+matplotlib fallback), both with the same ``--meta`` file, to check that the
+JSON and CSV outputs are byte-identical and that both PDFs carry the document furniture.
 """
 from __future__ import annotations
 
@@ -16,6 +18,8 @@ from dataclasses import dataclass
 from pathlib import Path
 
 import pytest
+
+from tests.shared_builds import shared_build
 
 ROOT = Path(__file__).resolve().parents[2]
 EVIL_SUBJECT = 'net: handle <script>alert("pm-xss")</script> & <b>bold</b> frames'
@@ -32,6 +36,16 @@ id = "few-left"
 kind = "residual_defects_below"
 threshold = 3
 """
+#: the report metadata of both reports (tests/report/test_pdf_document.py reads it back
+#: from the two PDFs): the organisation carries markup that must be escaped
+META = """\
+document_id = "AUR-QA-0007"
+revision = "C"
+author = "Imke Vossberg"
+reviewer = "Tarek Oduya"
+approver = "Lenka Marrow"
+organisation = "Aurora <Avionics> & \\"Sons\\""
+"""
 
 
 @dataclass(frozen=True)
@@ -42,7 +56,9 @@ class Built:
     out2: Path
     claims: Path
     policy: str
-    files: object
+    files: object          # make_report's ReportFiles of out (PDF by Chromium when present)
+    files2: object         # ... of out2 (PDF by the matplotlib fallback)
+    meta: Path             # the --meta file of both
 
 
 def _git(repo: Path, home: Path, *args: str) -> str:
@@ -71,19 +87,26 @@ def build_history(base: Path) -> tuple[Path, str]:
 
 @pytest.fixture(scope="session")
 def built(tmp_path_factory) -> Built:
-    from procmetrics.mine import MineOptions, mine_repository
-    from procmetrics.report.build import make_report
-    from procmetrics.report.model import ReportOptions
+    """Built once per session across the xdist workers (tests.shared_builds); read-only."""
+    def build(base: Path) -> dict:
+        from procmetrics.mine import MineOptions, mine_repository
+        from procmetrics.report.build import make_report
+        from procmetrics.report.model import ReportOptions
 
-    base = tmp_path_factory.mktemp("report")
-    repo, policy = build_history(base)
-    store = base / "pm.sqlite"
-    mine_repository(repo, store=store, options=MineOptions(progress=False))
-    claims = base / "claims.toml"
-    claims.write_text(CLAIMS, encoding="utf-8")
-    opts = ReportOptions(policy=policy, claims_path=str(claims))
-    files = make_report(str(store), base / "out", opts)
-    make_report(str(store), base / "out2", ReportOptions(policy=policy,
-                                                         claims_path=str(claims),
-                                                         pdf_engine="fallback"))
-    return Built(repo, store, base / "out", base / "out2", claims, policy, files)
+        repo, policy = build_history(base)
+        store = base / "pm.sqlite"
+        mine_repository(repo, store=store, options=MineOptions(progress=False))
+        claims = base / "claims.toml"
+        claims.write_text(CLAIMS, encoding="utf-8")
+        meta = base / "meta.toml"
+        meta.write_text(META, encoding="utf-8")
+        opts = ReportOptions(policy=policy, claims_path=str(claims), meta_path=str(meta))
+        files = make_report(str(store), base / "out", opts)
+        files2 = make_report(str(store), base / "out2", ReportOptions(
+            policy=policy, claims_path=str(claims), meta_path=str(meta),
+            pdf_engine="fallback"))
+        return {"repo": repo, "store": store, "out": base / "out", "out2": base / "out2",
+                "claims": claims, "policy": policy, "files": files, "files2": files2,
+                "meta": meta}
+
+    return Built(**shared_build(tmp_path_factory, "report-built", build))

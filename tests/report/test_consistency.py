@@ -1,8 +1,9 @@
 """One number per quantity: the demo report and the CLI print the same figures.
 
-The full demo history (sample_repos/generate.py, 4,000 commits) is mined and its
-report written once per session with the demo claims file; the analysis commands
-then run through the real entry point with their default options. Every quantity
+The full demo history (sample_repos/generate.py, 4,000 commits), its store and its
+report with the demo claims and scope files are those of the README's ``make demo``
+(the session fixture ``make_demo``, run once and shared with tests/test_readme_demo.py);
+the analysis commands then run through the real entry point with their default options. Every quantity
 that appears in more than one place (report.json sections and claim blocks,
 tables/*.csv, command output) must be printed identically. Before this test, the
 same demo printed 443 (``growth``), 417 (report figure and table) and 444 (growth
@@ -14,6 +15,7 @@ from __future__ import annotations
 import csv
 import json
 import re
+import shutil
 import subprocess
 import sys
 from pathlib import Path
@@ -24,26 +26,40 @@ from procmetrics import textfmt
 from procmetrics.cli import main
 
 ROOT = Path(__file__).resolve().parents[2]
+GEN = str(ROOT / "sample_repos" / "generate.py")
 
 
-@pytest.fixture(scope="session")
-def demo_report(tmp_path_factory) -> dict:
+def _own_demo(base: Path) -> tuple[Path, Path]:
+    """Without make: the demo mined and reported here, as ``make demo`` does it."""
     from procmetrics.mine import MineOptions, mine_repository
     from procmetrics.report.build import make_report
     from procmetrics.report.model import ReportOptions
 
-    base = tmp_path_factory.mktemp("demo-consistency")
     repo = base / "aurora-fw"
-    gen = str(ROOT / "sample_repos" / "generate.py")
-    subprocess.run([sys.executable, gen, "--out", str(repo)], check=True, capture_output=True)
-    policy = subprocess.run([sys.executable, gen, "--print-change-date"], check=True,
-                            capture_output=True, text=True).stdout.strip()
+    subprocess.run([sys.executable, GEN, "--out", str(repo)], check=True, capture_output=True)
     store = base / "store.sqlite"
     mine_repository(repo, store=store, options=MineOptions(progress=False))
     out = base / "report"
     make_report(str(store), out, ReportOptions(
-        policy=policy, claims_path=str(ROOT / "sample_repos" / "demo_claims.toml"),
+        policy=_policy(), claims_path=str(ROOT / "sample_repos" / "demo_claims.toml"),
         scope_file=str(ROOT / "sample_repos" / "demo_scopes.toml"), pdf_engine="none"))
+    return store, out
+
+
+def _policy() -> str:
+    return subprocess.run([sys.executable, GEN, "--print-change-date"], check=True,
+                          capture_output=True, text=True).stdout.strip()
+
+
+@pytest.fixture(scope="session")
+def demo_report(request, tmp_path_factory) -> dict:
+    if shutil.which("make") is None:
+        store, out = _own_demo(tmp_path_factory.mktemp("demo-consistency"))
+    else:
+        demo = request.getfixturevalue("make_demo")     # shared with the README demo test
+        assert demo.returncode == 0, demo.output
+        store, out = demo.out / "procmetrics.sqlite", demo.out
+    policy = _policy()
     doc = json.loads((out / "report.json").read_text(encoding="utf-8"))
     return {"store": store, "out": out, "policy": policy, "json": doc,
             "figures": {f["key"]: f for f in doc["figures"]},

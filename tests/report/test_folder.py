@@ -1,5 +1,6 @@
 """The report folder stands on its own: inputs copied, paths relative to the manifest,
-``rerun`` from any working directory on a moved copy, nothing left behind on failure."""
+``rerun`` from any working directory on a moved copy, nothing left behind on failure;
+commit hashes become links when asked (the folder's report is written with --commit-url)."""
 from __future__ import annotations
 
 import json
@@ -11,6 +12,7 @@ from procmetrics.cli import main
 from procmetrics.errors import ConfigError
 from procmetrics.report.manifest import sha256_file
 from procmetrics.report.meta import check_commit_url, commit_link, load_meta
+from tests.report.html_links import Links
 
 META = """\
 document_id = "AUR-QA-0007"
@@ -20,6 +22,7 @@ reviewer = "Tarek Oduya"
 approver = "Lenka Marrow"
 organisation = "Aurora Avionics (invented)"
 """
+URL = "https://git.example.org/aurora/commit/{hash}"
 
 
 @pytest.fixture(scope="module")
@@ -30,7 +33,7 @@ def folder(built, tmp_path_factory):
     out = base / "rep"
     assert main(["report", "--store", str(built.store), "--out", str(out), "--policy-date",
                  built.policy, "--claims", str(built.claims), "--meta", str(meta),
-                 "--pdf-engine", "none"]) == 0
+                 "--pdf-engine", "none", "--commit-url", URL]) == 0
     return base, out, meta
 
 
@@ -85,6 +88,17 @@ def test_a_failed_rerun_leaves_no_folder(folder, tmp_path, capsys):
     (broken / "manifest.json").write_text(json.dumps(man), encoding="utf-8")
     assert main(["rerun", str(broken / "manifest.json"), "--out", str(target)]) != 0
     assert not target.exists()
+
+
+def test_commit_hashes_become_links(folder):
+    _, out, _ = folder
+    doc = json.loads((out / "report.json").read_text("utf-8"))
+    parser = Links()
+    parser.feed((out / "report.html").read_text("utf-8"))
+    head = doc["scope"]["head_hash"]
+    assert URL.format(hash=head) in parser.all_hrefs
+    links = [h for h in parser.all_hrefs if h.startswith("https://git.example.org/")]
+    assert all(h[len(URL) - len("{hash}"):].isalnum() for h in links)
 
 
 def test_metadata_file_is_checked(tmp_path):

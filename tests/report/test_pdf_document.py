@@ -9,18 +9,7 @@ import pytest
 
 pypdf = pytest.importorskip("pypdf")
 
-from procmetrics.report.build import make_report  # noqa: E402
-from procmetrics.report.model import ReportOptions  # noqa: E402
 from procmetrics.report.pdf import find_chromium  # noqa: E402
-
-META = """\
-document_id = "AUR-QA-0007"
-revision = "C"
-author = "Imke Vossberg"
-reviewer = "Tarek Oduya"
-approver = "Lenka Marrow"
-organisation = "Aurora <Avionics> & \\"Sons\\""
-"""
 
 
 def _squash(text: str) -> str:
@@ -28,15 +17,12 @@ def _squash(text: str) -> str:
 
 
 @pytest.fixture(scope="module", params=["chromium", "fallback"])
-def pdf_text(request, built, tmp_path_factory):
+def pdf_text(request, built):
+    """The two PDFs of the shared report (tests/report/conftest.py): both were written
+    with its META file (document AUR-QA-0007 rev. C; markup in the organisation)."""
     if request.param == "chromium" and find_chromium() is None:
         pytest.skip("no chromium on this machine")
-    base = tmp_path_factory.mktemp("pdfdoc-" + request.param)
-    meta = base / "meta.toml"
-    meta.write_text(META, encoding="utf-8")
-    files = make_report(str(built.store), base / "rep", ReportOptions(
-        policy=built.policy, claims_path=str(built.claims), meta_path=str(meta),
-        pdf_engine=request.param))
+    files = built.files if request.param == "chromium" else built.files2
     assert files.pdf_engine == ("chromium" if request.param == "chromium" else "matplotlib")
     reader = pypdf.PdfReader(str(files.pdf))
     return [_squash(p.extract_text()) for p in reader.pages]
