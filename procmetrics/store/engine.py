@@ -4,6 +4,7 @@ from __future__ import annotations
 import os
 import re
 from pathlib import Path
+from typing import Any
 
 from sqlalchemy import create_engine, event, inspect, select
 from sqlalchemy.engine import Engine
@@ -197,6 +198,26 @@ def _schema_version(bind) -> tuple | None:
                         .where(schema.meta.c.key == "schema_version")).first()
 
 
+#: tries at creating a store's schema while another process may be creating it, and the
+#: seconds to wait for the other one's version row after a collision
+CREATE_ATTEMPTS = 5
+CREATE_WAIT_S = 5.0
+
+
+def _wait_for_schema(engine: Engine, seconds: float) -> Any:
+    import time
+
+    end = time.monotonic() + seconds
+    while True:
+        try:
+            row = _schema_version(engine)
+        except (StoreError, SQLAlchemyError):
+            row = None
+        if row is not None or time.monotonic() >= end:
+            return row
+        time.sleep(0.05)
+
+
 def _ensure_schema(engine: Engine, *, create: bool) -> None:
     from procmetrics.store.migrate import migrate  # local: migrate imports schema only
 
@@ -204,7 +225,7 @@ def _ensure_schema(engine: Engine, *, create: bool) -> None:
     if row is None:
         if not create:
             raise SchemaError("store has no procmetrics schema")
-        for _attempt in range(3):
+        for _attempt in range(CREATE_ATTEMPTS):
             # Creating is idempotent (every step checks first) because it is not atomic
             # on SQLite (its driver commits DDL at once): another process may be creating
             # the same store right now, or a first run died half-way through creating it.
@@ -218,7 +239,10 @@ def _ensure_schema(engine: Engine, *, create: bool) -> None:
                             {"key": "schema_version", "value": str(schema.SCHEMA_VERSION)},
                         ])
             except StoreError:
-                if _schema_version(engine) is None and _attempt == 2:
+                # another process created a table between our check and our CREATE: give
+                # it time to finish (its version row comes last) before trying again
+                row = _wait_for_schema(engine, CREATE_WAIT_S)
+                if row is None and _attempt == CREATE_ATTEMPTS - 1:
                     raise
             row = _schema_version(engine)
             if row is not None:
