@@ -51,7 +51,22 @@ def main(argv: Sequence[str] | None = None) -> int:
         sys.stdout, sys.stderr = saved
 
 
+def quiet_library_logs() -> None:
+    """SQLAlchemy logs a connection reset that Ctrl-C interrupted (while a connection
+    goes back to its pool) as an error with a traceback, through Python's last-resort
+    handler on stderr; the command already says "interrupted" in one line. Kept with
+    ``PROCMETRICS_DEBUG``."""
+    import logging
+
+    if not os.environ.get("PROCMETRICS_DEBUG"):
+        pool = logging.getLogger("sqlalchemy.pool")
+        if not any(isinstance(h, logging.NullHandler) for h in pool.handlers):
+            pool.addHandler(logging.NullHandler())
+        pool.propagate = False
+
+
 def _main(argv: Sequence[str] | None) -> int:
+    quiet_library_logs()
     parser = build_parser()
     args = parser.parse_args(argv)
     try:

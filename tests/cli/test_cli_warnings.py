@@ -44,3 +44,25 @@ def test_debug_lists_library_warnings(monkeypatch, capsys):
     assert lines[1].startswith("procmetrics: note: library warnings") and \
         "RuntimeWarning x1" in lines[1] and "UserWarning x1" in lines[1]
     assert len(lines) == 2
+
+
+def test_an_interrupted_pool_reset_prints_no_traceback(capsys, monkeypatch):
+    """SQLAlchemy's pool logs a reset interrupted by Ctrl-C with a traceback (seen in an
+    interrupt test); the CLI keeps it off stderr, and PROCMETRICS_DEBUG shows it."""
+    import logging
+
+    from procmetrics.cli import quiet_library_logs
+
+    pool = logging.getLogger("sqlalchemy.pool")
+    saved = (list(pool.handlers), pool.propagate)
+    try:
+        monkeypatch.delenv("PROCMETRICS_DEBUG", raising=False)
+        quiet_library_logs()
+        try:
+            raise KeyboardInterrupt
+        except KeyboardInterrupt:
+            pool.error("Exception during reset or similar", exc_info=True)
+        assert "Traceback" not in capsys.readouterr().err
+    finally:
+        pool.handlers[:] = saved[0]
+        pool.propagate = saved[1]
