@@ -46,23 +46,32 @@ def test_debug_lists_library_warnings(monkeypatch, capsys):
     assert len(lines) == 2
 
 
-def test_an_interrupted_pool_reset_prints_no_traceback(capsys, monkeypatch):
-    """SQLAlchemy's pool logs a reset interrupted by Ctrl-C with a traceback (seen in an
-    interrupt test); the CLI keeps it off stderr, and PROCMETRICS_DEBUG shows it."""
-    import logging
 
+_POOL_LOG = """
+import logging, sys
+if sys.argv[1] == "quiet":
     from procmetrics.cli import quiet_library_logs
+    quiet_library_logs()
+try:
+    raise KeyboardInterrupt
+except KeyboardInterrupt:
+    logging.getLogger("sqlalchemy.pool").error("Exception during reset or similar",
+                                               exc_info=True)
+"""
 
-    pool = logging.getLogger("sqlalchemy.pool")
-    saved = (list(pool.handlers), pool.propagate)
-    try:
-        monkeypatch.delenv("PROCMETRICS_DEBUG", raising=False)
-        quiet_library_logs()
-        try:
-            raise KeyboardInterrupt
-        except KeyboardInterrupt:
-            pool.error("Exception during reset or similar", exc_info=True)
-        assert "Traceback" not in capsys.readouterr().err
-    finally:
-        pool.handlers[:] = saved[0]
-        pool.propagate = saved[1]
+
+def test_an_interrupted_pool_reset_prints_no_traceback():
+    """SQLAlchemy's pool logs a reset interrupted by Ctrl-C with a traceback through
+    Python's last-resort handler (seen in an interrupt test); the CLI keeps it off
+    stderr. Run in a fresh interpreter (pytest installs its own log handlers); the
+    control run without the CLI's setting shows the traceback the check looks for."""
+    import os
+    import subprocess
+    import sys
+
+    env = {k: v for k, v in os.environ.items() if k != "PROCMETRICS_DEBUG"}
+    runs = {mode: subprocess.run([sys.executable, "-c", _POOL_LOG, mode], env=env,
+                                 capture_output=True, text=True, timeout=60)
+            for mode in ("quiet", "plain")}
+    assert "Traceback" in runs["plain"].stderr
+    assert runs["quiet"].returncode == 0 and "Traceback" not in runs["quiet"].stderr
