@@ -45,7 +45,7 @@ def load(args: argparse.Namespace) -> tuple[dict[str, pd.DataFrame], str]:
 
     # only what these commands use: subsystems when asked for, review trailers only
     names = ["fix_links", "commits", "trailers", "tags"]
-    if args.subsystem or getattr(args, "all_subsystems", False):
+    if args.subsystem or getattr(args, "all_subsystems", False) or getattr(args, "control", None):
         names.append("commit_subsystems")
     tables, name = load_tables(args.store, args.repo, scope_request(args), names=names,
                                trailer_keys=tuple(args.review_key or DEFAULT_REVIEW_KEYS))
