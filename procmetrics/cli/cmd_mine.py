@@ -61,6 +61,13 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
+    from procmetrics import interrupts
+
+    with interrupts.recorded():      # a Ctrl-C a library swallowed still stops the run
+        return _run(args)
+
+
+def _run(args: argparse.Namespace) -> int:
     paths = list(args.path) + (read_repo_list(args.repo_list) if args.repo_list else [])
     if not paths:
         raise ConfigError("name a repository PATH (or several, or --list FILE)")

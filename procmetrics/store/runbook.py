@@ -78,7 +78,11 @@ class RunBook:
     def complete_run(self, run_id: int, repo_id: int, *, tip_hash: str, tip_ref: str,
                      path: str, remote_url: str | None, is_shallow: bool, mapping_kind: str,
                      mapping_source: str, counts: dict[str, int], message: str | None) -> None:
-        """Mark the run complete and move the repository's tip (one transaction)."""
+        """Mark the run complete and move the repository's tip (one transaction);
+        never after a Ctrl-C, even one a library swallowed (:mod:`procmetrics.interrupts`)."""
+        from procmetrics import interrupts
+
+        interrupts.check()
         with self.engine.begin() as conn:
             conn.execute(update(s.mining_run).where(s.mining_run.c.run_id == run_id).values(
                 status="complete", ended_utc=int(time.time()), message=message, **counts))
