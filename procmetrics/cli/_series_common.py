@@ -49,9 +49,29 @@ def load(args: argparse.Namespace) -> tuple[dict[str, pd.DataFrame], str]:
         names.append("commit_subsystems")
     tables, name = load_tables(args.store, args.repo, scope_request(args), names=names,
                                trailer_keys=tuple(args.review_key or DEFAULT_REVIEW_KEYS))
+    known_subsystems(tables, args.subsystem or (), "--subsystem")
+    if getattr(args, "control", None):
+        known_subsystems(tables, [args.control], "--control")
     summary = tables.get("scope_summary")
     print_scope(summary, out_dir(args) if summary is not None else None)
     return tables, name
+
+
+def known_subsystems(tables: dict[str, pd.DataFrame], names: Any, option: str) -> None:
+    """A subsystem name the store does not map is a usage mistake (exit 2), as in the
+    report, instead of an empty series or an unfitted control."""
+    from procmetrics.errors import ConfigError
+
+    if not names:
+        return
+    cs = tables.get("whole_tree", tables).get("commit_subsystems")
+    have = set(cs["subsystem"].dropna().astype(str)) if cs is not None else set()
+    for n in names:
+        if n not in have:
+            hint = ("the store maps no subsystems" if not have else "known: "
+                    + ", ".join(sorted(have)[:12]) + (", ..." if len(have) > 12 else ""))
+            raise ConfigError(f"subsystem {n!r} does not exist in the store ({hint})",
+                              key=option)
 
 
 def metric_config(args: argparse.Namespace, tables: dict[str, pd.DataFrame]) -> Any:

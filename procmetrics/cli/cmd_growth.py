@@ -51,6 +51,10 @@ def run(args: argparse.Namespace) -> int:
     tables, name = load_tables(args.store, args.repo, scope_request(args),
                                names=("fix_links", "commits", "tags")
                                + (("commit_subsystems",) if args.subsystem else ()))
+    if args.subsystem:
+        from procmetrics.cli._series_common import known_subsystems
+
+        known_subsystems(tables, [args.subsystem], "--subsystem")
     summary = tables.get("scope_summary")
     print_scope(summary)
     cont = None

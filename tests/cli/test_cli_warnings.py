@@ -75,3 +75,22 @@ def test_an_interrupted_pool_reset_prints_no_traceback():
             for mode in ("quiet", "plain")}
     assert "Traceback" in runs["plain"].stderr
     assert runs["quiet"].returncode == 0 and "Traceback" not in runs["quiet"].stderr
+
+
+def test_an_unknown_subsystem_name_is_a_usage_mistake(tmp_path):
+    """``series --subsystem``, ``compare --control`` and ``growth --subsystem`` with a name
+    the store does not map exit 2 naming the option (they printed an empty series or an
+    unfitted control with exit 0)."""
+    from procmetrics.cli import main
+    from procmetrics.mine import MineOptions, mine_repository
+    from tests.git_support import GitHistory, when
+
+    h = GitHistory.create(tmp_path / "r")
+    h.commit("net: one\n", files={"net/a.c": "1\n"}, date=when(0))
+    h.commit("net: two\n", files={"net/a.c": "2\n"}, date=when(40))
+    store = tmp_path / "s.sqlite"
+    mine_repository(h.path, store=store, options=MineOptions(progress=False))
+    for argv in (["series", "--subsystem", "nosuch"],
+                 ["compare", "--at", "2000-01-01", "--control", "nosuch"],
+                 ["growth", "--subsystem", "nosuch"]):
+        assert main([*argv, "--store", str(store), "--no-progress"]) == 2, argv
