@@ -192,3 +192,21 @@ def test_batching_merges_patch_series_and_flags_them():
     assert list(fb.events["n_defects"]) == [3, 1, 2, 1, 1, 1, 1, 1]
     assert fb.events["n_defects"].sum() == len(dd)
     assert not any("gaps" in c.message for c in fb.caveats)
+
+
+def test_fits_without_intervals_give_the_same_estimates() -> None:
+    """Bootstrap and prequential refits skip the profile-likelihood searches: the point
+    estimates and log-likelihood equal those of the full fit (which stays the oracle),
+    and no interval is claimed."""
+    import numpy as np
+
+    from procmetrics.analyse.growth.nhpp import FITTERS, simulate_nhpp
+
+    rng = np.random.default_rng(20261202)
+    for model, theta in (("goel_okumoto", (120.0, 0.004)), ("power_law", (0.9, 0.7))):
+        t = simulate_nhpp(model, theta, 1000.0, rng)
+        full = FITTERS[model](t, 1000.0)
+        bare = FITTERS[model](t, 1000.0, intervals=False)
+        assert bare.theta == full.theta and bare.loglik == full.loglik
+        assert all(p.low is None and p.high is None for p in bare.params)
+        assert any(p.low is not None for p in full.params)

@@ -79,7 +79,7 @@ def prequential_u(model: str, times: Any, *, start: int | None = None) -> tuple[
     us, failed = [], 0
     for k in range(start, n):
         try:
-            f = FITTERS[model](t[:k], None)
+            f = FITTERS[model](t[:k], None, intervals=False)    # the prediction only
         except InsufficientData:
             failed += 1
             continue
@@ -144,7 +144,7 @@ def _bootstrap_thetas(fit: NHPPFit, n_boot: int, rng: np.random.Generator
             failed += 1
             continue
         try:
-            thetas.append(FITTERS[fit.model](sim, end, level=0.5).theta)
+            thetas.append(FITTERS[fit.model](sim, end, level=0.5, intervals=False).theta)
         except (InsufficientData, ValueError):
             failed += 1
     return np.asarray(thetas, float).reshape(-1, 2), failed

@@ -129,8 +129,11 @@ def go_loglik(a: float, b: float, t: np.ndarray, T: float) -> float:
     return float(n * np.log(a) + n * np.log(b) - b * t.sum() + a * np.expm1(-b * T))
 
 
-def fit_goel_okumoto(times: Any, end: float | None = None, *, level: float = 0.95) -> NHPPFit:
-    """Maximum-likelihood Goel–Okumoto fit with profile-likelihood intervals.
+def fit_goel_okumoto(times: Any, end: float | None = None, *, level: float = 0.95,
+                     intervals: bool = True) -> NHPPFit:
+    """Maximum-likelihood Goel–Okumoto fit with profile-likelihood intervals
+    (``intervals=False``: the estimates only, for bootstrap refits that use the point
+    estimate alone; the profile searches are nine tenths of a fit's time).
 
     The MLE exists only when the mean fix time is below ``T/2`` (fixes crowd
     early); otherwise :class:`InsufficientData` is raised.
@@ -159,8 +162,11 @@ def fit_goel_okumoto(times: Any, end: float | None = None, *, level: float = 0.9
     def prof_a(aa: float) -> float:
         return _maximise_log(lambda bb: go_loglik(aa, bb, t, T), b * 1e-6, b * 1e6)
 
-    b_lo, b_hi = profile_interval(prof_b, b, ll, level, low_limit=b * 1e-8)
-    a_lo, a_hi = profile_interval(prof_a, a, ll, level, low_limit=n * 0.5, high_limit=a * 1e6)
+    b_lo = b_hi = a_lo = a_hi = None
+    if intervals:
+        b_lo, b_hi = profile_interval(prof_b, b, ll, level, low_limit=b * 1e-8)
+        a_lo, a_hi = profile_interval(prof_a, a, ll, level, low_limit=n * 0.5,
+                                      high_limit=a * 1e6)
     if _hpp_within_cut(ll, n, T, level):
         # as b -> 0 and a -> infinity the model tends to a constant rate; when that limit
         # is inside the likelihood region, a has no upper and b no lower limit (any finite
@@ -219,8 +225,10 @@ def pl_loglik(lam: float, beta: float, t: np.ndarray, T: float) -> float:
                  - lam * T ** beta)
 
 
-def fit_power_law(times: Any, end: float | None = None, *, level: float = 0.95) -> NHPPFit:
-    """Maximum-likelihood power-law (Crow–AMSAA) fit with profile intervals.
+def fit_power_law(times: Any, end: float | None = None, *, level: float = 0.95,
+                  intervals: bool = True) -> NHPPFit:
+    """Maximum-likelihood power-law (Crow–AMSAA) fit with profile intervals
+    (``intervals=False``: the estimates only, as in :func:`fit_goel_okumoto`).
 
     ``beta_hat = n / sum log(T / t_i)`` (sum over all ``n`` when
     time-truncated, over the first ``n - 1`` when failure-truncated) and
@@ -247,8 +255,10 @@ def fit_power_law(times: Any, end: float | None = None, *, level: float = 0.95) 
     def prof_lam(lm: float) -> float:
         return _maximise_log(lambda bb: pl_loglik(lm, bb, t, T), beta * 1e-3, beta * 1e3)
 
-    be_lo, be_hi = profile_interval(prof_beta, beta, ll, level)
-    la_lo, la_hi = profile_interval(prof_lam, lam, ll, level)
+    be_lo = be_hi = la_lo = la_hi = None
+    if intervals:
+        be_lo, be_hi = profile_interval(prof_beta, beta, ll, level)
+        la_lo, la_hi = profile_interval(prof_lam, lam, ll, level)
     meth = f"maximum likelihood ({trunc}); profile-likelihood interval"
     params = (Estimate("lambda", lam, la_lo, la_hi, level, meth, n, "fixes per day^beta"),
               Estimate("beta", beta, be_lo, be_hi, level, meth, n, ""))
