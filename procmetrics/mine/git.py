@@ -407,6 +407,11 @@ def patch_ids(repo: GitRepo, commits: Sequence[str]) -> list[tuple[str, str]]:
             if code != 0:
                 err.seek(0)
                 raise GitFailed(_failure(args, code, err.read()))
+    return _patch_id_rows(out)
+
+
+def _patch_id_rows(out: bytes) -> list[tuple[str, str]]:
+    """``(commit, patch id)`` from ``git patch-id`` output (``<patch id> <commit>`` lines)."""
     rows = []
     for line in out.decode("ascii", "replace").splitlines():
         parts = line.split()
@@ -446,12 +451,7 @@ def mapped_patch_ids(repo: GitRepo, commits: Sequence[str],
         return []
     joined = b"".join(b"commit " + h + b"\n" + b"".join(bodies) for h, bodies in parts.items())
     out = repo._run(["patch-id", "--stable"], input=joined).stdout
-    rows = []
-    for line in out.decode("ascii", "replace").splitlines():
-        f = line.split()
-        if len(f) == 2:
-            rows.append((f[1], f[0]))
-    return rows
+    return _patch_id_rows(out)
 
 
 def _feed(stream, data: bytes) -> None:

@@ -20,6 +20,8 @@ Layout (day: commit)
 """
 from __future__ import annotations
 
+import subprocess
+import sys
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -155,3 +157,20 @@ def build_pair(root: Path) -> Pair:
     d.commit("board: final tuning", files={"board/cfg.c": _body("board", {2: "/* t2 */"})},
              author=DAVE, date=when(TIP_DAY), name="own2")
     return Pair(u.path, tree_path, dict(u.ids), dict(d.ids))
+
+
+def run_cli(*args: str) -> subprocess.CompletedProcess[str]:
+    """``procmetrics ARGS`` in a child process (output captured as text)."""
+    return subprocess.run([sys.executable, "-m", "procmetrics", *args], capture_output=True,
+                          text=True)
+
+
+def mine_pair(root: Path) -> tuple[Pair, str, subprocess.CompletedProcess[str]]:
+    """The pair built under ``root`` and mined (tree with its upstream) into
+    ``root/s.sqlite``: the pair, the store and the mine run (checked to succeed)."""
+    pair = build_pair(root)
+    store = str(root / "s.sqlite")
+    r = run_cli("mine", str(pair.tree), "--upstream", str(pair.upstream), "--store", store,
+                "--no-progress")
+    assert r.returncode == 0, r.stderr
+    return pair, store, r

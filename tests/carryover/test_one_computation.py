@@ -6,12 +6,10 @@ from __future__ import annotations
 import csv
 import json
 import re
-import subprocess
-import sys
 
 import pytest
 
-from tests.carryover.pair import MISSING_GAP_DAYS, build_pair
+from tests.carryover.pair import MISSING_GAP_DAYS, mine_pair, run_cli
 
 TREE = "orbitkit-vendor"
 CLAIMS = """format = 1
@@ -33,33 +31,24 @@ date = "2020-10-01"
 """
 
 
-def _run(*args: str) -> subprocess.CompletedProcess[str]:
-    return subprocess.run([sys.executable, "-m", "procmetrics", *args], capture_output=True,
-                          text=True)
-
-
 @pytest.fixture(scope="module")
 def outputs(tmp_path_factory):
     root = tmp_path_factory.mktemp("onecomp")
-    pair = build_pair(root)
-    store = str(root / "s.sqlite")
-    r = _run("mine", str(pair.tree), "--upstream", str(pair.upstream), "--store", store,
-             "--no-progress")
-    assert r.returncode == 0, r.stderr
+    pair, store, r = mine_pair(root)
     ex = str(pair.exclusions_toml(root / "ex.toml"))
     claims = root / "claims.toml"
     claims.write_text(CLAIMS, encoding="utf-8")
-    cmd = _run("carryover", "--store", store, "--repo", TREE, "--exclusions", ex,
+    cmd = run_cli("carryover", "--store", store, "--repo", TREE, "--exclusions", ex,
                "--csv", str(root / "fixes.csv"))
     assert cmd.returncode == 0, cmd.stderr
-    chk = _run("check", str(claims), "--store", store, "--repo", TREE, "--exclusions", ex,
+    chk = run_cli("check", str(claims), "--store", store, "--repo", TREE, "--exclusions", ex,
                "--json", str(root / "check.json"))
     assert chk.returncode in range(8, 32), chk.stderr
-    rep = _run("report", "--store", store, "--repo", TREE, "--out", str(root / "rep"),
+    rep = run_cli("report", "--store", store, "--repo", TREE, "--out", str(root / "rep"),
                "--exclusions", ex, "--claims", str(claims), "--pdf-engine", "none",
                "--commit-url", "https://git.example.org/vendor/commit/{hash}")
     assert rep.returncode == 0, rep.stderr
-    nochk = _run("check", str(claims), "--store", store, "--repo", TREE, "--no-panel",
+    nochk = run_cli("check", str(claims), "--store", store, "--repo", TREE, "--no-panel",
                  "--json", str(root / "check-noex.json"))
     return {"pair": pair, "root": root, "cmd": cmd.stdout,
             "check": json.loads((root / "check.json").read_text("utf-8")),
