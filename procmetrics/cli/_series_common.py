@@ -58,20 +58,13 @@ def load(args: argparse.Namespace) -> tuple[dict[str, pd.DataFrame], str]:
 
 
 def known_subsystems(tables: dict[str, pd.DataFrame], names: Any, option: str) -> None:
-    """A subsystem name the store does not map is a usage mistake (exit 2), as in the
-    report, instead of an empty series or an unfitted control."""
-    from procmetrics.errors import ConfigError
+    """Names the store does not map are a usage mistake (exit 2), as in the report; a
+    scope's names come from the whole tree."""
+    from procmetrics.analyse.measures.selection import check_subsystem_names
 
-    if not names:
-        return
-    cs = tables.get("whole_tree", tables).get("commit_subsystems")
-    have = set(cs["subsystem"].dropna().astype(str)) if cs is not None else set()
-    for n in names:
-        if n not in have:
-            hint = ("the store maps no subsystems" if not have else "known: "
-                    + ", ".join(sorted(have)[:12]) + (", ..." if len(have) > 12 else ""))
-            raise ConfigError(f"subsystem {n!r} does not exist in the store ({hint})",
-                              key=option)
+    if names:
+        check_subsystem_names(tables.get("whole_tree", tables).get("commit_subsystems"),
+                              names, option)
 
 
 def metric_config(args: argparse.Namespace, tables: dict[str, pd.DataFrame]) -> Any:

@@ -153,14 +153,9 @@ def _evidence_for_figures(ctx: BuildContext) -> None:
 
 def _check_subsystems(data: StoreData, names: Any) -> None:
     """A --subsystem name the store does not map is a usage mistake (ConfigError)."""
-    cs = data["commit_subsystems"]
-    known = set(cs["subsystem"].dropna().astype(str)) if cs is not None and len(cs) else set()
-    for name in names or ():
-        if name not in known:
-            have = ("the store maps no subsystems" if not known else "known: "
-                    + ", ".join(sorted(known)[:12]) + (", ..." if len(known) > 12 else ""))
-            raise ConfigError(f"subsystem {name!r} does not exist in the store ({have})",
-                              key="--subsystem")
+    from procmetrics.analyse.measures.selection import check_subsystem_names
+
+    check_subsystem_names(data["commit_subsystems"], names)
 
 
 @dataclass(frozen=True)

@@ -58,6 +58,22 @@ class SubsystemSelection:
         return to_plain(self)
 
 
+def check_subsystem_names(commit_subsystems: pd.DataFrame | None, names: Any,
+                          option: str = "--subsystem") -> None:
+    """A subsystem name the store does not map is a usage mistake (:class:`ConfigError`,
+    naming ``option`` and up to 12 known names), in every command and the report."""
+    from procmetrics.errors import ConfigError
+
+    cs = commit_subsystems
+    known = set(cs["subsystem"].dropna().astype(str)) if cs is not None and len(cs) else set()
+    for name in names or ():
+        if name not in known:
+            have = ("the store maps no subsystems" if not known else "known: "
+                    + ", ".join(sorted(known)[:12]) + (", ..." if len(known) > 12 else ""))
+            raise ConfigError(f"subsystem {name!r} does not exist in the store ({have})",
+                              key=option)
+
+
 def subsystem_counts(flags: pd.DataFrame, commit_subsystems: pd.DataFrame, *,
                      split_at: pd.Timestamp | None = None,
                      by_repo: bool = False) -> pd.DataFrame:
