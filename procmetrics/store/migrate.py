@@ -27,8 +27,16 @@ def _add_path_map(conn: Connection) -> None:
         conn.execute(text("ALTER TABLE upstream_reference ADD COLUMN path_map TEXT"))
 
 
+def _add_table_digests(conn: Connection) -> None:
+    """3 -> 4: the table digests. Left empty: an older store's checksum is computed in
+    full until a mining run of the repository completes and stores its digests (see
+    :mod:`procmetrics.store.digests`)."""
+    schema.metadata.create_all(conn, tables=[schema.table_digest])
+
+
 MIGRATIONS: dict[int, Callable[[Connection], None]] = {1: _add_upstream_tables,
-                                                       2: _add_path_map}
+                                                       2: _add_path_map,
+                                                       3: _add_table_digests}
 
 
 def migrate(engine: Engine, found: int) -> None:

@@ -12,7 +12,11 @@ PostgreSQL store with the same data agree.
 
 The report does not hold ``file_changes`` in memory (millions of rows at
 kernel scale; churn comes from ``commits.lines_added``/``lines_deleted``): its
-lines are built by the database and hashed batch by batch.
+lines are built by the database and hashed batch by batch. Because the sum is
+additive, the store keeps the count and digest of ``file_changes``,
+``trailers`` and ``unparsed_references`` up to date as mining runs complete
+(:mod:`procmetrics.store.digests`); the report uses those and computes the
+other tables (and a maintained table whose digest is not stored) in full.
 
 References
 ----------
@@ -25,14 +29,15 @@ from __future__ import annotations
 import hashlib
 import math
 from dataclasses import dataclass
-from typing import Any, Callable, Iterable, Iterator, Mapping
+from typing import Any, Callable, Iterable, Mapping
 
 import numpy as np
 import pandas as pd
 from sqlalchemy.engine import Engine
 
 from procmetrics.errors import ConfigError, InsufficientData
-from procmetrics.store.tables import COLUMNS, file_change_lines, read_table, snapshot
+from procmetrics.store.digests import MAINTAINED, count_and_digest, full_digest, stored_digests
+from procmetrics.store.tables import COLUMNS, read_table, snapshot
 
 CHECKSUM_TABLES: tuple[str, ...] = tuple(
     sorted(t for t in COLUMNS if t not in ("mining_runs", "repositories")))
@@ -94,9 +99,10 @@ def load_store_data(engine: Engine, repo: str, within: Callable[..., Any] | None
         tables = {name: read_table(conn, name, repo) for name in REPORT_TABLES}
         parts = {name: (len(tables[name]), multiset_digest([canonical_column_lines(
             tables[name], COLUMNS[name])])) for name in CHECKSUM_TABLES
-            if name != "file_changes"}
-        n_fc, fc = _count_and_digest(file_change_lines(conn, repo))
-        parts["file_changes"] = (n_fc, fc)
+            if name not in MAINTAINED}
+        stored = stored_digests(conn, repo)
+        for name in MAINTAINED:
+            parts[name] = stored[name] if name in stored else full_digest(conn, name, repo)
         if within is not None and getattr(within, "active", True):
             scoped, summary = within(conn, repo, tables)
             named = within.variants(conn, repo, tables) if hasattr(within, "variants") else {}
@@ -188,16 +194,7 @@ def canonical_column_lines(df: pd.DataFrame, columns: Iterable[str]) -> list[str
 
 def multiset_digest(batches: Iterable[list[str]]) -> str:
     """Sum modulo 2**256 of the SHA-256 of each line, as 64 hex digits."""
-    return _count_and_digest(iter(batches))[1]
-
-
-def _count_and_digest(batches: Iterator[list[str]]) -> tuple[int, str]:
-    total, n, sha, frm = 0, 0, hashlib.sha256, int.from_bytes
-    for batch in batches:
-        n += len(batch)
-        total += sum(frm(sha(line.encode("utf-8", "surrogatepass")).digest(), "big")
-                     for line in batch)
-    return n, format(total % (1 << 256), "064x")
+    return count_and_digest(iter(batches))[1]
 
 
 def _combine(parts: Mapping[str, tuple[int, str]]) -> str:

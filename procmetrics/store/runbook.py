@@ -13,6 +13,7 @@ import time
 from sqlalchemy import delete, insert, or_, select, update
 from sqlalchemy.engine import Connection, Engine
 
+from procmetrics.store import digests
 from procmetrics.store import schema as s
 from procmetrics.store.engine import BUSY_TIMEOUT_MS
 
@@ -68,6 +69,13 @@ class RunBook:
             if sqlite:
                 conn.exec_driver_sql("PRAGMA busy_timeout=2000")
             try:
+                # a run that had completed (a failure after its last transaction): its
+                # rows leave the readers' view, so the stored digests no longer hold
+                done = conn.execute(select(s.mining_run.c.repo_id).where(
+                    s.mining_run.c.run_id == run_id,
+                    s.mining_run.c.status == "complete")).scalar()
+                if done is not None:
+                    digests.forget(conn, done)
                 conn.execute(update(s.mining_run).where(s.mining_run.c.run_id == run_id)
                              .values(status="failed", ended_utc=int(time.time()),
                                      message=message[:2000]))
@@ -78,7 +86,8 @@ class RunBook:
     def complete_run(self, run_id: int, repo_id: int, *, tip_hash: str, tip_ref: str,
                      path: str, remote_url: str | None, is_shallow: bool, mapping_kind: str,
                      mapping_source: str, counts: dict[str, int], message: str | None) -> None:
-        """Mark the run complete and move the repository's tip (one transaction);
+        """Mark the run complete, move the repository's tip and add the run's rows to the
+        table digests (one transaction: readers see the rows and their digests together);
         never after a Ctrl-C, even one a library swallowed (:mod:`procmetrics.interrupts`)."""
         from procmetrics import interrupts
 
@@ -90,6 +99,7 @@ class RunBook:
                 tip_hash=tip_hash, tip_ref=tip_ref, path=path, remote_url=remote_url,
                 is_shallow=is_shallow, mapping_kind=mapping_kind,
                 mapping_source=mapping_source))
+            digests.add_run(conn, repo_id, run_id)
         self.refresh_statistics()
 
     def refresh_statistics(self) -> None:
@@ -135,6 +145,7 @@ class RunBook:
                          .values(status="superseded", message=reason[:2000]))
             conn.execute(update(s.repository).where(s.repository.c.repo_id == repo_id)
                          .values(tip_hash=None, mapping_kind=None, mapping_source=None))
+            digests.forget(conn, repo_id)
 
     def prune_mapping(self, repo_id: int) -> None:
         """Drop path->subsystem rows of paths no stored commit touches any more."""

@@ -12,7 +12,8 @@ from sqlalchemy import (
     Table, Text, UniqueConstraint,
 )
 
-SCHEMA_VERSION = 3     # 2: upstream references, patch ids, backport lines; 3: path maps
+SCHEMA_VERSION = 4     # 2: upstream references, patch ids, backport lines; 3: path maps;
+                       # 4: table digests (the store checksum kept as runs complete)
 
 metadata = MetaData()
 
@@ -192,6 +193,16 @@ backport_line = Table(          # "commit <id> upstream." and its kin in a commi
 )
 
 UPSTREAM_TABLES = (upstream_reference, patch_id, backport_line)
+
+# -- store checksum kept incrementally (schema 4) -------------------------------------
+table_digest = Table(           # per repository and tidy table: the rows readers see
+    "table_digest", metadata,
+    Column("repo_id", Integer, ForeignKey("repository.repo_id"), nullable=False),
+    Column("table_name", String(64), nullable=False),   # a tidy table, e.g. file_changes
+    Column("n_rows", BigInteger, nullable=False),
+    Column("digest", String(64), nullable=False),       # multiset hash, 64 hex digits
+    UniqueConstraint("repo_id", "table_name", name="uq_table_digest"),
+)
 
 # Indexes the analyses need; created after a bulk load (see writer).
 INDEXES = [

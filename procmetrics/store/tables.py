@@ -341,34 +341,78 @@ def _canon_sql(expr, kind: str):
     return func.coalesce(text, null)
 
 
-def file_change_lines(conn: Connection, repo: str | None = None, *,
-                      batch: int = 100_000) -> Iterator[list[str]]:
-    """The ``file_changes`` tidy table as canonical tab-separated lines, in batches.
+def _line_source(name: str):
+    """(tidy column -> (SQL expression, canonical kind), FROM clause) of a table whose
+    canonical lines the database builds (:data:`SQL_LINE_TABLES`): the same joins as
+    its reader, without the visibility filter."""
+    g, r = s.commit, s.repository
+    base = {"repo": (r.c.name, "text"), "hash": (g.c.hash, "text")}
+    if name == "file_changes":
+        fc = s.file_change
+        cols = {**base, "path": (fc.c.path, "text"), "old_path": (fc.c.old_path, "text"),
+                "change_type": (fc.c.change_type, "text"),
+                "lines_added": (fc.c.lines_added, "int"),
+                "lines_deleted": (fc.c.lines_deleted, "int"),
+                "is_binary": (fc.c.is_binary, "bool")}
+        frm = fc.join(g, g.c.commit_id == fc.c.commit_id)
+    elif name == "trailers":
+        t, p = s.trailer, s.person
+        cols = {**base, "position": (t.c.position, "int"), "key": (t.c.key, "text"),
+                "raw_key": (t.c.raw_key, "text"), "value": (t.c.value, "text"),
+                "person_name": (p.c.name, "text"), "person_email": (p.c.email, "text")}
+        frm = t.join(g, g.c.commit_id == t.c.commit_id).outerjoin(
+            p, p.c.person_id == t.c.person_id)
+    elif name == "unparsed_references":
+        u = s.unparsed_reference
+        cols = {**base, "kind": (u.c.kind, "text"), "raw_text": (u.c.raw_text, "text")}
+        frm = u.join(g, g.c.commit_id == u.c.commit_id)
+    else:
+        raise StoreError(f"no SQL canonical lines for table {name!r}")
+    return cols, frm.join(r, r.c.repo_id == g.c.repo_id)
+
+
+#: tables whose canonical lines come from :func:`canonical_line_batches`: per-commit rows
+#: whose line depends only on their commit, its repository and the persons (never updated)
+SQL_LINE_TABLES: tuple[str, ...] = ("file_changes", "trailers", "unparsed_references")
+
+
+def canonical_line_batches(conn: Connection, name: str, repo: str | None = None, *,
+                           repo_id: int | None = None, run_id: int | None = None,
+                           batch: int = 100_000) -> Iterator[list[str]]:
+    """The tidy table ``name`` (one of :data:`SQL_LINE_TABLES`) as canonical
+    tab-separated lines, in batches.
 
     The text is built by the database, so the report can fingerprint millions
     of rows without holding them as a DataFrame; the order of the batches is
-    not part of the contract (the checksum sums a hash per line).
+    not part of the contract (the checksum sums a hash per line). Without
+    ``run_id``: the rows readers see (commits of completed runs) of ``repo`` (a
+    name) or ``repo_id``; with it: the rows of that run's commits, whatever its
+    status (the writer adds them to the stored digest as the run completes).
     """
     from sqlalchemy import literal
 
-    g, fc = s.commit, s.file_change
-    parts = [_canon_sql(s.repository.c.name, "text"), _canon_sql(g.c.hash, "text"),
-             _canon_sql(fc.c.path, "text"), _canon_sql(fc.c.old_path, "text"),
-             _canon_sql(fc.c.change_type, "text"), _canon_sql(fc.c.lines_added, "int"),
-             _canon_sql(fc.c.lines_deleted, "int"), _canon_sql(fc.c.is_binary, "bool")]
+    cols, frm = _line_source(name)
+    parts = [_canon_sql(*cols[c]) for c in COLUMNS[name]]
     line = parts[0]
     for p in parts[1:]:
         line = line.op("||")(literal("\t")).op("||")(p)
-    stmt = (select(line.label("line")).select_from(fc)
-            .join(g, g.c.commit_id == fc.c.commit_id)
-            .join(s.repository, s.repository.c.repo_id == g.c.repo_id))
-    stmt = _repo_filter(stmt.where(g.c.run_id.in_(_complete_runs())), repo)
-    result = conn.execution_options(stream_results=True).execute(stmt)
-    while True:
-        rows = result.fetchmany(batch)
-        if not rows:
-            return
-        yield [r[0] for r in rows]
+    g = s.commit
+    stmt = select(line.label("line")).select_from(frm)
+    if run_id is not None:
+        stmt = stmt.where(g.c.run_id == run_id)
+    else:
+        stmt = stmt.where(g.c.run_id.in_(_complete_runs()))
+    if repo_id is not None:
+        stmt = stmt.where(g.c.repo_id == repo_id)
+    result = conn.execution_options(stream_results=True).execute(_repo_filter(stmt, repo))
+    try:
+        while True:
+            rows = result.fetchmany(batch)
+            if not rows:
+                return
+            yield [r[0] for r in rows]
+    finally:
+        result.close()
 
 
 def upstream_references(engine: Engine, repo: str | None = None) -> pd.DataFrame:
