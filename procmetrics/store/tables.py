@@ -404,7 +404,8 @@ def canonical_line_batches(conn: Connection, name: str, repo: str | None = None,
         stmt = stmt.where(g.c.run_id.in_(_complete_runs()))
     if repo_id is not None:
         stmt = stmt.where(g.c.repo_id == repo_id)
-    result = conn.execution_options(stream_results=True).execute(_repo_filter(stmt, repo))
+    # per statement: Connection.execution_options would leave the connection streaming
+    result = conn.execute(_repo_filter(stmt, repo), execution_options={"stream_results": True})
     try:
         while True:
             rows = result.fetchmany(batch)
