@@ -120,12 +120,10 @@ class Boom(RuntimeError):
     pass
 
 
-@pytest.mark.parametrize("hard", [False, True])
-def test_interrupted_run_then_clean_result(git_history, tmp_path, monkeypatch, hard):
-    """A run dying after its first batch leaves a store the next run repairs."""
-    h = git_history()
+def interrupt_second_run(h, store, monkeypatch, hard: bool) -> None:
+    """Mine the first part, then a run over more commits that dies in its third batch
+    (``hard``: killed, so it never records the failure)."""
     first_part(h)
-    store = tmp_path / "s.sqlite"
     mine_repository(h.path, store=store, options=opts(batch_size=2))
     second_part(h)
     for i in range(5):
@@ -145,6 +143,14 @@ def test_interrupted_run_then_clean_result(git_history, tmp_path, monkeypatch, h
     with pytest.raises(Boom):
         mine_repository(h.path, store=store, options=opts(batch_size=2))
     monkeypatch.undo()
+
+
+@pytest.mark.parametrize("hard", [False, True])
+def test_interrupted_run_then_clean_result(git_history, tmp_path, monkeypatch, hard):
+    """A run dying after its first batch leaves a store the next run repairs."""
+    h = git_history()
+    store = tmp_path / "s.sqlite"
+    interrupt_second_run(h, store, monkeypatch, hard)
     engine = open_store(store)
     assert list(read_table(engine, "mining_runs")["status"]) == \
         ["complete", "running" if hard else "failed"]

@@ -25,7 +25,8 @@ from procmetrics.store.repodata import (
 from procmetrics.store.tables import COLUMNS, read_tables
 from procmetrics.store.writer import CommitRow, FileRow, StoreWriter, TrailerRow
 from tests.git_support import BOB, CAROL, when
-from tests.mine.test_incremental import first_part, opts, second_part
+from tests.mine.test_incremental import (Boom, first_part, interrupt_second_run, opts,
+                                         second_part)
 from tests.pg_support import any_store_url  # noqa: F401 - fixture
 
 
@@ -106,33 +107,11 @@ def test_escaped_text_and_persons(tmp_path, any_store_url):  # noqa: F811
         engine.dispose()
 
 
-class Boom(RuntimeError):
-    pass
-
-
 @pytest.mark.parametrize("hard", [False, True])
 def test_interrupted_run_and_cleanup(git_history, tmp_path, monkeypatch, hard):
     h = git_history()
-    first_part(h)
     store = tmp_path / "s.sqlite"
-    mine_repository(h.path, store=store, options=opts(batch_size=2))
-    second_part(h)
-    for i in range(5):
-        h.commit(f"core: step {i}\n\nAcked-by: Bob Sample <bob@example.net>\n",
-                 files={"core/s.c": f"{i}\n"}, date=when(7 + i))
-    real, calls = StoreWriter.write_batch, {"n": 0}
-
-    def flaky(self, *a, **kw):
-        calls["n"] += 1
-        if calls["n"] == 3:
-            raise Boom("disk on fire")
-        return real(self, *a, **kw)
-    monkeypatch.setattr(StoreWriter, "write_batch", flaky)
-    if hard:
-        monkeypatch.setattr(StoreWriter, "fail_run", lambda self, run_id, message: None)
-    with pytest.raises(Boom):
-        mine_repository(h.path, store=store, options=opts(batch_size=2))
-    monkeypatch.undo()
+    interrupt_second_run(h, store, monkeypatch, hard)
     engine = open_store(store)
     with engine.connect() as conn:      # rows of the dead run are stored but not counted
         n_fc = conn.exec_driver_sql("SELECT count(*) FROM file_change").scalar()
