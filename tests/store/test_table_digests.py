@@ -27,6 +27,7 @@ from procmetrics.store.writer import CommitRow, FileRow, StoreWriter, TrailerRow
 from tests.git_support import BOB, CAROL, when
 from tests.mine.test_incremental import (Boom, first_part, interrupt_second_run, opts,
                                          second_part)
+from tests.mine.test_multi_repo import three_repos  # noqa: F401 - fixture
 from tests.pg_support import any_store_url  # noqa: F401 - fixture
 
 
@@ -254,3 +255,18 @@ def test_a_completing_run_adds_only_its_own_rows(git_history, tmp_path):
     assert added["trailers"][0] == 1 and added["file_changes"][0] == 2
     assert stored(engine, "proj") == added
     engine.dispose()
+
+
+def test_concurrent_miners_of_different_repositories(three_repos, any_store_url):  # noqa: F811
+    """Two worker processes mine three repositories into one store at the same time."""
+    from procmetrics.mine.multi import mine_many
+
+    result = mine_many([h.path for h in three_repos], store=any_store_url,
+                       options=MineOptions(progress=False), jobs=2)
+    assert not result.failures and result.executor == "process-pool"
+    engine = open_store(any_store_url)
+    try:
+        for summary in result.summaries:
+            check(engine, summary.repo)
+    finally:
+        engine.dispose()
