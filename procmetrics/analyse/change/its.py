@@ -164,10 +164,18 @@ def _sides(s: pd.DataFrame, metric: str, subsystem: str, at: pd.Timestamp
 
 def _fits(s, kind, at, alpha, dispersion_threshold, hac, guard, detail=True):
     """The fit and, for the guarded interval, the model-based refit (whose diagnostics
-    are never shown, so it skips them)."""
+    are never shown, so it skips them).
+
+    The refit is the fit itself when it would repeat it: no HAC errors in the fit and
+    the same choice of model at both dispersion thresholds (the fit is deterministic,
+    so the same call gives the same coefficients and intervals)."""
     fit = _fit(s, kind, at, alpha, dispersion_threshold, hac, detail)
     refit = None
-    if guard and kind != "continuous":
+    phi0 = fit.dispersion_initial
+    if (guard and kind != "continuous" and fit.cov_type == "nonrobust" and phi0 is not None
+            and (phi0 > dispersion_threshold) == (phi0 > 1.0)):
+        refit = fit
+    elif guard and kind != "continuous":
         try:
             refit = _fit(s, kind, at, alpha, 1.0, "never", detail=False)
         except InsufficientData:
