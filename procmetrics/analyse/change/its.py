@@ -228,9 +228,11 @@ def level_change_at(table: pd.DataFrame, metric: str, at: pd.Timestamp | str, *,
 
 
 def _est(fit: ModelFit, term: str, name: str, unit: str, n: int) -> Estimate:
-    r = fit.params.set_index("term").loc[term]
-    return Estimate(name, float(r["estimate"]), float(r["ci_low"]), float(r["ci_high"]),
-                    fit.level, f"{fit.model}; {fit.cov_type} SE", n, unit=unit)
+    p = fit.params          # by position: no index built per call (one per subsystem)
+    i = list(p["term"]).index(term)
+    return Estimate(name, float(p["estimate"].iat[i]), float(p["ci_low"].iat[i]),
+                    float(p["ci_high"].iat[i]), fit.level, f"{fit.model}; {fit.cov_type} SE",
+                    n, unit=unit)
 
 
 def _guarded(fit: ModelFit, refit: ModelFit | None, term: str, name: str, unit: str,
