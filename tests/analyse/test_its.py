@@ -170,3 +170,50 @@ def test_guarded_interval_is_the_wider_of_the_binomial_and_the_quasi_binomial_fi
         assert r.level_p_value == pytest.approx(
             2 * stats.t.sf(abs(plain.params[2]) / se, len(s) - 4), rel=1e-3)
         assert "refit" in r.level_change.method and r.guard_note
+
+
+def test_level_change_at_is_the_guarded_level_change_of_the_full_its():
+    """The per-subsystem tests of ``compare`` read ``level_change_at``. Oracle: the
+    guarded interval built from statsmodels' binomial GLM (normal quantile) and its
+    quasi-binomial scale (Student t on periods - 4 df), as in the test above, on a
+    subsystem series; and the full ITS gives the same estimate, interval and p-value."""
+    import statsmodels.api as sm
+
+    from procmetrics.analyse.change.its import level_change_at
+
+    table = _table(1, 0.4, 0.7)
+    for sub in ("net", "fs"):
+        lc = level_change_at(table, "review_coverage", AT, subsystem=sub)
+        full = interrupted_time_series(table, "review_coverage", AT, subsystem=sub,
+                                       placebo_shifts=0)
+        assert lc.level_change == full.level_change
+        assert lc.p_value == full.level_p_value
+        assert (lc.n_before, lc.n_after) == (full.n_before, full.n_after) == (24, 24)
+        assert lc.estimable
+        s = table[(table.metric == "review_coverage") & (table.subsystem == sub)]
+        s = s[(s.period_end <= AT) | (s.period_start >= AT)].sort_values("period_start")
+        t, post = full.fitted["time_years"].to_numpy(), full.fitted["post"].to_numpy(float)
+        X = np.column_stack([np.ones(len(s)), t, post, post * t])
+        y, n = s.numerator.to_numpy(), s.denominator.to_numpy()
+        plain = sm.GLM(np.column_stack([y, n - y]), X, family=sm.families.Binomial()).fit()
+        phi = plain.pearson_chi2 / plain.df_resid
+        half = stats.norm.ppf(0.975) * plain.bse[2]
+        if phi > 1:
+            half = max(half, stats.t.ppf(0.975, len(s) - 4) * plain.bse[2] * np.sqrt(phi))
+        assert lc.level_change.value == pytest.approx(plain.params[2], rel=1e-6)
+        assert (lc.level_change.low, lc.level_change.high) == pytest.approx(
+            (plain.params[2] - half, plain.params[2] + half), rel=1e-3)
+
+
+def test_level_change_at_says_not_estimable_where_the_its_caveat_does():
+    # Simulation with a known degenerate truth: no review before the date.
+    from procmetrics.analyse.change.its import level_change_at
+
+    table = _table(3, 0.0, 0.5)
+    lc = level_change_at(table, "review_coverage", AT, subsystem="net")
+    full = interrupted_time_series(table, "review_coverage", AT, subsystem="net",
+                                   placebo_shifts=0)
+    assert not lc.estimable
+    assert any("not estimable" in c.message for c in full.caveats)
+    with pytest.raises(InsufficientData):
+        level_change_at(table, "review_coverage", "2018-06-01", subsystem="net")

@@ -139,17 +139,100 @@ def _endog(s: pd.DataFrame, kind: str):
     return s["value"].to_numpy(float), None, None
 
 
-def _fit(s, kind, at, alpha, dispersion_threshold, hac="auto"):
+def _fit(s, kind, at, alpha, dispersion_threshold, hac="auto", detail=True):
     X, _, _ = _design(s, at)
     y, trials, exposure = _endog(s, kind)
     return fit_model(y, X, kind=kind, trials=trials, exposure=exposure, names=_TERMS,
-                     alpha=alpha, dispersion_threshold=dispersion_threshold, hac=hac)
+                     alpha=alpha, dispersion_threshold=dispersion_threshold, hac=hac,
+                     detail=detail)
+
+
+def _utc(at: pd.Timestamp | str) -> pd.Timestamp:
+    at = pd.Timestamp(at)
+    return at.tz_localize("UTC") if at.tzinfo is None else at.tz_convert("UTC")
+
+
+def _sides(s: pd.DataFrame, metric: str, subsystem: str, at: pd.Timestamp
+           ) -> tuple[np.ndarray, int, int]:
+    post = (s["period_start"] >= at).to_numpy()
+    n_before, n_after = int((~post).sum()), int(post.sum())
+    if n_before < 3 or n_after < 3:
+        raise InsufficientData(f"{metric} for {subsystem}: {n_before} periods before and "
+                               f"{n_after} after {at:%Y-%m-%d}; need >= 3 on each side")
+    return post, n_before, n_after
+
+
+def _fits(s, kind, at, alpha, dispersion_threshold, hac, guard, detail=True):
+    """The fit and, for the guarded interval, the model-based refit (whose diagnostics
+    are never shown, so it skips them).
+
+    The refit is the fit itself when it would repeat it: no HAC errors in the fit and
+    the same choice of model at both dispersion thresholds (the fit is deterministic,
+    so the same call gives the same coefficients and intervals)."""
+    fit = _fit(s, kind, at, alpha, dispersion_threshold, hac, detail)
+    refit = None
+    phi0 = fit.dispersion_initial
+    if (guard and kind != "continuous" and fit.cov_type == "nonrobust" and phi0 is not None
+            and (phi0 > dispersion_threshold) == (phi0 > 1.0)):
+        refit = fit
+    elif guard and kind != "continuous":
+        try:
+            refit = _fit(s, kind, at, alpha, 1.0, "never", detail=False)
+        except InsufficientData:
+            refit = None
+    return fit, refit
+
+
+def _not_estimable(kind: str, level: Estimate) -> bool:
+    """A share or count whose level change has an unbounded interval (a share of 0 or 1,
+    or no events, on one side of the date)."""
+    bounds = [x if x is not None else np.nan for x in (level.value, level.low, level.high)]
+    return kind != "continuous" and (not np.all(np.isfinite(bounds))
+                                     or max(abs(bounds[1]), abs(bounds[2])) > 50)
+
+
+@dataclass(frozen=True)
+class LevelChange:
+    """The level change of one series at a date, as the per-subsystem tests read it
+    (the same estimate, interval and p-value as :func:`interrupted_time_series`)."""
+
+    metric: str
+    subsystem: str
+    level_change: Estimate
+    p_value: float | None
+    n_before: int
+    n_after: int
+    #: False when the interval is unbounded (see ``diagnostic_failed`` in the ITS caveats)
+    estimable: bool
+
+
+def level_change_at(table: pd.DataFrame, metric: str, at: pd.Timestamp | str, *,
+                    subsystem: str = ALL, kind: str | None = None, alpha: float = 0.05,
+                    dispersion_threshold: float = 1.5, hac: str = "auto") -> LevelChange:
+    """Only the guarded level change of :func:`interrupted_time_series` (same fits,
+    same interval), without the slope, fitted values, placebos and the diagnostics
+    that only describe the fit: for running one test per subsystem.
+
+    Raises :class:`InsufficientData` as :func:`interrupted_time_series` does.
+    """
+    at = _utc(at)
+    kind = kind or metric_kind(metric)
+    s, _ = _series(table, metric, subsystem, kind, at)
+    _, n_before, n_after = _sides(s, metric, subsystem, at)
+    fit, refit = _fits(s, kind, at, alpha, dispersion_threshold, hac, True, detail=False)
+    unit = {"proportion": "log-odds", "count": "log-rate"}.get(kind, "metric units")
+    level, p, _ = _guarded(fit, refit, "post", "level_change", unit, int(s["n"].sum()),
+                           n_before + n_after - len(_TERMS))
+    return LevelChange(metric, subsystem, level, p, n_before, n_after,
+                       not _not_estimable(kind, level))
 
 
 def _est(fit: ModelFit, term: str, name: str, unit: str, n: int) -> Estimate:
-    r = fit.params.set_index("term").loc[term]
-    return Estimate(name, float(r["estimate"]), float(r["ci_low"]), float(r["ci_high"]),
-                    fit.level, f"{fit.model}; {fit.cov_type} SE", n, unit=unit)
+    p = fit.params          # by position: no index built per call (one per subsystem)
+    i = list(p["term"]).index(term)
+    return Estimate(name, float(p["estimate"].iat[i]), float(p["ci_low"].iat[i]),
+                    float(p["ci_high"].iat[i]), fit.level, f"{fit.model}; {fit.cov_type} SE",
+                    n, unit=unit)
 
 
 def _guarded(fit: ModelFit, refit: ModelFit | None, term: str, name: str, unit: str,
@@ -226,24 +309,13 @@ def interrupted_time_series(table: pd.DataFrame, metric: str, at: pd.Timestamp |
     ----------
     Wagner et al. (2002); Bernal, Cummins & Gasparrini (2017).
     """
-    at = pd.Timestamp(at)
-    at = at.tz_localize("UTC") if at.tzinfo is None else at.tz_convert("UTC")
+    at = _utc(at)
     kind = kind or metric_kind(metric)
     s, n_trans = _series(table, metric, subsystem, kind, at)
-    post = (s["period_start"] >= at).to_numpy()
-    n_before, n_after = int((~post).sum()), int(post.sum())
-    if n_before < 3 or n_after < 3:
-        raise InsufficientData(f"{metric} for {subsystem}: {n_before} periods before and "
-                               f"{n_after} after {at:%Y-%m-%d}; need >= 3 on each side")
-    fit = _fit(s, kind, at, alpha, dispersion_threshold, hac)
+    post, n_before, n_after = _sides(s, metric, subsystem, at)
+    fit, refit = _fits(s, kind, at, alpha, dispersion_threshold, hac, guard)
     n = int(s["n"].sum())
     unit = {"proportion": "log-odds", "count": "log-rate"}.get(kind, "metric units")
-    refit = None
-    if guard and kind != "continuous":
-        try:
-            refit = _fit(s, kind, at, alpha, 1.0, "never")
-        except InsufficientData:
-            refit = None
     df = n_before + n_after - len(_TERMS)
     level, p_level_model, note = _guarded(fit, refit, "post", "level_change", unit, n, df)
     slope, _, _ = _guarded(fit, refit, "post_time", "slope_change", unit + " per year", n, df)
@@ -285,9 +357,7 @@ def interrupted_time_series(table: pd.DataFrame, metric: str, at: pd.Timestamp |
         except InsufficientData:
             c_level = c_slope = None
     cavs = list(fit.caveats)
-    bounds = [x if x is not None else np.nan for x in (level.value, level.low, level.high)]
-    if kind != "continuous" and (not np.all(np.isfinite(bounds))
-                                 or max(abs(bounds[1]), abs(bounds[2])) > 50):
+    if _not_estimable(kind, level):
         cavs.append(caveat("diagnostic_failed", "the level change is not estimable: its "
                            "interval is unbounded (a share of 0 or 1, or no events, on one "
                            "side of the date)", "fail"))
@@ -365,8 +435,7 @@ def relate_changes_to_date(result, at: pd.Timestamp | str, *,
     ``result`` is a :class:`~procmetrics.analyse.change.changepoints.ChangePointResult`
     computed on a dated series.
     """
-    at = pd.Timestamp(at)
-    at = at.tz_localize("UTC") if at.tzinfo is None else at.tz_convert("UTC")
+    at = _utc(at)
     dates = pd.Series(pd.to_datetime(list(result.period_dates), utc=True))
     after = np.flatnonzero((dates >= at).to_numpy())
     ref = int(after[0]) if len(after) else len(dates)

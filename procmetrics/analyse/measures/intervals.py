@@ -57,14 +57,57 @@ def median_ci(values: np.ndarray, alpha: float = 0.05) -> tuple[float, float, fl
     if n == 0:
         return np.nan, np.nan, np.nan
     med = float(np.median(x))
-    # largest r with P(Bin(n, 1/2) <= r - 1) <= alpha / 2
-    r = int(stats.binom.ppf(alpha / 2, n, 0.5))
-    if stats.binom.cdf(r, n, 0.5) > alpha / 2:
-        r -= 1
-    r += 1  # 1-based order statistic
+    r = int(order_statistic_rank(np.array([n]), alpha)[0])
     if r < 1:
         return med, np.nan, np.nan
     return med, float(x[r - 1]), float(x[n - r])
+
+
+def order_statistic_rank(n: np.ndarray, alpha: float = 0.05) -> np.ndarray:
+    """The 1-based rank ``r`` of the lower end ``x_(r)`` of the median's interval for
+    each sample size in ``n`` (the upper end is ``x_(n-r+1)``); below 1 when ``n`` is
+    too small for the level: the largest ``r`` with ``P(Bin(n, 1/2) <= r - 1) <= alpha/2``."""
+    n = np.asarray(n, dtype=np.int64)
+    r = stats.binom.ppf(alpha / 2, n, 0.5).astype(np.int64)
+    r = np.where(stats.binom.cdf(r, n, 0.5) > alpha / 2, r - 1, r)
+    return r + 1
+
+
+def grouped_median_ci(codes: np.ndarray, values: np.ndarray, n_groups: int,
+                      alpha: float = 0.05) -> dict[str, np.ndarray]:
+    """:func:`median_ci` of many groups at once: one sort instead of one call per group.
+
+    ``codes`` (0..n_groups-1) names each value's group; NaN values are left out.
+    Returns arrays of length ``n_groups``: ``n`` (values kept), ``sum``, ``median``,
+    ``low``, ``high`` (NaN where a group has no value, or too few for the level; the
+    sum of an empty group is 0). The same figures as ``median_ci`` on each group.
+    """
+    codes = np.asarray(codes, dtype=np.int64)
+    values = np.asarray(values, dtype=float)
+    keep = ~np.isnan(values)
+    codes, values = codes[keep], values[keep]
+    order = np.lexsort((values, codes))
+    x = values[order]
+    n = np.bincount(codes, minlength=n_groups)
+    total = np.bincount(codes, weights=values, minlength=n_groups)
+    start = np.cumsum(n) - n
+    med = np.full(n_groups, np.nan)
+    lo = np.full(n_groups, np.nan)
+    hi = np.full(n_groups, np.nan)
+    has = n > 0
+    odd = has & (n % 2 == 1)
+    even = has & (n % 2 == 0)
+    med[odd] = x[(start + n // 2)[odd]]
+    # as np.median: the mean of the two middle values
+    med[even] = (x[(start + n // 2 - 1)[even]] + x[(start + n // 2)[even]]) / 2
+    sizes = np.unique(n[has])
+    ranks = np.zeros(n_groups, dtype=np.int64)
+    if len(sizes):
+        ranks[has] = order_statistic_rank(sizes, alpha)[np.searchsorted(sizes, n[has])]
+    ok = has & (ranks >= 1)
+    lo[ok] = x[(start + ranks - 1)[ok]]
+    hi[ok] = x[(start + n - ranks)[ok]]
+    return {"n": n, "sum": total, "median": med, "low": lo, "high": hi}
 
 
 def median_difference_ci(a: np.ndarray, b: np.ndarray, level: float = 0.95
