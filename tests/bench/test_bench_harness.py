@@ -12,6 +12,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[2] / "bench"))
 import figures  # noqa: E402
 import gate  # noqa: E402
 import growth_fit  # noqa: E402
+import merge_runs  # noqa: E402
 import report_md  # noqa: E402
 
 
@@ -181,3 +182,24 @@ def test_baseline_runs_before_and_after_are_pooled():
     assert figures.figures(res)["analyses.series"]["ratio"] == pytest.approx(20 / 12, abs=1e-4)
     g = gate.gate({"1000": res}, {"1000": (res, "self.json")})
     assert g["passed"] and "may be load" in g["sizes"]["1000"]["noise_note"]   # 67% > 25%
+
+
+# ---- merging runs ----------------------------------------------------------------------------
+
+def test_merged_runs_fit_the_exponent_across_files_and_the_later_file_wins_a_size():
+    small = {"started": "a", "machine": {"procmetrics": "x"},
+             "sizes": {"1000": size(1.0, series=dict(seconds=2.0)),
+                       "4000": size(4.0, series=dict(seconds=99.0))}}
+    big = {"started": "b", "finished": "c", "machine": {"procmetrics": "y"},
+           "sizes": {"4000": size(4.0, series=dict(seconds=8.0)),
+                     "16000": size(16.0, series=dict(seconds=32.0))}}
+    res = merge_runs.merge([(small, "small.json"), (big, "big.json")])
+    assert sorted(res["sizes"], key=int) == ["1000", "4000", "16000"]
+    assert res["sizes"]["4000"]["analyses"]["series"]["seconds"] == 8.0
+    # 2, 8, 32 s at 1k, 4k, 16k commits: exactly N^1 (hand-computed), so k = 1, se = 0
+    fit = res["growth"]["analyses.series"]["time"]
+    assert fit["k"] == pytest.approx(1.0) and fit["se"] == pytest.approx(0.0, abs=1e-12)
+    assert any("4,000 commits: taken from big.json, not small.json" in n for n in res["notes"])
+    assert (res["started"], res["finished"]) == ("a", "c")
+    with pytest.raises(ValueError):
+        merge_runs.merge([])
