@@ -47,10 +47,11 @@ def merge(runs: list[tuple[dict, str]]) -> dict:
     if len(machines) > 1:
         notes.append("the runs name different machines or tool versions: compare the "
                      "ratios of a size, not seconds across sizes")
+    ends = {"started": first.get("started"), "finished": last.get("finished"),
+            "load_avg_start": first.get("load_avg_start"),
+            "load_avg_end": last.get("load_avg_end")}
     out = {"machine": first.get("machine", {}), "sizes": sizes,
-           "started": first.get("started"), "finished": last.get("finished"),
-           "load_avg_start": first.get("load_avg_start"),
-           "load_avg_end": last.get("load_avg_end"),
+           **{k: v for k, v in ends.items() if v is not None},    # a stopped run has no end
            "growth": growth_fit.growth_table(sizes),
            "notes": notes + [f"{int(n):,} commits from {source[n]}"
                              for n in sorted(sizes, key=int)]}
