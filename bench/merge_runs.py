@@ -34,9 +34,10 @@ def merge(runs: list[tuple[dict, str]]) -> dict:
     notes: list[str] = []
     for data, label in runs:
         m = data.get("machine", {})
-        notes.append(f"run {label}: started {data.get('started', '?')}, finished "
+        notes.append(f"{label}: started {data.get('started', '?')}, finished "
                      f"{data.get('finished', '?')}, procmetrics {m.get('procmetrics', '?')}, "
                      f"sizes {', '.join(f'{int(n):,}' for n in sorted(gate.per_size(data), key=int))}")
+        notes += [f"{label}: {n}" for n in data.get("notes", [])]
         for n, res in gate.per_size(data).items():
             if n in sizes:
                 notes.append(f"{int(n):,} commits: taken from {label}, not {source[n]}")

@@ -103,19 +103,22 @@ def planned_analyses(store: Path, work: Path, at: str) -> dict[str, list[str]]:
 
 
 def analyses(store: Path, repo: Path, work: Path, commits: int,
-             timeout: float) -> dict[str, object]:
-    """Time every planned analysis command that exists, and the full report."""
+             timeout: float, out: dict[str, object] | None = None,
+             save=lambda: None) -> dict[str, object]:
+    """Time every planned analysis command that exists, and the full report, into ``out``
+    (saved after each command, so a stopped run keeps the commands it timed)."""
     sys.path.insert(0, str(HERE.parent))
     from procmetrics.cli import COMMANDS
     at, source = policy_date(repo, commits)
-    out: dict[str, object] = {"policy_date": at, "policy_date_source": source,
-                              "store": store.name}
+    out = {} if out is None else out
+    out.update(policy_date=at, policy_date_source=source, store=store.name)
     for name, argv in planned_analyses(store, work, at).items():
         if argv[0] not in COMMANDS:
             out[name] = {"skipped": "command not available in this procmetrics"}
             continue
         print(f"  {name} ...", file=sys.stderr)
         out[name] = timed(procmetrics(*argv), timeout=timeout)
+        save()
     return out
 
 
@@ -191,7 +194,8 @@ def measure_size(n: int, args: argparse.Namespace, work: Path, res: dict,
         save()
     if "analyses" not in args.skip:
         print(f"[{n:,} commits] analyses and report ...", file=sys.stderr)
-        res["analyses"] = analyses(store, repo, work, n, args.analysis_timeout)
+        res["analyses"] = {}
+        analyses(store, repo, work, n, args.analysis_timeout, res["analyses"], save)
     print(f"[{n:,} commits] git log --raw baseline again ...", file=sys.stderr)
     res["git_raw_after"] = git_log(repo, "main", "raw", args.repeats)
     res["load_avg_end"] = os.getloadavg()
