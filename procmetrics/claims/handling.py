@@ -24,6 +24,7 @@ from typing import Any
 from procmetrics.claims import base as cl
 from procmetrics.claims.base import Claim, ClaimContext, ClaimVerdict, KindSpec, Param
 from procmetrics.claims.common import AFTER, BEFORE, GLM_METHOD, SUBSYSTEM
+from procmetrics.analyse.memo import memoised
 from procmetrics.analyse.result import Caveat
 
 METRIC = "applied_by_other"
@@ -72,8 +73,7 @@ _REVIEW_KINDS = ("review_coverage_rose",)
 def review_adoption_caveat(claim: Claim, ctx: ClaimContext) -> Caveat | None:
     """``review_adoption_unsettled`` when ``claim`` is about a review metric and its
     window starts before review trailers settled into use (None otherwise)."""
-    from procmetrics.analyse.measures.adoption import REVIEW_METRICS, review_adoption
-    from procmetrics.analyse.measures.metrics import MetricConfig, compute_period_metrics
+    from procmetrics.analyse.measures.adoption import REVIEW_METRICS
     from procmetrics.errors import InsufficientData
 
     p = claim.params
@@ -86,9 +86,21 @@ def review_adoption_caveat(claim: Claim, ctx: ClaimContext) -> Caveat | None:
         except cl.Undecidable:
             return None
     try:
-        pm = compute_period_metrics(ctx.commits, ctx.trailers, tags=ctx.tags, config=MetricConfig(
-            period=ctx.period, metrics=("review_coverage",),
-            date_column=f"{ctx.date_basis}_date"))
+        adoption = _review_adoption(ctx.commits, ctx.trailers, ctx.tags, ctx.period,
+                                    f"{ctx.date_basis}_date")
     except InsufficientData:
         return None
-    return review_adoption(pm.table).caveat_for(start)
+    return adoption.caveat_for(start)
+
+
+@memoised()
+def _review_adoption(commits: Any, trailers: Any, tags: Any, period: str,
+                     date_column: str) -> Any:
+    """When review trailers settled into use in these tables (one computation for every
+    claim judged on them while results are kept)."""
+    from procmetrics.analyse.measures.adoption import review_adoption
+    from procmetrics.analyse.measures.metrics import MetricConfig, compute_period_metrics
+
+    pm = compute_period_metrics(commits, trailers, tags=tags, config=MetricConfig(
+        period=period, metrics=("review_coverage",), date_column=date_column))
+    return review_adoption(pm.table)

@@ -59,6 +59,13 @@ def evaluate_claim(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
     The verdict carries the report places of its evidence (``see``). Raises
     :class:`ConfigError` for a usage mistake (:func:`check_usable`).
     """
+    from procmetrics.analyse.memo import kept_results
+
+    with kept_results():          # the verdict and its caveats share flags and metrics
+        return _evaluate_claim(claim, ctx)
+
+
+def _evaluate_claim(claim: Claim, ctx: ClaimContext) -> ClaimVerdict:
     ctx = ctx.for_claim(claim)
     check_usable([claim], ctx)
     spec = SPECS[claim.kind]
@@ -105,7 +112,10 @@ def with_review_adoption(verdict: ClaimVerdict, ctx: ClaimContext) -> ClaimVerdi
 
 def evaluate_claims(claims: Sequence[Claim], ctx: ClaimContext) -> list[ClaimVerdict]:
     """Check that the claims fit the store (:func:`check_usable`), then judge each."""
+    from procmetrics.analyse.memo import kept_results
+
     check_usable(claims, ctx)
     for c in claims:                      # a scope the claims name must exist: exit 2 first
         ctx.for_claim(c)
-    return [evaluate_claim(c, ctx) for c in claims]
+    with kept_results():                  # claims share their tables' flags and metrics
+        return [evaluate_claim(c, ctx) for c in claims]

@@ -217,15 +217,17 @@ def judge_with_panel(claims: Sequence[Claim], ctx: ClaimContext
     from procmetrics.claims.registry import evaluate_claim
 
     from procmetrics import progress
+    from procmetrics.analyse.memo import kept_results
 
     out = []
     for c in claims:                      # a scope the claims name must exist: exit 2 first
         ctx.for_claim(c)
-    for i, c in enumerate(claims, 1):
-        progress.detail(f"claim {i} of {len(claims)}: {c.id} and its robustness panel")
-        cctx = ctx.for_claim(c)           # the claim's scope: its panel varies that context
-        v = evaluate_claim(c, cctx)
-        out.append((v, panel(c, v, cctx)))
+    with kept_results():                  # the panels' variants share unchanged steps
+        for i, c in enumerate(claims, 1):
+            progress.detail(f"claim {i} of {len(claims)}: {c.id} and its robustness panel")
+            cctx = ctx.for_claim(c)       # the claim's scope: its panel varies that context
+            v = evaluate_claim(c, cctx)
+            out.append((v, panel(c, v, cctx)))
     return out
 
 

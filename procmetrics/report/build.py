@@ -38,6 +38,7 @@ from procmetrics.validate import check_level, check_seed
 from procmetrics import progress
 from procmetrics.report.pdf import write_pdf
 from procmetrics.analyse.measures.periods import resolve_policy
+from procmetrics.analyse.memo import kept_results
 
 #: the steps make_report announces (procmetrics.progress), for the time-left estimate
 REPORT_STEPS = 10
@@ -56,7 +57,7 @@ def build_report(data: StoreData, options: ReportOptions, *,
                           + ", ".join(PERIODS), key="--period")
     # a date given as a commit may lie outside a scope: resolve it on the whole tree
     policy_date = resolve_policy(data.whole_tree or data, options.policy)
-    with warnings.catch_warnings(record=True) as caught:
+    with warnings.catch_warnings(record=True) as caught, kept_results():
         warnings.simplefilter("always")
         quality = ql.summary(data, options.period)
         report = Report(title=f"Development-process evidence for {data.repo}",

@@ -39,10 +39,9 @@ class BuildContext:
         """:func:`procmetrics.analyse.measures.metrics.commit_flags` of the report's
         commits and trailers, computed once per set of options it depends on (the
         tables do not change while the report is built); callers must not modify it."""
-        from procmetrics.analyse.measures.metrics import commit_flags
+        from procmetrics.analyse.measures.metrics import _flags_key, commit_flags
 
-        key = (config.include_merges, tuple(config.review_keys), config.date_column,
-               tuple(config.heuristic_keywords or ()))
+        key = _flags_key(self.data["commits"], self.data["trailers"], config)
         if key not in self._flags:
             self._flags[key] = commit_flags(self.data["commits"], self.data["trailers"], config)
         return self._flags[key]

@@ -12,7 +12,7 @@ import pytest
 
 ROOT = Path(__file__).resolve().parents[2] / "procmetrics"
 QUESTIONS = ("measures", "change", "lifetimes", "growth", "carryover")
-SHARED = ("result", "glmfit", "diagnostics")
+SHARED = ("result", "glmfit", "diagnostics", "memo")
 
 
 def _modules() -> dict[str, set[str]]:

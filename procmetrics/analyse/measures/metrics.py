@@ -45,6 +45,7 @@ import numpy as np
 import pandas as pd
 
 from procmetrics.analyse.measures import intervals as iv
+from procmetrics.analyse.memo import memoised, table_id
 from procmetrics.analyse.measures.periods import (DEFAULT_PERIOD, assign_periods, period_midpoints,
                                                years_since)
 from procmetrics.analyse.result import Caveat, caveat, to_plain
@@ -122,6 +123,15 @@ def _lower(s: pd.Series) -> pd.Series:
     return s.astype("string").str.strip().str.casefold()
 
 
+def _flags_key(commits: pd.DataFrame, trailers: pd.DataFrame,
+               config: MetricConfig = MetricConfig()) -> Any:
+    """What :func:`commit_flags` reads: the tables and four of the options."""
+    return (table_id(commits), table_id(trailers), config.include_merges,
+            tuple(config.review_keys), config.date_column,
+            tuple(config.heuristic_keywords or ()))
+
+
+@memoised(_flags_key)
 def commit_flags(commits: pd.DataFrame, trailers: pd.DataFrame,
                  config: MetricConfig = MetricConfig()) -> pd.DataFrame:
     """One row per commit with the boolean flags the metrics count.
@@ -273,6 +283,7 @@ def _churn_stats(g, index: pd.Index, alpha: float) -> pd.DataFrame:
                          "churn_hi": st["high"]}, index=index)
 
 
+@memoised()
 def compute_period_metrics(commits: pd.DataFrame, trailers: pd.DataFrame, *,
                            commit_subsystems: pd.DataFrame | None = None,
                            tags: pd.DataFrame | None = None,
