@@ -60,6 +60,13 @@ def _column_cells(col: pd.Series, raw: bool) -> list[str]:
         return [str(v) for v in col.to_numpy().tolist()]
     if isinstance(dt, np.dtype) and dt.kind == "f":
         return [_float_cell(v) for v in col.to_numpy(dtype=float).tolist()]
+    if (dt == object and pd.api.types.infer_dtype(col, skipna=True) in ("string", "empty")) \
+            or isinstance(dt, pd.DatetimeTZDtype) or (isinstance(dt, np.dtype) and dt.kind == "M"):
+        # text or times: each distinct value formatted once (all text, so equal values
+        # are equal cells; missing values of any kind become code -1, an empty cell)
+        codes, uniques = pd.factorize(col, use_na_sentinel=True)
+        cells = np.array([_cell(u, raw) for u in uniques] + [""], dtype=object)
+        return cells[codes].tolist()
     return [_cell(v, raw) for v in col.astype(object)]
 
 

@@ -1,0 +1,68 @@
+"""The report's CSV writer formats text and time columns once per distinct value: the
+file must be the one a cell-by-cell pass writes (``csvout._cell`` on every value, the
+rule the module states), whatever mix of missing markers, formula-like text, equal
+numbers of different types and time zones a column holds. Times are also checked
+against Python's own ``datetime.isoformat``."""
+from __future__ import annotations
+
+import csv
+import io
+from datetime import datetime, timezone
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from procmetrics.report import csvout
+
+
+def cell_by_cell(df: pd.DataFrame, raw: bool) -> str:
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\n", quoting=csv.QUOTE_MINIMAL)
+    w.writerow([str(c) for c in df.columns])
+    for row in df.astype(object).itertuples(index=False):
+        w.writerow([csvout._cell(v, raw) for v in row])
+    return buf.getvalue()
+
+
+def frame() -> pd.DataFrame:
+    stamps = ["2020-01-01T00:00:00.5Z", None, "2021-03-04T10:00:00Z", "2020-01-01T00:00:00.5Z",
+              None, "2022-01-01T00:00:00Z", "2022-01-01T00:00:00Z", "1999-12-31T23:59:59Z",
+              "2022-01-01T00:00:00Z"]
+    return pd.DataFrame({
+        "text": ["x", None, "=1+1", np.nan, "x", pd.NA, "-2", "", 'é\n"q,'],
+        "utc": pd.to_datetime(stamps, utc=True, format="ISO8601"),
+        "naive": pd.to_datetime(stamps, utc=True, format="ISO8601").tz_localize(None),
+        "berlin": pd.to_datetime(stamps, utc=True, format="ISO8601").tz_convert("Europe/Berlin"),
+        # equal as numbers but not as cells: must not be collapsed into one value
+        "mixed": ["x", 1, 1.0, True, None, "a", 2.5, np.nan, "=x"],
+        "zones": [pd.Timestamp("2020-01-01T01:00:00+01:00"), pd.Timestamp("2020-01-01T00:00:00Z"),
+                  None, "t", 3, pd.NaT, np.nan, pd.Timestamp("2020-01-01"), "t"],
+        "none": [None] * 9,
+    })
+
+
+@pytest.mark.parametrize("raw", [False, True])
+def test_column_passes_write_the_cell_by_cell_file(raw):
+    df = frame()
+    assert csvout.frame_to_csv(df, raw=raw) == cell_by_cell(df, raw)
+
+
+def test_formula_text_is_neutralised_once_per_value_and_times_read_as_isoformat():
+    df = frame()
+    rows = list(csv.reader(io.StringIO(csvout.frame_to_csv(df))))
+    col = rows[0].index
+    assert [r[col("text")] for r in rows[1:]] == ["x", "", "'=1+1", "", "x", "", "'-2", "",
+                                                   'é\n"q,']
+    want = datetime(2021, 3, 4, 10, tzinfo=timezone.utc).isoformat()    # Python's own
+    assert rows[3][col("utc")] == want == "2021-03-04T10:00:00+00:00"
+    assert rows[3][col("berlin")] == datetime(2021, 3, 4, 11, tzinfo=timezone.utc).replace(
+        tzinfo=None).isoformat() + "+01:00"
+    assert rows[1][col("naive")] == "2020-01-01T00:00:00.500000"
+    assert [r[col("mixed")] for r in rows[1:5]] == ["x", "1", "1", "true"]
+    assert {r[col("none")] for r in rows[1:]} == {""}
+
+
+def test_an_empty_frame_and_an_all_missing_column_keep_their_header():
+    empty = frame().iloc[:0]
+    assert csvout.frame_to_csv(empty) == cell_by_cell(empty, False)
