@@ -164,3 +164,32 @@ def test_link_era_removes_left_truncation_bias_simulation():
     assert q.low <= truth <= q.high
     # old introducers enter only with long lifetimes: the unrestricted estimate is far off
     assert med[None][0].low > 1.2 * truth
+
+
+def test_link_era_rules_sharing_one_row_computation_give_the_plain_tables(links):
+    """Inside ``kept_results`` the era-free rows are computed once for every rule
+    (``_defect_rows``) and each rule then edits its own copy: each table must equal the
+    one built with nothing kept, whatever rule ran before it (pandas' frame comparison)."""
+    from procmetrics.analyse import memo
+    from procmetrics.analyse.memo import kept_results
+
+    commits = pd.DataFrame({
+        "repo": "r", "hash": ["i1", "i2", "i3", "i4", "i5", "f1"],
+        "committer_date": [d(x) for x in (0, 5, 20, 60, 50, 120)],
+        "author_date": [d(x) for x in (0, 5, 20, 60, 49, 118)],
+        "lines_added": [1, 2, 3, 4, 5, 6], "lines_deleted": [0] * 6, "n_files": [1] * 6})
+    rules = [None, "first_link", "settled", d(15), None]
+
+    def fields(t):
+        return {k: v for k, v in vars(t).items() if not isinstance(v, pd.DataFrame)}
+
+    plain = [build_defects(links, commits=commits, links_from=r) for r in rules]
+    with kept_results():
+        kept = [build_defects(links, commits=commits, links_from=r) for r in rules]
+        computed = [k for k in memo._KEPT.get() if k[1] == "_defect_rows"]
+    assert len(computed) == 1                  # one era-free computation for all rules
+    for want, got in zip(plain, kept):
+        pd.testing.assert_frame_equal(got.defects, want.defects)
+        pd.testing.assert_frame_equal(got.excluded, want.excluded)
+        assert repr(fields(got)) == repr(fields(want))
+    assert [len(t.defects) for t in kept] != [len(kept[0].defects)] * len(rules)  # rules differ

@@ -52,11 +52,12 @@ when not mined), ``intro_files``.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Any, Literal, Sequence
+from typing import Any, Literal, NamedTuple, Sequence
 
 import numpy as np
 import pandas as pd
 
+from procmetrics.analyse.memo import memoised
 from procmetrics.analyse.result import Caveat, caveat, to_plain
 from procmetrics.errors import InsufficientData
 
@@ -153,6 +154,134 @@ def _release_counts(defects: pd.DataFrame, containment: pd.DataFrame) -> tuple[n
     return np.asarray(shipped, float), np.asarray(window, float)
 
 
+class _Rows(NamedTuple):
+    """What :func:`build_defects` finds before the link era is applied."""
+
+    d: pd.DataFrame                 # one row per introducer, link era not yet applied
+    links: pd.DataFrame
+    status: pd.Series
+    link_counts: dict[str, int]
+    n_missing: int
+    missing_rows: pd.DataFrame
+    n_follow: int
+    first_by_repo: pd.Series
+    tau: Any
+
+
+@memoised()
+def _defect_rows(fix_links: pd.DataFrame, basis: Basis, commits: pd.DataFrame | None,
+                 commit_subsystems: pd.DataFrame | None, trailers: pd.DataFrame | None,
+                 tag_containment: pd.DataFrame | None, end_date: Any,
+                 period_cuts: Sequence[Any] | None, period_freq: str,
+                 review_keys: Sequence[str]) -> _Rows:
+    """The defect rows of :func:`build_defects` before the link-era rule: they do not
+    depend on it, so a report's tables under several rules share one computation."""
+    clock = "author" if basis == "author" else "committer"
+    status = fix_links["status"].fillna("unknown").astype(str)
+    link_counts = {str(k): int(v) for k, v in status.value_counts().sort_index().items()}
+    links = fix_links[status.eq("resolved") & fix_links["introducer_hash"].notna()].copy()
+    links["_intro"] = pd.to_datetime(links[f"intro_{clock}_date"], utc=True)
+    links["_fix"] = pd.to_datetime(links[f"fix_{clock}_date"], utc=True)
+    missing = links["_intro"].isna() | links["_fix"].isna()
+    n_missing = int(missing.sum())
+    missing_rows = links[missing]
+    links = links[~missing]
+    # one row per (repo, introducer, fixing commit): duplicate citations collapse
+    links = links.drop_duplicates(["repo", "introducer_hash", "fix_hash"])
+    links = links.sort_values(["repo", "introducer_hash", "_fix", "fix_hash"], kind="mergesort")
+    grp = links.groupby(["repo", "introducer_hash"], sort=False)
+    first = grp.head(1).copy()
+    n_fixes = grp["fix_hash"].transform("size")
+    first["n_fixes"] = n_fixes.loc[first.index].astype("int64")
+    later = links[grp.cumcount() > 0]
+    follow = later.groupby(["repo", "introducer_hash"], sort=False)["fix_hash"].agg(" ".join)
+    first["follow_up_fixes"] = (follow.reindex(pd.MultiIndex.from_arrays(
+        [first["repo"], first["introducer_hash"]])).fillna("").to_numpy(object)
+        if len(follow) else "")
+    n_follow = int(len(links) - len(first))
+    # the first linked fix of each repository (histories adopt Fixes: at different times)
+    first_by_repo = links.groupby(links["repo"].astype(str))["_fix"].min()
+    tau_by_repo: pd.Series | None = None
+    if end_date is not None:
+        tau = pd.Timestamp(end_date)
+        tau = tau.tz_localize("UTC") if tau.tzinfo is None else tau.tz_convert("UTC")
+    elif commits is not None and len(commits):
+        # each repository's history ends at its own latest commit
+        cdates = pd.to_datetime(commits[f"{clock}_date"], utc=True)
+        tau_by_repo = cdates.groupby(commits["repo"].astype(str)).max()
+        tau = cdates.max()
+    elif len(first):
+        tau = first["_fix"].max()
+    else:
+        tau = pd.NaT
+
+    d = pd.DataFrame({
+        "repo": first["repo"].astype(str).to_numpy(),
+        "introducer_hash": first["introducer_hash"].astype(str).to_numpy(),
+        "fix_hash": first["fix_hash"].astype(str).to_numpy(),
+        "n_fixes": first["n_fixes"].to_numpy(),
+        "follow_up_fixes": first["follow_up_fixes"].to_numpy(),
+        "basis": basis,
+        "intro_date": first["_intro"].to_numpy(),
+        "fix_date": first["_fix"].to_numpy(),
+    })
+    d["intro_date"] = pd.to_datetime(d["intro_date"], utc=True)
+    d["fix_date"] = pd.to_datetime(d["fix_date"], utc=True)
+    d["lifetime_days"] = (d["fix_date"] - d["intro_date"]).dt.total_seconds() / 86400.0
+    if basis == "releases":
+        shipped, window = _release_counts(d, tag_containment)  # type: ignore[arg-type]
+        d["lifetime"], d["window"] = shipped, window
+        # ancestry, not clocks, decides here: a skewed clock does not make it negative
+        d["negative"] = np.zeros(len(d), dtype=bool)
+    else:
+        d["lifetime"] = d["lifetime_days"]
+        ends = (pd.to_datetime(d["repo"].map(tau_by_repo), utc=True).fillna(tau)
+                if tau_by_repo is not None else tau)
+        d["window"] = (ends - d["intro_date"]).dt.total_seconds() / 86400.0
+        d["negative"] = d["lifetime"] < 0
+
+    subs = pd.Series(dtype=object)
+    if commit_subsystems is not None and len(commit_subsystems):
+        # only the introducers' rows (a few per cent of the commits at kernel scale)
+        wanted = commit_subsystems["hash"].isin(d["introducer_hash"])
+        # each introducer's distinct names in code-point order, joined with ";"
+        cs = commit_subsystems[wanted.to_numpy(bool)].dropna(subset=["subsystem"])
+        cs = (cs.assign(subsystem=cs["subsystem"].map(str))
+              .drop_duplicates(["repo", "hash", "subsystem"])
+              .sort_values(["repo", "hash", "subsystem"], kind="mergesort"))
+        subs = cs.groupby(["repo", "hash"])["subsystem"].agg(";".join)
+    keys = list(zip(d["repo"], d["introducer_hash"]))
+    d["subsystems"] = [subs.get(k, "") if len(subs) else "" for k in keys]
+    d["subsystem"] = [NONE if not s else (MULTIPLE if ";" in s else s) for s in d["subsystems"]]
+    d["period"] = _periods(d["intro_date"], period_cuts, period_freq) if len(d) else []
+
+    if trailers is not None:
+        rk = {k.lower() for k in review_keys}
+        rev = trailers[trailers["key"].astype(str).str.lower().isin(rk)]
+        reviewed = set(zip(rev["repo"], rev["hash"]))
+        d["reviewed_introducer"] = pd.array([k in reviewed for k in keys], dtype="boolean")
+    else:
+        d["reviewed_introducer"] = pd.array([pd.NA] * len(d), dtype="boolean")
+    if commits is not None and len(commits):
+        # only the introducers' rows are looked up (a tenth of the commits, or less)
+        c = commits[commits["hash"].isin(d["introducer_hash"]).to_numpy(bool)]
+        c = c.set_index(["repo", "hash"])
+        la = c["lines_added"].astype("Float64") + c["lines_deleted"].astype("Float64")
+        kidx = pd.MultiIndex.from_tuples(keys, names=["repo", "hash"]) if keys else None
+        la = la[~la.index.duplicated()]
+        nf = c["n_files"][~c.index.duplicated()]
+        d["intro_lines"] = (pd.array(la.reindex(kidx).to_numpy(), dtype="Float64").round()
+                            .astype("Int64") if keys else pd.array([], dtype="Int64"))
+        d["intro_files"] = (pd.array(nf.reindex(kidx).to_numpy(), dtype="Int64") if keys
+                            else pd.array([], dtype="Int64"))
+    else:
+        d["intro_lines"] = pd.array([pd.NA] * len(d), dtype="Int64")
+        d["intro_files"] = pd.array([pd.NA] * len(d), dtype="Int64")
+    return _Rows(d, links, status, link_counts, n_missing, missing_rows, n_follow,
+                 first_by_repo, tau)
+
+
+@memoised()
 def build_defects(
     fix_links: pd.DataFrame,
     *,
@@ -212,30 +341,9 @@ def build_defects(
         raise InsufficientData("basis 'releases' needs a tag containment table "
                                "(procmetrics.mine.ancestry.tag_containment)")
     clock = "author" if basis == "author" else "committer"
-    status = fix_links["status"].fillna("unknown").astype(str)
-    link_counts = {str(k): int(v) for k, v in status.value_counts().sort_index().items()}
-    links = fix_links[status.eq("resolved") & fix_links["introducer_hash"].notna()].copy()
-    links["_intro"] = pd.to_datetime(links[f"intro_{clock}_date"], utc=True)
-    links["_fix"] = pd.to_datetime(links[f"fix_{clock}_date"], utc=True)
-    missing = links["_intro"].isna() | links["_fix"].isna()
-    n_missing = int(missing.sum())
-    missing_rows = links[missing]
-    links = links[~missing]
-    # one row per (repo, introducer, fixing commit): duplicate citations collapse
-    links = links.drop_duplicates(["repo", "introducer_hash", "fix_hash"])
-    links = links.sort_values(["repo", "introducer_hash", "_fix", "fix_hash"], kind="mergesort")
-    grp = links.groupby(["repo", "introducer_hash"], sort=False)
-    first = grp.head(1).copy()
-    n_fixes = grp["fix_hash"].transform("size")
-    first["n_fixes"] = n_fixes.loc[first.index].astype("int64")
-    later = links[grp.cumcount() > 0]
-    follow = later.groupby(["repo", "introducer_hash"], sort=False)["fix_hash"].agg(" ".join)
-    first["follow_up_fixes"] = (follow.reindex(pd.MultiIndex.from_arrays(
-        [first["repo"], first["introducer_hash"]])).fillna("").to_numpy(object)
-        if len(follow) else "")
-    n_follow = int(len(links) - len(first))
-    # the first linked fix of each repository (histories adopt Fixes: at different times)
-    first_by_repo = links.groupby(links["repo"].astype(str))["_fix"].min()
+    d, links, status, link_counts, n_missing, missing_rows, n_follow, first_by_repo, tau = \
+        _defect_rows(fix_links, basis, commits, commit_subsystems, trailers, tag_containment,
+                     end_date, period_cuts, period_freq, review_keys)
     era_rule = ""
     era_info: Any = None
     if isinstance(links_from, str) and links_from in ("first_link", "settled"):
@@ -244,103 +352,24 @@ def build_defects(
         era_by_repo, era_rule, era_info = era_by_repository(
             first_by_repo, fix_links, commits, clock=clock, settled=links_from == "settled")
         era = era_by_repo.min() if len(era_by_repo) else pd.NaT
-        era_row = first["repo"].astype(str).map(era_by_repo)
-        before = (first["_intro"] < era_row).fillna(False).astype(bool)
+        era_row = d["repo"].map(era_by_repo)
+        before = (d["intro_date"] < era_row).fillna(False).astype(bool)
     else:
         era = pd.NaT if links_from is None else _utc(links_from)
         era_rule = ("all: every introducer kept (defects introduced before the first "
                     "linked fix are truncated at both ends)" if links_from is None
                     else f"date: the link era starts at the given date {era:%Y-%m-%d}")
-        before = ((first["_intro"] < era) if pd.notna(era)
-                  else pd.Series(False, index=first.index))
+        before = ((d["intro_date"] < era) if pd.notna(era)
+                  else pd.Series(False, index=d.index))
     n_before = int(before.sum())
     # lower truncation bound: only with every introducer kept, for those introduced
     # before their repository's first linked fix (they are seen only if fixed after it)
-    low_row = (first["repo"].astype(str).map(first_by_repo) - first["_intro"]
-               ).dt.total_seconds() / 86400.0
-    first["_window_low"] = (low_row.clip(lower=0).fillna(0.0)
-                            if links_from is None and link_source == "resolved Fixes: link"
-                            else 0.0)
-    first["_before"] = before
+    low_row = (d["repo"].map(first_by_repo) - d["intro_date"]).dt.total_seconds() / 86400.0
+    d["window_low"] = (low_row.clip(lower=0).fillna(0.0).to_numpy(float)
+                       if links_from is None and link_source == "resolved Fixes: link"
+                       else 0.0)
+    d["_before"] = before.to_numpy(bool)
 
-    tau_by_repo: pd.Series | None = None
-    if end_date is not None:
-        tau = pd.Timestamp(end_date)
-        tau = tau.tz_localize("UTC") if tau.tzinfo is None else tau.tz_convert("UTC")
-    elif commits is not None and len(commits):
-        # each repository's history ends at its own latest commit
-        cdates = pd.to_datetime(commits[f"{clock}_date"], utc=True)
-        tau_by_repo = cdates.groupby(commits["repo"].astype(str)).max()
-        tau = cdates.max()
-    elif len(first):
-        tau = first["_fix"].max()
-    else:
-        tau = pd.NaT
-
-    d = pd.DataFrame({
-        "repo": first["repo"].astype(str).to_numpy(),
-        "introducer_hash": first["introducer_hash"].astype(str).to_numpy(),
-        "fix_hash": first["fix_hash"].astype(str).to_numpy(),
-        "n_fixes": first["n_fixes"].to_numpy(),
-        "follow_up_fixes": first["follow_up_fixes"].to_numpy(),
-        "basis": basis,
-        "intro_date": first["_intro"].to_numpy(),
-        "fix_date": first["_fix"].to_numpy(),
-        "_before": first["_before"].to_numpy(bool),
-        "window_low": first["_window_low"].to_numpy(float),
-    })
-    d["intro_date"] = pd.to_datetime(d["intro_date"], utc=True)
-    d["fix_date"] = pd.to_datetime(d["fix_date"], utc=True)
-    d["lifetime_days"] = (d["fix_date"] - d["intro_date"]).dt.total_seconds() / 86400.0
-    if basis == "releases":
-        shipped, window = _release_counts(d, tag_containment)  # type: ignore[arg-type]
-        d["lifetime"], d["window"] = shipped, window
-        # ancestry, not clocks, decides here: a skewed clock does not make it negative
-        d["negative"] = np.zeros(len(d), dtype=bool)
-    else:
-        d["lifetime"] = d["lifetime_days"]
-        ends = (pd.to_datetime(d["repo"].map(tau_by_repo), utc=True).fillna(tau)
-                if tau_by_repo is not None else tau)
-        d["window"] = (ends - d["intro_date"]).dt.total_seconds() / 86400.0
-        d["negative"] = d["lifetime"] < 0
-
-    subs = pd.Series(dtype=object)
-    if commit_subsystems is not None and len(commit_subsystems):
-        # only the introducers' rows (a few per cent of the commits at kernel scale)
-        wanted = commit_subsystems["hash"].isin(d["introducer_hash"])
-        # each introducer's distinct names in code-point order, joined with ";"
-        cs = commit_subsystems[wanted.to_numpy(bool)].dropna(subset=["subsystem"])
-        cs = (cs.assign(subsystem=cs["subsystem"].map(str))
-              .drop_duplicates(["repo", "hash", "subsystem"])
-              .sort_values(["repo", "hash", "subsystem"], kind="mergesort"))
-        subs = cs.groupby(["repo", "hash"])["subsystem"].agg(";".join)
-    keys = list(zip(d["repo"], d["introducer_hash"]))
-    d["subsystems"] = [subs.get(k, "") if len(subs) else "" for k in keys]
-    d["subsystem"] = [NONE if not s else (MULTIPLE if ";" in s else s) for s in d["subsystems"]]
-    d["period"] = _periods(d["intro_date"], period_cuts, period_freq) if len(d) else []
-
-    if trailers is not None:
-        rk = {k.lower() for k in review_keys}
-        rev = trailers[trailers["key"].astype(str).str.lower().isin(rk)]
-        reviewed = set(zip(rev["repo"], rev["hash"]))
-        d["reviewed_introducer"] = pd.array([k in reviewed for k in keys], dtype="boolean")
-    else:
-        d["reviewed_introducer"] = pd.array([pd.NA] * len(d), dtype="boolean")
-    if commits is not None and len(commits):
-        # only the introducers' rows are looked up (a tenth of the commits, or less)
-        c = commits[commits["hash"].isin(d["introducer_hash"]).to_numpy(bool)]
-        c = c.set_index(["repo", "hash"])
-        la = c["lines_added"].astype("Float64") + c["lines_deleted"].astype("Float64")
-        kidx = pd.MultiIndex.from_tuples(keys, names=["repo", "hash"]) if keys else None
-        la = la[~la.index.duplicated()]
-        nf = c["n_files"][~c.index.duplicated()]
-        d["intro_lines"] = (pd.array(la.reindex(kidx).to_numpy(), dtype="Float64").round()
-                            .astype("Int64") if keys else pd.array([], dtype="Int64"))
-        d["intro_files"] = (pd.array(nf.reindex(kidx).to_numpy(), dtype="Int64") if keys
-                            else pd.array([], dtype="Int64"))
-    else:
-        d["intro_lines"] = pd.array([pd.NA] * len(d), dtype="Int64")
-        d["intro_files"] = pd.array([pd.NA] * len(d), dtype="Int64")
     if basis == "releases":
         d["window_low"] = 0.0      # the lower bound is not expressed in releases
     d = d[DEFECT_COLUMNS + ["_before"]].sort_values(["repo", "intro_date", "introducer_hash"],
