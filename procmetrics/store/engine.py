@@ -218,6 +218,19 @@ def _wait_for_schema(engine: Engine, seconds: float) -> Any:
         time.sleep(0.05)
 
 
+#: what a failed CREATE says when another process is creating the same schema (SQLite:
+#: a lock, a table or index that now exists, the version row's key; PostgreSQL: the
+#: catalogue's unique keys, a lock or deadlock)
+_COLLISION_WORDS = ("already exists", "duplicate", "unique", "locked", "deadlock")
+
+
+def _collision(exc: StoreError) -> bool:
+    """True when ``exc`` may come from another process creating the schema at the same
+    time (worth waiting for), False for errors that retrying cannot mend (an I/O error,
+    a read-only or full device, a file that is not a database)."""
+    return isinstance(exc, StoreBusy) or any(w in str(exc).lower() for w in _COLLISION_WORDS)
+
+
 def _ensure_schema(engine: Engine, *, create: bool) -> None:
     from procmetrics.store.migrate import migrate  # local: migrate imports schema only
 
@@ -238,7 +251,9 @@ def _ensure_schema(engine: Engine, *, create: bool) -> None:
                         conn.execute(schema.meta.insert(), [
                             {"key": "schema_version", "value": str(schema.SCHEMA_VERSION)},
                         ])
-            except StoreError:
+            except StoreError as exc:
+                if not _collision(exc):
+                    raise           # a broken device or file: waiting would not mend it
                 # another process created a table between our check and our CREATE: give
                 # it time to finish (its version row comes last) before trying again
                 row = _wait_for_schema(engine, CREATE_WAIT_S)

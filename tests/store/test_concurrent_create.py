@@ -61,3 +61,30 @@ def test_a_creator_that_never_sees_a_schema_still_fails(tmp_path, monkeypatch) -
     monkeypatch.setattr(schema.metadata, "create_all", always)
     with pytest.raises(StoreError):
         open_store(tmp_path / "s.sqlite")
+
+
+@pytest.mark.parametrize("message, waits", [
+    ("OperationalError: disk I/O error", False),             # --store=/dev/null
+    ("attempt to write a readonly database (the store file ...)", False),
+    ("the store is full (database or disk is full); ...", False),
+    ("DatabaseError: file is not a database", False),
+    ("OperationalError: table file_change already exists", True),
+    ("OperationalError: index ix_commit_date already exists", True),
+    ("IntegrityError: UNIQUE constraint failed: meta.key", True),
+    ('IntegrityError: duplicate key value violates unique constraint "pg_type_typname_nsp_index"',
+     True),
+])
+def test_only_a_collision_is_waited_for(tmp_path, monkeypatch, message, waits) -> None:
+    """An error no other creator can cause fails at once (it took 25 s of waiting for
+    ``mine --store=/dev/null`` to say 'disk I/O error'); a collision is waited for."""
+    waited = []
+    monkeypatch.setattr(eng, "_wait_for_schema",
+                        lambda engine, seconds: waited.append(seconds) or None)
+
+    def failing(conn, *args, **kwargs):
+        raise StoreError(message)
+
+    monkeypatch.setattr(schema.metadata, "create_all", failing)
+    with pytest.raises(StoreError):
+        open_store(tmp_path / "s.sqlite")
+    assert len(waited) == (eng.CREATE_ATTEMPTS if waits else 0)
