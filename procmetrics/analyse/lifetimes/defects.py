@@ -57,6 +57,7 @@ from typing import Any, Literal, NamedTuple, Sequence
 import numpy as np
 import pandas as pd
 
+from procmetrics.analyse.measures.periods import utc_times
 from procmetrics.analyse.memo import memoised
 from procmetrics.analyse.result import Caveat, caveat, to_plain
 from procmetrics.errors import InsufficientData
@@ -180,8 +181,8 @@ def _defect_rows(fix_links: pd.DataFrame, basis: Basis, commits: pd.DataFrame | 
     status = fix_links["status"].fillna("unknown").astype(str)
     link_counts = {str(k): int(v) for k, v in status.value_counts().sort_index().items()}
     links = fix_links[status.eq("resolved") & fix_links["introducer_hash"].notna()].copy()
-    links["_intro"] = pd.to_datetime(links[f"intro_{clock}_date"], utc=True)
-    links["_fix"] = pd.to_datetime(links[f"fix_{clock}_date"], utc=True)
+    links["_intro"] = utc_times(links[f"intro_{clock}_date"])
+    links["_fix"] = utc_times(links[f"fix_{clock}_date"])
     missing = links["_intro"].isna() | links["_fix"].isna()
     n_missing = int(missing.sum())
     missing_rows = links[missing]
@@ -207,7 +208,7 @@ def _defect_rows(fix_links: pd.DataFrame, basis: Basis, commits: pd.DataFrame | 
         tau = tau.tz_localize("UTC") if tau.tzinfo is None else tau.tz_convert("UTC")
     elif commits is not None and len(commits):
         # each repository's history ends at its own latest commit
-        cdates = pd.to_datetime(commits[f"{clock}_date"], utc=True)
+        cdates = utc_times(commits[f"{clock}_date"])
         tau_by_repo = cdates.groupby(commits["repo"].astype(str)).max()
         tau = cdates.max()
     elif len(first):
@@ -225,8 +226,8 @@ def _defect_rows(fix_links: pd.DataFrame, basis: Basis, commits: pd.DataFrame | 
         "intro_date": first["_intro"].to_numpy(),
         "fix_date": first["_fix"].to_numpy(),
     })
-    d["intro_date"] = pd.to_datetime(d["intro_date"], utc=True)
-    d["fix_date"] = pd.to_datetime(d["fix_date"], utc=True)
+    d["intro_date"] = utc_times(d["intro_date"])
+    d["fix_date"] = utc_times(d["fix_date"])
     d["lifetime_days"] = (d["fix_date"] - d["intro_date"]).dt.total_seconds() / 86400.0
     if basis == "releases":
         shipped, window = _release_counts(d, tag_containment)  # type: ignore[arg-type]
@@ -235,7 +236,7 @@ def _defect_rows(fix_links: pd.DataFrame, basis: Basis, commits: pd.DataFrame | 
         d["negative"] = np.zeros(len(d), dtype=bool)
     else:
         d["lifetime"] = d["lifetime_days"]
-        ends = (pd.to_datetime(d["repo"].map(tau_by_repo), utc=True).fillna(tau)
+        ends = (utc_times(d["repo"].map(tau_by_repo)).fillna(tau)
                 if tau_by_repo is not None else tau)
         d["window"] = (ends - d["intro_date"]).dt.total_seconds() / 86400.0
         d["negative"] = d["lifetime"] < 0

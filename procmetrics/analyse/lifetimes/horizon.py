@@ -84,8 +84,12 @@ def choose_horizon(d: pd.DataFrame, by: str | None = None, *, min_cohort: int = 
     if start is not None and len(d):
         d = d[d["intro_date"] >= start + pd.Timedelta(days=later_days)]
     groups = [("(all)", d)] + ([(str(k), g) for k, g in d.groupby(by, sort=True)] if by else [])
-    rows = [{"horizon": h, "group": name, "cohort": int(len(cohort(g, h)))}
-            for h in grid for name, g in groups]
+    arrays = [(name, g["lifetime"].to_numpy(float, na_value=np.nan),
+               g["window"].to_numpy(float, na_value=np.nan))
+              for name, g in groups]
+    # len(cohort(g, h)) for every pair, counted on arrays (the same comparisons)
+    rows = [{"horizon": h, "group": name, "cohort": int(((L <= h) & (W >= h) & (L >= 0)).sum())}
+            for h in grid for name, L, W in arrays]
     cand = pd.DataFrame(rows, columns=CANDIDATE_COLUMNS)
     rule = (f"H = the longest of {', '.join(f'{h:g}' for h in grid[:4])}, ... {unit} (90, 180, "
             f"then whole years) at which the cohort of every group"

@@ -21,6 +21,8 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from procmetrics.analyse.measures.periods import utc_times
+
 #: every link or defect left out of estimation, with the reason (:func:`defect_ledger`)
 EXCLUDED_COLUMNS: list[str] = [
     "repo", "introducer_hash", "fix_hash", "intro_date", "fix_date", "lifetime_days",
@@ -40,8 +42,8 @@ def _excluded(fix_links: pd.DataFrame, links: pd.DataFrame, pre: pd.DataFrame,
     """Rows left out before the defect table: unresolved references, links without a
     date, follow-up fixes and (with their full columns) defects before the link era."""
     def rows(df: pd.DataFrame, intro: str, fix: str, reason: str) -> pd.DataFrame:
-        i = pd.to_datetime(df[intro], utc=True) if len(df) else pd.Series(dtype="datetime64[ns, UTC]")
-        f = pd.to_datetime(df[fix], utc=True) if len(df) else pd.Series(dtype="datetime64[ns, UTC]")
+        i = utc_times(df[intro]) if len(df) else pd.Series(dtype="datetime64[ns, UTC]")
+        f = utc_times(df[fix]) if len(df) else pd.Series(dtype="datetime64[ns, UTC]")
         return pd.DataFrame({
             "repo": df["repo"].astype(str).to_numpy(),
             "introducer_hash": df["introducer_hash"].astype(object).to_numpy(),
@@ -88,7 +90,7 @@ def defect_ledger(table: Any) -> pd.DataFrame:
         return pd.DataFrame(columns=LEDGER_COLUMNS)
     out = pd.concat(parts, ignore_index=True)[LEDGER_COLUMNS]
     for c in ("intro_date", "fix_date"):
-        out[c] = pd.to_datetime(out[c], utc=True)
+        out[c] = utc_times(out[c])
     return out
 
 

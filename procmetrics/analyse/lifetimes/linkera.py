@@ -46,6 +46,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from procmetrics.analyse.measures.periods import utc_times
 from procmetrics.analyse.result import Caveat, caveat, to_plain
 
 MONTHLY_COLUMNS = ["month", "commits", "linked_fixes", "share", "rolling_share", "settled"]
@@ -94,7 +95,7 @@ def settled_link_start(fix_links: pd.DataFrame, commits: pd.DataFrame, *,
     """
     rule = rule_text(fraction, window_months)
     ok = fix_links[(fix_links["status"] == "resolved") & fix_links["introducer_hash"].notna()]
-    fx = pd.to_datetime(ok.drop_duplicates("fix_hash")[f"fix_{clock}_date"], utc=True).dropna()
+    fx = utc_times(ok.drop_duplicates("fix_hash")[f"fix_{clock}_date"]).dropna()
     if fx.empty or commits is None or not len(commits):
         return LinkEra(None, rule + "; no linked fix or no commits: no start found", None,
                        None, fraction, window_months)
@@ -102,7 +103,7 @@ def settled_link_start(fix_links: pd.DataFrame, commits: pd.DataFrame, *,
     c = commits
     if "is_merge" in c:
         c = c[~c["is_merge"].fillna(False).astype(bool)]
-    cd = pd.to_datetime(c[f"{clock}_date"], utc=True).dropna()
+    cd = utc_times(c[f"{clock}_date"]).dropna()
     month = (lambda s: s.dt.tz_localize(None).dt.to_period("M"))
     p0, p1 = first.tz_localize(None).to_period("M"), cd.max().tz_localize(None).to_period("M")
     months = pd.period_range(p0, p1, freq="M")
@@ -177,7 +178,7 @@ def adoption_caveat(fixes: pd.Series, commits: pd.DataFrame | None, start: pd.Ti
     c = commits
     if "is_merge" in c:
         c = c[~c["is_merge"].fillna(False).astype(bool)]
-    cd = pd.to_datetime(c[f"{clock}_date"], utc=True)
+    cd = utc_times(c[f"{clock}_date"])
     cut = start + pd.Timedelta(days=365)
     n1, n2 = int(((cd >= start) & (cd < cut)).sum()), int(((cd >= cut) & (cd <= tau)).sum())
     f1 = int(((fixes >= start) & (fixes < cut)).sum())

@@ -35,9 +35,18 @@ UNRELEASED = "(unreleased)"
 _FREQ = {"month": "M", "quarter": "Q", "year": "Y"}
 
 
+def utc_times(dates):
+    """``pd.to_datetime(dates, utc=True)``, without pandas' parse cache when the values
+    are times already: the cache only saves re-parsing text, and deciding whether to use
+    it iterates values one by one (8 ms a call on a few hundred rows). Same result."""
+    dtype = getattr(dates, "dtype", None)
+    parsed = isinstance(dtype, pd.DatetimeTZDtype) or (isinstance(dtype, np.dtype)
+                                                        and dtype.kind == "M")
+    return pd.to_datetime(dates, utc=True, cache=not parsed)
+
+
 def _as_utc(dates: pd.Series) -> pd.Series:
-    d = pd.to_datetime(dates, utc=True)
-    return d
+    return utc_times(dates)
 
 
 def _label(p: pd.Period, period: str) -> str:
