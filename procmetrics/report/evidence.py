@@ -18,6 +18,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Any
 
+import numpy as np
 import pandas as pd
 
 from procmetrics.errors import ProcmetricsError
@@ -64,7 +65,7 @@ def review_trailers(trailers: pd.DataFrame, keys: tuple[str, ...]) -> pd.Series:
     if t.empty:
         return pd.Series(dtype=object)
     text = t["key"].astype(str) + ": " + t["value"].astype(str)
-    return text.groupby(t["hash"]).agg(lambda s: "; ".join(s))
+    return joined_by_key(text, t["hash"], "; ")
 
 
 def fix_references(fix_links: pd.DataFrame) -> pd.Series:
@@ -72,7 +73,21 @@ def fix_references(fix_links: pd.DataFrame) -> pd.Series:
     if fix_links.empty:
         return pd.Series(dtype=object)
     text = fix_links["ref_hash"].astype(str) + " " + fix_links["status"].astype(str)
-    return text.groupby(fix_links["fix_hash"]).agg(lambda s: "; ".join(s))
+    return joined_by_key(text, fix_links["fix_hash"], "; ")
+
+
+def joined_by_key(text: pd.Series, key: pd.Series, sep: str) -> pd.Series:
+    """``text.groupby(key).agg(sep.join)`` without a Python call per group: keys in
+    sorted order (missing keys dropped), each key's texts in their order, joined."""
+    keep = key.notna().to_numpy(bool)
+    k, v = key.to_numpy(object)[keep], text.to_numpy(object)[keep]
+    order = np.argsort(k, kind="stable")          # a stable sort keeps each key's order
+    k, v = k[order], v[order]
+    starts = np.flatnonzero(np.r_[True, k[1:] != k[:-1]]) if len(k) else np.array([], int)
+    ends = np.r_[starts[1:], len(k)]
+    return pd.Series([sep.join(v[a:b]) for a, b in zip(starts.tolist(), ends.tolist())],
+                     index=pd.Index(k[starts], name=key.name, dtype=object), dtype=object,
+                     name=text.name)
 
 
 def _commit_rows(f: pd.DataFrame, cctx: Any, metric: str, keys: tuple[str, ...]
