@@ -18,7 +18,7 @@ import numpy as np
 import pandas as pd
 
 from procmetrics.report.model import Report
-from procmetrics.textsafe import FORMULA_STARTS, csv_text_cell
+from procmetrics.textsafe import csv_text_cell
 
 _KEY = re.compile(r"^[a-z0-9][a-z0-9-]*$")
 
@@ -61,13 +61,11 @@ def _column_cells(col: pd.Series, raw: bool) -> list[str]:
     if isinstance(dt, np.dtype) and dt.kind == "f":
         return [_float_cell(v) for v in col.to_numpy(dtype=float).tolist()]
     if dt == object and pd.api.types.infer_dtype(col, skipna=True) in ("string", "empty"):
-        # all text: csv_text_cell inline, missing values of any kind empty
+        # all text: csv_text_cell (the one formula rule) without the per-value type
+        # dispatch of _cell; missing values of any kind empty
         vals = col.to_numpy(object)
         missing = pd.isna(vals).tolist()
-        if raw:
-            return ["" if m else str(v) for v, m in zip(vals.tolist(), missing)]
-        return ["" if m else ("'" + v if v and v[0] in FORMULA_STARTS else str(v))
-                for v, m in zip(vals.tolist(), missing)]
+        return ["" if m else csv_text_cell(v, raw=raw) for v, m in zip(vals.tolist(), missing)]
     if isinstance(dt, pd.DatetimeTZDtype) or (isinstance(dt, np.dtype) and dt.kind == "M"):
         # times: each distinct value formatted once (missing values become code -1, an
         # empty cell)
