@@ -18,9 +18,11 @@ its run completes and stays as it is until deleted. Hence:
   not the store); a repository without a digest row (its first run, a store
   from schema 3, a digest dropped below) gets one computed from every visible
   row in that same transaction.
-* a run marked failed after it had completed, and ``delete_repository_data``
-  (re-mine after a rewrite, changed options or ``.mailmap``): drop the digest
-  rows (the next completing run computes them afresh).
+* ``delete_repository_data`` (re-mine after a rewrite, changed options or
+  ``.mailmap``): drops the digest rows (the next completing run computes them
+  afresh). A completed run is never marked failed afterwards
+  (:meth:`~procmetrics.store.runbook.RunBook.fail_run`), so its rows and their
+  digest stay visible together.
 * ``cleanup_incomplete`` removes only rows readers never saw: nothing to do.
 
 Every other table (``commits``, ``fix_links``, ``commit_subsystems``, ``tags``,

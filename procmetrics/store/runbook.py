@@ -9,10 +9,12 @@ docstring for the whole interruption design).
 from __future__ import annotations
 
 import time
+import warnings
 
 from sqlalchemy import delete, insert, or_, select, update
 from sqlalchemy.engine import Connection, Engine
 
+from procmetrics.errors import ProcmetricsWarning, StoreError
 from procmetrics.store import digests
 from procmetrics.store import schema as s
 from procmetrics.store.engine import BUSY_TIMEOUT_MS
@@ -61,22 +63,22 @@ class RunBook:
             ).inserted_primary_key[0])
 
     def fail_run(self, run_id: int, message: str) -> None:
-        """Mark the run failed. Advisory (the next run repairs a run left
-        'running' anyway), so on SQLite it waits at most 2 s for a lock another
-        process holds instead of the full busy timeout: Ctrl-C ends promptly."""
+        """Mark a run that is still running failed. Advisory (the next run repairs a run
+        left 'running' anyway), so on SQLite it waits at most 2 s for a lock another
+        process holds instead of the full busy timeout: Ctrl-C ends promptly.
+
+        A run that has completed stays complete: its rows, the repository's tip and the
+        table digests were committed in one transaction, so a failure after it (an
+        interrupt, the planner statistics) leaves them consistent. Hiding its rows would
+        lose them, because the tip has moved and the next run would mine nothing again.
+        """
         sqlite = self.engine.dialect.name == "sqlite"
         with self.engine.begin() as conn:
             if sqlite:
                 conn.exec_driver_sql("PRAGMA busy_timeout=2000")
             try:
-                # a run that had completed (a failure after its last transaction): its
-                # rows leave the readers' view, so the stored digests no longer hold
-                done = conn.execute(select(s.mining_run.c.repo_id).where(
-                    s.mining_run.c.run_id == run_id,
-                    s.mining_run.c.status == "complete")).scalar()
-                if done is not None:
-                    digests.forget(conn, done)
-                conn.execute(update(s.mining_run).where(s.mining_run.c.run_id == run_id)
+                conn.execute(update(s.mining_run).where(s.mining_run.c.run_id == run_id,
+                                                        s.mining_run.c.status == "running")
                              .values(status="failed", ended_utc=int(time.time()),
                                      message=message[:2000]))
             finally:
@@ -105,11 +107,20 @@ class RunBook:
     def refresh_statistics(self) -> None:
         """Planner statistics after a load. Without them SQLite nests the
         repository-filtered ``commit_subsystems`` read as commits x path mappings
-        (hours at 20,000 commits); sampled ANALYZE takes milliseconds."""
-        with self.engine.begin() as conn:
-            if self.engine.dialect.name == "sqlite":
-                conn.exec_driver_sql("PRAGMA analysis_limit=1000")
-            conn.exec_driver_sql("ANALYZE")
+        (hours at 20,000 commits); sampled ANALYZE takes milliseconds.
+
+        Advisory: it runs after the run has completed, so a store error here (two
+        workers' ANALYZE on PostgreSQL can deadlock) is a warning, never a failed run.
+        """
+        try:
+            with self.engine.begin() as conn:
+                if self.engine.dialect.name == "sqlite":
+                    conn.exec_driver_sql("PRAGMA analysis_limit=1000")
+                conn.exec_driver_sql("ANALYZE")
+        except StoreError as exc:
+            warnings.warn(f"planner statistics not refreshed ({exc}); the mined rows are "
+                          "complete, reads may be slower until the next run refreshes them",
+                          ProcmetricsWarning, stacklevel=2)
 
     def _delete_commits(self, conn: Connection, commit_ids) -> None:
         for t in (s.file_change, s.trailer, s.fix_link, s.unparsed_reference, s.revert_link,

@@ -11,7 +11,9 @@ an unchanged tip. The next run first calls :meth:`StoreWriter.cleanup_incomplete
 which deletes every row belonging to commits of those runs (and marks the runs
 ``failed``), prunes the path->subsystem rows nobody needs any more, and then
 mines from the unchanged tip - so it ends with exactly the store a clean run
-gives. Links of older runs that the dead run had re-resolved are re-resolved
+gives. A failure after the final transaction (an interrupt, planner statistics
+that could not be refreshed) leaves the run complete: rows, tip and digests
+were committed together. Links of older runs that the dead run had re-resolved are re-resolved
 again because their target is no longer stored or their status is not final.
 
 Run bookkeeping and repair live in :mod:`procmetrics.store.runbook`, index and

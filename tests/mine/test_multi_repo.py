@@ -225,3 +225,51 @@ def test_a_deadlock_victim_mines_its_repository_again(three_repos, tmp_path: Pat
     failed = _mine_one(str(repo.path), "fw2", "sqlite:///" + str(tmp_path / "b.sqlite"),
                        MineOptions(progress=False))
     assert failed.exit_code == 6 and "database is locked" in failed.message
+
+
+def test_a_failure_after_the_run_completed_keeps_its_rows(three_repos, tmp_path: Path,
+                                                          monkeypatch) -> None:
+    """The flaky PostgreSQL run of the two-worker test, made certain: the deadlock
+    struck *after* the run's final transaction (the planner statistics of two workers
+    at once). The run was then marked failed, so its rows left the readers' view while
+    the repository's tip had moved; the retry mined nothing new and the repository
+    ended with 0 visible commits and ``ok`` results. A completed run now stays
+    complete. Oracle: ``git rev-list --count`` and a clean run of the same repository."""
+    from procmetrics.errors import StoreBusy
+    from procmetrics.mine.multi import _mine_one
+    from procmetrics.store.runbook import RunBook
+
+    repo = three_repos[1]
+    real = RunBook.complete_run
+    calls = {"n": 0}
+
+    def then_deadlock(self, *args, **kw):
+        real(self, *args, **kw)
+        calls["n"] += 1
+        if calls["n"] == 1:
+            raise StoreBusy("the store is busy: another process holds its lock "
+                            "(deadlock detected); run again when it has finished")
+
+    monkeypatch.setattr(RunBook, "complete_run", then_deadlock)
+    url = "sqlite:///" + str(tmp_path / "late.sqlite")
+    got = _mine_one(str(repo.path), "fw", url, MineOptions(progress=False))
+    assert calls["n"] == 2 and got.repo == "fw"
+    engine = open_store(url)
+    try:
+        commits = read_table(engine, "commits", "fw")
+        assert len(commits) == int(repo.git("rev-list", "--count", "HEAD").strip())
+        runs = read_table(engine, "mining_runs")
+        assert list(runs["status"]) == ["complete", "complete"]
+        assert list(runs["n_commits"]) == [len(commits), 0]     # the retry found no work
+        clean = tmp_path / "clean.sqlite"
+        monkeypatch.setattr(RunBook, "complete_run", real)
+        mine_repository(repo.path, store=clean, options=MineOptions(progress=False,
+                                                                    repo_name="fw"))
+        alone = open_store(clean)
+        for t in ("commits", "file_changes", "trailers", "fix_links"):
+            pd.testing.assert_frame_equal(read_table(engine, t).reset_index(drop=True),
+                                          read_table(alone, t).reset_index(drop=True),
+                                          check_dtype=False, obj=t)
+        alone.dispose()
+    finally:
+        engine.dispose()

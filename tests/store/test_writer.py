@@ -131,3 +131,48 @@ def test_links_to_recheck_include_prefixes_a_new_commit_shares(tmp_path):
     again = w.links_to_check(rid, run2, 40)
     assert [(ln.ref_hash, ln.is_new) for ln in again] == [("abcdef1", False)]
     assert w.stored_matches(rid, ["abcdef1"], 40)["abcdef1"] == [a, "abcdef1" + "f" * 33]
+
+
+def test_a_completed_run_is_never_failed_afterwards(sample_history, tmp_path):
+    """``fail_run`` after the final transaction (an interrupt, a late store error)
+    leaves the run complete and its rows visible; on a run still running it marks it
+    failed. Oracle for the visible rows: ``git rev-list --count``."""
+    engine = open_store(tmp_path / "s.sqlite")
+    summary = mine_repository(sample_history.path, store=engine,
+                              options=MineOptions(progress=False))
+    w = StoreWriter(engine)
+    w.fail_run(summary.run_id, "KeyboardInterrupt: ")
+    runs = read_table(engine, "mining_runs")
+    assert list(runs["status"]) == ["complete"] and runs["message"].isna().all()
+    n = int(sample_history.git("rev-list", "--count", "HEAD").strip())
+    assert len(read_table(engine, "commits")) == n
+    repo_id = w.ensure_repository(summary.repo, str(sample_history.path))
+    run = w.start_run(repo_id, ref="HEAD", head_hash=summary.head_hash, base_hash=None,
+                      is_shallow=False, options_json="{}", versions_json="{}")
+    w.fail_run(run, "KeyboardInterrupt: ")
+    runs = read_table(engine, "mining_runs").set_index("run_id")
+    assert runs.loc[run, "status"] == "failed"
+    assert runs.loc[summary.run_id, "status"] == "complete"
+
+
+def test_planner_statistics_are_advisory(tmp_path):
+    """A store error while refreshing planner statistics (PostgreSQL: two workers'
+    ANALYZE can deadlock) is a warning: the run has already completed."""
+    import sqlite3
+
+    import pytest
+    from sqlalchemy import event
+
+    from procmetrics.errors import ProcmetricsWarning
+
+    engine = open_store(tmp_path / "s.sqlite")
+
+    @event.listens_for(engine, "before_cursor_execute")
+    def deadlock(conn, cursor, statement, *args):
+        if statement.strip().upper() == "ANALYZE":
+            raise sqlite3.OperationalError("database is locked")
+
+    with pytest.warns(ProcmetricsWarning, match="planner statistics not refreshed"):
+        StoreWriter(engine).refresh_statistics()
+    event.remove(engine, "before_cursor_execute", deadlock)
+    StoreWriter(engine).refresh_statistics()        # and the engine still works
