@@ -217,3 +217,39 @@ def test_level_change_at_says_not_estimable_where_the_its_caveat_does():
     assert any("not estimable" in c.message for c in full.caveats)
     with pytest.raises(InsufficientData):
         level_change_at(table, "review_coverage", "2018-06-01", subsystem="net")
+
+
+def test_level_changes_of_a_split_table_equal_one_test_at_a_time():
+    """``compare`` splits the metric table into its series once (``level_changes``);
+    every result, and every refusal, equals ``level_change_at`` on the whole table
+    (oracle above: statsmodels), including a subsystem the table lacks."""
+    from procmetrics.analyse.change import its
+
+    table = _table(1, 0.4, 0.7)
+    metrics = ("review_coverage", "fix_ratio", "commits")
+    subs = ("fs", "net", "no-such-subsystem")
+    got = list(its.level_changes(table, metrics, AT, subs))
+    assert [(s, m) for s, m, _ in got] == [(s, m) for s in subs for m in metrics]
+    for s, m, r in got:
+        try:
+            one = its.level_change_at(table, m, AT, subsystem=s)
+        except InsufficientData as exc:
+            assert isinstance(r, InsufficientData) and str(r) == str(exc)
+            continue
+        assert repr(r) == repr(one)         # NaN bounds compare equal as text
+    assert sum(isinstance(r, InsufficientData) for *_, r in got) >= len(metrics)
+
+
+def test_design_is_kept_per_grid_and_each_caller_gets_a_copy():
+    from procmetrics.analyse.change import its
+
+    table = _table(1, 0.4, 0.7)
+    s = table[(table.metric == "review_coverage") & (table.subsystem == "net")]
+    X, t, post = its._design(s, AT)
+    X[:] = 0.0
+    t[:] = 0.0
+    X2, t2, post2 = its._design(s, AT)
+    assert X2[:, 0].tolist() == [1.0] * len(s) and np.abs(t2).sum() > 0
+    assert np.array_equal(post, post2) and np.array_equal(X2[:, 2], post2)
+    later = its._design(s, AT + pd.Timedelta(days=90))[2]       # another date, another key
+    assert later.sum() < post2.sum()

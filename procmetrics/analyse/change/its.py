@@ -52,7 +52,7 @@ Newey, W. K. & West, K. D. (1987). Econometrica 55:703-708.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Any
+from typing import Any, Iterator, Sequence
 
 import numpy as np
 import pandas as pd
@@ -62,7 +62,7 @@ from procmetrics.analyse.glmfit import ModelFit, fit_model
 from procmetrics.analyse.measures.metrics import ALL
 from procmetrics.analyse.measures.periods import period_midpoints, years_since
 from procmetrics.analyse.result import Caveat, Diagnostic, Estimate, caveat, to_plain
-from procmetrics.analyse.change.trend import metric_kind, select_series
+from procmetrics.analyse.change.trend import metric_kind, select_series, usable_rows
 from procmetrics.errors import InsufficientData
 
 MIN_PERIODS_PER_SEGMENT = 12
@@ -115,16 +115,38 @@ class ITSResult:
         return to_plain(self)
 
 
+#: designs by period grid (see :func:`_design`); bounded, cleared when full
+_DESIGNS: dict[tuple, tuple[np.ndarray, np.ndarray, np.ndarray]] = {}
+_DESIGNS_MAX = 4096
+
+
 def _design(s: pd.DataFrame, at: pd.Timestamp) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    t = years_since(period_midpoints(s), at)
-    post = (s["period_start"] >= at).to_numpy(dtype=float)
-    X = np.column_stack([np.ones(len(t)), t, post, post * t])
-    return X, t, post
+    """Design matrix, time in years and post indicator of the series' periods.
+
+    It depends only on the period grid and the date, which the subsystems of one
+    table share: computed once per grid (the pandas time arithmetic was a tenth of a
+    per-subsystem test) and copied to every caller, so the numbers are the ones the
+    computation gives.
+    """
+    start, end = s["period_start"].values, s["period_end"].values
+    key = (start.dtype.str, start.tobytes(), end.dtype.str, end.tobytes(), at.value)
+    hit = _DESIGNS.get(key)
+    if hit is None:
+        t = years_since(period_midpoints(s), at)
+        post = (s["period_start"] >= at).to_numpy(dtype=float)
+        X = np.column_stack([np.ones(len(t)), t, post, post * t])
+        if len(_DESIGNS) >= _DESIGNS_MAX:
+            _DESIGNS.clear()
+        hit = _DESIGNS[key] = (X, t, post)
+    return hit[0].copy(), hit[1].copy(), hit[2].copy()
 
 
-def _series(table: pd.DataFrame, metric: str, subsystem: str, kind: str, at: pd.Timestamp
-            ) -> tuple[pd.DataFrame, int]:
-    s = select_series(table, metric, subsystem, kind)
+def _series(table: pd.DataFrame, metric: str, subsystem: str, kind: str, at: pd.Timestamp,
+            selected: bool = False) -> tuple[pd.DataFrame, int]:
+    """Usable rows of the series and the number of periods straddling ``at`` (dropped);
+    ``selected``: ``table`` holds only this metric and subsystem already."""
+    s = (usable_rows(table, metric, kind) if selected
+         else select_series(table, metric, subsystem, kind))
     straddle = (s["period_start"] < at) & (s["period_end"] > at)
     return s[~straddle].reset_index(drop=True), int(straddle.sum())
 
@@ -215,9 +237,35 @@ def level_change_at(table: pd.DataFrame, metric: str, at: pd.Timestamp | str, *,
 
     Raises :class:`InsufficientData` as :func:`interrupted_time_series` does.
     """
+    return _level_change(table, metric, _utc(at), subsystem, kind, alpha,
+                         dispersion_threshold, hac, selected=False)
+
+
+def level_changes(table: pd.DataFrame, metrics: Sequence[str], at: pd.Timestamp | str,
+                  subsystems: Sequence[str], *, alpha: float = 0.05,
+                  dispersion_threshold: float = 1.5, hac: str = "auto"
+                  ) -> Iterator[tuple[str, str, LevelChange | InsufficientData]]:
+    """:func:`level_change_at` of every subsystem and metric (subsystem by subsystem,
+    metrics in the given order), with the table split into its series once: yields
+    ``(subsystem, metric, result)``, the result being the :class:`InsufficientData`
+    the test raised when the data cannot support it."""
     at = _utc(at)
+    series = dict(tuple(table.groupby(["subsystem", "metric"], sort=False)))
+    empty = table.iloc[:0]
+    for sub in subsystems:
+        for m in metrics:
+            try:
+                yield sub, m, _level_change(series.get((sub, m), empty), m, at, sub, None,
+                                            alpha, dispersion_threshold, hac, selected=True)
+            except InsufficientData as exc:
+                yield sub, m, exc
+
+
+def _level_change(table: pd.DataFrame, metric: str, at: pd.Timestamp, subsystem: str,
+                  kind: str | None, alpha: float, dispersion_threshold: float, hac: str, *,
+                  selected: bool) -> LevelChange:
     kind = kind or metric_kind(metric)
-    s, _ = _series(table, metric, subsystem, kind, at)
+    s, _ = _series(table, metric, subsystem, kind, at, selected)
     _, n_before, n_after = _sides(s, metric, subsystem, at)
     fit, refit = _fits(s, kind, at, alpha, dispersion_threshold, hac, True, detail=False)
     unit = {"proportion": "log-odds", "count": "log-rate"}.get(kind, "metric units")

@@ -29,7 +29,7 @@ import pandas as pd
 
 from procmetrics.analyse.change.changepoints import ChangePointConfig, changes_for_metric
 from procmetrics.analyse.change.its import (ChangeVsDate, ITSResult, interrupted_time_series,
-                                     level_change_at, relate_changes_to_date)
+                                     level_changes, relate_changes_to_date)
 from procmetrics.analyse.measures.metrics import ALL, MetricConfig, commit_flags, compute_period_metrics
 from procmetrics.analyse.change.multiplicity import MultiplicityResult, adjust_pvalues
 from procmetrics.analyse.result import Caveat, to_plain
@@ -124,20 +124,18 @@ def compare_policy(commits: pd.DataFrame, trailers: pd.DataFrame, *, at: pd.Time
             skipped.append(f"ITS {m}: {exc}")
     rows = []
     subs = [s for s in parts if s != ALL]
-    for s in subs:
-        for m in metrics:
-            try:    # the level change only: its estimate and interval as in the ITS
-                r = level_change_at(parts[s], m, at, subsystem=s, alpha=alpha)
-            except InsufficientData as exc:
-                skipped.append(f"ITS {m} [{s}]: {exc}")
-                continue
-            if not r.estimable:
-                skipped.append(f"ITS {m} [{s}]: level change not estimable (a share of 0 "
-                               "or 1, or no events, on one side of the date)")
-                continue
-            p = r.p_value     # from the interval shown (guarded, same quantile)
-            rows.append((s, m, r.level_change.value, r.level_change.low, r.level_change.high,
-                         p, r.n_before, r.n_after))
+    # the level change only: its estimate and interval as in the ITS
+    for s, m, r in level_changes(table, metrics, at, subs, alpha=alpha):
+        if isinstance(r, InsufficientData):
+            skipped.append(f"ITS {m} [{s}]: {r}")
+            continue
+        if not r.estimable:
+            skipped.append(f"ITS {m} [{s}]: level change not estimable (a share of 0 "
+                           "or 1, or no events, on one side of the date)")
+            continue
+        p = r.p_value     # from the interval shown (guarded, same quantile)
+        rows.append((s, m, r.level_change.value, r.level_change.low, r.level_change.high,
+                     p, r.n_before, r.n_after))
     sub = pd.DataFrame(rows, columns=["subsystem", "metric", "level_change", "ci_low",
                                       "ci_high", "p_value", "n_before", "n_after"])
     mult = None

@@ -92,7 +92,13 @@ def select_series(table: pd.DataFrame, metric: str, subsystem: str = ALL,
                   kind: str | None = None) -> pd.DataFrame:
     """Usable rows of one metric/subsystem in time order (empty periods dropped
     for proportions and medians)."""
-    s = table[(table["metric"] == metric) & (table["subsystem"] == subsystem)]
+    return usable_rows(table[(table["metric"] == metric) & (table["subsystem"] == subsystem)],
+                       metric, kind)
+
+
+def usable_rows(s: pd.DataFrame, metric: str, kind: str | None = None) -> pd.DataFrame:
+    """:func:`select_series` of rows already of one metric and subsystem (in table
+    order, as a ``groupby`` keeps them): for callers that split the table once."""
     s = s.sort_values("period_start").reset_index(drop=True)
     kind = kind or metric_kind(metric)
     if kind == "proportion" or METRICS.get(metric) in ("median", "total"):
