@@ -62,18 +62,30 @@ def _components(d: pd.DataFrame, levels: list[str]) -> tuple[np.ndarray, np.ndar
     k = len(levels)
     gi = pd.Categorical(d["g"], categories=levels).codes
     t, e = d["t"].to_numpy(), d["e"].to_numpy()
-    O, E, V = np.zeros(k), np.zeros(k), np.zeros((k, k))
-    for s in np.unique(t[e]):
-        at = t >= s
-        n_j = np.bincount(gi[at], minlength=k).astype(float)
-        d_j = np.bincount(gi[(t == s) & e], minlength=k).astype(float)
-        n, dd = n_j.sum(), d_j.sum()
-        O += d_j
-        E += dd * n_j / n
-        if n > 1:
-            f = dd * (n - dd) / (n - 1)
-            p = n_j / n
-            V += f * (np.diag(p) - np.outer(p, p))
+    times = np.unique(t[e])
+    # at every distinct event time s (rows) and group (columns): at risk #{t >= s} by a
+    # binary search in the group's sorted times, events #{t = s, event} by counting
+    n_all = np.empty((len(times), k))
+    for g in range(k):
+        tg = np.sort(t[gi == g])
+        n_all[:, g] = len(tg) - np.searchsorted(tg, times, side="left")
+    d_all = np.bincount(np.searchsorted(times, t[e]) * k + gi[e],
+                        minlength=len(times) * k).reshape(len(times), k).astype(float)
+    n, dd = n_all.sum(axis=1), d_all.sum(axis=1)
+    # the per-time terms, each as the loop over times computed it, then added in time
+    # order from zero (add.accumulate is sequential): the same sums, number for number
+    zero = np.zeros((1, k))
+    O = np.add.accumulate(np.concatenate([zero, d_all]))[-1]
+    E = np.add.accumulate(np.concatenate([zero, dd[:, None] * n_all / n[:, None]]))[-1]
+    many = n > 1
+    f = dd[many] * (n[many] - dd[many]) / (n[many] - 1)
+    p = n_all[many] / n[many, None]
+    outer = p[:, :, None] * p[:, None, :]
+    diag = np.zeros_like(outer)
+    idx = np.arange(k)
+    diag[:, idx, idx] = p
+    V = np.add.accumulate(np.concatenate([np.zeros((1, k, k)),
+                                          f[:, None, None] * (diag - outer)]))[-1]
     return O - E, V, O, E
 
 

@@ -103,9 +103,11 @@ def kaplan_meier(durations: Any, observed: Any = None, *, level: float = 0.95,
         raise InsufficientData("no lifetimes to estimate from")
     if np.any(t < 0) or np.any(~np.isfinite(t)):
         raise ValueError("durations must be finite and non-negative")
-    ut = np.unique(t[e])
-    n_at = np.array([(t >= s).sum() for s in ut], float)
-    d = np.array([((t == s) & e).sum() for s in ut], float)
+    # risk set #{t_i >= s} and events #{t_i = s, e_i} at each distinct event time, by one
+    # sort instead of a pass over every lifetime per time (quadratic at kernel scale)
+    ut, d = np.unique(t[e], return_counts=True)
+    n_at = (len(t) - np.searchsorted(np.sort(t), ut, side="left")).astype(float)
+    d = d.astype(float)
     s_hat = np.cumprod(1.0 - d / n_at)
     with np.errstate(divide="ignore", invalid="ignore"):
         gw = np.cumsum(d / (n_at * (n_at - d)))

@@ -84,6 +84,14 @@ def forward_at_risk(x: np.ndarray, t: float) -> int:
     return int((x >= t).sum())
 
 
+def forward_at_risk_sorted(xs: np.ndarray, ts: np.ndarray) -> np.ndarray:
+    """:func:`forward_at_risk` at every time of ``ts`` at once, ``xs`` sorted ascending:
+    one binary search per time instead of a pass over ``xs`` (NaN, sorted last, is
+    never at risk, as in ``x >= t``)."""
+    n = len(xs) - int(np.isnan(xs).sum())
+    return (n - np.searchsorted(xs, ts, side="left")).clip(min=0)
+
+
 def reverse_at_risk(L: np.ndarray, W: np.ndarray, t: float) -> int:
     """``R(t) = #{L_i <= t <= W_i}``: the reverse-time risk set of the Lynden-Bell estimate."""
     return int(((L <= t) & (W >= t)).sum())
@@ -141,8 +149,7 @@ def empirical_quantiles(x: Any, *, quantiles: tuple[float, ...], level: float, u
     n = len(xs)
     if support_limit is None and n:
         ut = np.unique(xs)
-        support_limit = support_cut(ut, np.array([forward_at_risk(xs, t) for t in ut]),
-                                    min_at_risk)
+        support_limit = support_cut(ut, forward_at_risk_sorted(xs, ut), min_at_risk)
     out = []
     for q in quantiles:
         v = float(np.quantile(xs, q, method="inverted_cdf")) if n else None
