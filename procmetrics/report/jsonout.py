@@ -52,17 +52,71 @@ def _rounded(value: Any) -> Any:
 
 
 def dumps(obj: Any) -> str:
-    """Deterministic JSON text (sorted keys, two-space indent, trailing newline)."""
-    return json.dumps(canonical(obj), sort_keys=True, indent=2, ensure_ascii=False,
-                      allow_nan=False) + "\n"
+    """Deterministic JSON text (sorted keys, two-space indent, trailing newline).
+
+    The text of ``json.dumps(canonical(obj), sort_keys=True, indent=2,
+    ensure_ascii=False, allow_nan=False)``, written by :func:`_encode` (the standard
+    library's encoder runs in Python when it indents, a chain of generators per
+    nesting level: a third of the JSON step at kernel scale)."""
+    out: list[str] = []
+    _encode(canonical(obj), "\n", out)
+    out.append("\n")
+    return "".join(out)
 
 
-def frame_records(df: pd.DataFrame) -> list[dict[str, Any]]:
-    return canonical(df.reset_index(drop=True))
+_str = json.encoder.encode_basestring     # ensure_ascii=False: the C function
+
+
+def _encode(o: Any, nl: str, out: list[str]) -> None:
+    """Append the indented JSON text of the canonical value ``o``; ``nl`` is the newline
+    and indent of its own level (the standard encoder's rules, in its order of checks)."""
+    if isinstance(o, str):
+        out.append(_str(o))
+    elif o is None:
+        out.append("null")
+    elif o is True:
+        out.append("true")
+    elif o is False:
+        out.append("false")
+    elif isinstance(o, int):
+        out.append(int.__repr__(o))
+    elif isinstance(o, float):
+        if o != o or o in (math.inf, -math.inf):
+            raise ValueError(f"Out of range float values are not JSON compliant: {o!r}")
+        out.append(float.__repr__(o))
+    elif isinstance(o, (list, tuple)):
+        if not o:
+            out.append("[]")
+            return
+        inner = nl + "  "
+        out.append("[")
+        first = True
+        for v in o:
+            out.append(inner if first else "," + inner)
+            first = False
+            _encode(v, inner, out)
+        out.append(nl + "]")
+    elif isinstance(o, dict):
+        if not o:
+            out.append("{}")
+            return
+        inner = nl + "  "
+        out.append("{")
+        first = True
+        for k, v in sorted(o.items()):
+            if not isinstance(k, str):
+                raise TypeError(f"keys must be str after canonical(), not {type(k).__name__}")
+            out.append((inner if first else "," + inner) + _str(k) + ": ")
+            first = False
+            _encode(v, inner, out)
+        out.append(nl + "}")
+    else:
+        raise TypeError(f"Object of type {o.__class__.__name__} is not JSON serializable")
 
 
 def report_dict(report: Report, csv_names: dict[str, str]) -> dict[str, Any]:
-    """The JSON document: every figure and table with its numbers, flags and claims."""
+    """The JSON document: every figure and table with its numbers, flags and claims
+    (table rows as DataFrames: :func:`dumps` makes the whole of it JSON-ready)."""
     figures = []
     section_of = {b.ref: s.key for s in report.sections for b in s.blocks if b.ref}
     for fig in report.figures.values():
@@ -79,7 +133,9 @@ def report_dict(report: Report, csv_names: dict[str, str]) -> dict[str, Any]:
             "number": tab.number, "key": tab.key, "section": section_of.get(tab.key, ""),
             "title": tab.title, "note": tab.note,
             "columns": [{"key": k, "heading": h} for k, h in tab.columns],
-            "rows": frame_records(tab.data.reindex(columns=[k for k, _ in tab.columns])),
+            # a frame: :func:`dumps` converts the whole document once
+            "rows": tab.data.reindex(columns=[k for k, _ in tab.columns])
+            .reset_index(drop=True),
             "csv": csv_names.get(tab.key), "flags": [f.to_dict() for f in tab.flags],
         })
     return {
