@@ -269,6 +269,12 @@ def test_bootstrap_replicates_without_sorting_equal_the_sorting_estimate() -> No
             full = np.unique(L)
             assert np.array_equal(resample(i, full)[0],
                                   est._lynden_bell(L[i], W[i], full)[0], equal_nan=True)
+            # the sample's own values as the grid: a running count replaces the search
+            own, g = resample(i, resample.values)
+            assert g is resample.values and np.array_equal(own, resample(i, full)[0],
+                                                           equal_nan=True)
+            assert np.array_equal(own, est._lynden_bell(L[i], W[i], full)[0],
+                                  equal_nan=True)
 
 
 def test_pointwise_band_without_the_replicate_matrix_equals_numpy_quantile() -> None:

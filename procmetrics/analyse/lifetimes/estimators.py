@@ -151,7 +151,9 @@ def _lynden_bell(L: np.ndarray, W: np.ndarray, grid: np.ndarray) -> tuple[np.nda
 
 
 def _lb_from_counts(s: np.ndarray, d: np.ndarray, R: np.ndarray,
-                    grid: np.ndarray) -> tuple[np.ndarray, ...]:
+                    grid: np.ndarray, idx: np.ndarray | None = None) -> tuple[np.ndarray, ...]:
+    """F* on ``grid``; ``idx``: ``searchsorted(s, grid, side="right")`` when the caller
+    knows it already."""
     frac = d / R
     with np.errstate(divide="ignore"):
         logf = np.where(frac >= 1.0, -np.inf, np.log1p(-np.minimum(frac, 1.0)))
@@ -159,7 +161,8 @@ def _lb_from_counts(s: np.ndarray, d: np.ndarray, R: np.ndarray,
     tail = np.concatenate([np.cumsum(logf[::-1])[::-1], [0.0]])
     if grid is s:                 # the distinct lifetimes themselves: s[k] sits at k + 1
         return np.exp(tail[1:]), s, d, R
-    idx = np.searchsorted(s, grid, side="right")
+    if idx is None:
+        idx = np.searchsorted(s, grid, side="right")
     return np.exp(tail[idx]), s, d, R
 
 
@@ -241,6 +244,11 @@ class _LyndenBellResampler:
         R_all = le - cw[self.w_lt]
         keep = d_all > 0
         s = self.values[keep]
+        if grid is self.values:
+            # the sample's own distinct lifetimes: the resample's values <= values[j]
+            # are the kept ones up to j, so the binary search is a running count
+            return _lb_from_counts(s, d_all[keep], R_all[keep], grid,
+                                   np.cumsum(keep))[0], grid
         g = s if grid is None else grid
         return _lb_from_counts(s, d_all[keep], R_all[keep], g)[0], g
 
@@ -290,9 +298,10 @@ def truncated_product_limit(lifetimes: Any, windows: Any, *, level: float = 0.95
                          "check the end date and the basis")
     rng = rng if rng is not None else np.random.default_rng(20240601)
     F, s, d, R = _lynden_bell(L, W, np.unique(L))
-    grid = s
     n = len(L)
     resample = _LyndenBellResampler(L, W)
+    # every value is a lifetime of the sample, so s holds the resampler's values
+    grid = resample.values if np.array_equal(s, resample.values) else s
     a = (1 - level) / 2
     F_low, F_high = (pointwise_band((resample(rng.integers(0, n, n), grid)[0]
                                      for _ in range(n_boot)), n_boot, len(grid), a)
