@@ -67,6 +67,26 @@ def dumps(obj: Any) -> str:
 _str = json.encoder.encode_basestring     # ensure_ascii=False: the C function
 
 
+def _key(k: Any) -> str:
+    if not isinstance(k, str):
+        raise TypeError(f"keys must be str after canonical(), not {type(k).__name__}")
+    return _str(k)
+
+
+def _container(brackets: str, items: list[tuple[str, Any]], nl: str, out: list[str]) -> None:
+    """A list (items with empty prefixes) or an object (prefix: the key and ``": "``)."""
+    if not items:
+        out.append(brackets)
+        return
+    inner = sep = nl + "  "
+    out.append(brackets[0])
+    for prefix, v in items:
+        out.append(sep + prefix)
+        sep = "," + inner
+        _encode(v, inner, out)
+    out.append(nl + brackets[1])
+
+
 def _encode(o: Any, nl: str, out: list[str]) -> None:
     """Append the indented JSON text of the canonical value ``o``; ``nl`` is the newline
     and indent of its own level (the standard encoder's rules, in its order of checks)."""
@@ -85,31 +105,9 @@ def _encode(o: Any, nl: str, out: list[str]) -> None:
             raise ValueError(f"Out of range float values are not JSON compliant: {o!r}")
         out.append(float.__repr__(o))
     elif isinstance(o, (list, tuple)):
-        if not o:
-            out.append("[]")
-            return
-        inner = nl + "  "
-        out.append("[")
-        first = True
-        for v in o:
-            out.append(inner if first else "," + inner)
-            first = False
-            _encode(v, inner, out)
-        out.append(nl + "]")
+        _container("[]", [("", v) for v in o], nl, out)
     elif isinstance(o, dict):
-        if not o:
-            out.append("{}")
-            return
-        inner = nl + "  "
-        out.append("{")
-        first = True
-        for k, v in sorted(o.items()):
-            if not isinstance(k, str):
-                raise TypeError(f"keys must be str after canonical(), not {type(k).__name__}")
-            out.append((inner if first else "," + inner) + _str(k) + ": ")
-            first = False
-            _encode(v, inner, out)
-        out.append(nl + "}")
+        _container("{}", [(_key(k) + ": ", v) for k, v in sorted(o.items())], nl, out)
     else:
         raise TypeError(f"Object of type {o.__class__.__name__} is not JSON serializable")
 
