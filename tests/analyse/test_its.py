@@ -238,6 +238,8 @@ def test_level_changes_of_a_split_table_equal_one_test_at_a_time():
             continue
         assert repr(r) == repr(one)         # NaN bounds compare equal as text
     assert sum(isinstance(r, InsufficientData) for *_, r in got) >= len(metrics)
+    parts = dict(tuple(table.groupby("subsystem", sort=False)))      # as compare has them
+    assert repr(list(its.level_changes(table, metrics, AT, subs, parts=parts))) == repr(got)
 
 
 def test_design_is_kept_per_grid_and_each_caller_gets_a_copy():

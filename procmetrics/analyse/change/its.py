@@ -52,7 +52,7 @@ Newey, W. K. & West, K. D. (1987). Econometrica 55:703-708.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Any, Iterator, Sequence
+from typing import Any, Iterator, Mapping, Sequence
 
 import numpy as np
 import pandas as pd
@@ -243,19 +243,27 @@ def level_change_at(table: pd.DataFrame, metric: str, at: pd.Timestamp | str, *,
 
 def level_changes(table: pd.DataFrame, metrics: Sequence[str], at: pd.Timestamp | str,
                   subsystems: Sequence[str], *, alpha: float = 0.05,
-                  dispersion_threshold: float = 1.5, hac: str = "auto"
+                  dispersion_threshold: float = 1.5, hac: str = "auto",
+                  parts: Mapping[str, pd.DataFrame] | None = None
                   ) -> Iterator[tuple[str, str, LevelChange | InsufficientData]]:
     """:func:`level_change_at` of every subsystem and metric (subsystem by subsystem,
-    metrics in the given order), with the table split into its series once: yields
-    ``(subsystem, metric, result)``, the result being the :class:`InsufficientData`
-    the test raised when the data cannot support it."""
+    metrics in the given order), each subsystem's rows split into its series once:
+    yields ``(subsystem, metric, result)``, the result being the
+    :class:`InsufficientData` the test raised when the data cannot support it.
+
+    ``parts``: the table's rows by subsystem when the caller has them (``groupby``
+    order); the series of one subsystem at a time are held, not all of them.
+    """
     at = _utc(at)
-    series = dict(tuple(table.groupby(["subsystem", "metric"], sort=False)))
+    if parts is None:
+        parts = dict(tuple(table.groupby("subsystem", sort=False)))
     empty = table.iloc[:0]
     for sub in subsystems:
+        part = parts.get(sub, empty)
+        series = dict(tuple(part.groupby("metric", sort=False))) if len(part) else {}
         for m in metrics:
             try:
-                yield sub, m, _level_change(series.get((sub, m), empty), m, at, sub, None,
+                yield sub, m, _level_change(series.get(m, empty), m, at, sub, None,
                                             alpha, dispersion_threshold, hac, selected=True)
             except InsufficientData as exc:
                 yield sub, m, exc

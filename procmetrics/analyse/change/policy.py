@@ -125,7 +125,7 @@ def compare_policy(commits: pd.DataFrame, trailers: pd.DataFrame, *, at: pd.Time
     rows = []
     subs = [s for s in parts if s != ALL]
     # the level change only: its estimate and interval as in the ITS
-    for s, m, r in level_changes(table, metrics, at, subs, alpha=alpha):
+    for s, m, r in level_changes(table, metrics, at, subs, alpha=alpha, parts=parts):
         if isinstance(r, InsufficientData):
             skipped.append(f"ITS {m} [{s}]: {r}")
             continue
