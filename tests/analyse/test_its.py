@@ -179,7 +179,7 @@ def test_level_change_at_is_the_guarded_level_change_of_the_full_its():
     subsystem series; and the full ITS gives the same estimate, interval and p-value."""
     import statsmodels.api as sm
 
-    from procmetrics.analyse.change.its import level_change_at
+    from procmetrics.analyse.change.levels import level_change_at
 
     table = _table(1, 0.4, 0.7)
     for sub in ("net", "fs"):
@@ -207,7 +207,7 @@ def test_level_change_at_is_the_guarded_level_change_of_the_full_its():
 
 def test_level_change_at_says_not_estimable_where_the_its_caveat_does():
     # Simulation with a known degenerate truth: no review before the date.
-    from procmetrics.analyse.change.its import level_change_at
+    from procmetrics.analyse.change.levels import level_change_at
 
     table = _table(3, 0.0, 0.5)
     lc = level_change_at(table, "review_coverage", AT, subsystem="net")
@@ -223,7 +223,7 @@ def test_level_changes_of_a_split_table_equal_one_test_at_a_time():
     """``compare`` splits the metric table into its series once (``level_changes``);
     every result, and every refusal, equals ``level_change_at`` on the whole table
     (oracle above: statsmodels), including a subsystem the table lacks."""
-    from procmetrics.analyse.change import its
+    from procmetrics.analyse.change import levels as its
 
     table = _table(1, 0.4, 0.7)
     metrics = ("review_coverage", "fix_ratio", "commits")
@@ -242,16 +242,34 @@ def test_level_changes_of_a_split_table_equal_one_test_at_a_time():
     assert repr(list(its.level_changes(table, metrics, AT, subs, parts=parts))) == repr(got)
 
 
-def test_design_is_kept_per_grid_and_each_caller_gets_a_copy():
-    from procmetrics.analyse.change import its
+def test_design_is_kept_per_grid_and_each_caller_gets_a_copy(monkeypatch):
+    """Inside kept_results the design is computed once per period grid and date (two
+    subsystems with the same grid share it) and each caller gets a copy; outside,
+    nothing is kept."""
+    from procmetrics.analyse.change import itsfit
+    from procmetrics.analyse.memo import kept_results
 
     table = _table(1, 0.4, 0.7)
-    s = table[(table.metric == "review_coverage") & (table.subsystem == "net")]
-    X, t, post = its._design(s, AT)
-    X[:] = 0.0
-    t[:] = 0.0
-    X2, t2, post2 = its._design(s, AT)
-    assert X2[:, 0].tolist() == [1.0] * len(s) and np.abs(t2).sum() > 0
-    assert np.array_equal(post, post2) and np.array_equal(X2[:, 2], post2)
-    later = its._design(s, AT + pd.Timedelta(days=90))[2]       # another date, another key
-    assert later.sum() < post2.sum()
+    net, fs = (table[(table.metric == "review_coverage") & (table.subsystem == sub)]
+               for sub in ("net", "fs"))
+    calls = []
+    real = itsfit.period_midpoints
+
+    def counted(s):
+        calls.append(len(s))
+        return real(s)
+
+    monkeypatch.setattr(itsfit, "period_midpoints", counted)    # one call per computation
+    with kept_results():
+        X, t, post = itsfit.design(net, AT)
+        X[:] = 0.0
+        t[:] = 0.0
+        X2, t2, post2 = itsfit.design(fs, AT)       # same grid: kept, a fresh copy
+        assert len(calls) == 1
+        assert X2[:, 0].tolist() == [1.0] * len(fs) and np.abs(t2).sum() > 0
+        assert np.array_equal(post, post2) and np.array_equal(X2[:, 2], post2)
+        later = itsfit.design(net, AT + pd.Timedelta(days=90))[2]  # another key
+        assert len(calls) == 2 and later.sum() < post2.sum()
+    itsfit.design(net, AT)
+    itsfit.design(net, AT)
+    assert len(calls) == 4                  # outside a block: the plain function

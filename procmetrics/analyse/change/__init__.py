@@ -2,7 +2,7 @@
 comparisons, multiplicity, and the before/after analysis of a policy date.
 
 May import: ``procmetrics.analyse.measures``, the shared modules
-(``result``, ``glmfit``, ``diagnostics``) and ``errors``.
+(``result``, ``glmfit``, ``diagnostics``, ``memo``) and ``errors``.
 """
 from __future__ import annotations
 
@@ -20,6 +20,9 @@ _EXPORTS: dict[str, str] = {
     "ITSResult": "its",
     "interrupted_time_series": "its",
     "relate_changes_to_date": "its",
+    "LevelChange": "levels",
+    "level_change_at": "levels",
+    "level_changes": "levels",
     "compare_distributions": "twosample",
     "compare_proportions": "twosample",
     "MultiplicityResult": "multiplicity",

@@ -29,7 +29,8 @@ import pandas as pd
 
 from procmetrics.analyse.change.changepoints import ChangePointConfig, changes_for_metric
 from procmetrics.analyse.change.its import (ChangeVsDate, ITSResult, interrupted_time_series,
-                                     level_changes, relate_changes_to_date)
+                                     relate_changes_to_date)
+from procmetrics.analyse.change.levels import level_changes
 from procmetrics.analyse.measures.metrics import ALL, MetricConfig, commit_flags, compute_period_metrics
 from procmetrics.analyse.change.multiplicity import MultiplicityResult, adjust_pvalues
 from procmetrics.analyse.result import Caveat, to_plain
