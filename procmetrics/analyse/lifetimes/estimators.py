@@ -217,31 +217,31 @@ def pointwise_band(replicates: Iterator[np.ndarray], n_boot: int, width: int, a:
 class _LyndenBellResampler:
     """:func:`_lynden_bell` of bootstrap resamples ``(L[i], W[i])`` without sorting each.
 
-    A resample is a count per observation (``bincount`` of the drawn indices); with
-    the sample sorted once, the distinct lifetimes, their counts and both risk-set
-    terms are cumulative sums of those counts. The integers ``d`` and ``R`` are the
-    ones :func:`_lynden_bell` finds by sorting, so the replicate is the same number
-    for number, in O(n) instead of O(n log n) per resample.
+    Every drawn lifetime is one of the sample's distinct lifetimes ``values``, so a
+    resample needs only counts over those: ``d`` (draws per distinct lifetime) is a
+    ``bincount`` of the draws' lifetime codes, ``#{L <= values[j]}`` its running sum,
+    and ``#{W < values[j]}`` the running sum of a ``bincount`` of the draws' window
+    codes (the first distinct lifetime above each window). These are the integers
+    :func:`_lynden_bell` finds by sorting the drawn pairs, so the replicate is the
+    same number for number, in two gathers and two counts of the ``n`` draws instead
+    of a sort.
     """
 
     def __init__(self, L: np.ndarray, W: np.ndarray) -> None:
         self.n = len(L)
-        self.order = np.argsort(L, kind="stable")
-        Ls = L[self.order]
-        self.values, self.starts = np.unique(Ls, return_index=True)
-        self.w_order = np.argsort(W[self.order], kind="stable")
-        # per distinct value: rows with L <= value, rows (by window) with W < value
-        self.n_le = np.searchsorted(Ls, self.values, side="right")
-        self.w_lt = np.searchsorted(np.sort(W), self.values, side="left")
+        self.values = np.unique(L)
+        self.k = len(self.values)
+        # each observation's lifetime as the index of its distinct value, and its window
+        # as the index of the first distinct lifetime above it: W < values[j] iff j >= code
+        self.code_l = np.searchsorted(self.values, L, side="left")
+        self.code_w = np.searchsorted(self.values, W, side="right")
 
     def __call__(self, i: np.ndarray, grid: np.ndarray | None = None
                  ) -> tuple[np.ndarray, np.ndarray]:
         """F* of the resample on ``grid`` (default: its distinct lifetimes), and that grid."""
-        c = np.bincount(i, minlength=self.n)[self.order]
-        d_all = np.add.reduceat(c, self.starts)
-        le = np.cumsum(c)[self.n_le - 1]
-        cw = np.concatenate([[0], np.cumsum(c[self.w_order])])
-        R_all = le - cw[self.w_lt]
+        d_all = np.bincount(self.code_l[i], minlength=self.k)
+        w_lt = np.cumsum(np.bincount(self.code_w[i], minlength=self.k + 1)[:self.k])
+        R_all = np.cumsum(d_all) - w_lt
         keep = d_all > 0
         s = self.values[keep]
         if grid is self.values:
