@@ -160,6 +160,7 @@ def _canon_column(col: pd.Series) -> pd.Series:
 
 
 _ESCAPED = ("\\", "\t", "\n")
+_STR_OR_NONE = {str, type(None)}
 
 
 def _canon_values(col: pd.Series) -> list[str]:
@@ -168,13 +169,14 @@ def _canon_values(col: pd.Series) -> list[str]:
     joined text at C speed) skip the per-value pandas string passes."""
     dt = col.dtype
     if isinstance(dt, np.dtype) and dt.kind in "iu":
-        return [str(v) for v in col.to_numpy().tolist()]
+        return list(map(str, col.to_numpy().tolist()))
     if dt == object and len(col):
         vals = col.tolist()
-        if all(type(v) is str or v is None for v in vals):
-            joined = "\x00".join(v for v in vals if v is not None)
+        kinds = set(map(type, vals))
+        if kinds <= _STR_OR_NONE:
+            joined = "\x00".join(filter(None, vals))     # (drops None and "")
             if not any(ch in joined for ch in _ESCAPED):
-                return ["\\N" if v is None else v for v in vals]
+                return vals if kinds == {str} else ["\\N" if v is None else v for v in vals]
             return ["\\N" if v is None else _escape(v) for v in vals]
     return _canon_column(col).tolist()
 
@@ -189,7 +191,7 @@ def canonical_column_lines(df: pd.DataFrame, columns: Iterable[str]) -> list[str
         return []
     cols = [_canon_values(df[c]) if c in df.columns else ["\\N"] * len(df)
             for c in columns]
-    return ["\t".join(row) for row in zip(*cols)] if len(cols) > 1 else cols[0]
+    return list(map("\t".join, zip(*cols))) if len(cols) > 1 else cols[0]
 
 
 def multiset_digest(batches: Iterable[list[str]]) -> str:

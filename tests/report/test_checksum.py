@@ -57,3 +57,34 @@ def test_column_lines_escape_text_as_the_value_by_value_definition() -> None:
     assert sorted(canonical_column_lines(df, cols)) == canonical_lines(df, cols)
     assert canonical_column_lines(df, ["a"])[2] == "\\\\N"     # a literal \N is escaped
     assert canonical_column_lines(df, ["a"])[1] == "\\N"       # NULL
+
+
+def test_digest_sum_equals_the_integer_definition() -> None:
+    """The word-column sum of the digests is the integer sum of the definition
+    (``int.from_bytes(sha256(line), "big")`` added line by line, modulo 2**256): lines
+    with non-ASCII text, a lone surrogate, empty lines, several batches, and enough lines
+    for the sum to pass 2**256 many times over."""
+    import hashlib
+
+    from procmetrics.store.digests import count_and_digest
+
+    rng = np.random.default_rng(20261203)
+    alphabet = list("abc\tÄß漢\\") + ["\udc80", "\n", ""]
+    batches = [[("".join(rng.choice(alphabet, int(rng.integers(0, 12)))))
+                for _ in range(int(rng.integers(0, 3000)))] for _ in range(7)]
+    batches.append([])
+    lines = [line for batch in batches for line in batch]
+    total = sum(int.from_bytes(hashlib.sha256(line.encode("utf-8", "surrogatepass")).digest(),
+                               "big") for line in lines)
+    assert total > 1 << 256                       # the sum wraps: the modulus matters
+    assert count_and_digest(iter(batches)) == (len(lines), format(total % (1 << 256), "064x"))
+    assert count_and_digest(iter([])) == (0, "0" * 64)
+
+
+def test_text_column_with_empty_strings_and_no_nulls_keeps_them() -> None:
+    """A text column without NULLs is taken as it is (empty strings stay empty)."""
+    import pandas as pd
+
+    df = pd.DataFrame({"a": ["", "x", ""], "b": ["u", "", "w"]})
+    assert canonical_column_lines(df, ["a", "b"]) == ["\tu", "x\t", "\tw"]
+    assert sorted(canonical_column_lines(df, ["a", "b"])) == canonical_lines(df, ["a", "b"])
