@@ -39,7 +39,8 @@ def require_pg() -> str:
 def scratch_pg_url(label: str = "t") -> Iterator[str]:
     """A URL to a fresh, empty PostgreSQL schema; the schema is dropped on exit."""
     base = require_pg()
-    name = f"pm_{label}_{uuid.uuid4().hex[:12]}"
+    # lower case: the search_path option folds an unquoted name to lower case
+    name = f"pm_{label}_{uuid.uuid4().hex[:12]}".lower()
     admin = create_engine(base, isolation_level="AUTOCOMMIT")
     try:
         with admin.connect() as conn:

@@ -12,14 +12,18 @@ by itself when the holder dies (a killed run never blocks the next one):
   record locks belong to a process, so two threads of one process are not kept
   apart; runs of different repositories lock different bytes and go on in
   parallel.
-* PostgreSQL: a session advisory lock ``(PG_LOCK_CLASS, repo_id)`` held on a
-  connection of its own for the whole run.
+* PostgreSQL: a session advisory lock ``(class, repo_id)`` held on a connection
+  of its own for the whole run. Advisory locks belong to the database, not to a
+  schema, and every store numbers its repositories from 1: the class is
+  :func:`lock_class` of the store's schema, so two stores in different schemas
+  of one database never block each other (they did when the class was fixed).
 * Other databases and in-memory SQLite: no lock.
 """
 from __future__ import annotations
 
 import contextlib
 import os
+import zlib
 from typing import Iterator
 
 from sqlalchemy import text
@@ -27,8 +31,15 @@ from sqlalchemy.engine import Engine
 
 from procmetrics.errors import StoreBusy, StoreError
 
-PG_LOCK_CLASS = 0x706D696E      # "pmin"
 LOCK_SUFFIX = "-mining.lock"
+
+
+def lock_class(schema: str) -> int:
+    """The advisory lock class of the store in ``schema``: a signed 32-bit number from
+    ``"pmin:" + schema`` (CRC-32; two schemas sharing one would only make their runs of
+    one repository id wait for each other, never mix their rows)."""
+    value = zlib.crc32(("pmin:" + schema).encode("utf-8"))
+    return value - (1 << 32) if value >= 1 << 31 else value
 
 
 def _busy(name: str) -> StoreBusy:
@@ -63,8 +74,9 @@ def repository_lock(engine: Engine, repo_id: int, name: str) -> Iterator[None]:
         return
     if dialect == "postgresql":
         with engine.connect() as conn:
+            cls = lock_class(str(conn.execute(text("SELECT current_schema()")).scalar()))
             got = conn.execute(text("SELECT pg_try_advisory_lock(:c, :r)"),
-                               {"c": PG_LOCK_CLASS, "r": repo_id}).scalar()
+                               {"c": cls, "r": repo_id}).scalar()
             conn.commit()
             if not got:
                 raise _busy(name)
@@ -73,7 +85,7 @@ def repository_lock(engine: Engine, repo_id: int, name: str) -> Iterator[None]:
             finally:
                 with contextlib.suppress(Exception):    # a lost session dropped it already
                     conn.execute(text("SELECT pg_advisory_unlock(:c, :r)"),
-                                 {"c": PG_LOCK_CLASS, "r": repo_id})
+                                 {"c": cls, "r": repo_id})
                     conn.commit()
         return
     yield
