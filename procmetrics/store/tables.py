@@ -11,6 +11,7 @@ from __future__ import annotations
 from contextlib import contextmanager
 from typing import Any, Callable, Iterable, Iterator
 
+import numpy as np
 import pandas as pd
 from sqlalchemy import and_, case, func, select
 from sqlalchemy.engine import Connection, Engine
@@ -56,6 +57,32 @@ _BOOL_COLUMNS = {"is_merge", "stable_request", "is_revert", "is_binary", "subjec
                  "in_trailer_block", "is_annotated", "is_shallow"}
 
 
+#: text columns whose values repeat from row to row (people, keys, names, the repository):
+#: the driver makes a new string for every cell; :func:`_read_frame` lets equal values
+#: share one (at a million commits the per-cell copies of these columns were over a GiB)
+_REPEATED_TEXT: dict[str, tuple[str, ...]] = {
+    "commits": ("repo", "author_name", "author_email", "committer_name", "committer_email"),
+    "commit_subsystems": ("repo",),
+    "file_changes": ("repo", "hash", "path", "old_path", "change_type"),
+    "trailers": ("repo", "hash", "key", "raw_key", "value", "person_name", "person_email"),
+    "fix_links": ("repo", "status", "introducer_hash"),
+    "reverts": ("repo", "status"),
+    "unparsed_references": ("repo", "hash", "kind"),
+    "tags": ("repo",),
+    "patch_ids": ("repo",),
+    "backport_lines": ("repo", "hash", "style"),
+}
+
+
+def _share_equal_values(df: pd.DataFrame, columns: Iterable[str]) -> None:
+    """Equal values of each object column become one object (values unchanged)."""
+    for c in columns:
+        if c in df.columns and df[c].dtype == object and len(df):
+            memo: dict[Any, Any] = {}
+            keep = memo.setdefault
+            df[c] = np.array([keep(v, v) for v in df[c].tolist()], dtype=object)
+
+
 def _repo_filter(stmt: Select, repo: str | None) -> Select:
     return stmt.where(s.repository.c.name == repo) if repo is not None else stmt
 
@@ -96,10 +123,16 @@ def _read(engine: Engine | Connection, stmt: Select, name: str,
     else:
         with engine.connect() as conn:
             df = _frame(conn, stmt)
+    return _read_frame(df, name, order)
+
+
+def _read_frame(df: pd.DataFrame, name: str, order: list[str] | None = None) -> pd.DataFrame:
+    """Rows fetched for the tidy table ``name`` in its shape (see :func:`_read`)."""
     if order:
         df = df.sort_values(order, kind="mergesort", ignore_index=True)
     cols = COLUMNS[name]
     df = df.reindex(columns=cols)
+    _share_equal_values(df, _REPEATED_TEXT.get(name, ()))
     for c in cols:
         if c in _DATE_COLUMNS:
             df[c] = _to_utc(df[c])
@@ -175,11 +208,15 @@ def commits(engine: Engine, repo: str | None = None) -> pd.DataFrame:
 def commit_subsystems(engine: Engine, repo: str | None = None) -> pd.DataFrame:
     """One row per (commit, subsystem) the commit touched.
 
-    The distinct (commit, subsystem) pairs are found on integer ids first and only
-    then joined to the hash and the name: a ``DISTINCT`` over the text columns
-    sorted every touched path's row (ten times slower at 200,000 commits).
+    The distinct (commit, subsystem) pairs are found on integer ids (a ``DISTINCT``
+    over the text columns sorted every touched path's row, ten times slower at
+    200,000 commits) and fetched as ids; the hash, repository and subsystem name of
+    each pair are then looked up from one read of the visible commits and one of the
+    subsystems. A kernel history has about four pairs per commit: fetched as text,
+    each pair's hash, repository and name were strings of their own (3.8 million
+    rows at a million commits); looked up, the pairs of one commit share its strings.
     """
-    g, fc, ps, sub = s.commit, s.file_change, s.path_subsystem, s.subsystem
+    fc, ps, sub, r = s.file_change, s.path_subsystem, s.subsystem, s.repository
     inner = s.commit.alias("inner_commit")
     pairs = (
         select(fc.c.commit_id.label("commit_id"), ps.c.subsystem_id.label("subsystem_id"))
@@ -188,17 +225,51 @@ def commit_subsystems(engine: Engine, repo: str | None = None) -> pd.DataFrame:
         .join(inner, inner.c.commit_id == fc.c.commit_id)
         .join(ps, and_(ps.c.repo_id == inner.c.repo_id, ps.c.path == fc.c.path))
         .where(inner.c.run_id.in_(_complete_runs()))
-        .subquery()
     )
-    stmt = (
-        select(s.repository.c.name.label("repo"), g.c.hash, sub.c.name.label("subsystem"))
-        .select_from(pairs)
-        .join(g, g.c.commit_id == pairs.c.commit_id)
-        .join(s.repository, s.repository.c.repo_id == g.c.repo_id)
-        .join(sub, sub.c.subsystem_id == pairs.c.subsystem_id)
-    )
-    return _read(engine, _repo_filter(stmt, repo), "commit_subsystems",
-                 order=["repo", "hash", "subsystem"])
+    g = s.commit
+    hashes = (select(g.c.commit_id, g.c.hash, g.c.repo_id)
+              .where(g.c.run_id.in_(_complete_runs())))
+    names = select(sub.c.subsystem_id, sub.c.name)
+    repos = select(r.c.repo_id, r.c.name)
+    if repo is not None:
+        wanted = select(r.c.repo_id).where(r.c.name == repo).scalar_subquery()
+        pairs = pairs.where(inner.c.repo_id == wanted)
+        hashes = hashes.where(g.c.repo_id == wanted)
+        names = names.where(sub.c.repo_id == wanted)
+        repos = repos.where(r.c.repo_id == wanted)
+
+    def fetch(conn: Connection) -> tuple[pd.DataFrame, ...]:
+        return tuple(_frame(conn, q) for q in (pairs, hashes, names, repos))
+
+    if isinstance(engine, Connection):
+        ids, commit_rows, subsystem_rows, repo_rows = fetch(engine)
+    else:       # the four reads from one snapshot, so every id is found
+        with snapshot(engine) as conn:
+            ids, commit_rows, subsystem_rows, repo_rows = fetch(conn)
+    at = _positions(commit_rows["commit_id"], ids["commit_id"])
+    repo_at = _positions(repo_rows["repo_id"], commit_rows["repo_id"])
+    df = pd.DataFrame({
+        "repo": _as_text(repo_rows["name"])[repo_at][at],
+        "hash": _as_text(commit_rows["hash"])[at],
+        "subsystem": _as_text(subsystem_rows["name"])[
+            _positions(subsystem_rows["subsystem_id"], ids["subsystem_id"])],
+    })
+    return _read_frame(df, "commit_subsystems", order=["repo", "hash", "subsystem"])
+
+
+def _positions(keys: pd.Series, wanted: pd.Series) -> np.ndarray:
+    """Where each of ``wanted`` sits in ``keys`` (unique ids); an id not there is an
+    inconsistent read, never a silent wrap-around to the last row."""
+    at = pd.Index(keys).get_indexer(wanted)
+    if len(at) and at.min() < 0:
+        raise StoreError("the store changed while it was read (an id without its row); "
+                         "read it again")
+    return at
+
+
+def _as_text(col: pd.Series) -> np.ndarray:
+    """A text column as an object array (empty stays object, never float)."""
+    return np.asarray(col.to_numpy(), dtype=object)
 
 
 def file_changes(engine: Engine, repo: str | None = None) -> pd.DataFrame:

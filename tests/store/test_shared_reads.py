@@ -1,0 +1,73 @@
+"""Reading the tidy tables with shared strings and id lookups gives the same tables.
+
+``commit_subsystems`` fetches (commit id, subsystem id) pairs and looks the texts up;
+the oracle is a plain SQL join over the text columns (the form it had before), with
+``DISTINCT`` in the database and the rows sorted in Python. Repeating text columns are
+read with equal values sharing one string; the oracle is the same read with sharing
+turned off. Both on SQLite and PostgreSQL, one repository and the whole store.
+"""
+from __future__ import annotations
+
+import pandas as pd
+import pytest
+from sqlalchemy import text
+
+from procmetrics.errors import StoreError
+from procmetrics.mine import MineOptions, mine_repository
+from procmetrics.store import open_store
+from procmetrics.store import tables as T
+from tests.mine.test_multi_repo import three_repos  # noqa: F401 - fixture
+from tests.pg_support import any_store_url  # noqa: F401 - fixture
+
+PAIRS_BY_TEXT = """
+SELECT DISTINCT r.name, c.hash, sub.name
+FROM file_change fc
+JOIN git_commit c ON c.commit_id = fc.commit_id
+JOIN repository r ON r.repo_id = c.repo_id
+JOIN path_subsystem ps ON ps.repo_id = c.repo_id AND ps.path = fc.path
+JOIN subsystem sub ON sub.subsystem_id = ps.subsystem_id
+WHERE c.run_id IN (SELECT run_id FROM mining_run WHERE status = 'complete')
+"""
+
+
+@pytest.fixture
+def store(three_repos, any_store_url):  # noqa: F811
+    for h, name in zip(three_repos, ["a-fw", "b-fw", "sample"]):
+        mine_repository(h.path, store=any_store_url, options=MineOptions(
+            ref="HEAD", progress=False, repo_name=name))
+    engine = open_store(any_store_url)
+    yield engine
+    engine.dispose()
+
+
+def test_commit_subsystems_equal_the_join_over_text(store) -> None:
+    with store.connect() as conn:
+        rows = sorted(tuple(r) for r in conn.execute(text(PAIRS_BY_TEXT)))
+    assert len(rows) > 20 and len({r[0] for r in rows}) == 3
+    for repo in (None, "a-fw", "b-fw", "sample"):
+        got = T.read_table(store, "commit_subsystems", repo)
+        want = [r for r in rows if repo is None or r[0] == repo]
+        assert list(got.itertuples(index=False, name=None)) == want
+        assert list(got.columns) == T.COLUMNS["commit_subsystems"]
+        assert all(got[c].dtype == object for c in got.columns)
+        assert got.index.equals(pd.RangeIndex(len(got)))
+
+
+def test_shared_strings_change_no_value(store, monkeypatch) -> None:
+    names = [n for n in T.READERS if n != "mining_runs"]
+    shared = {(n, r): T.read_table(store, n, r) for n in names for r in (None, "sample")}
+    monkeypatch.setattr(T, "_REPEATED_TEXT", {})
+    for (n, r), df in shared.items():
+        pd.testing.assert_frame_equal(df, T.read_table(store, n, r), check_exact=True,
+                                      obj=f"{n}[{r}]")
+    trailers = shared[("trailers", None)]
+    emails = trailers["person_email"].dropna()
+    assert len(emails) > emails.nunique()               # values repeat ...
+    assert len({id(v) for v in emails}) == emails.nunique()   # ... and share one string
+
+
+def test_an_id_without_its_row_is_a_store_error() -> None:
+    with pytest.raises(StoreError, match="changed while it was read"):
+        T._positions(pd.Series([1, 2, 3]), pd.Series([2, 4]))
+    assert list(T._positions(pd.Series([5, 7]), pd.Series([7, 7, 5]))) == [1, 1, 0]
+    assert len(T._positions(pd.Series([5]), pd.Series([], dtype="int64"))) == 0
