@@ -52,6 +52,7 @@ def claims_and_context(claims_path: str, *, store: str | None, repo: str | None,
     ``scope_file``, cut from the whole tree (``ctx.scopes``); ``exclusions``: the
     carry-over exclusions file, read as the ``carryover`` command reads it."""
     from procmetrics.analyse.measures.periods import resolve_policy
+    from procmetrics.analyse.measures.vocabulary import REPORT_TRAILER_KEYS
     from procmetrics.store import open_store
 
     claims = load_claims(claims_path)
@@ -60,7 +61,7 @@ def claims_and_context(claims_path: str, *, store: str | None, repo: str | None,
     engine = open_store(store, create=False, readonly=True)
     try:
         name = choose_repo(engine, repo)
-        data = load_store_data(engine, name, within=request)
+        data = load_store_data(engine, name, within=request, trailer_keys=REPORT_TRAILER_KEYS)
         carry = carryover_for(engine, name, excl)
         if carry is None and exclusions is not None:
             raise ConfigError(f"--exclusions: {name} has no single upstream reference (mine "

@@ -289,6 +289,7 @@ def make_report(store: str | None, out: str | Path, options: ReportOptions, *,
     meta = load_meta(options.meta_path)
     check_commit_url(options.commit_url)
     progress.advance("reading the store")
+    from procmetrics.analyse.measures.vocabulary import REPORT_TRAILER_KEYS
     from procmetrics.claims.carryover_source import carryover_for, read_exclusions
 
     exclusions = read_exclusions(options.exclusions_path)
@@ -300,7 +301,8 @@ def make_report(store: str | None, out: str | Path, options: ReportOptions, *,
 
         data = load_store_data(engine, repo, within=claim_scope_request(
             claims.claims if claims is not None else (),
-            ScopeRequest(options.scope, options.since, options.until), options.scope_file))
+            ScopeRequest(options.scope, options.since, options.until), options.scope_file),
+            trailer_keys=REPORT_TRAILER_KEYS)
         carryover = carryover_for(engine, repo, exclusions)
         dialect = engine.dialect.name
     finally:

@@ -32,12 +32,13 @@ def check_provenance(store: str | None, *, repo: str | None, policy: str | None,
     from procmetrics.analyse.measures.periods import resolve_policy
     from procmetrics.store import open_store, resolve_url
     from procmetrics.store.engine import _safe
+    from procmetrics.analyse.measures.vocabulary import REPORT_TRAILER_KEYS
     from procmetrics.store.repodata import choose_repo, load_store_data, store_checksum
 
     engine = open_store(store, create=False, readonly=True)
     try:
         name = choose_repo(engine, repo)
-        data = load_store_data(engine, name)
+        data = load_store_data(engine, name, trailer_keys=REPORT_TRAILER_KEYS)
     finally:
         engine.dispose()
     runs = data["mining_runs"]

@@ -139,6 +139,7 @@ def _store_candidates(store: dict[str, Any], folder: Path) -> list[str]:
 
 def _store_still_matches(url: str, repo: str | None, checksum: str) -> bool:
     from procmetrics.store.repodata import choose_repo, load_store_data, store_checksum
+    from procmetrics.analyse.measures.vocabulary import REPORT_TRAILER_KEYS
     from procmetrics.store import open_store
 
     if "***" in url:       # a password was hidden in the manifest: cannot reconnect
@@ -148,7 +149,8 @@ def _store_still_matches(url: str, repo: str | None, checksum: str) -> bool:
     except ProcmetricsError:
         return False
     try:
-        data = load_store_data(engine, choose_repo(engine, repo))
+        data = load_store_data(engine, choose_repo(engine, repo),
+                               trailer_keys=REPORT_TRAILER_KEYS)
         return store_checksum(data) == checksum
     except ProcmetricsError:
         return False

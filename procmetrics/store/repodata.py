@@ -85,8 +85,8 @@ def choose_repo(engine: Engine, repo: str | None) -> str:
     return names[0]
 
 
-def load_store_data(engine: Engine, repo: str, within: Callable[..., Any] | None = None
-                    ) -> StoreData:
+def load_store_data(engine: Engine, repo: str, within: Callable[..., Any] | None = None,
+                    *, trailer_keys: Iterable[str] | None = None) -> StoreData:
     """The tidy tables the report needs for ``repo`` and the store checksum.
 
     One snapshot: a miner writing at the same time is never seen half-way, and
@@ -94,9 +94,19 @@ def load_store_data(engine: Engine, repo: str, within: Callable[..., Any] | None
     store; a scope names its own file checksum). ``within(conn, repo, tables)``, when
     given (a :class:`procmetrics.scope.apply.ScopeRequest`), returns the tables cut to a
     scope and window and its summary, computed in the same snapshot.
+
+    ``trailer_keys``: read only the trailer lines with these keys (case-blind), for a
+    caller that looks at no other (the report and the claims read the review trailers;
+    Signed-off-by lines alone are about two thirds of a kernel-style history). The
+    checksum does not change: the trailers' part comes from the stored digest, or from
+    every row in SQL (:func:`~procmetrics.store.digests.full_digest`), never from the
+    rows read here.
     """
+    keys = None if trailer_keys is None else tuple(trailer_keys)
     with snapshot(engine) as conn:
-        tables = {name: read_table(conn, name, repo) for name in REPORT_TABLES}
+        tables = {name: read_table(conn, name, repo, **(
+            {"keys": keys} if name == "trailers" and keys is not None else {}))
+            for name in REPORT_TABLES}
         parts = {name: (len(tables[name]), multiset_digest([canonical_column_lines(
             tables[name], COLUMNS[name])])) for name in CHECKSUM_TABLES
             if name not in MAINTAINED}

@@ -88,3 +88,41 @@ def test_text_column_with_empty_strings_and_no_nulls_keeps_them() -> None:
     df = pd.DataFrame({"a": ["", "x", ""], "b": ["u", "", "w"]})
     assert canonical_column_lines(df, ["a", "b"]) == ["\tu", "x\t", "\tw"]
     assert sorted(canonical_column_lines(df, ["a", "b"])) == canonical_lines(df, ["a", "b"])
+
+
+def test_reading_only_review_trailers_keeps_the_checksum(built) -> None:
+    """The report reads only the review trailers; the checksum still covers every
+    trailer line (stored digest, or all rows hashed in SQL when no digest is kept)."""
+    from sqlalchemy import delete
+
+    from procmetrics.analyse.measures.quality import REVIEW_KEYS
+    from procmetrics.analyse.measures.vocabulary import REPORT_TRAILER_KEYS
+    from procmetrics.store import schema as s
+
+    assert set(REVIEW_KEYS) <= {k.lower() for k in REPORT_TRAILER_KEYS}
+    loaded, full = _full(built)
+    engine = open_store(str(built.store), create=False, readonly=True)
+    try:
+        some = load_store_data(engine, loaded.repo, trailer_keys=REPORT_TRAILER_KEYS)
+    finally:
+        engine.dispose()
+    keys = {k.lower() for k in REPORT_TRAILER_KEYS}
+    every = full["trailers"]
+    assert set(some["trailers"]["key"].str.lower()) <= keys
+    assert 0 < len(some["trailers"]) < len(every)          # other keys were left out
+    kept = every[every["key"].str.lower().isin(keys)].reset_index(drop=True)
+    import pandas as pd
+    pd.testing.assert_frame_equal(some["trailers"], kept)
+    assert some.checksum == loaded.checksum == store_checksum(full)
+    # without the stored digests (a schema-3 store): the same checksum from SQL
+    copy = built.store.parent / "no-digests.sqlite"
+    import shutil
+    shutil.copy(built.store, copy)
+    engine = open_store(str(copy), create=False)
+    try:
+        with engine.begin() as conn:
+            conn.execute(delete(s.table_digest))
+        assert load_store_data(engine, loaded.repo,
+                               trailer_keys=REPORT_TRAILER_KEYS).checksum == loaded.checksum
+    finally:
+        engine.dispose()

@@ -10,6 +10,10 @@ METRIC_COLUMNS: list[str] = ["period", "period_start", "period_end", "subsystem"
                              "numerator", "denominator", "value", "ci_low", "ci_high",
                              "ci_method", "n"]
 DEFAULT_REVIEW_KEYS: tuple[str, ...] = ("Reviewed-by", "Acked-by", "Tested-by")
+#: the trailer lines the report and the claims check read from the store: every use
+#: there is of review-type keys (commit flags, the defects' reviewed flag, the evidence
+#: ledger, trailer adoption); other keys (Signed-off-by, Cc, ...) are left in the store
+REPORT_TRAILER_KEYS: tuple[str, ...] = DEFAULT_REVIEW_KEYS
 DEFAULT_FIX_KEYWORDS: tuple[str, ...] = ("fix", "bug", "crash", "leak", "regression",
                                          "overflow", "race")
 
