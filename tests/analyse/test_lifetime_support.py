@@ -296,3 +296,31 @@ def test_pointwise_band_without_the_replicate_matrix_equals_numpy_quantile() -> 
             low, high = pointwise_band(iter(boot), n_boot, width, a,
                                        block=int(rng.integers(1, 100)))
             assert np.array_equal(low, want[0]) and np.array_equal(high, want[1])
+
+
+def test_pointwise_band_on_a_wide_grid_merges_fewer_replicates_and_equals_numpy() -> None:
+    """On a grid as wide as a kernel history's lifetimes the default merges fewer
+    replicates at a time (its arrays stay small); the band is still numpy's quantile
+    of the whole matrix, and the final quantile runs in blocks of grid points."""
+    import numpy as np
+
+    from procmetrics.analyse.lifetimes import estimators as est
+
+    rng = np.random.default_rng(20261203)
+    n_boot, width, a = 60, 150_000, 0.025
+    boot = rng.random((n_boot, width))
+    merged: list[int] = []
+    real_vstack = np.vstack
+
+    def counting_vstack(rows, *args, **kwargs):
+        merged.append(len(rows))
+        return real_vstack(rows, *args, **kwargs)
+
+    est.np.vstack = counting_vstack
+    try:
+        low, high = est.pointwise_band(iter(boot), n_boot, width, a)
+    finally:
+        est.np.vstack = real_vstack
+    want = np.quantile(boot, [a, 1 - a], axis=0)
+    assert np.array_equal(low, want[0]) and np.array_equal(high, want[1])
+    assert max(merged) < 256 and sum(merged) == n_boot

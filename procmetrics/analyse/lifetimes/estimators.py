@@ -167,7 +167,7 @@ def _lb_from_counts(s: np.ndarray, d: np.ndarray, R: np.ndarray,
 
 
 def pointwise_band(replicates: Iterator[np.ndarray], n_boot: int, width: int, a: float,
-                   block: int = 256) -> tuple[np.ndarray, np.ndarray]:
+                   block: int | None = None) -> tuple[np.ndarray, np.ndarray]:
     """``np.quantile(boot, [a, 1 - a], axis=0)`` of the ``n_boot`` replicate rows, without
     holding the ``n_boot x width`` matrix (2,000 x 110,000 floats is 1.8 GB at kernel scale).
 
@@ -177,7 +177,14 @@ def pointwise_band(replicates: Iterator[np.ndarray], n_boot: int, width: int, a:
     ``np.partition``. At the end ``np.quantile`` runs on columns holding those values and
     +/-inf in the places of the dropped ones, which are beyond the positions it reads:
     the band is the one of the full matrix, number for number.
+
+    ``block`` replicates are merged at a time (default: 256, fewer on a wide grid so
+    that a merge's arrays stay near 32 MB each; at a million commits the grid has about
+    100,000 points and 256-replicate merges held over a GB). The band does not depend
+    on it.
     """
+    if block is None:
+        block = max(16, min(256, (32 << 20) // (8 * max(width, 1))))
     k_low = min(n_boot, int(np.floor((n_boot - 1) * a)) + 3)
     k_high = min(n_boot, n_boot - int(np.floor((n_boot - 1) * (1 - a))) + 2)
     # grid points as rows, replicates as columns: every partition runs along memory
@@ -203,7 +210,7 @@ def pointwise_band(replicates: Iterator[np.ndarray], n_boot: int, width: int, a:
     if buf:
         merge()
     out = []
-    rows = max(1, (64 << 20) // (8 * max(n_boot, 1)))      # 64 MB blocks of grid points
+    rows = max(1, (16 << 20) // (8 * max(n_boot, 1)))      # 16 MB blocks of grid points
     for kept, q, fill in ((low, a, np.inf), (high, 1 - a, -np.inf)):
         res = np.empty(width)
         for j in range(0, width, rows):
