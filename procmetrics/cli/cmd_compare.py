@@ -2,10 +2,14 @@
 from __future__ import annotations
 
 import argparse
+from typing import TYPE_CHECKING
 
 from procmetrics.cli import _series_common as common
 from procmetrics.validate import arg, check_count
 from procmetrics.resampling import N_BOOT, N_PERMUTATIONS
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -26,6 +30,26 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.set_defaults(func=run)
 
 
+def _require_both_sides(commits: pd.DataFrame, at: pd.Timestamp, column: str,
+                        given: str) -> None:
+    """A date with no commit on one side has nothing to compare: every test would be
+    skipped, and a run that tested nothing must not end as a success."""
+    import pandas as pd
+
+    from procmetrics.errors import InsufficientData
+
+    dates = pd.to_datetime(commits[column], utc=True).dropna()
+    before, after = int((dates < at).sum()), int((dates >= at).sum())
+    if before and after:
+        return
+    if not len(dates):
+        raise InsufficientData("no commits to compare (the store or the scope is empty)")
+    side, edge = (("before", "first") if not before else ("after", "last"))
+    when = (dates.min() if not before else dates.max()).strftime("%Y-%m-%d")
+    raise InsufficientData(f"--at {given}: no commits {side} {at:%Y-%m-%d} (the {edge} "
+                           f"commit is from {when}); there is nothing to compare")
+
+
 def run(args: argparse.Namespace) -> int:
     from procmetrics.analyse.change.policy import DEFAULT_METRICS, compare_policy, resolve_date
 
@@ -33,6 +57,7 @@ def run(args: argparse.Namespace) -> int:
     whole = tables.get("whole_tree", tables)     # a commit outside a scope still names a date
     at = resolve_date(args.at, whole["commits"], whole["tags"])
     cfg = common.metric_config(args, tables)
+    _require_both_sides(tables["commits"], at, cfg.date_column, args.at)
     print(f"{name}: before/after {at:%Y-%m-%d %H:%M} UTC, per {args.period}")
     common.print_data_quality(tables, args.metric or DEFAULT_METRICS)
     res = compare_policy(tables["commits"], tables["trailers"], at=at, tags=tables["tags"],

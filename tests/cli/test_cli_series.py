@@ -3,6 +3,7 @@ demo history, checked against plain git and the generator's ground truth."""
 from __future__ import annotations
 
 import json
+import os
 import re
 import subprocess
 import sys
@@ -83,6 +84,22 @@ def test_compare_at_a_revision(demo, capsys):
                "--metric", "review_coverage", "--resamples", "49", "--boot", "50"])
     assert rc == 0
     assert "before/after 2022-07-01" in capsys.readouterr().out
+
+
+def test_compare_at_a_date_outside_the_history_is_refused(demo, capsys):
+    """A date before the first or after the last commit leaves one side empty: every test
+    would be skipped, so the command fails (insufficient data, exit 7) with one line
+    naming the edge commit's date (oracle: git log), instead of ending as a success."""
+    dates = subprocess.run(["git", "-C", str(demo["repo"]), "log", "--format=%cd",
+                            "--date=format-local:%Y-%m-%d"], check=True, capture_output=True,
+                           text=True, env={**os.environ, "TZ": "UTC"}).stdout.split()
+    first, last = min(dates), max(dates)
+    for at, side, edge in (("2099-01-01", "after", last), ("1999-01-01", "before", first)):
+        rc = main(["compare", "--store", str(demo["store"]), "--at", at])
+        cap = capsys.readouterr()
+        assert rc == 7 and cap.out == ""
+        assert cap.err.count("\n") == 1
+        assert f"no commits {side} {at}" in cap.err and edge in cap.err
 
 
 def test_missing_store_is_one_line(tmp_path, capsys):
