@@ -66,6 +66,14 @@ def _column_cells(col: pd.Series, raw: bool) -> list[str]:
         vals = col.to_numpy(object)
         missing = pd.isna(vals).tolist()
         return ["" if m else csv_text_cell(v, raw=raw) for v, m in zip(vals.tolist(), missing)]
+    if isinstance(dt, (pd.Int64Dtype, pd.Int32Dtype, pd.UInt64Dtype, pd.BooleanDtype)):
+        vals = col.to_numpy(dtype=object, na_value=None).tolist()
+        if isinstance(dt, pd.BooleanDtype):
+            return ["" if v is None else ("true" if v else "false") for v in vals]
+        return ["" if v is None else str(v) for v in vals]
+    utc_seconds = _utc_whole_seconds(col)
+    if utc_seconds is not None:
+        return utc_seconds
     if isinstance(dt, pd.DatetimeTZDtype) or (isinstance(dt, np.dtype) and dt.kind == "M"):
         # times: each distinct value formatted once (missing values become code -1, an
         # empty cell)
@@ -73,6 +81,23 @@ def _column_cells(col: pd.Series, raw: bool) -> list[str]:
         cells = np.array([_cell(u, raw) for u in uniques] + [""], dtype=object)
         return cells[codes].tolist()
     return [_cell(v, raw) for v in col.astype(object)]
+
+
+def _utc_whole_seconds(col: pd.Series) -> list[str] | None:
+    """``Timestamp.isoformat`` of a UTC time column without sub-second parts, in numpy:
+    ``datetime_as_string`` to the second plus ``+00:00`` is then the same text
+    (``isoformat`` adds digits only for a sub-second part). None for other columns."""
+    dt = col.dtype
+    if not (isinstance(dt, pd.DatetimeTZDtype) and str(dt.tz) == "UTC"):
+        return None
+    ns = col.array.asi8
+    na = col.isna().to_numpy()
+    if (ns[~na] % 1_000_000_000).any():
+        return None
+    text = np.char.add(np.datetime_as_string(col.dt.tz_localize(None).to_numpy(), unit="s"),
+                       "+00:00").astype(object)
+    text[na] = ""
+    return text.tolist()
 
 
 def frame_to_csv(df: pd.DataFrame, *, raw: bool = False) -> str:

@@ -66,3 +66,30 @@ def test_formula_text_is_neutralised_once_per_value_and_times_read_as_isoformat(
 def test_an_empty_frame_and_an_all_missing_column_keep_their_header():
     empty = frame().iloc[:0]
     assert csvout.frame_to_csv(empty) == cell_by_cell(empty, False)
+
+
+def test_numpy_paths_for_utc_seconds_and_nullable_columns_write_the_cell_by_cell_file():
+    """UTC times to the second (written by numpy's datetime_as_string), nullable integers
+    and booleans: the file is the cell-by-cell one, and the times are Python's own
+    ``datetime.isoformat``; a column with a sub-second time or another zone keeps the
+    per-value path."""
+    rng = np.random.default_rng(20261203)
+    secs = rng.integers(-2_000_000_000, 4_000_000_000, 500)
+    utc = pd.Series(pd.to_datetime(secs, unit="s", utc=True))
+    utc[::7] = pd.NaT
+    df = pd.DataFrame({
+        "utc": utc,
+        "utc_sub": utc + pd.to_timedelta(np.where(np.arange(500) == 3, 1, 0), unit="ms"),
+        "count": pd.array(np.where(np.arange(500) % 5 == 0, None, secs % 1000), dtype="Int64"),
+        "flag": pd.array(np.where(np.arange(500) % 4 == 0, None, secs % 2 == 0),
+                         dtype="boolean"),
+    })
+    assert csvout._utc_whole_seconds(df["utc"]) is not None
+    assert csvout._utc_whole_seconds(df["utc_sub"]) is None
+    assert csvout._utc_whole_seconds(df["utc"].dt.tz_convert("Europe/Berlin")) is None
+    for raw in (False, True):
+        assert csvout.frame_to_csv(df, raw=raw) == cell_by_cell(df, raw)
+    rows = list(csv.reader(io.StringIO(csvout.frame_to_csv(df))))[1:]
+    for r, s, missing in zip(rows, secs, df["utc"].isna()):
+        want = "" if missing else datetime.fromtimestamp(int(s), timezone.utc).isoformat()
+        assert r[0] == want
