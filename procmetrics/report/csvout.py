@@ -102,11 +102,30 @@ def _utc_whole_seconds(col: pd.Series) -> list[str] | None:
 
 def frame_to_csv(df: pd.DataFrame, *, raw: bool = False) -> str:
     buf = io.StringIO()
-    w = csv.writer(buf, lineterminator="\n", quoting=csv.QUOTE_MINIMAL)
-    w.writerow([str(c) for c in df.columns])
-    cols = [_column_cells(df.iloc[:, j], raw) for j in range(df.shape[1])]
-    w.writerows(zip(*cols))          # no columns: no rows (as itertuples gives none)
+    _write_rows(df, buf, raw, len(df) or 1)
     return buf.getvalue()
+
+
+#: rows formatted at a time when a table is written to a file: the cells of a
+#: million-row evidence ledger held at once were over a GB at kernel scale
+CHUNK_ROWS = 100_000
+
+
+def write_frame_csv(df: pd.DataFrame, path: Path, *, raw: bool = False,
+                    chunk: int = CHUNK_ROWS) -> None:
+    """:func:`frame_to_csv` written to ``path`` ``chunk`` rows at a time (same text)."""
+    with open(path, "w", encoding="utf-8", newline="") as fh:
+        _write_rows(df, fh, raw, chunk)
+
+
+def _write_rows(df: pd.DataFrame, fh: Any, raw: bool, chunk: int) -> None:
+    w = csv.writer(fh, lineterminator="\n", quoting=csv.QUOTE_MINIMAL)
+    w.writerow([str(c) for c in df.columns])
+    if not df.shape[1]:
+        return                       # no columns: no rows (as itertuples gives none)
+    for start in range(0, len(df), chunk):
+        part = df.iloc[start:start + chunk]
+        w.writerows(zip(*[_column_cells(part.iloc[:, j], raw) for j in range(df.shape[1])]))
 
 
 def csv_names(report: Report) -> dict[str, str]:
@@ -133,12 +152,10 @@ def write_csvs(report: Report, out: Path) -> dict[str, str]:
     names = csv_names(report)
     (out / "tables").mkdir(parents=True, exist_ok=True)
     for fig in report.figures.values():
-        (out / names[fig.key]).write_text(frame_to_csv(fig.data, raw=raw), encoding="utf-8",
-                                          newline="")
+        write_frame_csv(fig.data, out / names[fig.key], raw=raw)
     for tab in report.tables.values():
         df = tab.data.reindex(columns=[k for k, _ in tab.columns])
-        (out / names[tab.key]).write_text(frame_to_csv(df, raw=raw), encoding="utf-8",
-                                          newline="")
+        write_frame_csv(df, out / names[tab.key], raw=raw)
     return names
 
 
@@ -155,6 +172,6 @@ def write_evidence(report: Report, out: Path) -> list[str]:
             raise ValueError(f"evidence path {rel!r} is not a safe file name")
         path = out.joinpath(*parts)
         path.parent.mkdir(parents=True, exist_ok=True)
-        path.write_text(frame_to_csv(df), encoding="utf-8", newline="")
+        write_frame_csv(df, path)
         names.append(rel)
     return names

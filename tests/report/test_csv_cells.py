@@ -93,3 +93,17 @@ def test_numpy_paths_for_utc_seconds_and_nullable_columns_write_the_cell_by_cell
     for r, s, missing in zip(rows, secs, df["utc"].isna()):
         want = "" if missing else datetime.fromtimestamp(int(s), timezone.utc).isoformat()
         assert r[0] == want
+
+
+@pytest.mark.parametrize("chunk", [1, 2, 3, 4, 1000])
+def test_file_written_in_chunks_is_the_cell_by_cell_file(tmp_path, chunk):
+    """Tables go to their files a chunk of rows at a time (the formatting of a column may
+    take another path in each chunk: text in one, mixed in the next); the file is the
+    cell-by-cell text, with and without rows or columns."""
+    df = frame()
+    for case in (df, df.iloc[:0], df.iloc[:, :0], df[["text", "mixed"]]):
+        for raw in (False, True):
+            path = tmp_path / "t.csv"
+            csvout.write_frame_csv(case, path, raw=raw, chunk=chunk)
+            text = path.read_bytes().decode("utf-8")
+            assert text == cell_by_cell(case, raw) == csvout.frame_to_csv(case, raw=raw)
