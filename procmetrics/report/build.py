@@ -108,6 +108,21 @@ def _analyses(ctx: BuildContext) -> None:
     _evidence_for_figures(ctx)
 
 
+#: warnings raised when a step took longer than some wall-clock time: whether they
+#: appear depends on the machine's load, so they cannot be part of a report that must
+#: read the same on every rerun (matplotlib times its search for the best legend place)
+_TIMED_NOTES = ('Creating legend with loc="best" can be slow',)
+
+
+def about_the_numbers(w: warnings.WarningMessage) -> bool:
+    """Whether a captured warning belongs in the report's numerical-warnings table: not
+    a deprecation (about our code, and raised once per process) and not a note that a
+    step was slow (present or not depending on the machine's load)."""
+    if issubclass(w.category, (DeprecationWarning, PendingDeprecationWarning, ImportWarning)):
+        return False
+    return not str(w.message).lstrip().startswith(_TIMED_NOTES)
+
+
 def numerical_warnings(caught: list[warnings.WarningMessage]) -> pd.DataFrame:
     """Captured warnings grouped by kind, place and message, with counts.
 
@@ -116,9 +131,8 @@ def numerical_warnings(caught: list[warnings.WarningMessage]) -> pd.DataFrame:
     """
     rows: dict[tuple[str, str, str], int] = {}
     for w in caught:
-        if issubclass(w.category, (DeprecationWarning, PendingDeprecationWarning,
-                                   ImportWarning)):
-            continue      # about our code, not the numbers; and raised once per process
+        if not about_the_numbers(w):
+            continue
         key = (w.category.__name__, Path(str(w.filename)).name,
                str(w.message).strip().splitlines()[0][:200] if str(w.message).strip() else "")
         rows[key] = rows.get(key, 0) + 1
@@ -347,7 +361,7 @@ def _build_recording_warnings(data: Any, opts: ReportOptions, claims: Any,
     for w in caught:
         if issubclass(w.category, ProcmetricsWarning):
             warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
-        else:
+        elif not str(w.message).lstrip().startswith(_TIMED_NOTES):
             library[(w.category.__name__, " ".join(str(w.message).split()))] += 1
     return report, [{"category": c, "message": m, "count": n}
                     for (c, m), n in sorted(library.items())]
