@@ -90,7 +90,7 @@ def test_text_column_with_empty_strings_and_no_nulls_keeps_them() -> None:
     assert sorted(canonical_column_lines(df, ["a", "b"])) == canonical_lines(df, ["a", "b"])
 
 
-def test_reading_only_review_trailers_keeps_the_checksum(built) -> None:
+def test_reading_only_review_trailers_keeps_the_checksum(built, tmp_path) -> None:
     """The report reads only the review trailers; the checksum still covers every
     trailer line (stored digest, or all rows hashed in SQL when no digest is kept)."""
     from sqlalchemy import delete
@@ -115,9 +115,15 @@ def test_reading_only_review_trailers_keeps_the_checksum(built) -> None:
     pd.testing.assert_frame_equal(some["trailers"], kept)
     assert some.checksum == loaded.checksum == store_checksum(full)
     # without the stored digests (a schema-3 store): the same checksum from SQL
-    copy = built.store.parent / "no-digests.sqlite"
-    import shutil
-    shutil.copy(built.store, copy)
+    import sqlite3
+
+    copy = tmp_path / "no-digests.sqlite"
+    src, dst = sqlite3.connect(built.store), sqlite3.connect(copy)
+    try:
+        src.backup(dst)          # the WAL's pages too (a file copy can miss them)
+    finally:
+        src.close()
+        dst.close()
     engine = open_store(str(copy), create=False)
     try:
         with engine.begin() as conn:
