@@ -40,7 +40,7 @@ from sqlalchemy import delete, insert, select, update
 from sqlalchemy.engine import Connection
 
 from procmetrics.store import schema as s
-from procmetrics.store.tables import SQL_LINE_TABLES, canonical_line_batches
+from procmetrics.store.canonlines import SQL_LINE_TABLES, canonical_line_batches
 
 #: the tidy tables whose digest the store keeps (see the module docstring)
 MAINTAINED: tuple[str, ...] = SQL_LINE_TABLES

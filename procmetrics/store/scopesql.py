@@ -50,7 +50,7 @@ def commits_touching(conn: Connection, repo: str, paths: list[str]) -> pd.DataFr
     if not paths:
         return pd.DataFrame({"hash": pd.Series(dtype=str), "is_merge": pd.Series(dtype=bool),
                              "scope_lines": pd.Series(dtype="Int64")}, columns=cols)
-    # a connection left streaming (server-side cursors, e.g. by tables.canonical_line_batches)
+    # a connection left streaming (server-side cursors, e.g. by canonlines.canonical_line_batches)
     # cannot run DDL on PostgreSQL; SQLAlchemy sets execution options in place
     conn = conn.execution_options(stream_results=False)
     tmp = Table("pm_scope_path", MetaData(), Column("path", Text, primary_key=True),
