@@ -62,7 +62,7 @@ _BOOL_COLUMNS = {"is_merge", "stable_request", "is_revert", "is_binary", "subjec
 #: share one (at a million commits the per-cell copies of these columns were over a GiB)
 _REPEATED_TEXT: dict[str, tuple[str, ...]] = {
     "commits": ("repo", "author_name", "author_email", "committer_name", "committer_email"),
-    "commit_subsystems": ("repo",),
+    "commit_subsystems": (),       # looked up from ids: its strings are shared already
     "file_changes": ("repo", "hash", "path", "old_path", "change_type"),
     "trailers": ("repo", "hash", "key", "raw_key", "value", "person_name", "person_email"),
     "fix_links": ("repo", "status", "introducer_hash"),
