@@ -94,10 +94,19 @@ _MAX_SECONDS = int(pd.Timestamp.max.timestamp()) - 1
 
 def _to_utc(seconds: pd.Series) -> pd.Series:
     """Epoch seconds -> UTC timestamps; a date pandas cannot hold (git keeps up to
-    2**63 - 1 seconds) becomes NaT instead of failing the whole read."""
-    v = pd.to_numeric(seconds, errors="coerce").astype("float64")
-    v = v.where((v >= _MIN_SECONDS) & (v <= _MAX_SECONDS))
-    return pd.to_datetime(v, unit="s", utc=True)
+    2**63 - 1 seconds) becomes NaT instead of failing the whole read.
+
+    The store keeps whole seconds (``BigInteger``), so the nanoseconds are built in
+    integer arithmetic. pandas' own ``to_datetime(unit="s")`` casts through floats under
+    ``np.errstate(over="raise")``, and one report at 300,000 commits stopped there
+    once with a ``FloatingPointError`` that did not come back in five reruns.
+    """
+    v = pd.to_numeric(seconds, errors="coerce")
+    ok = (v.notna() & (v >= _MIN_SECONDS) & (v <= _MAX_SECONDS)).to_numpy(dtype=bool)
+    ns = np.full(len(v), np.iinfo(np.int64).min, dtype=np.int64)   # NaT everywhere
+    ns[ok] = v.to_numpy()[ok].astype(np.int64) * 1_000_000_000
+    out = pd.Series(ns.view("datetime64[ns]"), index=seconds.index, name=seconds.name)
+    return out.dt.tz_localize("UTC")
 
 
 def _complete_runs() -> Select:
