@@ -6,8 +6,9 @@ import argparse
 from procmetrics import progress
 from procmetrics.cli import (add_progress_argument, add_scope_arguments, add_scope_file_argument,
                              add_store_argument)
+from procmetrics.report.background import DEFAULT_JOBS
 from procmetrics.report.model import PERIODS, ReportOptions
-from procmetrics.validate import arg, check_level, check_seed
+from procmetrics.validate import arg, check_count, check_level, check_seed
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -55,6 +56,10 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--raw-csv", action="store_true",
                    help="exact text in tables/*.csv (default: a leading ' before text cells "
                    "starting with = + - @ tab or CR, so spreadsheets do not run them)")
+    p.add_argument("--jobs", type=arg(check_count, "--jobs"), default=DEFAULT_JOBS, metavar="N",
+                   help=f"processes for the analyses (default {DEFAULT_JOBS}: the defect-"
+                   "lifetime bootstrap runs beside the other sections on large histories; "
+                   "1: one process). The report is the same with any N")
     add_scope_arguments(p)
     add_scope_file_argument(p)
     p.set_defaults(func=run)
@@ -71,7 +76,8 @@ def run(args: argparse.Namespace) -> int:
     from procmetrics.report.build import REPORT_STEPS, make_report  # heavy: imported when run
 
     with progress.steps("report", REPORT_STEPS, enabled=args.progress):
-        files = make_report(args.store, args.out, opts, overwrite=args.overwrite)
+        files = make_report(args.store, args.out, opts, overwrite=args.overwrite,
+                            jobs=args.jobs)
     print(f"report written to {files.html} (PDF: {files.pdf_engine}; "
           f"{len(files.csv)} tables; manifest {files.manifest.name})")
     return 0

@@ -39,14 +39,20 @@ from procmetrics import progress
 from procmetrics.report.pdf import write_pdf
 from procmetrics.analyse.measures.periods import resolve_policy
 from procmetrics.analyse.memo import kept_results
+from procmetrics.report.background import DEFAULT_JOBS
 
 #: the steps make_report announces (procmetrics.progress), for the time-left estimate
 REPORT_STEPS = 10
 
 
 def build_report(data: StoreData, options: ReportOptions, *,
-                 claims: ClaimsFile | None = None, carryover: Any = None) -> Report:
+                 claims: ClaimsFile | None = None, carryover: Any = None,
+                 jobs: int = DEFAULT_JOBS) -> Report:
     """Run every analysis and assemble the :class:`Report` (no files written).
+
+    ``jobs`` > 1 lets the defect-lifetime analysis run in a second process while the
+    other sections are built (:mod:`procmetrics.report.background`); the report is the
+    same with any ``jobs``.
 
     Warnings raised by the numerical libraries while the analyses run are
     captured (never printed), counted and reported as a table in the
@@ -64,12 +70,16 @@ def build_report(data: StoreData, options: ReportOptions, *,
                         options=options, scope={}, store_checksum=store_checksum(data))
         ctx = BuildContext(data=data, options=options, report=report, quality=quality,
                            policy_date=policy_date, seed=options.seed, claims=claims,
-                           carryover=carryover)
+                           carryover=carryover, jobs=jobs)
         # usage mistakes stop the report at once (exit 2), before any analysis runs
         _check_subsystems(data, options.subsystems)
         if claims is not None:
             check_usable(claims.claims, sec_claims.claim_context(ctx))
-        _analyses(ctx)
+        try:
+            _analyses(ctx)
+        finally:
+            if ctx.aside_lifetimes is not None:      # the build stopped before collecting it
+                ctx.aside_lifetimes[-1].close()
     ctx.numerical = numerical_warnings(caught)
     sec_claims.section_limitations(ctx)
     sec_claims.section_use(ctx)
@@ -81,6 +91,7 @@ def _analyses(ctx: BuildContext) -> None:
     report.scope = sec_scope.scope(ctx)
     report.provenance = sec_scope.provenance(ctx)
     sec_scope.section_scope(ctx)
+    sec_defects.start_lifetimes(ctx)
     progress.advance("process metrics per period")
     ctx.metrics = ctx.attempt("Process metrics", report.sections[0],
                               lambda: sec_process.compute_metrics(ctx))
@@ -284,8 +295,10 @@ def write_report(report: Report, out: Path, *, manifest_info: dict[str, Any],
 
 
 def make_report(store: str | None, out: str | Path, options: ReportOptions, *,
-                overwrite: bool = False, adopt: tuple[str, ...] = ()) -> ReportFiles:
-    """Open the store, build the report and write the folder (the CLI's one call)."""
+                overwrite: bool = False, adopt: tuple[str, ...] = (),
+                jobs: int = DEFAULT_JOBS) -> ReportFiles:
+    """Open the store, build the report and write the folder (the CLI's one call;
+    ``jobs``: processes for the analyses, see :func:`build_report`)."""
     from procmetrics.store import open_store, resolve_url
     from procmetrics.store.engine import _safe
     from procmetrics.store.schema import SCHEMA_VERSION
@@ -327,7 +340,7 @@ def make_report(store: str | None, out: str | Path, options: ReportOptions, *,
                           "with --upstream) for the exclusions to apply to", key="--exclusions")
     opts = options if options.repo == repo else ReportOptions(
         **{**options.__dict__, "repo": repo})
-    report, library_warnings = _build_recording_warnings(data, opts, claims, carryover)
+    report, library_warnings = _build_recording_warnings(data, opts, claims, carryover, jobs)
     report.meta = meta
     if meta.title:
         report.title = meta.title
@@ -347,7 +360,8 @@ def make_report(store: str | None, out: str | Path, options: ReportOptions, *,
 
 
 def _build_recording_warnings(data: Any, opts: ReportOptions, claims: Any,
-                              carryover: Any = None) -> tuple[Report, list[dict[str, Any]]]:
+                              carryover: Any = None, jobs: int = DEFAULT_JOBS
+                              ) -> tuple[Report, list[dict[str, Any]]]:
     """Build the report; numerical warnings of libraries (numpy, statsmodels, matplotlib
     ...) are recorded for the manifest instead of reaching the console, ours are
     passed on (the CLI prints them as one line each)."""
@@ -356,7 +370,7 @@ def _build_recording_warnings(data: Any, opts: ReportOptions, claims: Any,
     from procmetrics.errors import ProcmetricsWarning
 
     with warnings.catch_warnings(record=True) as caught:
-        report = build_report(data, opts, claims=claims, carryover=carryover)
+        report = build_report(data, opts, claims=claims, carryover=carryover, jobs=jobs)
     library: Counter = Counter()
     for w in caught:
         if issubclass(w.category, ProcmetricsWarning):

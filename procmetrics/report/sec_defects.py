@@ -26,11 +26,13 @@ def compute_defects(ctx: BuildContext) -> Any:
                          period_cuts=cuts)
 
 
-def horizon_days(ctx: BuildContext) -> float | None:
-    """Common follow-up for the before/after lifetime comparison (days), or None."""
-    if ctx.policy_date is None or ctx.defects is None or pd.isna(ctx.defects.end_date):
+def horizon_days(ctx: BuildContext, defects: Any = None) -> float | None:
+    """Common follow-up for the before/after lifetime comparison (days), or None
+    (``defects``: the defect table it is taken from, default ``ctx.defects``)."""
+    defects = ctx.defects if defects is None else defects
+    if ctx.policy_date is None or defects is None or pd.isna(defects.end_date):
         return None
-    span = (ctx.defects.end_date - ctx.policy_date).total_seconds() / 86400.0
+    span = (defects.end_date - ctx.policy_date).total_seconds() / 86400.0
     return float(min(365.0, round(span / 2))) if span > 30 else None
 
 
@@ -45,8 +47,55 @@ def lifetime_defects(ctx: BuildContext) -> Any:
                          period_cuts=cuts, links_from="settled")
 
 
-def section_lifetimes(ctx: BuildContext) -> None:
+#: defects from which the lifetime analysis is worth a second process (its interpreter
+#: and imports take about 3 s; at 13,000 defects the analysis takes about 15 s)
+ASIDE_MIN_DEFECTS = 5000
+
+
+def _lifetime_arguments(ctx: BuildContext, H: float | None) -> dict[str, Any]:
+    """Keyword arguments of the section's ``analyse_lifetimes`` call, in one place."""
+    return {"by": "period" if ctx.policy_date is not None else None, "horizon": H,
+            "level": ctx.options.level, "min_at_risk": MIN_AT_RISK, "n_boot": N_BOOT,
+            "rng": ctx.rng(SALTS["lifetimes"])}
+
+
+def start_lifetimes(ctx: BuildContext, min_defects: int | None = None) -> None:
+    """Start the lifetime analysis of :func:`section_lifetimes` in a second process
+    (``ctx.jobs`` > 1 and at least ``min_defects`` defects), so that it runs while the
+    other sections are built. Nothing is recorded here: a defect table that cannot be
+    built now is built, and its failure noted, where the section always did it."""
     from procmetrics.analyse.lifetimes.analysis import analyse_lifetimes
+    from procmetrics.report.background import AsideJob
+
+    if ctx.jobs < 2:
+        return
+    try:
+        defects = compute_defects(ctx)
+        dt = lifetime_defects(ctx)
+    except Exception:            # noqa: BLE001 - the sections meet it again and note it
+        return
+    if len(dt.defects) < (ASIDE_MIN_DEFECTS if min_defects is None else min_defects):
+        return
+    H = horizon_days(ctx, defects)
+    ctx.aside_lifetimes = (dt, H, AsideJob(analyse_lifetimes, dt,
+                                           **_lifetime_arguments(ctx, H)))
+
+
+def _lifetimes_result(ctx: BuildContext, dt: Any, H: float | None) -> Any:
+    """The section's lifetime analysis: the second process's, when it was started on
+    the same defect table and horizon, else computed here."""
+    from procmetrics.analyse.lifetimes.analysis import analyse_lifetimes
+
+    aside, ctx.aside_lifetimes = ctx.aside_lifetimes, None
+    if aside is not None:
+        adt, aH, job = aside
+        if adt is dt and aH == H:
+            return job.result()
+        job.close()
+    return analyse_lifetimes(dt, **_lifetime_arguments(ctx, H))
+
+
+def section_lifetimes(ctx: BuildContext) -> None:
     from procmetrics.analyse.lifetimes.defects import LEDGER_COLUMNS, defect_ledger
     from procmetrics.report import lifetime_tables as lt
 
@@ -55,7 +104,9 @@ def section_lifetimes(ctx: BuildContext) -> None:
     if ctx.defects is None:
         s.p("No defect table could be built from the fix references of this store.")
         return
-    dt = ctx.attempt("Defect table (lifetimes)", s, lambda: lifetime_defects(ctx))
+    early = ctx.aside_lifetimes[0] if ctx.aside_lifetimes is not None else None
+    dt = ctx.attempt("Defect table (lifetimes)", s,
+                     lambda: early if early is not None else lifetime_defects(ctx))
     if dt is None:
         return
     n = int(len(dt.defects))
@@ -77,10 +128,7 @@ def section_lifetimes(ctx: BuildContext) -> None:
         "short; truncation-aware Lynden-Bell) are a secondary view, shown only where at "
         f"least {MIN_AT_RISK} defects support them.")
     H = horizon_days(ctx)
-    by = "period" if ctx.policy_date is not None else None
-    la = ctx.attempt("Defect lifetimes", s, lambda: analyse_lifetimes(
-        dt, by=by, horizon=H, level=ctx.options.level, min_at_risk=MIN_AT_RISK,
-        n_boot=N_BOOT, rng=ctx.rng(SALTS["lifetimes"])))
+    la = ctx.attempt("Defect lifetimes", s, lambda: _lifetimes_result(ctx, dt, H))
     if la is None:
         return
     from procmetrics.analyse.measures.metrics import ALL

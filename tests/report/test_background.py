@@ -1,0 +1,82 @@
+"""The lifetime analysis in a second process changes nothing in the report
+(oracle: the same report built in one process), and the helper's fallbacks."""
+from __future__ import annotations
+
+import math
+import operator
+import warnings
+
+import pytest
+
+from procmetrics.report import background, sec_defects
+from procmetrics.report.background import AsideJob
+from procmetrics.report.build import build_report, numerical_warnings
+from procmetrics.report.jsonout import dumps, report_dict
+from procmetrics.report.model import ReportOptions
+
+from tests.report.synth import synth
+
+
+def test_value_comes_from_the_second_process():
+    job = AsideJob(math.comb, 60, 30)
+    assert job.result() == 118264581564861424
+    assert job.ran_aside
+
+
+def test_its_warnings_are_raised_again_here():
+    job = AsideJob(warnings.warn, "a note from the second process", RuntimeWarning)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        assert job.result() is None
+    assert job.ran_aside
+    assert [(w.category, str(w.message)) for w in caught] == [
+        (RuntimeWarning, "a note from the second process")]
+
+
+def test_a_failure_there_is_raised_here_by_running_it_here():
+    job = AsideJob(operator.truediv, 1, 0)
+    with pytest.raises(ZeroDivisionError):
+        job.result()
+    assert not job.ran_aside
+
+
+def test_without_a_second_process_it_runs_here(monkeypatch):
+    def no_process(*a, **k):
+        raise OSError("no processes on this machine")
+
+    monkeypatch.setattr(background.multiprocessing, "get_context", no_process)
+    job = AsideJob(math.factorial, 20)
+    assert job.result() == 2432902008176640000
+    assert not job.ran_aside
+
+
+def test_a_closed_job_still_gives_its_value():
+    job = AsideJob(math.gcd, 462, 1071)
+    job.close()                      # the report stopped early, then asked after all
+    assert job.result() == 21
+
+
+@pytest.mark.slow
+def test_report_is_the_same_with_the_lifetimes_aside(monkeypatch):
+    data = synth(seed=31, n_commits=900)
+    opts = ReportOptions(policy="2022-01-01", pdf_engine="none")
+    with warnings.catch_warnings(record=True) as one_caught:
+        warnings.simplefilter("always")
+        one = build_report(data, opts, jobs=1)
+    asked: list[bool] = []
+    real_result = AsideJob.result
+
+    def spy(self):
+        value = real_result(self)
+        asked.append(self.ran_aside)
+        return value
+
+    monkeypatch.setattr(sec_defects, "ASIDE_MIN_DEFECTS", 0)
+    monkeypatch.setattr(AsideJob, "result", spy)
+    with warnings.catch_warnings(record=True) as two_caught:
+        warnings.simplefilter("always")
+        two = build_report(data, opts, jobs=2)
+    assert asked == [True]           # the analysis did run in the second process
+    assert dumps(report_dict(two, {})) == dumps(report_dict(one, {}))
+    assert two.figures["lifetime-curves"].n == one.figures["lifetime-curves"].n > 50
+    assert numerical_warnings(list(two_caught)).equals(numerical_warnings(list(one_caught)))
