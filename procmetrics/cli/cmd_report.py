@@ -6,7 +6,7 @@ import argparse
 from procmetrics import progress
 from procmetrics.cli import (add_progress_argument, add_scope_arguments, add_scope_file_argument,
                              add_store_argument)
-from procmetrics.report.background import DEFAULT_JOBS
+from procmetrics.background import DEFAULT_JOBS
 from procmetrics.report.model import PERIODS, ReportOptions
 from procmetrics.validate import arg, check_count, check_level, check_seed
 

@@ -39,7 +39,7 @@ from procmetrics import progress
 from procmetrics.report.pdf import write_pdf
 from procmetrics.analyse.measures.periods import resolve_policy
 from procmetrics.analyse.memo import kept_results
-from procmetrics.report.background import DEFAULT_JOBS
+from procmetrics.background import DEFAULT_JOBS
 
 #: the steps make_report announces (procmetrics.progress), for the time-left estimate
 REPORT_STEPS = 10
@@ -51,7 +51,7 @@ def build_report(data: StoreData, options: ReportOptions, *,
     """Run every analysis and assemble the :class:`Report` (no files written).
 
     ``jobs`` > 1 lets the defect-lifetime analysis run in a second process while the
-    other sections are built (:mod:`procmetrics.report.background`); the report is the
+    other sections are built (:mod:`procmetrics.background`); the report is the
     same with any ``jobs``.
 
     Warnings raised by the numerical libraries while the analyses run are

@@ -32,7 +32,7 @@ class BuildContext:
     skipped: list[str] = field(default_factory=list)
     #: warnings of the numerical libraries captured during the build (see build.py)
     numerical: Any = None
-    #: processes the build may use (:mod:`procmetrics.report.background`; 1: this one)
+    #: processes the build may use (:mod:`procmetrics.background`; 1: this one)
     jobs: int = 1
     #: the lifetime analysis started in a second process: (defect table, horizon, by, job)
     aside_lifetimes: Any = None

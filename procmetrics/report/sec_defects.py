@@ -65,7 +65,7 @@ def start_lifetimes(ctx: BuildContext, min_defects: int | None = None) -> None:
     other sections are built. Nothing is recorded here: a defect table that cannot be
     built now is built, and its failure noted, where the section always did it."""
     from procmetrics.analyse.lifetimes.analysis import analyse_lifetimes
-    from procmetrics.report.background import AsideJob
+    from procmetrics.background import AsideJob
 
     if ctx.jobs < 2:
         return

@@ -234,3 +234,39 @@ def test_no_stratified_comparison_without_subsystems():
     res = analyse_lifetimes(t, by="period", horizon=120, n_boot=20)
     assert res.comparison is not None and res.stratified_comparison is None
     assert any("share one subsystem" in cv.message for cv in res.caveats)
+
+
+def test_band_in_a_second_process_changes_nothing(monkeypatch):
+    """Oracle: the same analysis in one process. Three groups share one generator, so
+    the second group's band is right only if the first group's state came back."""
+    import warnings
+
+    from procmetrics.analyse.lifetimes import analysis
+
+    t = build_defects(_defects(600, 8), end_date="2022-01-01", period_cuts=["2020-12-16"])
+
+    def run(jobs: int) -> tuple[object, dict, list]:
+        rng = np.random.default_rng(11)
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            res = analyse_lifetimes(t, by="period", horizon=120, n_boot=200, rng=rng,
+                                    jobs=jobs)
+        return res, rng.bit_generator.state, [(w.category, str(w.message)) for w in caught]
+
+    one, state_one, warned_one = run(1)
+    sent: list[bool] = []
+    real = analysis._curve_and_quantiles
+
+    def spy(*a, **k):
+        sent.append(k["aside"])
+        return real(*a, **k)
+
+    monkeypatch.setattr(analysis, "ASIDE_MIN_DEFECTS", 0)
+    monkeypatch.setattr(analysis, "_curve_and_quantiles", spy)
+    two, state_two, warned_two = run(2)
+    assert sent == [True, True, True]
+    assert state_two == state_one
+    pd.testing.assert_frame_equal(two.curves, one.curves)
+    pd.testing.assert_frame_equal(two.summary, one.summary)
+    assert json.dumps(two.to_dict(), default=str) == json.dumps(one.to_dict(), default=str)
+    assert warned_two == warned_one

@@ -8,8 +8,9 @@ import warnings
 
 import pytest
 
-from procmetrics.report import background, sec_defects
-from procmetrics.report.background import AsideJob
+from procmetrics import background
+from procmetrics.report import sec_defects
+from procmetrics.background import AsideJob
 from procmetrics.report.build import build_report, numerical_warnings
 from procmetrics.report.jsonout import dumps, report_dict
 from procmetrics.report.model import ReportOptions

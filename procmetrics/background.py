@@ -1,10 +1,11 @@
-"""One costly analysis in a second process while the report goes on.
+"""One costly computation in a second process while this one goes on.
 
-The report's analyses run one after another on one core. The defect-lifetime
-analysis (bootstrap bands and quantile intervals, over a minute at a million
-commits) needs nothing the others compute, so :class:`AsideJob` starts it in a
-second process early and the report takes its result when the lifetimes section
-comes: the second core does that work while the first does the rest.
+The analyses run one after another on one core. Some need nothing the next steps
+compute: the report's defect-lifetime analysis (bootstrap bands and quantile
+intervals, over a minute at a million commits), or one group's bootstrap band
+beside its quantile intervals. :class:`AsideJob` starts such a computation in a
+second process and the caller takes its result when it needs it: the second core
+does that work while the first does the rest.
 
 It only moves work, never changes it. The function is pure and seeded by its
 arguments (the generator travels, pickled, with its state), so the result is the
@@ -31,9 +32,7 @@ def _child(conn: Any, fn: Callable[..., Any], args: tuple[Any, ...],
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always")
             value = fn(*args, **kwargs)
-        notes = [(w.category, str(w.message), str(w.filename), int(w.lineno or 0))
-                 for w in caught]
-        conn.send((True, value, notes))
+        conn.send((True, value, recorded(caught)))
     except BaseException:        # noqa: BLE001 - the parent reruns it and raises there
         try:
             conn.send((False, None, []))
@@ -41,6 +40,23 @@ def _child(conn: Any, fn: Callable[..., Any], args: tuple[Any, ...],
             pass
     finally:
         conn.close()
+
+
+#: one registry per file, as each module has its own: under the "default" filter a
+#: warning replayed from the same place is shown once, as it would have been
+_REGISTRIES: dict[str, dict[Any, Any]] = {}
+
+
+def recorded(caught: list[warnings.WarningMessage]) -> list[tuple[Any, str, str, int]]:
+    """Warnings caught by ``catch_warnings(record=True)`` as picklable tuples."""
+    return [(w.category, str(w.message), str(w.filename), int(w.lineno or 0)) for w in caught]
+
+
+def replay(notes: list[tuple[Any, str, str, int]]) -> None:
+    """Raise recorded warnings again, with their category, text, file and line."""
+    for category, message, filename, lineno in notes:
+        warnings.warn_explicit(message, category, filename, lineno,
+                               registry=_REGISTRIES.setdefault(filename, {}))
 
 
 class AsideJob:
@@ -76,8 +92,7 @@ class AsideJob:
                 self.close()
         if payload is not None and payload[0]:
             _, value, notes = payload
-            for category, message, filename, lineno in notes:
-                warnings.warn_explicit(message, category, filename, lineno)
+            replay(notes)
             self.ran_aside = True
             return value
         return self.fn(*self.args, **self.kwargs)
@@ -94,4 +109,4 @@ class AsideJob:
             proc.join()
 
 
-__all__ = ["AsideJob", "DEFAULT_JOBS"]
+__all__ = ["AsideJob", "DEFAULT_JOBS", "recorded", "replay"]
