@@ -47,8 +47,8 @@ def lifetime_defects(ctx: BuildContext) -> Any:
                          period_cuts=cuts, links_from="settled")
 
 
-#: defects from which the lifetime analysis is worth a second process (its interpreter
-#: and imports take about 3 s; at 13,000 defects the analysis takes about 15 s)
+#: defects from which the lifetime analysis's bootstrap bands are worth a second process
+#: (its interpreter and imports take about 3 s; at 13,000 defects the bands about 6 s)
 ASIDE_MIN_DEFECTS = 5000
 
 
@@ -60,11 +60,11 @@ def _lifetime_arguments(ctx: BuildContext, H: float | None) -> dict[str, Any]:
 
 
 def start_lifetimes(ctx: BuildContext, min_defects: int | None = None) -> None:
-    """Start the lifetime analysis of :func:`section_lifetimes` in a second process
-    (``ctx.jobs`` > 1 and at least ``min_defects`` defects), so that it runs while the
-    other sections are built. Nothing is recorded here: a defect table that cannot be
-    built now is built, and its failure noted, where the section always did it."""
-    from procmetrics.analyse.lifetimes.analysis import analyse_lifetimes
+    """Start drawing the bootstrap bands of :func:`section_lifetimes` in a second process
+    (``ctx.jobs`` > 1 and at least ``min_defects`` defects), so that they are drawn
+    while the other sections are built. Nothing is recorded here: a defect table that
+    cannot be built now is built, and its failure noted, where the section always did it."""
+    from procmetrics.analyse.lifetimes.analysis import truncation_aware_bands
     from procmetrics.background import AsideJob
 
     if ctx.jobs < 2:
@@ -77,22 +77,26 @@ def start_lifetimes(ctx: BuildContext, min_defects: int | None = None) -> None:
     if len(dt.defects) < (ASIDE_MIN_DEFECTS if min_defects is None else min_defects):
         return
     H = horizon_days(ctx, defects)
-    ctx.aside_lifetimes = (dt, H, AsideJob(analyse_lifetimes, dt,
-                                           **_lifetime_arguments(ctx, H)))
+    args = _lifetime_arguments(ctx, H)
+    ctx.aside_lifetimes = (dt, H, AsideJob(
+        truncation_aware_bands, dt, by=args["by"], level=args["level"],
+        min_at_risk=args["min_at_risk"], n_boot=args["n_boot"], rng=args["rng"]))
 
 
 def _lifetimes_result(ctx: BuildContext, dt: Any, H: float | None) -> Any:
-    """The section's lifetime analysis: the second process's, when it was started on
-    the same defect table and horizon, else computed here."""
+    """The section's lifetime analysis, with the bands drawn in the second process when
+    they were started for the same defect table and horizon."""
     from procmetrics.analyse.lifetimes.analysis import analyse_lifetimes
 
     aside, ctx.aside_lifetimes = ctx.aside_lifetimes, None
+    bands = None
     if aside is not None:
         adt, aH, job = aside
         if adt is dt and aH == H:
-            return job.result()
-        job.close()
-    return analyse_lifetimes(dt, **_lifetime_arguments(ctx, H))
+            bands = job
+        else:
+            job.close()
+    return analyse_lifetimes(dt, bands=bands, **_lifetime_arguments(ctx, H))
 
 
 def section_lifetimes(ctx: BuildContext) -> None:

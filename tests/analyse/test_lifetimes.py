@@ -238,35 +238,57 @@ def test_no_stratified_comparison_without_subsystems():
 
 def test_band_in_a_second_process_changes_nothing(monkeypatch):
     """Oracle: the same analysis in one process. Three groups share one generator, so
-    the second group's band is right only if the first group's state came back."""
+    the second group's band is right only if the first group's state came with it."""
     import warnings
 
+    from procmetrics import background
     from procmetrics.analyse.lifetimes import analysis
 
     t = build_defects(_defects(600, 8), end_date="2022-01-01", period_cuts=["2020-12-16"])
 
-    def run(jobs: int) -> tuple[object, dict, list]:
+    def run(jobs: int, **kw) -> tuple[object, dict, list]:
         rng = np.random.default_rng(11)
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always")
             res = analyse_lifetimes(t, by="period", horizon=120, n_boot=200, rng=rng,
-                                    jobs=jobs)
-        return res, rng.bit_generator.state, [(w.category, str(w.message)) for w in caught]
+                                    jobs=jobs, **kw)
+        return res, rng.bit_generator.state, sorted((w.category.__name__, str(w.message))
+                                                    for w in caught)
 
     one, state_one, warned_one = run(1)
-    sent: list[bool] = []
-    real = analysis._curve_and_quantiles
+    asides: list[bool] = []
+    real = background.AsideJob.result
 
-    def spy(*a, **k):
-        sent.append(k["aside"])
-        return real(*a, **k)
+    def spy(self):
+        value = real(self)
+        asides.append(self.ran_aside)
+        return value
 
     monkeypatch.setattr(analysis, "ASIDE_MIN_DEFECTS", 0)
-    monkeypatch.setattr(analysis, "_curve_and_quantiles", spy)
+    monkeypatch.setattr(background.AsideJob, "result", spy)
     two, state_two, warned_two = run(2)
-    assert sent == [True, True, True]
-    assert state_two == state_one
-    pd.testing.assert_frame_equal(two.curves, one.curves)
-    pd.testing.assert_frame_equal(two.summary, one.summary)
-    assert json.dumps(two.to_dict(), default=str) == json.dumps(one.to_dict(), default=str)
-    assert warned_two == warned_one
+    # started elsewhere, as the report does, with a generator in the same state
+    job = background.AsideJob(analysis.truncation_aware_bands, t, by="period", n_boot=200,
+                              rng=np.random.default_rng(11))
+    three, state_three, warned_three = run(1, bands=job)
+    assert asides == [True, True]
+    for res, state, warned in ((two, state_two, warned_two),
+                               (three, state_three, warned_three)):
+        assert state == state_one
+        pd.testing.assert_frame_equal(res.curves, one.curves)
+        pd.testing.assert_frame_equal(res.summary, one.summary)
+        assert json.dumps(res.to_dict(), default=str) == json.dumps(one.to_dict(), default=str)
+        assert warned == warned_one
+
+
+def test_bands_drawn_for_another_table_are_not_used():
+    t = build_defects(_defects(600, 8), end_date="2022-01-01", period_cuts=["2020-12-16"])
+    other = build_defects(_defects(500, 9), end_date="2022-01-01", period_cuts=["2020-12-16"])
+    from procmetrics.analyse.lifetimes.analysis import truncation_aware_bands
+
+    wrong = truncation_aware_bands(other, by="period", n_boot=100,
+                                   rng=np.random.default_rng(5))
+    got = analyse_lifetimes(t, by="period", n_boot=100, rng=np.random.default_rng(5),
+                            bands=wrong)
+    want = analyse_lifetimes(t, by="period", n_boot=100, rng=np.random.default_rng(5))
+    pd.testing.assert_frame_equal(got.curves, want.curves)

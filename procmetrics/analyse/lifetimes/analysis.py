@@ -154,12 +154,11 @@ def _group_keys(d: pd.DataFrame, by: str | None) -> list[tuple[str, pd.DataFrame
 ASIDE_MIN_DEFECTS = 5000
 
 
-def _curve_with_state(L: np.ndarray, U: np.ndarray | None, W: np.ndarray, *, level: float,
+def _band_curve(L: np.ndarray, U: np.ndarray | None, W: np.ndarray, *, level: float,
                       n_boot: int, min_at_risk: int, rng: np.random.Generator
-                      ) -> tuple[Any, NotIdentifiable | None, dict[str, Any]]:
-    """The truncation-aware curve (or why it is refused) and the generator's state after
-    its draws: run in a second process, the state comes back so that the next group's
-    draws are those of a run in one process."""
+                      ) -> tuple[Any, NotIdentifiable | None]:
+    """One group's truncation-aware curve with its bootstrap band from ``rng``, or why it
+    is refused (the draws made before the refusal stay drawn, as in one process)."""
     try:
         if U is not None:
             from procmetrics.analyse.lifetimes.double import doubly_truncated_curve
@@ -170,54 +169,113 @@ def _curve_with_state(L: np.ndarray, U: np.ndarray | None, W: np.ndarray, *, lev
             curve = truncated_product_limit(L, W, level=level, n_boot=n_boot,
                                             min_at_risk=min_at_risk, rng=rng)
     except NotIdentifiable as exc:
-        return None, exc, rng.bit_generator.state
-    return curve, None, rng.bit_generator.state
+        return None, exc
+    return curve, None
 
 
-def _curve_and_quantiles(L: np.ndarray, U: np.ndarray | None, W: np.ndarray, *,
-                         quantiles: tuple[float, ...], level: float, n_boot: int, unit: str,
-                         min_at_risk: int, rng: np.random.Generator, aside: bool
-                         ) -> tuple[Any, list[Any]]:
-    """One group's truncation-aware curve (bootstrap band from ``rng``) and quantiles
-    (intervals from a generator keyed by the data), in that order; with ``aside`` the
-    band is drawn in a second process meanwhile. Either way the same values, the same
-    warnings in the same order, the same first refusal (:class:`NotIdentifiable`) and
-    the same state of ``rng`` afterwards."""
+def _is_double(d: pd.DataFrame) -> bool:
+    """Whether some defects are truncated from below too (introduced before linking)."""
+    return bool((d.get("window_low", pd.Series(0.0, index=d.index)) > 0).any())
+
+
+def _estimation_groups(d: pd.DataFrame, by: str | None, min_group_size: int, double: bool
+                       ) -> tuple[list[tuple[str, np.ndarray, np.ndarray, np.ndarray | None]],
+                                  list[str]]:
+    """The groups estimated, in order, as (group, lifetimes, windows, lower bounds), and
+    the groups left out for their size."""
+    used, skipped = [], []
+    for group, g in _group_keys(d, by):
+        if len(g) < min_group_size:
+            skipped.append(f"{group} (n={len(g)})")
+            continue
+        used.append((group, g["lifetime"].to_numpy(float), g["window"].to_numpy(float),
+                     g["window_low"].to_numpy(float) if double else None))
+    return used, skipped
+
+
+def truncation_aware_bands(table: DefectTable, *, by: Literal["subsystem", "period"] | None
+                           = None, level: float = 0.95, min_at_risk: int = 10,
+                           n_boot: int = 2000, min_group_size: int = 10,
+                           rng: np.random.Generator | None = None
+                           ) -> tuple[list[tuple[str, int, Any, NotIdentifiable | None]],
+                                      dict[str, Any]]:
+    """The truncation-aware curves with bootstrap bands that :func:`analyse_lifetimes`
+    draws from ``rng`` for the same table and arguments, group by group in its order:
+    ``([(group, n, curve or None, refusal or None), ...], state of rng afterwards)``.
+
+    The bands are the part of the analysis that depends on the generator; the rest
+    (quantile intervals keyed by the data, the horizon figures) does not. Computed
+    apart, in a second process (:mod:`procmetrics.background`), and handed to
+    :func:`analyse_lifetimes` as ``bands``, they give the same analysis.
+    """
+    rng = rng if rng is not None else np.random.default_rng(DEFAULT_SEED)
+    d, _ = lifetimes_for_estimation(table.defects)
+    groups, _ = _estimation_groups(d, by, min_group_size, _is_double(d))
+    out = []
+    for group, L, W, U in groups:
+        curve, refused = _band_curve(L, U, W, level=level, n_boot=n_boot,
+                                              min_at_risk=min_at_risk, rng=rng)
+        out.append((group, len(L), curve, refused))
+    return out, rng.bit_generator.state
+
+
+#: the generator's seed when none is given
+DEFAULT_SEED = 20240601
+
+
+def _with_bands_drawn_apart(groups: list[tuple[str, np.ndarray, np.ndarray, np.ndarray | None]],
+                            bands: Any, rng: np.random.Generator, q: Any, add_curve: Any,
+                            add_q: Any, refused_note: Any, *, quantiles: tuple[float, ...],
+                            level: float, unit: str, min_at_risk: int, truncation: str,
+                            band_args: dict[str, Any]) -> Any:
+    """:func:`analyse_lifetimes`' groups with the bands drawn elsewhere (``bands``): the
+    quantiles are drawn here meanwhile, then everything is added in the one-process
+    order. A quantile's warnings count only where its band was not refused (in one
+    process it would not have run). Returns the truncation-aware median of all defects."""
     import warnings
 
-    from procmetrics.background import AsideJob, recorded, replay
+    from procmetrics.background import recorded, replay
 
-    def q() -> list[Any]:
-        return quantile_estimates(L, W, quantiles=quantiles, level=level, n_boot=n_boot,
-                                  unit=unit, rng=None, min_at_risk=min_at_risk, window_low=U)
-
-    band = dict(level=level, n_boot=n_boot, min_at_risk=min_at_risk)
-    if not aside:
-        curve, refused, _ = _curve_with_state(L, U, W, rng=rng, **band)
-        if refused is not None:
-            raise refused
-        return curve, q()
-    job = AsideJob(_curve_with_state, L, U, W, rng=rng, **band)
-    q_refused: NotIdentifiable | None = None
-    qe: list[Any] = []
+    pending = []
     try:
-        with warnings.catch_warnings(record=True) as q_warned:
-            warnings.simplefilter("always")
-            try:
-                qe = q()
-            except NotIdentifiable as exc:
-                q_refused = exc
+        for group, L, W, U in groups:
+            km = kaplan_meier(L, level=level, min_at_risk=min_at_risk)
+            naive = quantile_estimates(L, quantiles=quantiles, level=level, unit=unit,
+                                       min_at_risk=min_at_risk)
+            with warnings.catch_warnings(record=True) as caught:
+                warnings.simplefilter("always")
+                try:
+                    qe, q_refused = q(L, W, U), None
+                except NotIdentifiable as exc:
+                    qe, q_refused = None, exc
+            pending.append((group, len(L), km, naive, qe, q_refused, recorded(caught)))
+        drawn, state = bands.result() if hasattr(bands, "result") else bands
     except BaseException:
-        job.close()
+        if hasattr(bands, "close"):
+            bands.close()
         raise
-    curve, refused, state = job.result()        # the band's warnings are raised here
-    rng.bit_generator.state = state
-    if refused is not None:                     # in one process the quantiles never ran
-        raise refused
-    replay(recorded(q_warned))
-    if q_refused is not None:
-        raise q_refused
-    return curve, qe
+    if [(g, n) for g, n, *_ in drawn] == [(g, n) for g, n, *_ in pending]:
+        rng.bit_generator.state = state
+    else:                            # drawn for another table: draw them here, in order
+        drawn = [(group, len(L), *_band_curve(L, U, W, rng=rng, **band_args))
+                 for group, L, W, U in groups]
+    lb_all = None
+    for (group, _, km, naive, qe, q_refused, notes), (_, _, curve, refused) in zip(pending,
+                                                                                  drawn):
+        add_curve(group, "naive", km, "none")
+        add_q(group, "naive", naive)
+        if refused is not None:
+            refused_note(group, refused)
+            continue
+        replay(notes)
+        if q_refused is not None:
+            refused_note(group, q_refused)
+            continue
+        add_curve(group, "truncation_aware", curve, truncation)
+        add_q(group, "truncation_aware", qe)
+        if group == ALL and 0.5 in quantiles:
+            lb_all = qe[list(quantiles).index(0.5)]
+    return lb_all
 
 
 def analyse_lifetimes(
@@ -235,6 +293,7 @@ def analyse_lifetimes(
     stratify: bool = True,
     alpha: float = 0.05,
     jobs: int = 1,
+    bands: Any = None,
 ) -> LifetimeAnalysis:
     """Curves, quantile summaries and (with ``by``) a log-rank comparison.
 
@@ -258,10 +317,15 @@ def analyse_lifetimes(
     stratify : with ``by`` and ``horizon``, also run the log-rank test
         stratified by the other grouping variable (``subsystem`` for periods,
         ``period`` for subsystems).
-    jobs : processes; with 2 or more, a group of at least :data:`ASIDE_MIN_DEFECTS`
-        defects has its bootstrap band drawn in a second process while its quantile
-        intervals are drawn here (:mod:`procmetrics.background`). The result is the
-        same with any ``jobs``: the generator's state comes back with the band.
+    jobs : processes; with 2 or more and a group of at least :data:`ASIDE_MIN_DEFECTS`
+        defects, the bootstrap bands (:func:`truncation_aware_bands`) are drawn in a
+        second process while the quantile intervals are drawn here
+        (:mod:`procmetrics.background`). The result is the same with any ``jobs``; the
+        generator's state comes back with the bands.
+    bands : :func:`truncation_aware_bands` of this table with these arguments and a
+        generator in the state of ``rng``, started elsewhere: an
+        :class:`~procmetrics.background.AsideJob` (or its result). Used when its groups
+        and sizes are this analysis's; otherwise the bands are drawn here.
     alpha : level used only to word the caveat when the plain and the
         stratified comparison disagree.
 
@@ -271,7 +335,7 @@ def analyse_lifetimes(
     (1988); Peto & Peto (1972) for the log-rank test; Klein & Moeschberger
     (2003), Survival Analysis, sec. 7.5 (stratified tests).
     """
-    rng = rng if rng is not None else np.random.default_rng(20240601)
+    rng = rng if rng is not None else np.random.default_rng(DEFAULT_SEED)
     if by not in (None, "subsystem", "period"):
         raise ValueError("by must be 'subsystem', 'period' or None")
     d, n_neg = lifetimes_for_estimation(table.defects)
@@ -283,7 +347,7 @@ def analyse_lifetimes(
     cohort = restrict_to_horizon(table.defects, horizon, unit) if horizon is not None else None
     skipped: list[str] = []
 
-    double = bool((d.get("window_low", pd.Series(0.0, index=d.index)) > 0).any())
+    double = _is_double(d)
     truncation = "both ends" if double else "right"
 
     def add_curve(group: str, method: str, curve: Any, trunc: str) -> None:
@@ -301,28 +365,46 @@ def analyse_lifetimes(
                           "support_limit": e.support_limit, "range_low": e.range_low,
                           "range_high": e.range_high, "high_open": e.high_open})
 
+    def q(L: np.ndarray, W: np.ndarray, U: np.ndarray | None) -> list[Any]:
+        return quantile_estimates(L, W, quantiles=quantiles, level=level, n_boot=n_boot,
+                                  unit=unit, rng=None, min_at_risk=min_at_risk, window_low=U)
+
+    def refused_note(group: str, exc: NotIdentifiable) -> None:
+        cav.append(caveat("not_identifiable", f"{group}: truncation-aware curve and "
+                          f"quantiles refused: {exc}"))
+
+    groups, skipped = _estimation_groups(d, by, min_group_size, double)
+    band_args = dict(level=level, n_boot=n_boot, min_at_risk=min_at_risk)
+    if bands is None and jobs > 1 and any(len(L) >= ASIDE_MIN_DEFECTS for _, L, _, _ in groups):
+        from procmetrics.background import AsideJob
+
+        bands = AsideJob(truncation_aware_bands, table, by=by, min_group_size=min_group_size,
+                         rng=rng, **band_args)
     lb_all = None
-    for group, g in _group_keys(d, by):
-        if len(g) < min_group_size:
-            skipped.append(f"{group} (n={len(g)})")
-            continue
-        L, W = g["lifetime"].to_numpy(float), g["window"].to_numpy(float)
-        add_curve(group, "naive", kaplan_meier(L, level=level, min_at_risk=min_at_risk), "none")
-        add_q(group, "naive", quantile_estimates(L, quantiles=quantiles, level=level, unit=unit,
-                                                 min_at_risk=min_at_risk))
-        U = g["window_low"].to_numpy(float) if double else None
-        try:
-            curve, qe = _curve_and_quantiles(
-                L, U, W, quantiles=quantiles, level=level, n_boot=n_boot, unit=unit,
-                min_at_risk=min_at_risk, rng=rng, aside=jobs > 1 and len(L) >= ASIDE_MIN_DEFECTS)
-        except NotIdentifiable as exc:
-            cav.append(caveat("not_identifiable", f"{group}: truncation-aware curve and "
-                              f"quantiles refused: {exc}"))
-            continue
-        add_curve(group, "truncation_aware", curve, truncation)
-        add_q(group, "truncation_aware", qe)
-        if group == ALL and 0.5 in quantiles:
-            lb_all = qe[list(quantiles).index(0.5)]
+    if bands is None:
+        # one process: each group's band, then its quantiles (skipped when it is refused)
+        for group, L, W, U in groups:
+            add_curve(group, "naive", kaplan_meier(L, level=level, min_at_risk=min_at_risk),
+                      "none")
+            add_q(group, "naive", quantile_estimates(L, quantiles=quantiles, level=level,
+                                                     unit=unit, min_at_risk=min_at_risk))
+            curve, refused = _band_curve(L, U, W, rng=rng, **band_args)
+            try:
+                if refused is not None:
+                    raise refused
+                qe = q(L, W, U)
+            except NotIdentifiable as exc:
+                refused_note(group, exc)
+                continue
+            add_curve(group, "truncation_aware", curve, truncation)
+            add_q(group, "truncation_aware", qe)
+            if group == ALL and 0.5 in quantiles:
+                lb_all = qe[list(quantiles).index(0.5)]
+    else:
+        lb_all = _with_bands_drawn_apart(
+            groups, bands, rng, q, add_curve, add_q, refused_note, quantiles=quantiles,
+            level=level, unit=unit, min_at_risk=min_at_risk, truncation=truncation,
+            band_args=band_args)
     if cohort is not None:
         for group, g in _group_keys(cohort.defects, by):
             if len(g) < min_group_size:
