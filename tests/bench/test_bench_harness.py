@@ -120,6 +120,24 @@ def test_memory_regression_of_the_procmetrics_process():
     assert row["status"] == "REGRESSED" and row["change"] == pytest.approx(0.30)
 
 
+def test_memory_moved_to_a_second_process_is_still_gated():
+    """An analysis that moves work into a child keeps its memory in the summed figure;
+    mining's children are git, whose memory the gate leaves out."""
+    base = size(10.0, report=dict(seconds=20.0, peak_rss_main_mib=100.0, peak_rss_mib=100.0))
+    now = size(10.0, report=dict(seconds=20.0, peak_rss_main_mib=80.0, peak_rss_mib=140.0))
+    rows = gate.compare(now, base)
+    assert status(rows, "analyses.report", "peak RSS, procmetrics alone")["status"] == "ok"
+    row = status(rows, "analyses.report", "peak RSS, with its children")
+    assert row["status"] == "REGRESSED" and row["change"] == pytest.approx(0.40)
+    mining = {"history": {"commits": 1000, "non_merge_commits": 1000},
+              "git_raw": {"seconds": 10.0, "exit_code": 0},
+              "mine_paths": {"seconds": 20.0, "exit_code": 0, "peak_rss_mib": 900.0,
+                             "peak_rss_main_mib": 100.0}}
+    grown = {**mining, "mine_paths": {**mining["mine_paths"], "peak_rss_mib": 2000.0}}
+    measures = {r["measure"] for r in gate.compare(grown, mining) if r["figure"] == "mine_paths"}
+    assert measures == {"time ratio", "peak RSS, procmetrics alone"}
+
+
 def test_new_failed_and_baseline_failed_figures():
     base = size(10.0, series=dict(seconds=20.0), report=dict(seconds=600.0, exit_code=-9),
                 check=dict(seconds=1.0))
