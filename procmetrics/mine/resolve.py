@@ -12,14 +12,17 @@ branches, tags and remote-tracking branches (pull-request refs such as
 Stored hashes answer most references (an indexed range query per prefix).
 References the store cannot settle - unknown hashes, and short prefixes that
 might also match a commit outside the mined range - go to ONE
-``git cat-file --batch-check`` process; only when that finds a commit outside
-the store (or an ambiguous prefix) is the reachable history streamed once with
-``git rev-list`` to decide reachability and count prefix matches.
+``git cat-file --batch-check`` process. When that finds a commit outside the
+store (or an ambiguous prefix), a few such references are settled one by one
+(the objects git lists for the prefix, and for each commit among them whether
+the tip or a ref contains it); many are settled by streaming the reachable
+history once with ``git rev-list`` and counting prefix matches.
 """
 from __future__ import annotations
 
 from procmetrics.hexprefix import prefix_matches  # noqa: F401 - used and re-exported
 
+import fnmatch
 from typing import Callable, Iterable, Sequence
 
 from procmetrics.mine.git import GitRepo
@@ -88,7 +91,7 @@ def find_candidates(git: GitRepo, tip: str, refs: Iterable[str],
             need_walk.add(r)            # several objects: count the reachable commits
         elif len(parts) == 3 and parts[1] == "commit" and parts[0] not in found[r]:
             need_walk.add(r)            # a commit outside the store: is it reachable?
-    if need_walk:
+    if need_walk and (len(need_walk) > ONE_BY_ONE or min(map(len, need_walk)) < 4):
         by_head: dict[str, list[str]] = {}
         for r in need_walk:
             by_head.setdefault(r[:4], []).append(r)
@@ -96,7 +99,43 @@ def find_candidates(git: GitRepo, tip: str, refs: Iterable[str],
             for r in by_head.get(h[:4], ()):
                 if h.startswith(r) and h not in found[r]:
                     found[r].append(h)
+    elif need_walk:
+        for r in sorted(need_walk):
+            found[r].extend(h for h in _objects_with_prefix(git, r, "commit")
+                            if h not in found[r] and _reachable(git, h, tip))
     return found
+
+
+#: references that git must settle (an ambiguous prefix, a commit outside the store) up
+#: to which each is asked about on its own; more, and the reachable history is walked
+#: once. One walk of a 1,000,000-commit history is about 8 s, and a single ambiguous
+#: prefix among the rechecked references made every incremental run pay it
+ONE_BY_ONE = 16
+
+
+def _objects_with_prefix(git: GitRepo, prefix: str, kind: str) -> list[str]:
+    """Objects of type ``kind`` whose name starts with ``prefix`` (at least 4 digits):
+    every object git lists for it, typed by ``cat-file``."""
+    listed = git._run(["rev-parse", f"--disambiguate={prefix}"], check=False).stdout.split()
+    listed = [x.decode("ascii", "replace") for x in listed]
+    if not listed:
+        return []
+    typed = git.batch(["cat-file", "--batch-check=%(objectname) %(objecttype)"], listed)
+    return sorted(oid for oid, _, t in (line.partition(" ") for line in typed) if t == kind)
+
+
+def _reachable(git: GitRepo, commit: str, tip: str) -> bool:
+    """Whether ``commit`` is reachable from the tip, a branch, a tag or a remote-tracking
+    branch (pull-request refs excluded), as :func:`reachable_args` walks them."""
+    if git.is_ancestor(commit, tip):
+        return True
+    names = git.text("for-each-ref", f"--contains={commit}", "--format=%(refname)",
+                     "refs/heads/", "refs/tags/", "refs/remotes/").split()
+    for name in names:
+        short = name.split("/", 2)[2]
+        if not any(fnmatch.fnmatchcase(short, g) for g in EXCLUDED_REF_GLOBS):
+            return True
+    return False
 
 
 def _stream_lines(git: GitRepo, args: list[str]) -> Iterable[str]:

@@ -98,3 +98,52 @@ def test_only_branches_and_tags_count(git_history):
     found = find_candidates(repo, base, [side[:12], pr[:12]], lambda rs: {r: [] for r in rs})
     assert found[side[:12]] == [side]
     assert found[pr[:12]] == []
+
+
+def test_settled_one_by_one_as_the_walk_settles_them(many_commits, monkeypatch):
+    """Oracle: the walk over every reachable commit (``git rev-list``). A few references
+    that git must settle are asked about one by one; the answers must be the walk's."""
+    from procmetrics.mine import resolve
+
+    h, revs = many_commits
+    h.git("update-ref", "refs/remotes/origin/pull/9/head", revs[-1])   # excluded ref kind
+    repo = GitRepo.open(h.path)
+    tip = revs[1100]                 # commits after it: on main only, not below the tip
+    store = sorted(revs[:700])
+    prefix = _collision(revs, 5) or _collision(revs, 4)
+    refs = [prefix, revs[900][:10], revs[1300][:12], revs[1450][:9], "deadbeef0"]
+
+    def stored(rs):
+        return {r: prefix_matches(store, r) for r in rs}
+
+    walked = {}
+    monkeypatch.setattr(resolve, "ONE_BY_ONE", 0)
+    walked = {r: sorted(v) for r, v in resolve.find_candidates(repo, tip, refs, stored).items()}
+    monkeypatch.setattr(resolve, "ONE_BY_ONE", 16)
+    asked = {r: sorted(v) for r, v in resolve.find_candidates(repo, tip, refs, stored).items()}
+    assert asked == walked
+    assert walked[revs[1300][:12]] == [revs[1300]]      # reachable through main
+    assert walked["deadbeef0"] == []
+
+
+def test_refs_count_one_by_one_as_in_the_walk(git_history, monkeypatch):
+    """Remote-tracking branches count, remote pull-request refs do not: the same answers
+    asked one by one as from the walk (oracle: ``git rev-list`` with its excludes)."""
+    from procmetrics.mine import resolve
+
+    h = git_history()
+    base = h.commit("base", files={"a": "1\n"})
+    fork = h.commit("fetched from a fork", files={"f": "1\n"})
+    h.git("update-ref", "refs/remotes/upstream/main", fork)
+    h.git("reset", "-q", "--hard", base)
+    review = h.commit("under review", files={"r": "1\n"})
+    h.git("update-ref", "refs/remotes/origin/pull/12/head", review)
+    h.git("reset", "-q", "--hard", base)
+    repo = GitRepo.open(h.path)
+    refs = [fork[:12], review[:12]]
+    empty = lambda rs: {r: [] for r in rs}       # noqa: E731 - nothing stored
+    monkeypatch.setattr(resolve, "ONE_BY_ONE", 0)
+    walked = resolve.find_candidates(repo, base, refs, empty)
+    monkeypatch.setattr(resolve, "ONE_BY_ONE", 16)
+    asked = resolve.find_candidates(repo, base, refs, empty)
+    assert walked == asked == {fork[:12]: [fork], review[:12]: []}
