@@ -225,9 +225,9 @@ DEFAULT_SEED = 20240601
 
 def _with_bands_drawn_apart(groups: list[tuple[str, np.ndarray, np.ndarray, np.ndarray | None]],
                             bands: Any, rng: np.random.Generator, q: Any, add_curve: Any,
-                            add_q: Any, refused_note: Any, *, quantiles: tuple[float, ...],
-                            level: float, unit: str, min_at_risk: int, truncation: str,
-                            band_args: dict[str, Any]) -> Any:
+                            add_q: Any, add_aware: Any, refused_note: Any, *,
+                            quantiles: tuple[float, ...], level: float, unit: str,
+                            min_at_risk: int, band_args: dict[str, Any]) -> Any:
     """:func:`analyse_lifetimes`' groups with the bands drawn elsewhere (``bands``): the
     quantiles are drawn here meanwhile, then everything is added in the one-process
     order. A quantile's warnings count only where its band was not refused (in one
@@ -271,10 +271,7 @@ def _with_bands_drawn_apart(groups: list[tuple[str, np.ndarray, np.ndarray, np.n
         if q_refused is not None:
             refused_note(group, q_refused)
             continue
-        add_curve(group, "truncation_aware", curve, truncation)
-        add_q(group, "truncation_aware", qe)
-        if group == ALL and 0.5 in quantiles:
-            lb_all = qe[list(quantiles).index(0.5)]
+        lb_all = add_aware(group, curve, qe, lb_all)
     return lb_all
 
 
@@ -369,6 +366,13 @@ def analyse_lifetimes(
         return quantile_estimates(L, W, quantiles=quantiles, level=level, n_boot=n_boot,
                                   unit=unit, rng=None, min_at_risk=min_at_risk, window_low=U)
 
+    def add_aware(group: str, curve: Any, qe: list[Any], median: Any) -> Any:
+        """Add a group's truncation-aware curve and quantiles; the median of all defects
+        (``median`` kept for the other groups)."""
+        add_curve(group, "truncation_aware", curve, truncation)
+        add_q(group, "truncation_aware", qe)
+        return qe[list(quantiles).index(0.5)] if group == ALL and 0.5 in quantiles else median
+
     def refused_note(group: str, exc: NotIdentifiable) -> None:
         cav.append(caveat("not_identifiable", f"{group}: truncation-aware curve and "
                           f"quantiles refused: {exc}"))
@@ -396,14 +400,11 @@ def analyse_lifetimes(
             except NotIdentifiable as exc:
                 refused_note(group, exc)
                 continue
-            add_curve(group, "truncation_aware", curve, truncation)
-            add_q(group, "truncation_aware", qe)
-            if group == ALL and 0.5 in quantiles:
-                lb_all = qe[list(quantiles).index(0.5)]
+            lb_all = add_aware(group, curve, qe, lb_all)
     else:
         lb_all = _with_bands_drawn_apart(
-            groups, bands, rng, q, add_curve, add_q, refused_note, quantiles=quantiles,
-            level=level, unit=unit, min_at_risk=min_at_risk, truncation=truncation,
+            groups, bands, rng, q, add_curve, add_q, add_aware, refused_note,
+            quantiles=quantiles, level=level, unit=unit, min_at_risk=min_at_risk,
             band_args=band_args)
     if cohort is not None:
         for group, g in _group_keys(cohort.defects, by):
