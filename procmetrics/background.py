@@ -7,6 +7,12 @@ beside its quantile intervals. :class:`AsideJob` starts such a computation in a
 second process and the caller takes its result when it needs it: the second core
 does that work while the first does the rest.
 
+The second process is a fresh interpreter running this module (``python -m
+procmetrics.background``): the call goes in on its stdin and the result comes back
+on its stdout, both pickled. Unlike ``multiprocessing``'s "spawn", it never imports
+the caller's main script again, so a script without an ``if __name__ ==
+"__main__"`` guard is not run twice.
+
 It only moves work, never changes it. The function is pure and seeded by its
 arguments (the generator travels, pickled, with its state), so the result is the
 same value either way. The warnings it raises there are raised again here, with
@@ -17,34 +23,17 @@ raises what it raises as if nothing had been tried; a result is never guessed.
 """
 from __future__ import annotations
 
-import multiprocessing
+import os
+import pickle
+import subprocess
+import sys
+import threading
 import warnings
+from pathlib import Path
 from typing import Any, Callable
 
 #: processes a report uses by default (1: every analysis in this process)
 DEFAULT_JOBS = 2
-
-
-def _child(conn: Any, fn: Callable[..., Any], args: tuple[Any, ...],
-           kwargs: dict[str, Any]) -> None:
-    """Run ``fn`` in the second process and send (ok, value, warnings) back."""
-    try:
-        with warnings.catch_warnings(record=True) as caught:
-            warnings.simplefilter("always")
-            value = fn(*args, **kwargs)
-        conn.send((True, value, recorded(caught)))
-    except BaseException:        # noqa: BLE001 - the parent reruns it and raises there
-        try:
-            conn.send((False, None, []))
-        except BaseException:    # noqa: BLE001 - a broken pipe: the parent sees EOF
-            pass
-    finally:
-        conn.close()
-
-
-#: one registry per file, as each module has its own: under the "default" filter a
-#: warning replayed from the same place is shown once, as it would have been
-_REGISTRIES: dict[str, dict[Any, Any]] = {}
 
 
 def recorded(caught: list[warnings.WarningMessage]) -> list[tuple[Any, str, str, int]]:
@@ -52,61 +41,122 @@ def recorded(caught: list[warnings.WarningMessage]) -> list[tuple[Any, str, str,
     return [(w.category, str(w.message), str(w.filename), int(w.lineno or 0)) for w in caught]
 
 
-def replay(notes: list[tuple[Any, str, str, int]]) -> None:
-    """Raise recorded warnings again, with their category, text, file and line."""
+def replay(notes: list[tuple[Any, str, str, int]],
+           registries: dict[str, dict[Any, Any]] | None = None) -> None:
+    """Raise recorded warnings again, with their category, text, file and line.
+
+    ``registries`` (file name -> warning registry, kept by the caller) stands in for
+    the registries of the modules that raised them: under the "default" filter a
+    warning replayed twice from the same place is shown once, as it would have been
+    in one process (the report records every warning with "always" either way)."""
+    registries = {} if registries is None else registries
     for category, message, filename, lineno in notes:
         warnings.warn_explicit(message, category, filename, lineno,
-                               registry=_REGISTRIES.setdefault(filename, {}))
+                               registry=registries.setdefault(filename, {}))
+
+
+def _serve(stdin: Any, stdout: Any) -> None:
+    """The second process: read (fn, args, kwargs), write (ok, value, warnings)."""
+    try:
+        fn, args, kwargs = pickle.load(stdin)
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            value = fn(*args, **kwargs)
+        out = pickle.dumps((True, value, recorded(caught)), protocol=pickle.HIGHEST_PROTOCOL)
+    except BaseException:        # noqa: BLE001 - the caller reruns it and raises there
+        out = pickle.dumps((False, None, []))
+    stdout.write(out)
+    stdout.flush()
 
 
 class AsideJob:
-    """``fn(*args, **kwargs)`` started in a second process ('spawn': a fresh
-    interpreter, nothing inherited but the arguments); :meth:`result` returns its
+    """``fn(*args, **kwargs)`` started in a second process; :meth:`result` returns its
     value, computing it here instead when the second process gave none."""
 
     def __init__(self, fn: Callable[..., Any], *args: Any, **kwargs: Any) -> None:
         self.fn, self.args, self.kwargs = fn, args, kwargs
         self.ran_aside = False
+        self._registries: dict[str, dict[Any, Any]] = {}
         self._proc: Any = None
-        self._conn: Any = None
+        self._feed: Any = None
         try:
-            mp = multiprocessing.get_context("spawn")
-            recv, send = mp.Pipe(duplex=False)
-            proc = mp.Process(target=_child, args=(send, fn, args, kwargs), daemon=True,
-                              name="procmetrics-aside")
-            proc.start()
-            send.close()
-            self._proc, self._conn = proc, recv
+            data = pickle.dumps((fn, args, kwargs), protocol=pickle.HIGHEST_PROTOCOL)
+            here = str(Path(__file__).resolve().parents[1])    # where procmetrics is
+            env = dict(os.environ)
+            env["PYTHONPATH"] = os.pathsep.join(
+                [here] + ([env["PYTHONPATH"]] if env.get("PYTHONPATH") else []))
+            proc = subprocess.Popen([sys.executable, "-m", "procmetrics.background"],
+                                    stdin=subprocess.PIPE, stdout=subprocess.PIPE,
+                                    stderr=None if os.environ.get("PROCMETRICS_DEBUG")
+                                    else subprocess.DEVNULL, env=env)
         except Exception:         # noqa: BLE001 - no second process: run it here later
-            self._proc = self._conn = None
+            return
+        self._proc = proc
+        # a thread writes the call, so that a large one never blocks the caller
+        self._feed = threading.Thread(target=_write_and_close, args=(proc.stdin, data),
+                                      daemon=True)
+        self._feed.start()
 
     def result(self) -> Any:
         """The function's value (raised exceptions come from running it here)."""
         payload = None
-        if self._conn is not None:
+        proc = self._proc
+        if proc is not None:
             try:
-                payload = self._conn.recv()
-            except Exception:     # noqa: BLE001 - EOF (it died), or a value that will not unpickle
+                raw = proc.stdout.read()
+                proc.wait()
+                payload = pickle.loads(raw) if proc.returncode == 0 and raw else None
+            except Exception:     # noqa: BLE001 - it died, or a value that will not unpickle
                 payload = None
             finally:
                 self.close()
         if payload is not None and payload[0]:
             _, value, notes = payload
-            replay(notes)
+            replay(notes, self._registries)
             self.ran_aside = True
             return value
         return self.fn(*self.args, **self.kwargs)
 
     def close(self) -> None:
         """Stop the second process if it still runs (a report that failed early)."""
-        conn, proc = self._conn, self._proc
-        self._conn = self._proc = None
-        if conn is not None:
-            conn.close()
-        if proc is not None:
-            if proc.is_alive():
-                proc.terminate()
-            proc.join()
+        proc, feed = self._proc, self._feed
+        self._proc = self._feed = None
+        if proc is None:
+            return
+        if proc.poll() is None:
+            proc.kill()
+        if feed is not None:
+            feed.join()
+        proc.wait()
+        if proc.stdout is not None:
+            proc.stdout.close()
+
+
+def _write_and_close(pipe: Any, data: bytes) -> None:
+    try:
+        pipe.write(data)
+    except OSError:               # the second process is gone: result() runs it here
+        pass
+    finally:
+        try:
+            pipe.close()
+        except OSError:
+            pass
 
 
 __all__ = ["AsideJob", "DEFAULT_JOBS", "recorded", "replay"]
+
+
+def _main() -> None:
+    """Entry of the second process. The result goes to the original stdout; anything
+    else written to stdout (a library's print) goes nowhere instead of into it."""
+    result = os.fdopen(os.dup(1), "wb")
+    null = os.open(os.devnull, os.O_WRONLY)
+    os.dup2(null, 1)
+    sys.stdout = open(os.devnull, "w")
+    _serve(sys.stdin.buffer, result)
+    result.close()
+
+
+if __name__ == "__main__":
+    _main()

@@ -260,6 +260,7 @@ def _with_bands_drawn_apart(groups: list[tuple[str, np.ndarray, np.ndarray, np.n
         drawn = [(group, len(L), *_band_curve(L, U, W, rng=rng, **band_args))
                  for group, L, W, U in groups]
     lb_all = None
+    registries: dict[str, dict[Any, Any]] = {}
     for (group, _, km, naive, qe, q_refused, notes), (_, _, curve, refused) in zip(pending,
                                                                                   drawn):
         add_curve(group, "naive", km, "none")
@@ -267,7 +268,7 @@ def _with_bands_drawn_apart(groups: list[tuple[str, np.ndarray, np.ndarray, np.n
         if refused is not None:
             refused_note(group, refused)
             continue
-        replay(notes)
+        replay(notes, registries)
         if q_refused is not None:
             refused_note(group, q_refused)
             continue
