@@ -157,7 +157,8 @@ def test_hostile_repository_with_all_objects_mines_line_counts(git_history, tmp_
 
 
 # -- the code base itself -------------------------------------------------------------
-_ALLOWED_PROCESS_MODULES = {"procmetrics/report/pdf.py"}     # headless chromium for PDF
+_ALLOWED_PROCESS_MODULES = {"procmetrics/report/pdf.py",      # headless chromium for PDF
+                            "procmetrics/background.py"}     # this interpreter, our module
 
 
 def _python_files() -> list[Path]:
@@ -175,6 +176,17 @@ def test_no_shell_true_anywhere():
                                                   and kw.value.value is False):
                         offenders.append(f"{path.relative_to(ROOT)}:{node.lineno}")
     assert offenders == []
+
+
+def test_the_second_process_is_only_this_interpreter_running_our_module():
+    """procmetrics/background.py starts one kind of process: ``sys.executable -m
+    procmetrics.background`` (no shell, nothing from a repository or user in argv)."""
+    tree = ast.parse((ROOT / "procmetrics" / "background.py").read_text(encoding="utf-8"))
+    calls = [n for n in ast.walk(tree) if isinstance(n, ast.Call)
+             and isinstance(n.func, ast.Attribute) and isinstance(n.func.value, ast.Name)
+             and n.func.value.id == "subprocess"]
+    assert [ast.unparse(c.func) for c in calls] == ["subprocess.Popen"]
+    assert ast.unparse(calls[0].args[0]) == "[sys.executable, '-m', 'procmetrics.background']"
 
 
 def test_processes_start_only_in_mine_and_the_pdf_writer():
