@@ -352,19 +352,23 @@ def _map_paths(writer: StoreWriter, repo_id: int, run_id: int, mapper: PathMappe
     A changed mapping (e.g. a new MAINTAINERS blob, as after most upstream merges)
     maps every touched path again but rewrites only the paths whose subsystems
     differ, so an incremental run does not rewrite the whole mapping table.
+
+    The touched paths are the stored mapping's paths plus this run's unmapped ones,
+    not a ``DISTINCT`` over every file change (5.7 s at a million commits): every
+    completed run mapped each path it touched to at least one name
+    (:meth:`PathMapper.map_many` is never empty), and the rows of runs that did not
+    complete, with the mapping of paths only they touched, were removed before this
+    run started (:meth:`StoreWriter.cleanup_incomplete`).
     """
     if writer.mapping_of(repo_id) != (mapper.kind, mapper.source):
         old = writer.stored_mapping(repo_id)
-        paths = writer.touched_paths(repo_id)
+        paths = sorted(set(old).union(writer.unmapped_paths(repo_id, run_id)))
         for i in range(0, len(paths), chunk):
             part = paths[i:i + chunk]
             changed = [(p, names) for p, names in zip(part, mapper.map_many(part))
                        if old.get(p) != names]
             if changed:
                 writer.remap_paths(repo_id, changed)
-        gone = sorted(set(old).difference(paths))
-        if gone:
-            writer.remap_paths(repo_id, [(p, []) for p in gone])
         writer.drop_unused_subsystems(repo_id)
         return
     paths = writer.unmapped_paths(repo_id, run_id)

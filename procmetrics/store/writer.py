@@ -195,11 +195,6 @@ class StoreWriter(RunBook, LinkQueries, BulkLoad):
                                .where(r.c.repo_id == repo_id)).one()
         return row[0], row[1]
 
-    def clear_mapping(self, repo_id: int) -> None:
-        with self.engine.begin() as conn:
-            conn.execute(delete(s.path_subsystem).where(s.path_subsystem.c.repo_id == repo_id))
-            conn.execute(delete(s.subsystem).where(s.subsystem.c.repo_id == repo_id))
-
     def unmapped_paths(self, repo_id: int, run_id: int | None = None) -> list[str]:
         """Touched paths without a subsystem row (only those of ``run_id`` when given)."""
         g, fc, ps = s.commit, s.file_change, s.path_subsystem
@@ -209,14 +204,6 @@ class StoreWriter(RunBook, LinkQueries, BulkLoad):
                 .where(~exists().where(ps.c.repo_id == repo_id, ps.c.path == fc.c.path)))
         if run_id is not None:
             stmt = stmt.where(g.c.run_id == run_id)
-        with self.engine.connect() as conn:
-            return sorted(conn.execute(stmt).scalars())
-
-    def touched_paths(self, repo_id: int) -> list[str]:
-        """Every path a stored commit of the repository touches (sorted)."""
-        g, fc = s.commit, s.file_change
-        stmt = (select(fc.c.path).distinct().select_from(fc)
-                .join(g, g.c.commit_id == fc.c.commit_id).where(g.c.repo_id == repo_id))
         with self.engine.connect() as conn:
             return sorted(conn.execute(stmt).scalars())
 

@@ -183,3 +183,50 @@ def test_history_cut_into_parts_gives_the_same_store(sample_history, tmp_path, m
     monkeypatch.setattr(miner, "COMMITS_PER_GIT_PROCESS", 2)
     mine_repository(sample_history.path, store=many, options=MineOptions(progress=False))
     assert_same_store(one, many)
+
+
+def test_new_maintainers_blob_after_an_interrupted_run_maps_each_touched_path(
+        git_history, tmp_path, monkeypatch):
+    """A new MAINTAINERS blob maps every touched path again, taking the paths from the
+    stored mapping plus the run's new ones (no scan of every file change). After an
+    interrupted run whose commits touched new paths, the mapped paths are exactly the
+    paths ``git log --name-only`` lists (git plumbing as the oracle), and the store
+    equals a store mined once."""
+    h = git_history()
+    first_part(h)
+    h.commit("maint: sections\n", files={"MAINTAINERS": "CORE\nF:\tcore/\n\nSIDE\nF:\tside/\n"},
+             date=when(3.5))
+    store = tmp_path / "s.sqlite"
+    mine_repository(h.path, store=store, options=opts(batch_size=2))
+    second_part(h)
+    h.commit("net: new area\n", files={"net/x.c": "x\n", "core/a.c": "a\nnet\n"},
+             date=when(6.5))
+    h.commit("maint: net section\n",
+             files={"MAINTAINERS": "CORE\nF:\tcore/\n\nNET\nF:\tnet/\nF:\tcore/a.c\n"},
+             date=when(6.8))
+    real, calls = StoreWriter.write_batch, {"n": 0}
+
+    def flaky(self, *a, **kw):
+        calls["n"] += 1
+        if calls["n"] == 2:
+            raise Boom("power cut")
+        return real(self, *a, **kw)
+    monkeypatch.setattr(StoreWriter, "write_batch", flaky)
+    with pytest.raises(Boom):
+        mine_repository(h.path, store=store, options=opts(batch_size=2))
+    monkeypatch.undo()
+    s = mine_repository(h.path, store=store, options=opts(batch_size=2))
+    assert len(s.cleaned_runs) == 1 and s.mapping_source.startswith("MAINTAINERS@")
+    engine = open_store(store)
+    with engine.connect() as conn:
+        mapped = set(conn.exec_driver_sql("SELECT DISTINCT path FROM path_subsystem").scalars())
+    listed = set(h.git("log", "--format=", "--name-only", "-M", "--diff-merges=first-parent",
+                       "HEAD").split())
+    assert mapped == listed and "net/x.c" in mapped
+    cs = read_table(engine, "commit_subsystems")
+    # the section the new blob dropped maps nothing any more: its paths are remapped
+    assert set(cs["subsystem"]) == {"NET", "CORE", "(unmapped)"}
+    assert set(cs.loc[cs["hash"] == h.ids["helper"], "subsystem"]) == {"(unmapped)"}
+    once = tmp_path / "once.sqlite"
+    mine_repository(h.path, store=once, options=opts())
+    assert_same_store(store, once)
