@@ -189,3 +189,17 @@ def test_changed_mapping_rewrites_only_what_moved(tmp_path):
     with step.connect() as conn:
         names = set(conn.execute(text("SELECT name FROM subsystem")).scalars())
     assert names == {"net", "fs-b", "(unmapped)"}
+
+
+def test_log_streams_bound_how_much_of_the_pack_git_maps(tmp_path):
+    """Mining's log streams run git with the pack-mapping bounds (git itself reports
+    the settings it runs with); other git calls keep git's defaults."""
+    from procmetrics.mine.git import STREAM_CONFIG
+    h = GitHistory.create(tmp_path / "r")
+    h.commit("one", files={"a.txt": "a\n"})
+    git = GitRepo.open(h.path)
+    for item in STREAM_CONFIG:
+        key, value = item.split("=")
+        got = b"".join(git.stream(["config", "--get", key])).decode().strip()
+        assert got == value
+        assert git._run(["config", "--get", key], check=False).stdout.strip() == b""
