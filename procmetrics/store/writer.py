@@ -38,6 +38,7 @@ from procmetrics.store import schema as s
 from procmetrics.store.bulkload import BulkLoad, _bulk_insert, _chunks
 from procmetrics.store.linkstore import LinkQueries, LinkRow
 from procmetrics.store.runbook import RunBook
+from procmetrics.store.tables import snapshot
 
 __all__ = ["CommitRow", "FileRow", "FixRow", "LinkRow", "StoreWriter", "TagRow", "TrailerRow"]
 
@@ -260,23 +261,37 @@ class StoreWriter(RunBook, LinkQueries, BulkLoad):
 
     # -- summary ------------------------------------------------------------------------
     def totals(self, repo_id: int) -> dict[str, object]:
-        g, fl = s.commit, s.fix_link
-        with self.engine.connect() as conn:
+        """Row counts of the repository (for the summary after a run), read in one
+        snapshot. When it is the store's only repository, every per-commit row is one of
+        its commits', so those tables are counted whole (SQLite counts 2.3 million file
+        changes from an index in 0.01 s; the join to the commits took 0.77 s per table
+        at a million commits) and a merge is a commit with a second parent row (0.1 s
+        on the narrow parent table; 0.86 s scanning the commits for ``is_merge``)."""
+        g, fl, cp = s.commit, s.fix_link, s.commit_parent
+        with snapshot(self.engine) as conn:
             def count(stmt) -> int:
                 return int(conn.execute(stmt).scalar() or 0)
 
-            def child(t) -> int:
-                return count(select(func.count()).select_from(t)
-                             .join(g, g.c.commit_id == t.c.commit_id)
+            alone = count(select(func.count()).select_from(s.repository)
+                          .where(s.repository.c.repo_id != repo_id)) == 0
+
+            def child(t, *where) -> int:
+                stmt = select(func.count()).select_from(t).where(*where)
+                if alone:
+                    return count(stmt)
+                return count(stmt.join(g, g.c.commit_id == t.c.commit_id)
                              .where(g.c.repo_id == repo_id))
-            status = dict(conn.execute(
-                select(fl.c.status, func.count()).select_from(fl)
-                .join(g, g.c.commit_id == fl.c.commit_id).where(g.c.repo_id == repo_id)
-                .group_by(fl.c.status)).all())
+            by_status = select(fl.c.status, func.count()).select_from(fl).group_by(fl.c.status)
+            if not alone:
+                by_status = by_status.join(g, g.c.commit_id == fl.c.commit_id).where(
+                    g.c.repo_id == repo_id)
+            status = dict(conn.execute(by_status).all())
+            merges = (child(cp, cp.c.position == 1) if alone else
+                      count(select(func.count()).select_from(g)
+                            .where(g.c.repo_id == repo_id, g.c.is_merge.is_(True))))
             return {
                 "commits": count(select(func.count()).select_from(g).where(g.c.repo_id == repo_id)),
-                "merges": count(select(func.count()).select_from(g)
-                                .where(g.c.repo_id == repo_id, g.c.is_merge.is_(True))),
+                "merges": merges,
                 "file_changes": child(s.file_change), "trailers": child(s.trailer),
                 "fix_status": {k: int(v) for k, v in status.items()},
                 "reverts": child(s.revert_link), "unparsed": child(s.unparsed_reference),
