@@ -73,6 +73,7 @@ SQL_LINE_TABLES: tuple[str, ...] = ("file_changes", "trailers", "unparsed_refere
 
 def canonical_line_batches(conn: Connection, name: str, repo: str | None = None, *,
                            repo_id: int | None = None, run_id: int | None = None,
+                           first_id: int | None = None,
                            batch: int = 100_000) -> Iterator[list[str]]:
     """The tidy table ``name`` (one of :data:`SQL_LINE_TABLES`) as canonical
     tab-separated lines, in batches.
@@ -83,6 +84,8 @@ def canonical_line_batches(conn: Connection, name: str, repo: str | None = None,
     ``run_id``: the rows readers see (commits of completed runs) of ``repo`` (a
     name) or ``repo_id``; with it: the rows of that run's commits, whatever its
     status (the writer adds them to the stored digest as the run completes).
+    ``first_id`` (with ``run_id``): no commit of the run has a lower id, so the read
+    starts there on the primary key instead of scanning every commit.
     """
     from sqlalchemy import literal
 
@@ -95,6 +98,8 @@ def canonical_line_batches(conn: Connection, name: str, repo: str | None = None,
     stmt = select(line.label("line")).select_from(frm)
     if run_id is not None:
         stmt = stmt.where(g.c.run_id == run_id)
+        if first_id is not None:
+            stmt = stmt.where(g.c.commit_id >= first_id)
     else:
         stmt = stmt.where(g.c.run_id.in_(_complete_runs()))
     if repo_id is not None:

@@ -87,8 +87,10 @@ def stored_digests(conn: Connection, repo: str) -> dict[str, tuple[int, str]]:
     return {name: (int(n), digest) for name, n, digest in rows if name in MAINTAINED}
 
 
-def add_run(conn: Connection, repo_id: int, run_id: int) -> None:
-    """Inside the transaction that marks ``run_id`` complete: add its rows' digests."""
+def add_run(conn: Connection, repo_id: int, run_id: int, first_id: int | None = None
+            ) -> None:
+    """Inside the transaction that marks ``run_id`` complete: add its rows' digests.
+    ``first_id``: no row of the run has a lower commit id (a bound, not a filter)."""
     d = s.table_digest
     have: Mapping[str, tuple[int, str]] = {
         name: (int(n), digest) for name, n, digest in conn.execute(
@@ -96,7 +98,7 @@ def add_run(conn: Connection, repo_id: int, run_id: int) -> None:
     for name in MAINTAINED:
         if name in have:
             n_add, add = count_and_digest(canonical_line_batches(
-                conn, name, repo_id=repo_id, run_id=run_id))
+                conn, name, repo_id=repo_id, run_id=run_id, first_id=first_id))
             n_old, old = have[name]
             conn.execute(update(d).where(d.c.repo_id == repo_id, d.c.table_name == name)
                          .values(n_rows=n_old + n_add,

@@ -101,7 +101,8 @@ class RunBook:
                 tip_hash=tip_hash, tip_ref=tip_ref, path=path, remote_url=remote_url,
                 is_shallow=is_shallow, mapping_kind=mapping_kind,
                 mapping_source=mapping_source))
-            digests.add_run(conn, repo_id, run_id)
+            first = getattr(self, "run_first_id", lambda _run: None)(run_id)
+            digests.add_run(conn, repo_id, run_id, first_id=first)
         self.refresh_statistics()
 
     def refresh_statistics(self) -> None:

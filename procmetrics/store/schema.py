@@ -207,9 +207,6 @@ table_digest = Table(           # per repository and tidy table: the rows reader
 # Indexes the analyses need; created after a bulk load (see writer).
 INDEXES = [
     Index("ix_commit_repo_time", commit.c.repo_id, commit.c.committer_time),
-    # a run's own commits (digests at completion, its unmapped paths): without it each
-    # such read scanned every commit (0.27 s a time at a million commits)
-    Index("ix_commit_run", commit.c.run_id),
     Index("ix_parent_commit", commit_parent.c.commit_id),
     Index("ix_file_change_commit", file_change.c.commit_id),
     Index("ix_trailer_commit", trailer.c.commit_id),

@@ -115,6 +115,15 @@ class StoreWriter(RunBook, LinkQueries, BulkLoad):
     def __init__(self, engine: Engine) -> None:
         self.engine = engine
         self._persons: dict[tuple[str, str], int] | None = None
+        self._first_ids: dict[int, int] = {}
+
+    def run_first_id(self, run_id: int) -> int | None:
+        """The lowest commit id of ``run_id``'s committed batches written by this writer
+        (None: none seen). Every later batch gets higher ids (the next id is one past the
+        highest under the write lock, and these rows stay), so ``commit_id >= it`` bounds
+        the run's rows to a primary-key range: a run's own reads then skip the million
+        older commits instead of scanning them for ``run_id`` (0.27 s a read at 1M)."""
+        return self._first_ids.get(run_id)
 
     # -- bulk rows ----------------------------------------------------------------------
     def _person_ids(self, conn: Connection, people: Iterable[tuple[str, str]]) -> dict:
@@ -178,6 +187,7 @@ class StoreWriter(RunBook, LinkQueries, BulkLoad):
         except BaseException:
             self._persons = None        # the cache may hold ids of rolled-back rows
             raise
+        self._first_ids.setdefault(run_id, next_id)     # only once the batch committed
         counts.update(n_file_changes=len(files), n_trailers=len(trailers),
                       n_fix_refs=len(fixes))
         return counts
@@ -205,6 +215,9 @@ class StoreWriter(RunBook, LinkQueries, BulkLoad):
                 .where(~exists().where(ps.c.repo_id == repo_id, ps.c.path == fc.c.path)))
         if run_id is not None:
             stmt = stmt.where(g.c.run_id == run_id)
+            first = self.run_first_id(run_id)
+            if first is not None:
+                stmt = stmt.where(g.c.commit_id >= first)
         with self.engine.connect() as conn:
             return sorted(conn.execute(stmt).scalars())
 
