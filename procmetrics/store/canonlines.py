@@ -16,7 +16,7 @@ from sqlalchemy.engine import Connection
 
 from procmetrics.errors import StoreError
 from procmetrics.store import schema as s
-from procmetrics.store.tables import COLUMNS, _complete_runs, _repo_filter
+from procmetrics.store.readsql import COLUMNS, _complete_runs, _repo_filter
 
 
 def _canon_sql(expr, kind: str):

@@ -8,8 +8,7 @@ Dates are timezone-aware UTC ``Timestamp``; the original offset is kept in a
 """
 from __future__ import annotations
 
-from contextlib import contextmanager
-from typing import Any, Callable, Iterable, Iterator
+from typing import Any, Callable, Iterable
 
 import numpy as np
 import pandas as pd
@@ -19,37 +18,9 @@ from sqlalchemy.sql import Select
 
 from procmetrics.errors import StoreError
 from procmetrics.store import schema as s
+from procmetrics.store.readsql import (  # noqa: F401 - re-exported: the readers' names
+    COLUMNS, _complete_runs, _repo_filter, snapshot)
 
-COLUMNS: dict[str, list[str]] = {
-    "commits": [
-        "repo", "hash", "author_name", "author_email", "committer_name", "committer_email",
-        "author_date", "author_offset_min", "committer_date", "committer_offset_min",
-        "subject", "n_parents", "is_merge", "stable_request", "n_files", "lines_added",
-        "lines_deleted", "n_fix_refs", "n_resolved_fixes", "is_revert",
-    ],
-    "commit_subsystems": ["repo", "hash", "subsystem"],
-    "file_changes": ["repo", "hash", "path", "old_path", "change_type", "lines_added",
-                     "lines_deleted", "is_binary"],
-    "trailers": ["repo", "hash", "position", "key", "raw_key", "value", "person_name",
-                 "person_email"],
-    "fix_links": [
-        "repo", "fix_hash", "position", "ref_hash", "status", "introducer_hash",
-        "cited_subject", "subject_match", "in_trailer_block", "raw_text",
-        "fix_author_date", "fix_committer_date", "intro_author_date", "intro_committer_date",
-    ],
-    "reverts": ["repo", "hash", "ref_hash", "status", "reverted_hash"],
-    "unparsed_references": ["repo", "hash", "kind", "raw_text"],
-    "tags": ["repo", "name", "commit_hash", "tag_date", "tag_offset_min", "is_annotated"],
-    "mining_runs": ["repo", "run_id", "status", "started", "ended", "ref", "head_hash",
-                    "base_hash", "is_shallow", "options_json", "versions_json", "n_commits",
-                    "n_file_changes", "n_trailers", "n_fix_refs", "message"],
-    "repositories": ["repo", "path", "remote_url", "tip_hash", "tip_ref", "is_shallow",
-                     "mapping_kind", "mapping_source"],
-    # upstream reference histories (see procmetrics.store.upstream)
-    "upstream_references": ["repo", "upstream_repo", "path_map"],
-    "patch_ids": ["repo", "hash", "patch_id"],
-    "backport_lines": ["repo", "hash", "style", "cited_hash"],
-}
 
 _DATE_COLUMNS = {"author_date", "committer_date", "fix_author_date", "fix_committer_date",
                  "intro_author_date", "intro_committer_date", "tag_date", "started", "ended"}
@@ -83,10 +54,6 @@ def _share_equal_values(df: pd.DataFrame, columns: Iterable[str]) -> None:
             df[c] = np.array([keep(v, v) for v in df[c].tolist()], dtype=object)
 
 
-def _repo_filter(stmt: Select, repo: str | None) -> Select:
-    return stmt.where(s.repository.c.name == repo) if repo is not None else stmt
-
-
 # seconds pandas can hold as a Timestamp (about 1677-09-22 .. 2262-04-11)
 _MIN_SECONDS = int(pd.Timestamp.min.timestamp()) + 1
 _MAX_SECONDS = int(pd.Timestamp.max.timestamp()) - 1
@@ -107,12 +74,6 @@ def _to_utc(seconds: pd.Series) -> pd.Series:
     ns[ok] = v.to_numpy()[ok].astype(np.int64) * 1_000_000_000
     out = pd.Series(ns.view("datetime64[ns]"), index=seconds.index, name=seconds.name)
     return out.dt.tz_localize("UTC")
-
-
-def _complete_runs() -> Select:
-    """Run ids of completed mining runs: rows of a running or killed run stay hidden
-    until it completes (or the next run removes them)."""
-    return select(s.mining_run.c.run_id).where(s.mining_run.c.status == "complete")
 
 
 def _read(engine: Engine | Connection, stmt: Select, name: str,
@@ -444,26 +405,6 @@ READERS: dict[str, Callable[..., pd.DataFrame]] = {
     "upstream_references": upstream_references, "patch_ids": patch_ids,
     "backport_lines": backport_lines,
 }
-
-
-@contextmanager
-def snapshot(engine: Engine) -> Iterator[Connection]:
-    """A connection whose reads all see one consistent state of the store.
-
-    SQLite (WAL): an explicit deferred ``BEGIN`` pins the snapshot at the first
-    read; PostgreSQL: a ``REPEATABLE READ`` transaction. A miner writing at the
-    same time is neither blocked nor seen half-way.
-    """
-    with engine.connect() as conn:
-        if engine.dialect.name == "sqlite":
-            conn.exec_driver_sql("BEGIN")
-        else:
-            conn = conn.execution_options(isolation_level="REPEATABLE READ")
-            conn.begin()
-        try:
-            yield conn
-        finally:
-            conn.rollback()
 
 
 def read_tables(engine: Engine, names: Iterable[str], repo: str | None = None

@@ -38,7 +38,7 @@ from procmetrics.store import schema as s
 from procmetrics.store.bulkload import BulkLoad, _bulk_insert, _chunks
 from procmetrics.store.linkstore import LinkQueries, LinkRow
 from procmetrics.store.runbook import RunBook
-from procmetrics.store.tables import snapshot
+from procmetrics.store.readsql import snapshot
 
 __all__ = ["CommitRow", "FileRow", "FixRow", "LinkRow", "StoreWriter", "TagRow", "TrailerRow"]
 

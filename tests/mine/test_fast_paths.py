@@ -203,3 +203,15 @@ def test_log_streams_bound_how_much_of_the_pack_git_maps(tmp_path):
         got = b"".join(git.stream(["config", "--get", key])).decode().strip()
         assert got == value
         assert git._run(["config", "--get", key], check=False).stdout.strip() == b""
+
+
+def test_mining_does_not_import_pandas():
+    """The mine command builds no DataFrame: importing pandas cost about half a second of
+    every incremental run (the store's SQL helpers live in ``store.readsql``)."""
+    import subprocess
+    import sys
+    code = ("import sys, procmetrics.cli.cmd_mine, procmetrics.mine.miner; "
+            "print('pandas' in sys.modules)")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         check=True)
+    assert out.stdout.strip() == "False"
