@@ -58,7 +58,11 @@ class LinkQueries:
                         .join(g, g.c.commit_id == t.c.commit_id)
                         .outerjoin(intro, and_(intro.c.repo_id == repo_id,
                                                intro.c.hash == target))
-                        .where(g.c.repo_id == repo_id)
+                        # "+ 0": no index on the citing commit's repository, so SQLite
+                        # reads the links and finds each commit by its key, instead of
+                        # walking every commit of the repository for its links (1M
+                        # commits, 128,000 links: 2.1 -> 1.1 s)
+                        .where(g.c.repo_id + 0 == repo_id)
                         .where(or_(g.c.run_id == run_id, ~t.c.status.in_(("resolved", "self")),
                                    intro.c.commit_id.is_(None),
                                    and_(func.length(t.c.ref_hash) < full_len, collides))))
