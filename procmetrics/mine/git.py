@@ -43,16 +43,15 @@ _PINNED_CONFIG = (
     "color.ui=false", "protocol.allow=never", "gc.auto=0", "maintenance.auto=false",
     # files the repository's config could name for git to read: /dev/zero would hang it
     "mailmap.file=/dev/null", "diff.orderFile=/dev/null",
+    # how much of a pack git maps at once: by default (64-bit) 1 GiB windows and no
+    # practical limit on their total (32 TiB, git-config's documentation), and every page
+    # read stays resident, so mining the benchmark's 1,000,000-commit history (a 2 GiB
+    # pack) peaked at 1,841 and 1,837 MiB with git; 905 MiB with these bounds on every
+    # git call (369 s against 334 and 359 s). Bounding only the log streams left the peak
+    # at 1,836 MiB. What git prints does not change. See bench/HISTORY.md.
+    "core.packedGitLimit=384m", "core.packedGitWindowSize=128m",
 )
 
-#: For the long ``git log`` streams of mining only: git maps its pack files into memory
-#: in windows (on 64-bit builds 1 GiB each, and no practical limit on their total: 32 TiB,
-#: git-config's documentation) and every page it reads stays resident, so a log over the 2 GiB pack of the benchmark's 1,000,000-commit history
-#: held about 1.5 GiB. These bounds cap the mapped part at 384 MiB (three windows).
-#: Mining that history, paths only, peak of procmetrics plus git: 1,841 and 1,837 MiB
-#: (334 and 359 s) without, 905 MiB (369 s) with these bounds; see bench/HISTORY.md.
-#: What git prints is unchanged: only how much of the pack is mapped at once.
-STREAM_CONFIG = ("core.packedGitLimit=384m", "core.packedGitWindowSize=128m")
 
 
 def git_environment(base: dict[str, str] | None = None) -> dict[str, str]:
@@ -154,8 +153,7 @@ class GitRepo:
         return cls(top, git_dir, is_bare, version, mailmap_rev="HEAD")
 
     # -- running ------------------------------------------------------------------------
-    def argv(self, args: Sequence[str], config: Sequence[str] = ()) -> list[str]:
-        """git's argv for ``args``, with the pinned settings and then ``config``."""
+    def argv(self, args: Sequence[str]) -> list[str]:
         isolated = self.mailmap_rev is not None   # opened: no work tree, tip's .mailmap
         cmd = ["git", "--no-pager", "--no-replace-objects",
                "-C", str(self.git_dir if isolated else self.path),
@@ -164,7 +162,7 @@ class GitRepo:
             cmd += ["--git-dir", str(self.git_dir), "-c", "core.bare=true",
                     "-c", "mailmap.blob=" if self.mailmap_absent
                     else f"mailmap.blob={self.mailmap_rev}:.mailmap"]
-        for item in (*_PINNED_CONFIG, *config):
+        for item in _PINNED_CONFIG:
             cmd += ["-c", item]
         return cmd + list(args)
 
@@ -197,8 +195,7 @@ class GitRepo:
         """
         with tempfile.TemporaryFile() as err:
             try:
-                proc = subprocess.Popen(self.argv(args, STREAM_CONFIG),
-                                        stdout=subprocess.PIPE, stderr=err,
+                proc = subprocess.Popen(self.argv(args), stdout=subprocess.PIPE, stderr=err,
                                         stdin=subprocess.DEVNULL, env=git_environment())
             except OSError as exc:
                 raise GitUnavailable(f"cannot run git: {exc}") from exc

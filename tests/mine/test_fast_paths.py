@@ -191,18 +191,15 @@ def test_changed_mapping_rewrites_only_what_moved(tmp_path):
     assert names == {"net", "fs-b", "(unmapped)"}
 
 
-def test_log_streams_bound_how_much_of_the_pack_git_maps(tmp_path):
-    """Mining's log streams run git with the pack-mapping bounds (git itself reports
-    the settings it runs with); other git calls keep git's defaults."""
-    from procmetrics.mine.git import STREAM_CONFIG
+def test_every_git_call_bounds_how_much_of_the_pack_git_maps(tmp_path):
+    """git runs with the pack-mapping bounds, streamed or not (git itself reports the
+    settings it runs with)."""
     h = GitHistory.create(tmp_path / "r")
     h.commit("one", files={"a.txt": "a\n"})
     git = GitRepo.open(h.path)
-    for item in STREAM_CONFIG:
-        key, value = item.split("=")
-        got = b"".join(git.stream(["config", "--get", key])).decode().strip()
-        assert got == value
-        assert git._run(["config", "--get", key], check=False).stdout.strip() == b""
+    for key, value in (("core.packedGitLimit", "384m"), ("core.packedGitWindowSize", "128m")):
+        assert b"".join(git.stream(["config", "--get", key])).decode().strip() == value
+        assert git.text("config", "--get", key).strip() == value
 
 
 def test_mining_does_not_import_pandas():
