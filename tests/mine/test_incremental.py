@@ -129,12 +129,18 @@ def interrupt_second_run(h, store, monkeypatch, hard: bool) -> None:
     for i in range(5):
         h.commit(f"core: step {i}\n\nFixes: {h.ids['more'][:12]}\n", files={"core/s.c": f"{i}\n"},
                  date=when(7 + i))
+    run_dying_in_batch(h, store, monkeypatch, 3, hard=hard)
+
+
+def run_dying_in_batch(h, store, monkeypatch, n: int, *, hard: bool = False) -> None:
+    """A run of two-commit batches that dies writing its ``n``-th batch (``hard``: killed,
+    so it never records the failure)."""
     real = StoreWriter.write_batch
     calls = {"n": 0}
 
     def flaky(self, *a, **kw):
         calls["n"] += 1
-        if calls["n"] == 3:
+        if calls["n"] == n:
             raise Boom("disk on fire")
         return real(self, *a, **kw)
     monkeypatch.setattr(StoreWriter, "write_batch", flaky)
@@ -204,17 +210,7 @@ def test_new_maintainers_blob_after_an_interrupted_run_maps_each_touched_path(
     h.commit("maint: net section\n",
              files={"MAINTAINERS": "CORE\nF:\tcore/\n\nNET\nF:\tnet/\nF:\tcore/a.c\n"},
              date=when(6.8))
-    real, calls = StoreWriter.write_batch, {"n": 0}
-
-    def flaky(self, *a, **kw):
-        calls["n"] += 1
-        if calls["n"] == 2:
-            raise Boom("power cut")
-        return real(self, *a, **kw)
-    monkeypatch.setattr(StoreWriter, "write_batch", flaky)
-    with pytest.raises(Boom):
-        mine_repository(h.path, store=store, options=opts(batch_size=2))
-    monkeypatch.undo()
+    run_dying_in_batch(h, store, monkeypatch, 2)
     s = mine_repository(h.path, store=store, options=opts(batch_size=2))
     assert len(s.cleaned_runs) == 1 and s.mapping_source.startswith("MAINTAINERS@")
     engine = open_store(store)
