@@ -85,6 +85,10 @@ class RunBook:
                 if sqlite:
                     conn.exec_driver_sql(f"PRAGMA busy_timeout={BUSY_TIMEOUT_MS}")
 
+    def run_first_id(self, run_id: int) -> int | None:
+        """A lower bound of the run's commit ids when known (the writer keeps one)."""
+        return None
+
     def complete_run(self, run_id: int, repo_id: int, *, tip_hash: str, tip_ref: str,
                      path: str, remote_url: str | None, is_shallow: bool, mapping_kind: str,
                      mapping_source: str, counts: dict[str, int], message: str | None) -> None:
@@ -101,8 +105,7 @@ class RunBook:
                 tip_hash=tip_hash, tip_ref=tip_ref, path=path, remote_url=remote_url,
                 is_shallow=is_shallow, mapping_kind=mapping_kind,
                 mapping_source=mapping_source))
-            first = getattr(self, "run_first_id", lambda _run: None)(run_id)
-            digests.add_run(conn, repo_id, run_id, first_id=first)
+            digests.add_run(conn, repo_id, run_id, first_id=self.run_first_id(run_id))
         self.refresh_statistics()
 
     def refresh_statistics(self) -> None:
