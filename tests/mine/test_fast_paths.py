@@ -205,7 +205,8 @@ def test_every_git_call_bounds_how_much_of_the_pack_git_maps(tmp_path):
 def test_mining_does_not_import_pandas():
     """Mining builds no DataFrame: importing pandas cost about half a second of every
     incremental run through the library (the store's SQL helpers live in
-    ``store.readsql``). The command line still imports it with the other commands."""
+    ``store.readsql``). The command line loads only the command it runs
+    (tests/cli/test_cli_startup.py checks ``procmetrics mine``)."""
     import subprocess
     import sys
     code = ("import sys, procmetrics.cli.cmd_mine, procmetrics.mine.miner; "
