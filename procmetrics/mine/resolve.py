@@ -25,6 +25,7 @@ from procmetrics.hexprefix import prefix_matches  # noqa: F401 - used and re-exp
 import fnmatch
 from typing import Callable, Iterable, Sequence
 
+from procmetrics.errors import GitFailed
 from procmetrics.mine.git import GitRepo
 
 RESOLVED, UNRESOLVED, AMBIGUOUS, SELF = "resolved", "unresolved", "ambiguous", "self"
@@ -66,6 +67,35 @@ def reachable_args(tip: str) -> list[str]:
     for opt in ("--branches", "--tags", "--remotes"):
         args += [f"--exclude={g}" for g in EXCLUDED_REF_GLOBS] + [opt]
     return args + [tip, "--"]
+
+
+def reachable_tips(git: GitRepo, tip: str) -> list[str]:
+    """The objects :func:`reachable_args` walks from (branches, tags and remote-tracking
+    branches without pull-request refs, and the tip), as ``git rev-parse`` names them."""
+    return sorted(set(git.text(*(["rev-parse"] + reachable_args(tip)[1:-1])).split()))
+
+
+#: most commits new to the reachable history for which a run checks only the links they
+#: could change; more (a large fetch), and every unsettled link is checked again. Each
+#: commit adds its 40 prefixes to a set
+MOST_NEW_COMMITS = 20000
+
+
+def commits_since(git: GitRepo, before: Sequence[str], after: Sequence[str]
+                  ) -> list[str] | None:
+    """Commits reachable from ``after`` and not from ``before`` (two sets of tips), or
+    None when that is not the whole change: some commit reachable from ``before`` is
+    not from ``after`` (a branch or tag deleted or rewound), a tip is gone from the
+    object store, or there are more than :data:`MOST_NEW_COMMITS`."""
+    try:
+        if git.batch(["rev-list", "--max-count=1", "--stdin"],
+                     list(before) + ["^" + h for h in after]):
+            return None
+        new = git.batch(["rev-list", f"--max-count={MOST_NEW_COMMITS + 1}", "--stdin"],
+                        list(after) + ["^" + h for h in before])
+    except GitFailed:
+        return None
+    return None if len(new) > MOST_NEW_COMMITS else new
 
 
 def find_candidates(git: GitRepo, tip: str, refs: Iterable[str],

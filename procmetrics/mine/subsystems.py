@@ -35,6 +35,7 @@ import bisect
 import hashlib
 import re
 import tomllib
+from collections import Counter
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Iterable, Sequence
@@ -114,9 +115,14 @@ class PathMapper:
     exact: dict[str, list[tuple[Pattern, int]]] = field(default_factory=dict)
     excludes: dict[int, list[Pattern]] = field(default_factory=dict)
     regexes: list[tuple[LinearRegex, int]] = field(default_factory=list)
+    #: each section as added: (title, patterns, excludes, regexes), for :meth:`differing`
+    sections: list[tuple[str, tuple[Pattern, ...], tuple[Pattern, ...],
+                         tuple[LinearRegex, ...]]] = field(default_factory=list)
 
     def add(self, title: str, patterns: Iterable[Pattern], excludes: Iterable[Pattern] = (),
             regexes: Iterable[LinearRegex] = ()) -> None:
+        patterns, excludes, regexes = tuple(patterns), tuple(excludes), tuple(regexes)
+        self.sections.append((title, patterns, excludes, regexes))
         idx = len(self.titles)
         self.titles.append(title)
         for p in patterns:
@@ -131,6 +137,31 @@ class PathMapper:
 
     def finish(self) -> "PathMapper":
         return self
+
+    def differing(self, other: "PathMapper") -> "PathMapper":
+        """The sections of this mapper and ``other`` that the other one lacks (as a
+        multiset of title, ``F:``, ``X:`` and ``N:`` entries), with their ``F:`` and ``N:``
+        entries and no exclusions: every path it maps to a section (not to
+        :data:`UNMAPPED`) is hit by a section that changed.
+
+        A path's subsystems are a function of the sections that hit it (their
+        specificity, title and exclusions), so a path that no changed section hits,
+        before or after, keeps its subsystems when the file changes.
+        """
+        def key(section) -> tuple:
+            title, pats, excl, rxs = section
+            return (title, tuple(sorted(p.text for p in pats)),
+                    tuple(sorted(x.text for x in excl)), tuple(sorted(r.text for r in rxs)))
+
+        mine, theirs = Counter(map(key, self.sections)), Counter(map(key, other.sections))
+        only = (mine - theirs) + (theirs - mine)
+        out = PathMapper("changed-sections", f"{other.source} -> {self.source}")
+        for section in (*self.sections, *other.sections):
+            k = key(section)
+            if only[k] > 0:
+                only[k] -= 1
+                out.add(section[0], section[1], (), section[3])
+        return out
 
     def map(self, path: str) -> list[str]:
         """Subsystems of one path (see :meth:`map_many`)."""

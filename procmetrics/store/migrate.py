@@ -34,9 +34,17 @@ def _add_table_digests(conn: Connection) -> None:
     schema.metadata.create_all(conn, tables=[schema.table_digest])
 
 
+def _add_link_check_tips(conn: Connection) -> None:
+    """4 -> 5: the tips the link statuses were resolved against. Left empty: the next
+    mining run of each repository checks every unsettled link, as before, and records
+    them (see :func:`procmetrics.mine.miner.resolve_links`)."""
+    schema.metadata.create_all(conn, tables=[schema.link_check_tip])
+
+
 MIGRATIONS: dict[int, Callable[[Connection], None]] = {1: _add_upstream_tables,
                                                        2: _add_path_map,
-                                                       3: _add_table_digests}
+                                                       3: _add_table_digests,
+                                                       4: _add_link_check_tips}
 
 
 def migrate(engine: Engine, found: int) -> None:

@@ -153,7 +153,8 @@ class RunBook:
         with self.engine.begin() as conn:
             self._delete_commits(conn, select(g.c.commit_id).where(g.c.repo_id == repo_id))
             conn.execute(delete(g).where(g.c.repo_id == repo_id))
-            for t in (s.path_subsystem, s.tag, s.patch_id, s.backport_line):
+            for t in (s.path_subsystem, s.tag, s.patch_id, s.backport_line,
+                      s.link_check_tip):
                 conn.execute(delete(t).where(t.c.repo_id == repo_id))
             conn.execute(delete(s.subsystem).where(s.subsystem.c.repo_id == repo_id))
             conn.execute(update(m).where(m.c.repo_id == repo_id, m.c.status == "complete")

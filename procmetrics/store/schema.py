@@ -12,8 +12,9 @@ from sqlalchemy import (
     Table, Text, UniqueConstraint,
 )
 
-SCHEMA_VERSION = 4     # 2: upstream references, patch ids, backport lines; 3: path maps;
-                       # 4: table digests (the store checksum kept as runs complete)
+SCHEMA_VERSION = 5     # 2: upstream references, patch ids, backport lines; 3: path maps;
+                       # 4: table digests (the store checksum kept as runs complete);
+                       # 5: the reference tips the link statuses were resolved against
 
 metadata = MetaData()
 
@@ -202,6 +203,14 @@ table_digest = Table(           # per repository and tidy table: the rows reader
     Column("n_rows", BigInteger, nullable=False),
     Column("digest", String(64), nullable=False),       # multiset hash, 64 hex digits
     UniqueConstraint("repo_id", "table_name", name="uq_table_digest"),
+)
+
+# -- what the stored link statuses were resolved against (schema 5) -------------------
+link_check_tip = Table(         # the tips the last resolution's reachable history came from
+    "link_check_tip", metadata,
+    Column("repo_id", Integer, ForeignKey("repository.repo_id"), nullable=False),
+    Column("run_id", Integer, ForeignKey("mining_run.run_id"), nullable=False),
+    Column("hash", String(64), nullable=False),     # as git rev-parse names it (may be a tag)
 )
 
 # Indexes the analyses need; created after a bulk load (see writer).

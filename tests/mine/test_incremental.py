@@ -226,3 +226,177 @@ def test_new_maintainers_blob_after_an_interrupted_run_maps_each_touched_path(
     once = tmp_path / "once.sqlite"
     mine_repository(h.path, store=once, options=opts())
     assert_same_store(store, once)
+
+
+def _checked_refs(monkeypatch) -> list[set[str]]:
+    """The references each later resolution checks, run by run (a spy on the store's
+    prefix lookups, which every checked reference goes through)."""
+    seen: list[set[str]] = []
+    real = StoreWriter.stored_matches
+
+    def spy(self, repo_id, refs, full_len, limit=2):
+        seen.append(set(refs))
+        return real(self, repo_id, refs, full_len, limit)
+    monkeypatch.setattr(StoreWriter, "stored_matches", spy)
+    return seen
+
+
+def test_links_checked_again_only_when_the_reachable_history_changes_them(
+        git_history, tmp_path, monkeypatch):
+    """Each run stores the tips its link statuses were resolved against; a later run
+    checks only the links the commits new to the reachable history (and its own) can
+    change, and every unsettled link again when history was lost (a branch deleted).
+    Oracle at every step: a store mined once from the same clone (which resolves every
+    link afresh), and which references reach the store's prefix lookup."""
+    h = git_history()
+    h.commit("core: start\n", files={"core/a.c": "a\n"}, date=when(0), name="start")
+    h.branch("topic")
+    h.checkout("topic")
+    h.commit("topic: later merged\n", files={"t.c": "t\n"}, date=when(1), name="later")
+    h.branch("gone", h.ids["start"])
+    h.checkout("gone")
+    h.commit("gone: dropped branch\n", files={"g.c": "g\n"}, date=when(1.5), name="dropped")
+    h.checkout("main")
+    h.git("branch", "-D", "topic")          # "later" is unreachable for now
+    nothing = "0123abcd" * 5                 # a hash no object has
+    h.commit(f"core: fix\n\nFixes: {h.ids['later'][:12]}\nFixes: {h.ids['dropped'][:12]}\n"
+             f"Fixes: {nothing[:12]}\n", files={"core/a.c": "b\n"}, date=when(2))
+    store = tmp_path / "s.sqlite"
+    seen = _checked_refs(monkeypatch)
+
+    def step(*, compare: bool = True) -> tuple[dict[str, tuple], set[str]]:
+        """Mine again; the links' (status, introducer) and the references checked."""
+        seen.clear()
+        mine_repository(h.path, store=store, options=opts())
+        asked = set().union(*seen)
+        if compare:
+            once = tmp_path / f"once{h.rev()[:8]}.sqlite"
+            mine_repository(h.path, store=once, options=opts())
+            assert_same_store(store, once)
+        fl = read_table(open_store(store), "fix_links")
+        return {r.ref_hash: (r.status, r.introducer_hash) for r in fl.itertuples()}, asked
+
+    later, dropped = h.ids["later"], h.ids["dropped"]
+    status, asked = step(compare=False)
+    assert asked >= {later[:12], dropped[:12], nothing[:12]}
+    assert status[later[:12]] == ("unresolved", None)
+    assert status[dropped[:12]] == ("resolved", dropped)
+    # 1. nothing new to the history but the run's own commit: nothing old is asked again
+    h.commit("core: more\n", files={"core/b.c": "b\n"}, date=when(3))
+    assert step()[1] == set()
+    # 2. the topic branch comes back: "later" is new to the reachable history
+    h.branch("topic", later)
+    h.commit("core: again\n", files={"core/b.c": "c\n"}, date=when(4))
+    status, asked = step()
+    assert asked == {later[:12]} and status[later[:12]] == ("resolved", later)
+    # 3. merged: the target is stored now (its dates appear), asked again once
+    h.merge("topic", date=when(5))
+    assert step()[1] == {later[:12]}
+    # 4. the branch holding "dropped" is deleted: history was lost, everything unsettled
+    # is checked again and the reference no longer resolves
+    h.git("branch", "-D", "gone")
+    h.commit("core: last\n", files={"core/b.c": "d\n"}, date=when(6))
+    status, asked = step()
+    assert {dropped[:12], nothing[:12]} <= asked
+    assert status[dropped[:12]] == ("unresolved", None)
+
+
+def test_a_failed_run_after_resolution_makes_the_next_run_check_every_unsettled_link(
+        git_history, tmp_path, monkeypatch):
+    """The tips are trusted only when the run that recorded them completed."""
+    h = git_history()
+    h.commit("core: start\n", files={"core/a.c": "a\n"}, date=when(0))
+    nothing = "0123abcd" * 5
+    h.commit(f"core: fix\n\nFixes: {nothing[:12]}\n", files={"core/a.c": "b\n"},
+             date=when(1))
+    store = tmp_path / "s.sqlite"
+    mine_repository(h.path, store=store, options=opts())
+    h.commit("core: more\n", files={"core/b.c": "b\n"}, date=when(2))
+    from procmetrics.mine import miner
+
+    def dies(*a, **kw):
+        raise RuntimeError("killed after resolving")
+    monkeypatch.setattr(miner.StoreWriter, "replace_tags", dies)
+    with pytest.raises(RuntimeError):
+        mine_repository(h.path, store=store, options=opts())
+    monkeypatch.undo()
+    seen = _checked_refs(monkeypatch)
+    mine_repository(h.path, store=store, options=opts())
+    assert nothing[:12] in set().union(*seen)
+
+
+MAINT_BEFORE = ("CORE\nF:\tcore/\nX:\tcore/gen/\n\nNET\nF:\tnet/\n\nDOCS\nF:\tdocs/\n\n"
+                "DRIVERS\nF:\tdrivers/\nN:\t[-_]usb\n\nOLD\nF:\told/\n")
+MAINT_AFTER = ("CORE\nF:\tcore/\n\nNETWORKING\nF:\tnet/\n\nDOCS\nF:\tdocs/\n\n"
+               "DRIVERS\nF:\tdrivers/\nN:\t[-_]usb\n\nUSB\nN:\tusb\n")
+
+
+def test_a_new_maintainers_blob_maps_again_only_the_paths_a_changed_section_hits(
+        git_history, tmp_path, monkeypatch):
+    """Sections renamed (NET), dropped (OLD), added (USB, by N: regex) or with a changed
+    exclusion (CORE) are the changed ones; the paths they hit, before or after, are mapped
+    again and no other. Oracle: the store equals one mined once with the new file, and
+    the paths mapped again are those ``git log --name-only`` lists under the changed
+    sections' folders (plus the ones the new regex hits)."""
+    h = git_history()
+    files = {"core/a.c": "a\n", "core/gen/t.c": "t\n", "net/n.c": "n\n", "docs/d.txt": "d\n",
+             "drivers/x-usb.c": "x\n", "drivers/pci.c": "p\n", "old/o.c": "o\n",
+             "misc/usbtool.c": "u\n", "misc/other.c": "m\n", "MAINTAINERS": MAINT_BEFORE}
+    h.commit("start\n", files=files, date=when(0))
+    store = tmp_path / "s.sqlite"
+    mine_repository(h.path, store=store, options=opts())
+    h.commit("maint: reorganise\n", files={"MAINTAINERS": MAINT_AFTER, "docs/e.txt": "e\n"},
+             date=when(1))
+    from procmetrics.mine.subsystems import PathMapper
+    mapped: list[str] = []
+    real = PathMapper.map_many
+
+    def spy(self, paths):
+        if self.kind == "maintainers":
+            mapped.extend(paths)
+        return real(self, paths)
+    monkeypatch.setattr(PathMapper, "map_many", spy)
+    mine_repository(h.path, store=store, options=opts())
+    monkeypatch.undo()
+    # hit by a changed section: CORE (exclusion), NET(WORKING), OLD, USB (N: usb);
+    # docs/e.txt is new to the store; DOCS, DRIVERS' own entries and misc/other.c unchanged
+    assert sorted(mapped) == ["core/a.c", "core/gen/t.c", "docs/e.txt", "drivers/x-usb.c",
+                              "misc/usbtool.c", "net/n.c", "old/o.c"]
+    once = tmp_path / "once.sqlite"
+    mine_repository(h.path, store=once, options=opts())
+    assert_same_store(store, once)
+    cs = read_table(open_store(store), "commit_subsystems")
+    assert {"NETWORKING", "USB", "CORE"} <= set(cs["subsystem"])
+    assert not {"NET", "OLD"} & set(cs["subsystem"])
+
+
+def test_a_maintainers_blob_git_no_longer_has_maps_every_path_again(
+        git_history, tmp_path, monkeypatch):
+    """Without the stored mapping's blob (a partial or pruned clone: here the stored
+    source names a blob id no object has) there is nothing to compare with: every
+    touched path is mapped again, and the store equals one mined once."""
+    h = git_history()
+    h.commit("start\n", files={"core/a.c": "a\n", "net/n.c": "n\n",
+                               "MAINTAINERS": MAINT_BEFORE}, date=when(0))
+    store = tmp_path / "s.sqlite"
+    mine_repository(h.path, store=store, options=opts())
+    h.commit("maint\n", files={"MAINTAINERS": MAINT_AFTER}, date=when(1))
+    engine = open_store(store)
+    with engine.begin() as conn:
+        conn.exec_driver_sql("UPDATE repository SET mapping_source = 'MAINTAINERS@' || "
+                             "'0123456789abcdef0123456789abcdef01234567'")
+    engine.dispose()
+    from procmetrics.mine.subsystems import PathMapper
+    mapped: list[str] = []
+    real = PathMapper.map_many
+
+    def spy(self, paths):
+        mapped.extend(paths)
+        return real(self, paths)
+    monkeypatch.setattr(PathMapper, "map_many", spy)
+    mine_repository(h.path, store=store, options=opts())
+    monkeypatch.undo()
+    assert sorted(mapped) == ["MAINTAINERS", "core/a.c", "net/n.c"]
+    once = tmp_path / "once.sqlite"
+    mine_repository(h.path, store=once, options=opts())
+    assert_same_store(store, once)

@@ -10,6 +10,7 @@ import pytest
 
 from procmetrics.errors import DataQualityWarning
 from procmetrics.mine import MineOptions, mine_repository
+from procmetrics.mine.git import GitRepo
 from procmetrics.mine.miner import resolve_links
 from procmetrics.store import open_store
 from procmetrics.store.tables import read_table
@@ -171,10 +172,11 @@ def test_a_10_mib_message_and_50000_trailers(huge):
     assert tr["person_email"].nunique() == 700
 
 
-def test_self_and_cyclic_fix_references(tmp_path):
+def test_self_and_cyclic_fix_references(git_history, tmp_path):
     """Rows written straight to the store (full hashes cannot cite each other in real
-    git): X fixes Y, Y fixes X, Z fixes itself. Resolution needs no git here because
-    every reference is a full stored hash."""
+    git): X fixes Y, Y fixes X, Z fixes itself. Resolution asks git only for the
+    repository's tips (an empty repository here): every reference is a full stored
+    hash."""
     engine = open_store(tmp_path / "s.sqlite")
     w = StoreWriter(engine)
     repo_id = w.ensure_repository("cyc", str(tmp_path))
@@ -189,7 +191,7 @@ def test_self_and_cyclic_fix_references(tmp_path):
                          [FixRow(f, None, True, f"Fixes: {f}") for f in fixes], [], [])
     w.write_batch(repo_id, run_id, [row(x, (), [y], 0), row(y, (x,), [x], 1),
                                     row(z, (y,), [z], 2)])
-    resolve_links(None, w, repo_id, run_id, z)
+    resolve_links(GitRepo.open(git_history("empty").path), w, repo_id, run_id, z)
     w.complete_run(run_id, repo_id, tip_hash=z, tip_ref="HEAD", path=str(tmp_path),
                    remote_url=None, is_shallow=False, mapping_kind="path-prefix",
                    mapping_source="1", counts={}, message=None)   # tidy tables: complete runs

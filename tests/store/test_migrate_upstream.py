@@ -55,3 +55,21 @@ def test_schema_2_store_gains_the_path_map_column(tmp_path):
     cols = [r[1] for r in con.execute("PRAGMA table_info(upstream_reference)")]
     con.close()
     assert "path_map" in cols and SCHEMA_VERSION >= 3
+
+
+def test_schema_4_store_gains_the_link_check_tips(tmp_path):
+    """4 -> 5: the table of tips the link statuses were resolved against, empty (the next
+    run then checks every unsettled link, tests/mine/test_incremental.py)."""
+    path = tmp_path / "four.sqlite"
+    open_store(str(path)).dispose()
+    con = sqlite3.connect(path)
+    con.execute("DROP TABLE link_check_tip")
+    con.execute("UPDATE pm_meta SET value = '4' WHERE key = 'schema_version'")
+    con.commit()
+    con.close()
+    open_store(str(path)).dispose()
+    con = sqlite3.connect(path)
+    assert con.execute("SELECT COUNT(*) FROM link_check_tip").fetchone() == (0,)
+    assert con.execute("SELECT value FROM pm_meta WHERE key='schema_version'").fetchone() == \
+        (str(SCHEMA_VERSION),) == ("5",)
+    con.close()
