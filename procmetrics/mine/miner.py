@@ -59,7 +59,7 @@ from procmetrics.mine.partial import (PARTIAL_NOTE, commits_of_part, explain_mis
                                      lacking_note, paths_only as _paths_only)
 from procmetrics.mine.logstream import LogCommit, date_filter_args, log_args
 from procmetrics.mine.options import CONTENT_OPTIONS, MineOptions, MiningSummary
-from procmetrics.mine.references import scan_message
+from procmetrics.mine.references import HEX_MIN, scan_message
 from procmetrics.mine.resolve import (MOST_NEW_COMMITS, classify, commits_since,
                                       find_candidates, reachable_tips, subject_match)
 from procmetrics.mine.subsystems import (
@@ -357,8 +357,7 @@ def _links_changed_since(git: GitRepo, writer: StoreWriter, repo_id: int, run_id
     own = writer.run_hashes(repo_id, run_id)
     if len(own) > MOST_NEW_COMMITS:
         return None
-    prefixes = {h[:k] for h in (*new, *own) for k in range(1, len(h) + 1)}
-    return writer.links_to_recheck(repo_id, run_id, prefixes)
+    return writer.links_to_recheck(repo_id, run_id, [*new, *own], HEX_MIN)
 
 
 def build_mapper(git: GitRepo, tip: str, opts: MineOptions) -> PathMapper:

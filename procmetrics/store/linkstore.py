@@ -50,19 +50,24 @@ class LinkQueries:
         with self.engine.connect() as conn:
             return self._link_rows(conn, repo_id, run_id, where)
 
-    def links_to_recheck(self, repo_id: int, run_id: int, prefixes: set[str]
-                         ) -> list[LinkRow]:
+    def links_to_recheck(self, repo_id: int, run_id: int, hashes: Sequence[str],
+                         shortest: int) -> list[LinkRow]:
         """Links a run must check when the stored statuses still hold for the history
         they were resolved against (see :func:`procmetrics.mine.miner.resolve_links`):
-        those of this run's commits and those whose reference is in ``prefixes`` (every
-        prefix of each commit reachable now and not then, and of this run's commits).
-        Every link's reference is read once, without joins, to pick them."""
+        those of this run's commits and those whose reference is a prefix of one of
+        ``hashes`` (the commits reachable now and not then, and this run's commits).
+        References have at least ``shortest`` digits (the parser's rule): the database
+        picks the links by their first ``shortest`` digits, and Python keeps the
+        prefixes."""
+        prefixes = {h[:k] for h in hashes for k in range(shortest, len(h) + 1)}
+        heads = sorted({h[:shortest] for h in hashes})
         picked: set[tuple[str, int, int | str]] = set()
         with self.engine.connect() as conn:
             for kind, t, key, _ in self._link_kinds():
-                rows = conn.execution_options(yield_per=50000).execute(
-                    select(t.c.commit_id, key, t.c.ref_hash))
-                picked.update((kind, cid, k) for cid, k, ref in rows if ref in prefixes)
+                for part in _chunks(heads, 5000):
+                    rows = conn.execute(select(t.c.commit_id, key, t.c.ref_hash).where(
+                        func.substr(t.c.ref_hash, 1, shortest).in_(part)))
+                    picked.update((kind, cid, k) for cid, k, ref in rows if ref in prefixes)
             ids = sorted({cid for _, cid, _ in picked})
             first = self.run_first_id(run_id)   # None: the run wrote no commit
             out: list[LinkRow] = []
