@@ -275,6 +275,8 @@ def _ensure_schema(engine: Engine, *, create: bool) -> None:
             f"up to {schema.SCHEMA_VERSION}); upgrade procmetrics")
     if found < schema.SCHEMA_VERSION:
         if not create:
-            raise SchemaError(f"store schema {found} is older than {schema.SCHEMA_VERSION}; "
-                              "open it writable once to migrate")
+            raise SchemaError(f"store schema {found} is older than {schema.SCHEMA_VERSION} "
+                              "(written by an earlier procmetrics): run 'procmetrics mine' "
+                              "on its repository with this store once; that migrates it "
+                              "and mines only what is new")
         migrate(engine, found)

@@ -19,7 +19,7 @@ def test_schema_1_store_gains_the_upstream_tables(tmp_path):
     con.execute("UPDATE pm_meta SET value = '1' WHERE key = 'schema_version'")
     con.commit()
     con.close()
-    with pytest.raises(SchemaError, match="older"):
+    with pytest.raises(SchemaError, match="older than .* run 'procmetrics mine' on its "):
         open_store(str(path), create=False)
     engine = open_store(str(path))
     try:
