@@ -400,14 +400,17 @@ def _map_paths(writer: StoreWriter, repo_id: int, run_id: int, mapper: PathMappe
     """
     stored_kind, stored_source = writer.mapping_of(repo_id)
     if (stored_kind, stored_source) != (mapper.kind, mapper.source):
-        old = writer.stored_mapping(repo_id)
         new_paths = writer.unmapped_paths(repo_id, run_id)
-        paths = sorted(set(old).union(new_paths))
         previous = _previous_mapper(git, stored_kind, stored_source, mapper)
         if previous is not None:
+            paths = sorted(set(writer.mapped_paths(repo_id)).union(new_paths))
             hit = mapper.differing(previous).map_many(paths)
             paths = sorted({p for p, names in zip(paths, hit) if names != [UNMAPPED]}
                            .union(new_paths))
+            old = writer.stored_mapping(repo_id, paths)
+        else:
+            old = writer.stored_mapping(repo_id)
+            paths = sorted(set(old).union(new_paths))
         for i in range(0, len(paths), chunk):
             part = paths[i:i + chunk]
             changed = [(p, names) for p, names in zip(part, mapper.map_many(part))

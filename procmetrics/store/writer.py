@@ -221,19 +221,30 @@ class StoreWriter(RunBook, LinkQueries, BulkLoad):
         with self.engine.connect() as conn:
             return sorted(conn.execute(stmt).scalars())
 
-    def stored_mapping(self, repo_id: int) -> dict[str, list[str]]:
-        """path -> sorted subsystem names, as stored."""
+    def stored_mapping(self, repo_id: int, paths: Sequence[str] | None = None
+                       ) -> dict[str, list[str]]:
+        """path -> sorted subsystem names, as stored (only ``paths`` when given)."""
         ps, sub = s.path_subsystem, s.subsystem
+        stmt = (select(ps.c.path, sub.c.name)
+                .join(sub, sub.c.subsystem_id == ps.c.subsystem_id)
+                .where(ps.c.repo_id == repo_id))
         out: dict[str, list[str]] = {}
         with self.engine.connect() as conn:
-            for path, name in conn.execute(
-                    select(ps.c.path, sub.c.name)
-                    .join(sub, sub.c.subsystem_id == ps.c.subsystem_id)
-                    .where(ps.c.repo_id == repo_id)):
-                out.setdefault(path, []).append(name)
+            for part in [None] if paths is None else _chunks(list(paths)):
+                for path, name in conn.execute(
+                        stmt if part is None else stmt.where(ps.c.path.in_(part))):
+                    out.setdefault(path, []).append(name)
         for names in out.values():
             names.sort()
         return out
+
+    def mapped_paths(self, repo_id: int) -> list[str]:
+        """Every path the stored mapping covers, sorted (read from its index)."""
+        ps = s.path_subsystem
+        with self.engine.connect() as conn:
+            return list(conn.execute(select(ps.c.path).distinct()
+                                     .where(ps.c.repo_id == repo_id)
+                                     .order_by(ps.c.path)).scalars())
 
     def remap_paths(self, repo_id: int, pairs: Sequence[tuple[str, Sequence[str]]]) -> None:
         """Replace the subsystem rows of the given paths (no names: the path's rows go)."""
