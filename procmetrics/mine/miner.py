@@ -59,19 +59,15 @@ from procmetrics.mine.partial import (PARTIAL_NOTE, commits_of_part, explain_mis
                                      lacking_note, paths_only as _paths_only)
 from procmetrics.mine.logstream import LogCommit, date_filter_args, log_args
 from procmetrics.mine.options import CONTENT_OPTIONS, MineOptions, MiningSummary
-from procmetrics.mine.references import HEX_MIN, scan_message
-from procmetrics.mine.resolve import (MOST_NEW_COMMITS, classify, commits_since,
-                                      find_candidates, reachable_tips, subject_match)
-from procmetrics.mine.subsystems import (
-    UNMAPPED, PathMapper, maintainers_mapper, prefix_mapper, rules_mapper,
-)
+from procmetrics.mine.references import scan_message
+from procmetrics.mine.relink import resolve_links
+from procmetrics.mine.remap import build_mapper, map_paths
 from procmetrics.mine.tags import read_tags
 from procmetrics.mine.trailers import parse_trailers, split_person
 from procmetrics.store import open_store
 from procmetrics.store.runlock import repository_lock
 from procmetrics.store.writer import CommitRow, StoreWriter, TrailerRow
 
-MAINTAINERS_FILE = "MAINTAINERS"
 COMMITS_PER_GIT_PROCESS = 100_000   # bounds git's own memory (it never frees parsed objects)
 _PERSON_KEYS = {"Cc", "To", "From"}
 
@@ -133,7 +129,7 @@ def mine_repository(path: str | os.PathLike[str], store: str | os.PathLike[str] 
                                   "them", DataQualityWarning, stacklevel=2)
                 resolve_links(git, writer, repo_id, run_id, tip)
                 writer.replace_tags(repo_id, read_tags(git))
-                _map_paths(writer, repo_id, run_id, mapper, git)
+                map_paths(writer, repo_id, run_id, mapper, git)
             writer.complete_run(run_id, repo_id, tip_hash=tip, tip_ref=opts.ref,
                                 path=str(git.path),
                                 remote_url=redact_url(git.config_value("remote.origin.url")),
@@ -299,145 +295,6 @@ def history_parts(git: GitRepo, tip: str, base: str | None,
 def _add(total: dict[str, int], part: dict[str, int]) -> None:
     for k, v in part.items():
         total[k] += v
-
-
-def resolve_links(git: GitRepo, writer: StoreWriter, repo_id: int, run_id: int,
-                  tip: str) -> int:
-    """(Re-)resolve the references whose outcome this run may have changed.
-
-    A reference's outcome depends on the commits reachable from the repository's tips
-    (:mod:`procmetrics.mine.resolve`). The tips each resolution used are stored with
-    the statuses. When the last run that resolved completed, and the history reachable
-    from those tips is still all reachable now, the commits reachable now and not then
-    are the only ones that can change an outcome: a run then checks the links of its
-    own commits and the links whose reference is a prefix of a commit new to the
-    history or of its own (which covers a link resolved to a commit it now stores: a
-    resolved reference is a prefix of its target). Otherwise (the first
-    run, a deleted branch or tag, a failed run, a store from before schema 5, a large
-    fetch) it checks every link not resolved to a stored commit, as it did before.
-    At a million commits the unsettled links are 5,000 references that git resolves to
-    nothing: checking them again took about 2 s of each incremental run.
-    """
-    full_len = len(tip)
-    tips = reachable_tips(git, tip)
-    todo = _links_changed_since(git, writer, repo_id, run_id, tips)
-    if todo is None:
-        todo = writer.links_to_check(repo_id, run_id, full_len)
-    if not todo:
-        writer.update_links([], repo_id=repo_id, run_id=run_id, tips=tips)
-        return 0
-    cands = find_candidates(git, tip, {ln.ref_hash for ln in todo},
-                            lambda refs: writer.stored_matches(repo_id, refs, full_len))
-    outcome = [(ln, *classify(cands[ln.ref_hash], ln.citing_hash)) for ln in todo]
-    wanted = sorted({tg for ln, st, tg in outcome
-                     if ln.kind == "fix" and ln.cited_subject is not None and tg})
-    subjects = writer.stored_subjects(repo_id, wanted) if wanted else {}
-    missing = [h for h in wanted if h not in subjects]
-    if missing:
-        for line in git.batch(["log", "--no-walk=unsorted", "--stdin", "--format=%H %s"],
-                              missing):
-            h, _, subj = line.partition(" ")
-            subjects[h] = subj
-    updates = [(ln, st, tg, subject_match(ln.cited_subject, subjects.get(tg)) if tg else None)
-               for ln, st, tg in outcome]
-    writer.update_links(updates, repo_id=repo_id, run_id=run_id, tips=tips)
-    return len(updates)
-
-
-def _links_changed_since(git: GitRepo, writer: StoreWriter, repo_id: int, run_id: int,
-                         tips: list[str]) -> list | None:
-    """The links :func:`resolve_links` must check when the stored statuses still hold
-    for the history they were resolved against; None when that is not known."""
-    before = writer.checked_tips(repo_id)
-    if before is None:
-        return None
-    new = commits_since(git, before, tips)
-    if new is None:
-        return None
-    own = writer.run_hashes(repo_id, run_id)
-    if len(own) > MOST_NEW_COMMITS:
-        return None
-    return writer.links_to_recheck(repo_id, run_id, [*new, *own], HEX_MIN)
-
-
-def build_mapper(git: GitRepo, tip: str, opts: MineOptions) -> PathMapper:
-    """Rules file, else the tip's MAINTAINERS file, else path prefixes."""
-    if opts.subsystem_rules:
-        return rules_mapper(opts.subsystem_rules)
-    if opts.use_maintainers:
-        try:
-            found = git.blob_at(tip, MAINTAINERS_FILE)
-        except ObjectAbsent as exc:
-            warnings.warn(f"partial clone: the {MAINTAINERS_FILE} file's blob {exc.oid[:12]} is "
-                          "not in the clone (nothing is fetched): subsystems come from path "
-                          "prefixes instead; give --subsystem-rules for another mapping",
-                          DataQualityWarning, stacklevel=3)
-            found = None
-        if found is not None:
-            blob, data = found
-            return maintainers_mapper(data.decode("utf-8", "replace"),
-                                      f"{MAINTAINERS_FILE}@{blob}")
-    return prefix_mapper(opts.prefix_depth)
-
-
-def _map_paths(writer: StoreWriter, repo_id: int, run_id: int, mapper: PathMapper,
-               git: GitRepo | None = None, chunk: int = 5000) -> None:
-    """Map the paths no stored mapping covers yet; those a changed mapping may map
-    differently when it changed.
-
-    A changed mapping (e.g. a new MAINTAINERS blob, as after most upstream merges)
-    rewrites only the paths whose subsystems differ, so an incremental run does not
-    rewrite the whole mapping table. When the previous mapping was a MAINTAINERS blob
-    that git still has, only the paths a changed section hits (before or after) are
-    mapped again (:meth:`PathMapper.differing`); otherwise every touched path is.
-
-    The touched paths are the stored mapping's paths plus this run's unmapped ones,
-    not a ``DISTINCT`` over every file change (5.7 s at a million commits): every
-    completed run mapped each path it touched to at least one name
-    (:meth:`PathMapper.map_many` is never empty), and the rows of runs that did not
-    complete, with the mapping of paths only they touched, were removed before this
-    run started (:meth:`StoreWriter.cleanup_incomplete`).
-    """
-    stored_kind, stored_source = writer.mapping_of(repo_id)
-    if (stored_kind, stored_source) != (mapper.kind, mapper.source):
-        new_paths = writer.unmapped_paths(repo_id, run_id)
-        previous = _previous_mapper(git, stored_kind, stored_source, mapper)
-        if previous is not None:
-            paths = sorted(set(writer.mapped_paths(repo_id)).union(new_paths))
-            hit = mapper.differing(previous).map_many(paths)
-            paths = sorted({p for p, names in zip(paths, hit) if names != [UNMAPPED]}
-                           .union(new_paths))
-            old = writer.stored_mapping(repo_id, paths)
-        else:
-            old = writer.stored_mapping(repo_id)
-            paths = sorted(set(old).union(new_paths))
-        for i in range(0, len(paths), chunk):
-            part = paths[i:i + chunk]
-            changed = [(p, names) for p, names in zip(part, mapper.map_many(part))
-                       if old.get(p) != names]
-            if changed:
-                writer.remap_paths(repo_id, changed)
-        writer.drop_unused_subsystems(repo_id)
-        return
-    paths = writer.unmapped_paths(repo_id, run_id)
-    for i in range(0, len(paths), chunk):        # bounded memory on large histories
-        part = paths[i:i + chunk]
-        writer.add_path_subsystems(repo_id, list(zip(part, mapper.map_many(part))))
-
-
-def _previous_mapper(git: GitRepo | None, kind: str | None, source: str | None,
-                     mapper: PathMapper) -> PathMapper | None:
-    """The stored mapping's MAINTAINERS mapper, when both it and ``mapper`` come from
-    such a file and git still has the stored one's blob; else None."""
-    head = f"{MAINTAINERS_FILE}@"
-    if (git is None or kind != "maintainers" or mapper.kind != "maintainers"
-            or not (source or "").startswith(head)):
-        return None
-    blob = source[len(head):]
-    proc = git._run(["cat-file", "blob", blob], check=False)
-    if proc.returncode != 0:
-        return None
-    return maintainers_mapper(proc.stdout.decode("utf-8", "replace"), source)
 
 
 def default_repo_name(git: GitRepo) -> str:

@@ -53,7 +53,7 @@ class LinkQueries:
     def links_to_recheck(self, repo_id: int, run_id: int, hashes: Sequence[str],
                          shortest: int) -> list[LinkRow]:
         """Links a run must check when the stored statuses still hold for the history
-        they were resolved against (see :func:`procmetrics.mine.miner.resolve_links`):
+        they were resolved against (see :func:`procmetrics.mine.relink.resolve_links`):
         those of this run's commits and those whose reference is a prefix of one of
         ``hashes`` (the commits reachable now and not then, and this run's commits).
         References have at least ``shortest`` digits (the parser's rule): the database

@@ -37,7 +37,7 @@ def _add_table_digests(conn: Connection) -> None:
 def _add_link_check_tips(conn: Connection) -> None:
     """4 -> 5: the tips the link statuses were resolved against. Left empty: the next
     mining run of each repository checks every unsettled link, as before, and records
-    them (see :func:`procmetrics.mine.miner.resolve_links`)."""
+    them (see :func:`procmetrics.mine.relink.resolve_links`)."""
     schema.metadata.create_all(conn, tables=[schema.link_check_tip])
 
 

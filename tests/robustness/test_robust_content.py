@@ -11,7 +11,7 @@ import pytest
 from procmetrics.errors import DataQualityWarning
 from procmetrics.mine import MineOptions, mine_repository
 from procmetrics.mine.git import GitRepo
-from procmetrics.mine.miner import resolve_links
+from procmetrics.mine.relink import resolve_links
 from procmetrics.store import open_store
 from procmetrics.store.tables import read_table
 from procmetrics.store.writer import CommitRow, FixRow, StoreWriter
