@@ -53,7 +53,6 @@ _PINNED_CONFIG = (
 )
 
 
-
 def git_environment(base: dict[str, str] | None = None) -> dict[str, str]:
     """The environment git runs in (inherited ``GIT_*`` variables removed)."""
     env = {k: v for k, v in (os.environ if base is None else base).items()
@@ -277,6 +276,12 @@ class GitRepo:
     def config_value(self, key: str) -> str | None:
         proc = self._run(["config", "--get", key], check=False)
         return proc.stdout.decode("utf-8", "replace").strip() if proc.returncode == 0 else None
+
+    def blob(self, oid: str) -> bytes | None:
+        """The bytes of blob ``oid``, or None when the object store lacks it (nothing is
+        fetched) or it is not a blob."""
+        proc = self._run(["cat-file", "blob", oid], check=False)
+        return proc.stdout if proc.returncode == 0 else None
 
     def blob_at(self, commit: str, path: str) -> tuple[str, bytes] | None:
         """``(blob hash, bytes)`` of ``path`` in ``commit``, or None when absent."""

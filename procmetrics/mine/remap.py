@@ -92,8 +92,7 @@ def _previous_mapper(git: GitRepo | None, kind: str | None, source: str | None,
     if (git is None or kind != "maintainers" or mapper.kind != "maintainers"
             or not (source or "").startswith(head)):
         return None
-    blob = source[len(head):]
-    proc = git._run(["cat-file", "blob", blob], check=False)
-    if proc.returncode != 0:
+    data = git.blob(source[len(head):])
+    if data is None:
         return None
-    return maintainers_mapper(proc.stdout.decode("utf-8", "replace"), source)
+    return maintainers_mapper(data.decode("utf-8", "replace"), source)
