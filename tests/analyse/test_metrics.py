@@ -159,3 +159,21 @@ def test_wilson_bounds_are_exact_at_zero_and_all_successes():
     lo, hi = wilson(np.array([0, 358]), np.array([358, 358]))
     assert lo[0] == 0.0 and hi[1] == 1.0
     assert hi[0] == pytest.approx(z**2 / (358 + z**2), rel=1e-9)
+
+
+def test_lower_folds_each_value_as_python_does() -> None:
+    """``_lower`` folds each distinct value once; oracle: ``str.strip().casefold()`` per
+    row, missing values kept missing, values differing only after a NUL kept apart."""
+    from procmetrics.analyse.measures.metrics import _lower
+
+    values = [" Ann@Example.ORG ", None, "ß@x", float("nan"), "ann@example.org", "",
+              "\x00", "A\x00B", "a\x00b ", pd.NA]
+    got = _lower(pd.Series(values, dtype=object, index=range(10, 20), name="email"))
+    want = [None if v is None or v is pd.NA or v != v else v.strip().casefold()
+            for v in values]
+    assert [None if v is pd.NA else v for v in got] == want
+    assert str(got.dtype) == "string" and list(got.index) == list(range(10, 20))
+    assert got.name == "email"
+    # all text (pandas' string hash table: the case where it merges "" and "\x00")
+    text = ["", "\x00", "A\x00B", "a", "A"]
+    assert list(_lower(pd.Series(text, dtype=object))) == ["", "\x00", "a\x00b", "a", "a"]

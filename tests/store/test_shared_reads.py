@@ -71,3 +71,76 @@ def test_an_id_without_its_row_is_a_store_error() -> None:
         T._positions(pd.Series([1, 2, 3]), pd.Series([2, 4]))
     assert list(T._positions(pd.Series([5, 7]), pd.Series([7, 7, 5]))) == [1, 1, 0]
     assert len(T._positions(pd.Series([5]), pd.Series([], dtype="int64"))) == 0
+
+
+# The commits and trailers as a plain SQL join over the text columns, sorted by the
+# database (the form both readers had before they looked people up from ids and sorted
+# in numpy). Booleans and sums are compared as numbers.
+COMMITS_BY_TEXT = """
+SELECT r.name, c.hash, a.name, a.email, m.name, m.email, c.author_time, c.author_offset_min,
+       c.committer_time, c.committer_offset_min, c.subject, c.n_parents,
+       CASE WHEN c.is_merge THEN 1 ELSE 0 END, CASE WHEN c.stable_request THEN 1 ELSE 0 END,
+       (SELECT count(*) FROM file_change f WHERE f.commit_id = c.commit_id),
+       (SELECT sum(f.lines_added) FROM file_change f WHERE f.commit_id = c.commit_id),
+       (SELECT sum(f.lines_deleted) FROM file_change f WHERE f.commit_id = c.commit_id),
+       (SELECT count(*) FROM fix_link l WHERE l.commit_id = c.commit_id),
+       (SELECT count(*) FROM fix_link l WHERE l.commit_id = c.commit_id
+          AND l.status = 'resolved'),
+       (SELECT count(*) FROM revert_link v WHERE v.commit_id = c.commit_id)
+FROM git_commit c
+JOIN repository r ON r.repo_id = c.repo_id
+JOIN person a ON a.person_id = c.author_id
+JOIN person m ON m.person_id = c.committer_id
+WHERE c.run_id IN (SELECT run_id FROM mining_run WHERE status = 'complete')
+ORDER BY r.name COLLATE "C", c.committer_time, c.hash COLLATE "C"
+"""
+
+TRAILERS_BY_TEXT = """
+SELECT r.name, c.hash, t.position, t.key, t.raw_key, t.value, p.name, p.email
+FROM trailer t
+JOIN git_commit c ON c.commit_id = t.commit_id
+JOIN repository r ON r.repo_id = c.repo_id
+LEFT JOIN person p ON p.person_id = t.person_id
+WHERE c.run_id IN (SELECT run_id FROM mining_run WHERE status = 'complete')
+ORDER BY r.name COLLATE "C", c.hash COLLATE "C", t.position
+"""
+
+
+def _sql(store, query: str) -> list[tuple]:
+    if store.dialect.name == "sqlite":
+        query = query.replace('COLLATE "C"', "COLLATE BINARY")
+    with store.connect() as conn:
+        return [tuple(r) for r in conn.execute(text(query))]
+
+
+def _plain(value):
+    """A cell as the join gives it: missing as None, numbers as int."""
+    if value is None or value is pd.NA or (isinstance(value, float) and value != value):
+        return None
+    if isinstance(value, pd.Timestamp):
+        return int(value.timestamp())
+    if hasattr(value, "item"):          # numpy scalars and numpy booleans
+        value = value.item()
+    return int(value) if isinstance(value, bool) else value
+
+
+def test_commits_and_trailers_equal_the_join_over_text(store) -> None:
+    commits, trailers = _sql(store, COMMITS_BY_TEXT), _sql(store, TRAILERS_BY_TEXT)
+    assert len(commits) > 20 and len(trailers) > 20
+    assert any(r[6] is None for r in trailers)      # a trailer line without a person
+    for repo in (None, "a-fw", "b-fw", "sample"):
+        got = T.read_table(store, "commits", repo)
+        got = got.assign(is_revert=got["is_revert"].astype("Int64"))[
+            T.COLUMNS["commits"]]
+        rows = [tuple(_plain(v) for v in r) for r in got.itertuples(index=False, name=None)]
+        want = [tuple(_plain(v) for v in r) for r in commits if repo is None or r[0] == repo]
+        want = [w[:-1] + (int(w[-1] > 0),) for w in want]
+        assert rows == want, repo
+        got = T.read_table(store, "trailers", repo)
+        rows = [tuple(_plain(v) for v in r) for r in got.itertuples(index=False, name=None)]
+        assert rows == [r for r in trailers if repo is None or r[0] == repo], repo
+        # only review keys, case-blind, as the metrics ask for them
+        got = T.read_table(store, "trailers", repo, keys=("reviewed-BY",))
+        assert list(got.itertuples(index=False, name=None)) == [
+            tuple(r) for r in T.read_table(store, "trailers", repo).itertuples(
+                index=False, name=None) if r[3].lower() == "reviewed-by"], repo

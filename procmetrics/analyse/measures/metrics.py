@@ -51,6 +51,7 @@ from procmetrics.analyse.measures.periods import (DEFAULT_PERIOD, assign_periods
 from procmetrics.analyse.result import Caveat, caveat, to_plain
 from procmetrics.analyse.measures.selection import (SubsystemSelection, select_subsystems,
                                            subsystem_counts)
+from procmetrics.distinct import factorize
 from procmetrics.errors import InsufficientData
 
 from procmetrics.analyse.measures.vocabulary import (  # noqa: E402 - re-exported names
@@ -120,7 +121,12 @@ def _true(s: pd.Series) -> np.ndarray:
 
 
 def _lower(s: pd.Series) -> pd.Series:
-    return s.astype("string").str.strip().str.casefold()
+    """Stripped and case-folded text (``string`` dtype, missing stays missing). Each
+    distinct value is folded once: e-mail columns repeat a few thousand people over a
+    million rows."""
+    codes, uniques = factorize(s)
+    folded = pd.Series(uniques, dtype=object).astype("string").str.strip().str.casefold()
+    return pd.Series(folded.array.take(codes, allow_fill=True), index=s.index, name=s.name)
 
 
 def _flags_key(commits: pd.DataFrame, trailers: pd.DataFrame,
@@ -150,7 +156,9 @@ def commit_flags(commits: pd.DataFrame, trailers: pd.DataFrame,
     t = trailers[["repo", "hash", "key", "value", "person_email"]].copy()
     t = t[_lower(t["key"]).isin(keys).fillna(False).to_numpy()]
     email = _lower(t["person_email"])
-    fallback = _lower(t["value"].astype("string").str.extract(_EMAIL, expand=False))
+    # the address in the value where the miner kept no person (only those rows parsed)
+    bare = email.isna().to_numpy()
+    fallback = _lower(t.loc[bare, "value"].astype("string").str.extract(_EMAIL, expand=False))
     t["email"] = email.fillna(fallback)
     author = c[["repo", "hash", "author_email"]].assign(author=_lower(c["author_email"]))
     t = t.merge(author[["repo", "hash", "author"]], on=["repo", "hash"], how="inner")
