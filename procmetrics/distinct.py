@@ -18,7 +18,10 @@ import pandas as pd
 
 
 def _has_nul(items: list[Any]) -> bool:
-    return any(type(v) is str and "\x00" in v for v in items)
+    try:            # all text: one join in C (a million values in milliseconds)
+        return "\x00" in "".join(items)
+    except TypeError:
+        return any(type(v) is str and "\x00" in v for v in items)
 
 
 def factorize(values: Any) -> tuple[np.ndarray, np.ndarray]:

@@ -12,9 +12,10 @@ from sqlalchemy import (
     Table, Text, UniqueConstraint,
 )
 
-SCHEMA_VERSION = 5     # 2: upstream references, patch ids, backport lines; 3: path maps;
+SCHEMA_VERSION = 6     # 2: upstream references, patch ids, backport lines; 3: path maps;
                        # 4: table digests (the store checksum kept as runs complete);
-                       # 5: the reference tips the link statuses were resolved against
+                       # 5: the reference tips the link statuses were resolved against;
+                       # 6: each commit's file count and line sums
 
 metadata = MetaData()
 
@@ -83,6 +84,12 @@ commit = Table(
     Column("is_merge", Boolean, nullable=False),
     Column("stable_request", Boolean, nullable=False, default=False),
     Column("message_was_utf8", Boolean, nullable=False, default=True),
+    # the commit's file_change rows summed when they are written (rows never change):
+    # COUNT(*), and SUM of each line column (NULL when no row has a count), so a
+    # reader of commits does not group four million file rows
+    Column("n_files", Integer, nullable=False, server_default="0"),
+    Column("lines_added", BigInteger),
+    Column("lines_deleted", BigInteger),
     UniqueConstraint("repo_id", "hash", name="uq_commit_hash"),
 )
 

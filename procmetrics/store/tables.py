@@ -131,10 +131,12 @@ def _sort_key(col: pd.Series) -> np.ndarray:
     if values.dtype != object:
         return values
     items = values.tolist()
-    if all(type(v) is str for v in items):
-        joined = "".join(items)
-        if joined.isascii() and "\x00" not in joined:
-            return np.array(items, dtype="S")
+    try:
+        joined = "".join(items)             # raises unless every value is text
+    except TypeError:
+        joined = "\x00"
+    if joined.isascii() and "\x00" not in joined:
+        return np.array(items, dtype="S")
     codes, uniques = factorize(values)
     # Python's own sort of the distinct values (pandas' sorted factorize goes through
     # numpy text, which drops trailing NULs too)
@@ -172,13 +174,9 @@ def commits(engine: Engine, repo: str | None = None) -> pd.DataFrame:
     The commits are fetched with their people's ids, and the names and e-mails looked
     up from one read of the ``person`` table: joined in SQL, every row brought four
     strings of its own, which cost a third of the read at a million commits (and the
-    commits of one person now share hers).
+    commits of one person now share hers). File counts and line sums are the ones the
+    writer stored with each commit (schema 6), not a ``GROUP BY`` over every file row.
     """
-    fc = (select(s.file_change.c.commit_id,
-                 func.count().label("n_files"),
-                 func.sum(s.file_change.c.lines_added).label("lines_added"),
-                 func.sum(s.file_change.c.lines_deleted).label("lines_deleted"))
-          .group_by(s.file_change.c.commit_id).subquery())
     fx = (select(s.fix_link.c.commit_id,
                  func.count().label("n_fix_refs"),
                  func.sum(case((s.fix_link.c.status == "resolved", 1), else_=0))
@@ -193,14 +191,12 @@ def commits(engine: Engine, repo: str | None = None) -> pd.DataFrame:
             g.c.author_time.label("author_date"), g.c.author_offset_min,
             g.c.committer_time.label("committer_date"), g.c.committer_offset_min,
             g.c.subject, g.c.n_parents, g.c.is_merge, g.c.stable_request,
-            func.coalesce(fc.c.n_files, 0).label("n_files"),
-            fc.c.lines_added, fc.c.lines_deleted,
+            g.c.n_files, g.c.lines_added, g.c.lines_deleted,
             func.coalesce(fx.c.n_fix_refs, 0).label("n_fix_refs"),
             func.coalesce(fx.c.n_resolved_fixes, 0).label("n_resolved_fixes"),
             (func.coalesce(rv.c.n_reverts, 0) > 0).label("is_revert"),
         )
         .select_from(g)
-        .outerjoin(fc, fc.c.commit_id == g.c.commit_id)
         .outerjoin(fx, fx.c.commit_id == g.c.commit_id)
         .outerjoin(rv, rv.c.commit_id == g.c.commit_id)
         .where(g.c.run_id.in_(_complete_runs()))

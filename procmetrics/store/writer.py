@@ -98,7 +98,8 @@ _COLUMNS = {
     s.commit.name: ("commit_id", "repo_id", "run_id", "hash", "author_id", "committer_id",
                     "author_time", "author_offset_min", "committer_time",
                     "committer_offset_min", "subject", "message", "n_parents", "is_merge",
-                    "stable_request", "message_was_utf8"),
+                    "stable_request", "message_was_utf8", "n_files", "lines_added",
+                    "lines_deleted"),
     s.commit_parent.name: ("commit_id", "position", "parent_hash"),
     s.file_change.name: ("commit_id",) + FileRow._fields,
     s.trailer.name: ("commit_id", "position", "key", "raw_key", "value", "person_id"),
@@ -107,6 +108,14 @@ _COLUMNS = {
     s.revert_link.name: ("commit_id", "ref_hash", "status", "reverted_hash"),
     s.unparsed_reference.name: ("commit_id", "kind", "raw_text"),
 }
+
+
+def _line_sums(files: Sequence[FileRow]) -> tuple[int | None, int | None]:
+    """A commit's lines added and deleted as SQL's ``SUM`` gives them over its file
+    rows: rows without a count are skipped, and no count at all is NULL (None)."""
+    added = [f.lines_added for f in files if f.lines_added is not None]
+    deleted = [f.lines_deleted for f in files if f.lines_deleted is not None]
+    return (sum(added) if added else None), (sum(deleted) if deleted else None)
 
 
 class StoreWriter(RunBook, LinkQueries, BulkLoad):
@@ -169,7 +178,8 @@ class StoreWriter(RunBook, LinkQueries, BulkLoad):
                         cid, repo_id, run_id, r.hash, ids[r.author], ids[r.committer],
                         r.author_time, r.author_offset_min, r.committer_time,
                         r.committer_offset_min, r.subject, r.message, len(r.parents),
-                        len(r.parents) > 1, r.stable_request, r.message_was_utf8))
+                        len(r.parents) > 1, r.stable_request, r.message_was_utf8,
+                        len(r.files), *_line_sums(r.files)))
                     parents += [(cid, i, h) for i, h in enumerate(r.parents)]
                     files += [(cid, *f) for f in r.files]
                     trailers += [(cid, i, t.key, t.raw_key, t.value,

@@ -71,5 +71,58 @@ def test_schema_4_store_gains_the_link_check_tips(tmp_path):
     con = sqlite3.connect(path)
     assert con.execute("SELECT COUNT(*) FROM link_check_tip").fetchone() == (0,)
     assert con.execute("SELECT value FROM pm_meta WHERE key='schema_version'").fetchone() == \
-        (str(SCHEMA_VERSION),) == ("5",)
+        (str(SCHEMA_VERSION),) == ("6",)
+    con.close()
+
+
+SUMS_BY_GROUP = """
+SELECT c.hash, COUNT(f.commit_id), SUM(f.lines_added), SUM(f.lines_deleted)
+FROM git_commit c LEFT JOIN file_change f ON f.commit_id = c.commit_id
+GROUP BY c.commit_id ORDER BY c.hash
+"""
+
+
+@pytest.mark.parametrize("line_counts", [True, False])
+def test_schema_5_store_gains_each_commits_sums(tmp_path, git_history, line_counts):
+    """5 -> 6: each commit's file count and line sums. Oracle: SQL's own COUNT and SUM
+    over the stored file rows (a text file, a binary file without counts, an empty
+    commit, a merge; a paths-only store has no counts at all). The writer stores the
+    same sums (checked before the columns are dropped)."""
+    from procmetrics.mine import MineOptions, mine_repository
+
+    h = git_history()
+    h.write({"a.c": "one\ntwo\n", "b.bin": b"\x00\x01\x02"})
+    h.commit("first")
+    h.write({"a.c": "one\n", "c.c": "x\n"})
+    h.commit("second")
+    h.commit("nothing changed")
+    h.branch("side", "HEAD~1")
+    h.checkout("side")
+    h.write({"d.c": "d\n"})
+    h.commit("side")
+    h.checkout("main")
+    h.merge("side")
+    path = tmp_path / "five.sqlite"
+    mine_repository(h.path, store=str(path), options=MineOptions(
+        ref="HEAD", progress=False, line_counts=line_counts))
+    con = sqlite3.connect(path)
+    want = con.execute(SUMS_BY_GROUP).fetchall()
+    stored = con.execute("SELECT hash, n_files, lines_added, lines_deleted FROM git_commit "
+                         "ORDER BY hash").fetchall()
+    assert stored == want and len(want) == 5
+    assert (0, None, None) in {r[1:] for r in want}          # the empty commit
+    assert any(r[2] is not None for r in want) == line_counts
+    for column in ("n_files", "lines_added", "lines_deleted"):
+        con.execute(f"ALTER TABLE git_commit DROP COLUMN {column}")
+    con.execute("UPDATE pm_meta SET value = '5' WHERE key = 'schema_version'")
+    con.commit()
+    con.close()
+    with pytest.raises(SchemaError, match="older than .* run 'procmetrics mine' on its "):
+        open_store(str(path), create=False)
+    open_store(str(path)).dispose()
+    con = sqlite3.connect(path)
+    assert con.execute("SELECT hash, n_files, lines_added, lines_deleted FROM git_commit "
+                       "ORDER BY hash").fetchall() == want
+    assert con.execute("SELECT value FROM pm_meta WHERE key='schema_version'").fetchone() == \
+        ("6",)
     con.close()
