@@ -129,6 +129,20 @@ def _lower(s: pd.Series) -> pd.Series:
     return pd.Series(folded.array.take(codes, allow_fill=True), index=s.index, name=s.name)
 
 
+def _commit_keys(commits: pd.DataFrame, lines: pd.DataFrame
+                 ) -> tuple[np.ndarray, np.ndarray]:
+    """One integer per (repo, hash) for the rows of both frames, equal exactly when the
+    pair is equal (:func:`procmetrics.distinct.factorize` over both frames' values): a
+    lookup on integers instead of a join on two text columns."""
+    n = len(commits)
+    repo, repos = factorize(np.concatenate([commits["repo"].to_numpy(dtype=object),
+                                            lines["repo"].to_numpy(dtype=object)]))
+    hashes, uniques = factorize(np.concatenate([commits["hash"].to_numpy(dtype=object),
+                                                lines["hash"].to_numpy(dtype=object)]))
+    key = repo.astype(np.int64) * (len(uniques) + 1) + hashes
+    return key[:n], key[n:]
+
+
 def _flags_key(commits: pd.DataFrame, trailers: pd.DataFrame,
                config: MetricConfig = MetricConfig()) -> Any:
     """What :func:`commit_flags` reads: the tables and four of the options."""
@@ -148,33 +162,41 @@ def commit_flags(commits: pd.DataFrame, trailers: pd.DataFrame,
     ``churn`` (float, NaN when line counts were not mined),
     ``n_reviewers`` (distinct review-trailer e-mails).
     """
-    c = commits.copy()
+    c = commits
     if not config.include_merges:
         c = c[~_true(c["is_merge"])]
-    c = c.drop_duplicates(subset=["repo", "hash"])
     keys = {k.casefold() for k in config.review_keys}
-    t = trailers[["repo", "hash", "key", "value", "person_email"]].copy()
-    t = t[_lower(t["key"]).isin(keys).fillna(False).to_numpy()]
+    t = trailers[["repo", "hash", "key", "value", "person_email"]]
+    t = t[_lower(t["key"]).isin(keys).fillna(False).to_numpy()].reset_index(drop=True)
+    commit_key, line_key = _commit_keys(c, t)
+    first = ~pd.Series(commit_key).duplicated().to_numpy()      # one row per (repo, hash)
+    if not first.all():
+        c, commit_key = c[first], commit_key[first]
+    c = c.reset_index(drop=True)
     email = _lower(t["person_email"])
     # the address in the value where the miner kept no person (only those rows parsed)
     bare = email.isna().to_numpy()
     fallback = _lower(t.loc[bare, "value"].astype("string").str.extract(_EMAIL, expand=False))
-    t["email"] = email.fillna(fallback)
-    author = c[["repo", "hash", "author_email"]].assign(author=_lower(c["author_email"]))
-    t = t.merge(author[["repo", "hash", "author"]], on=["repo", "hash"], how="inner")
-    t["indep"] = (t["email"].notna() & (t["email"] != t["author"])).fillna(False)
-    g = t.groupby(["repo", "hash"])
-    per = pd.DataFrame({"reviewed": g.size() > 0, "independent": g["indep"].any(),
-                        "n_reviewers": g["email"].nunique()}).reset_index()
-    c = c.merge(per, on=["repo", "hash"], how="left")
+    email = email.fillna(fallback)
+    # each review line's commit by position (an inner join on (repo, hash): lines of
+    # commits not counted here drop out); per-commit figures are then counts by position
+    at = pd.Index(commit_key).get_indexer(line_key)
+    seen = at >= 0
+    at, email = at[seen], email[seen].reset_index(drop=True)
+    author_low, committer = _lower(c["author_email"]), _lower(c["committer_email"])
+    indep = (email.notna() & (email != pd.Series(author_low.array.take(at)))).fillna(False)
+    n = len(c)
+    reviewed = np.bincount(at, minlength=n) > 0
+    independent = np.bincount(at, weights=indep.to_numpy(dtype=float), minlength=n) > 0
+    code, uniques = factorize(email)            # exact: see procmetrics.distinct
+    pairs = pd.unique(at[code >= 0] * (len(uniques) + 1) + code[code >= 0])
+    n_reviewers = np.bincount(pairs // (len(uniques) + 1), minlength=n)
     out = pd.DataFrame({"repo": c["repo"], "hash": c["hash"],
                         "date": pd.to_datetime(c[config.date_column], utc=True)})
-    # lower-cased once each (the merge above reset c's index)
-    author_low, committer = _lower(c["author_email"]), _lower(c["committer_email"])
     out["author"] = author_low.to_numpy()
-    out["reviewed"] = _true(c["reviewed"])
-    out["independent"] = _true(c["independent"])
-    out["n_reviewers"] = c["n_reviewers"].fillna(0).astype(int).to_numpy()
+    out["reviewed"] = reviewed
+    out["independent"] = independent
+    out["n_reviewers"] = n_reviewers.astype(int)
     self_commit = (author_low == committer).fillna(False)
     out["unreviewed_self"] = self_commit.to_numpy(dtype=bool) & ~out["reviewed"].to_numpy()
     other = author_low != committer
