@@ -168,6 +168,35 @@ def _frame(conn: Connection, stmt: Select) -> pd.DataFrame:
     return pd.DataFrame.from_records(rows, columns=columns, coerce_float=True)
 
 
+def _fetch_by_ids(engine: Engine | Connection, stmt: Select, repo_id: Any, repo: str | None,
+                  *, people: bool = False) -> tuple[pd.DataFrame, pd.DataFrame | None]:
+    """The rows of ``stmt`` (which selects ``repo_id`` first) for repository ``repo``
+    (None: all), filtered by id, with the repository's name put in a leading ``repo``
+    column from one read of the ``repository`` table; with ``people``, the ``person``
+    table too, for the caller's lookups. All reads in one snapshot, so every id is found.
+    """
+    r, p = s.repository, s.person
+    repos = select(r.c.repo_id, r.c.name)
+    if repo is not None:
+        wanted = select(r.c.repo_id).where(r.c.name == repo).scalar_subquery()
+        stmt = stmt.where(repo_id == wanted)
+        repos = repos.where(r.c.repo_id == wanted)
+    queries = [stmt, repos] + ([select(p.c.person_id, p.c.name, p.c.email)] if people else [])
+
+    def fetch(conn: Connection) -> list[pd.DataFrame]:
+        return [_frame(conn, q) for q in queries]
+
+    if isinstance(engine, Connection):
+        frames = fetch(engine)
+    else:
+        with snapshot(engine) as conn:
+            frames = fetch(conn)
+    df, repo_rows = frames[0], frames[1]
+    df.insert(0, "repo", _as_text(repo_rows["name"])[
+        _positions(repo_rows["repo_id"], df.pop("repo_id"))])
+    return df, (frames[2] if people else None)
+
+
 def commits(engine: Engine, repo: str | None = None) -> pd.DataFrame:
     """One row per commit (merges included and flagged by ``is_merge``).
 
@@ -184,7 +213,7 @@ def commits(engine: Engine, repo: str | None = None) -> pd.DataFrame:
           .group_by(s.fix_link.c.commit_id).subquery())
     rv = (select(s.revert_link.c.commit_id, func.count().label("n_reverts"))
           .group_by(s.revert_link.c.commit_id).subquery())
-    g, r = s.commit, s.repository
+    g = s.commit
     stmt = (
         select(
             g.c.repo_id, g.c.hash, g.c.author_id, g.c.committer_id,
@@ -201,23 +230,7 @@ def commits(engine: Engine, repo: str | None = None) -> pd.DataFrame:
         .outerjoin(rv, rv.c.commit_id == g.c.commit_id)
         .where(g.c.run_id.in_(_complete_runs()))
     )
-    people = select(s.person.c.person_id, s.person.c.name, s.person.c.email)
-    repos = select(r.c.repo_id, r.c.name)
-    if repo is not None:
-        wanted = select(r.c.repo_id).where(r.c.name == repo).scalar_subquery()
-        stmt = stmt.where(g.c.repo_id == wanted)
-        repos = repos.where(r.c.repo_id == wanted)
-
-    def fetch(conn: Connection) -> tuple[pd.DataFrame, ...]:
-        return tuple(_frame(conn, q) for q in (stmt, people, repos))
-
-    if isinstance(engine, Connection):
-        df, person_rows, repo_rows = fetch(engine)
-    else:       # the three reads from one snapshot, so every id is found
-        with snapshot(engine) as conn:
-            df, person_rows, repo_rows = fetch(conn)
-    df.insert(0, "repo", _as_text(repo_rows["name"])[
-        _positions(repo_rows["repo_id"], df["repo_id"])])
+    df, person_rows = _fetch_by_ids(engine, stmt, g.c.repo_id, repo, people=True)
     names, emails = _as_text(person_rows["name"]), _as_text(person_rows["email"])
     for role in ("author", "committer"):
         at = _positions(person_rows["person_id"], df[f"{role}_id"])
@@ -324,7 +337,7 @@ def trailers(engine: Engine, repo: str | None = None,
     Python's ``str.lower`` and ``str.casefold`` give; both forms of each wanted key
     are asked for.
     """
-    g, t, r = s.commit, s.trailer, s.repository
+    g, t = s.commit, s.trailer
     stmt = (
         select(g.c.repo_id, g.c.hash, t.c.position, t.c.key, t.c.raw_key, t.c.value,
                t.c.person_id)
@@ -334,23 +347,7 @@ def trailers(engine: Engine, repo: str | None = None,
     if keys is not None:
         wanted = sorted({k.lower() for k in keys} | {k.casefold() for k in keys})
         stmt = stmt.where(func.lower(t.c.key).in_(wanted))
-    people = select(s.person.c.person_id, s.person.c.name, s.person.c.email)
-    repos = select(r.c.repo_id, r.c.name)
-    if repo is not None:
-        one = select(r.c.repo_id).where(r.c.name == repo).scalar_subquery()
-        stmt = stmt.where(g.c.repo_id == one)
-        repos = repos.where(r.c.repo_id == one)
-
-    def fetch(conn: Connection) -> tuple[pd.DataFrame, ...]:
-        return tuple(_frame(conn, q) for q in (stmt, people, repos))
-
-    if isinstance(engine, Connection):
-        df, person_rows, repo_rows = fetch(engine)
-    else:       # the three reads from one snapshot, so every id is found
-        with snapshot(engine) as conn:
-            df, person_rows, repo_rows = fetch(conn)
-    df.insert(0, "repo", _as_text(repo_rows["name"])[
-        _positions(repo_rows["repo_id"], df["repo_id"])])
+    df, person_rows = _fetch_by_ids(engine, stmt, g.c.repo_id, repo, people=True)
     # a trailer line without a person (no e-mail in its value) keeps None in both
     has = df["person_id"].notna().to_numpy()
     at = _positions(person_rows["person_id"], df["person_id"][has].astype("int64"))
@@ -362,11 +359,16 @@ def trailers(engine: Engine, repo: str | None = None,
 
 
 def fix_links(engine: Engine, repo: str | None = None) -> pd.DataFrame:
-    """One row per fix reference (resolved or not) with both commits' dates."""
+    """One row per fix reference (resolved or not) with both commits' dates.
+
+    The repository is filtered by id and its name looked up: joined by name, SQLite
+    (without planner statistics) walked every commit of the repository and searched
+    its links: 5 s at a million commits, against 1.4 s now.
+    """
     g, fl = s.commit, s.fix_link
     intro = s.commit.alias("intro")
     stmt = (
-        select(s.repository.c.name.label("repo"), g.c.hash.label("fix_hash"), fl.c.position,
+        select(g.c.repo_id, g.c.hash.label("fix_hash"), fl.c.position,
                fl.c.ref_hash, fl.c.status, fl.c.introducer_hash, fl.c.cited_subject,
                fl.c.subject_match, fl.c.in_trailer_block, fl.c.raw_text,
                g.c.author_time.label("fix_author_date"),
@@ -374,13 +376,14 @@ def fix_links(engine: Engine, repo: str | None = None) -> pd.DataFrame:
                intro.c.author_time.label("intro_author_date"),
                intro.c.committer_time.label("intro_committer_date"))
         .select_from(fl).join(g, g.c.commit_id == fl.c.commit_id)
-        .join(s.repository, s.repository.c.repo_id == g.c.repo_id)
         .outerjoin(intro, and_(intro.c.repo_id == g.c.repo_id,
                                intro.c.hash == fl.c.introducer_hash,
                                intro.c.run_id.in_(_complete_runs())))
+        .where(g.c.run_id.in_(_complete_runs()))
     )
-    return _read(engine, _repo_filter(stmt.where(g.c.run_id.in_(_complete_runs())), repo),
-                 "fix_links", order=["repo", "fix_committer_date", "fix_hash", "position"])
+    df, _ = _fetch_by_ids(engine, stmt, g.c.repo_id, repo)
+    return _read_frame(df, "fix_links",
+                       order=["repo", "fix_committer_date", "fix_hash", "position"])
 
 
 def reverts(engine: Engine, repo: str | None = None) -> pd.DataFrame:

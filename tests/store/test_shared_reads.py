@@ -115,7 +115,8 @@ def _sql(store, query: str) -> list[tuple]:
 
 def _plain(value):
     """A cell as the join gives it: missing as None, numbers as int."""
-    if value is None or value is pd.NA or (isinstance(value, float) and value != value):
+    if value is None or value is pd.NA or value is pd.NaT or (
+            isinstance(value, float) and value != value):
         return None
     if isinstance(value, pd.Timestamp):
         return int(value.timestamp())
@@ -144,3 +145,28 @@ def test_commits_and_trailers_equal_the_join_over_text(store) -> None:
         assert list(got.itertuples(index=False, name=None)) == [
             tuple(r) for r in T.read_table(store, "trailers", repo).itertuples(
                 index=False, name=None) if r[3].lower() == "reviewed-by"], repo
+
+
+FIX_LINKS_BY_TEXT = """
+SELECT r.name, c.hash, l.position, l.ref_hash, l.status, l.introducer_hash, l.cited_subject,
+       CASE WHEN l.subject_match IS NULL THEN NULL WHEN l.subject_match THEN 1 ELSE 0 END,
+       CASE WHEN l.in_trailer_block THEN 1 ELSE 0 END, l.raw_text,
+       c.author_time, c.committer_time, i.author_time, i.committer_time
+FROM fix_link l
+JOIN git_commit c ON c.commit_id = l.commit_id
+JOIN repository r ON r.repo_id = c.repo_id
+LEFT JOIN git_commit i ON i.repo_id = c.repo_id AND i.hash = l.introducer_hash
+  AND i.run_id IN (SELECT run_id FROM mining_run WHERE status = 'complete')
+WHERE c.run_id IN (SELECT run_id FROM mining_run WHERE status = 'complete')
+ORDER BY r.name COLLATE "C", c.committer_time, c.hash COLLATE "C", l.position
+"""
+
+
+def test_fix_links_equal_the_join_over_text(store) -> None:
+    links = _sql(store, FIX_LINKS_BY_TEXT)
+    assert len(links) > 5 and any(r[5] is None for r in links) \
+        and any(r[5] is not None for r in links)
+    for repo in (None, "a-fw", "b-fw", "sample"):
+        got = T.read_table(store, "fix_links", repo)
+        rows = [tuple(_plain(v) for v in r) for r in got.itertuples(index=False, name=None)]
+        assert rows == [r for r in links if repo is None or r[0] == repo], repo
