@@ -151,21 +151,59 @@ def _row_order(df: pd.DataFrame, order: list[str]) -> np.ndarray:
     return np.lexsort([_sort_key(df[c]) for c in reversed(order)])
 
 
+#: rows converted at a time on SQLite: the driver's tuples of one chunk are freed before
+#: the next is fetched (all at once, they were about half the peak of reading the
+#: commits at a million commits)
+FETCH_ROWS = 100_000
+
+
 def _frame(conn: Connection, stmt: Select) -> pd.DataFrame:
     """The rows of ``stmt`` as a DataFrame. On SQLite the tuples come straight from the
-    driver's cursor (SQLAlchemy's row objects cost a third of the read at kernel scale);
-    booleans then arrive as 0/1, which :func:`_read` turns into the same ``boolean``
-    column. Other databases go through ``pandas.read_sql``."""
+    driver's cursor (SQLAlchemy's row objects cost a third of the read at kernel scale),
+    :data:`FETCH_ROWS` at a time, and the chunks' columns are joined as one read would
+    have typed them (:func:`_join_chunks`); booleans arrive as 0/1, which :func:`_read`
+    turns into the same ``boolean`` column. Other databases go through
+    ``pandas.read_sql``."""
     if conn.dialect.name != "sqlite":
         return pd.read_sql(stmt, conn)
     result = conn.execute(stmt)
+    parts = []
     try:
         cursor = result.cursor
         columns = [d[0] for d in cursor.description]
-        rows = cursor.fetchall()
+        while True:
+            rows = cursor.fetchmany(FETCH_ROWS)
+            if not rows and parts:
+                break
+            parts.append(pd.DataFrame.from_records(rows, columns=columns, coerce_float=True))
+            if not rows:
+                break
     finally:
         result.close()
-    return pd.DataFrame.from_records(rows, columns=columns, coerce_float=True)
+    return _join_chunks(parts, columns)
+
+
+def _join_chunks(parts: list[pd.DataFrame], columns: list[str]) -> pd.DataFrame:
+    """The chunks of one read as one frame, each column typed as
+    ``DataFrame.from_records(coerce_float=True)`` types it over all rows: integers
+    (int64), integers or reals with NULLs (float64, NaN), text or mixed (object),
+    only NULLs (object None). A chunk sees only its own rows, so a column can come
+    as int64 in one chunk, float64 in another and all-None object in a third."""
+    if len(parts) == 1:
+        return parts[0]
+    out = {}
+    for c in columns:
+        cols = [p[c] for p in parts]
+        kinds = {col.dtype for col in cols}
+        if len(kinds) == 1:
+            out[c] = np.concatenate([col.to_numpy() for col in cols])
+        elif all(col.dtype.kind in "iuf" or (col.dtype == object and col.isna().all())
+                 for col in cols):
+            out[c] = np.concatenate([col.to_numpy(dtype=float, na_value=np.nan)
+                                     for col in cols])
+        else:
+            out[c] = np.concatenate([col.astype(object).to_numpy() for col in cols])
+    return pd.DataFrame(out, columns=columns)
 
 
 def _fetch_by_ids(engine: Engine | Connection, stmt: Select, repo_id: Any, repo: str | None,

@@ -84,3 +84,32 @@ def test_pandas_alone_would_merge_them() -> None:
     df = pd.DataFrame({"v": pd.Series(["", "\x00", "a\x00b", "a"], dtype=object)})
     T._share_equal_values(df, ["v"])
     assert df["v"].tolist() == ["", "\x00", "a\x00b", "a"]
+
+
+@settings(max_examples=200, deadline=None)
+@given(st.data(), st.integers(1, 5))
+def test_chunked_reads_type_columns_as_one_read(data, chunk) -> None:
+    """Oracle: ``DataFrame.from_records(coerce_float=True)`` over all rows at once (the
+    read before it was chunked). Each column draws its cells from one kind mix, as a
+    typed store column does (integers with NULLs, text with NULLs, ...), in chunks that
+    may be all NULL."""
+    kinds = data.draw(st.lists(st.sampled_from(["int", "int_null", "real_null", "text_null",
+                                                "null", "bytes_null", "int_real"]),
+                               min_size=1, max_size=4))
+    cell = {"int": st.integers(-2**40, 2**40),
+            "int_null": st.one_of(st.none(), st.integers(-5, 5)),
+            "real_null": st.one_of(st.none(), st.floats(allow_nan=False, allow_infinity=False)),
+            "text_null": st.one_of(st.none(), st.text(max_size=3)),
+            "null": st.none(), "bytes_null": st.one_of(st.none(), st.binary(max_size=2)),
+            "int_real": st.one_of(st.integers(-5, 5), st.floats(allow_nan=False,
+                                                               allow_infinity=False))}
+    n = data.draw(st.integers(0, 12))
+    rows = [tuple(data.draw(cell[k]) for k in kinds) for _ in range(n)]
+    columns = [f"c{i}" for i in range(len(kinds))]
+    parts = [pd.DataFrame.from_records(rows[i:i + chunk], columns=columns, coerce_float=True)
+             for i in range(0, max(n, 1), chunk)]
+    want = pd.DataFrame.from_records(rows, columns=columns, coerce_float=True)
+    got = T._join_chunks(parts, columns)
+    pd.testing.assert_frame_equal(got, want, check_exact=True, check_index_type=False)
+    for c in columns:
+        assert [type(v) for v in got[c]] == [type(v) for v in want[c]], c
