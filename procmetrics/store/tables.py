@@ -16,9 +16,10 @@ from sqlalchemy import and_, case, func, select
 from sqlalchemy.engine import Connection, Engine
 from sqlalchemy.sql import Select
 
-from procmetrics.distinct import factorize
 from procmetrics.errors import StoreError
 from procmetrics.store import schema as s
+from procmetrics.store.frames import (as_text, fetch_by_ids, fetch_frame, positions,
+                                      row_order, share_equal_values, to_utc)
 from procmetrics.store.readsql import (  # noqa: F401 - re-exported: the readers' names
     COLUMNS, _complete_runs, _repo_filter, snapshot)
 
@@ -46,46 +47,6 @@ _REPEATED_TEXT: dict[str, tuple[str, ...]] = {
 }
 
 
-def _share_equal_values(df: pd.DataFrame, columns: Iterable[str]) -> None:
-    """Equal values of each object column become one object (values unchanged).
-
-    The equal values are found by :func:`procmetrics.distinct.factorize` (pandas' hash
-    table; a Python dict over a million cells took seconds); a missing value (None or
-    NaN) stays as it was.
-    """
-    for c in columns:
-        if c in df.columns and df[c].dtype == object and len(df):
-            values = df[c].to_numpy()
-            codes, uniques = factorize(values)
-            shared = uniques[np.maximum(codes, 0)] if len(uniques) else values.copy()
-            missing = codes < 0
-            if missing.any():
-                shared[missing] = values[missing]
-            df[c] = shared
-
-
-# seconds pandas can hold as a Timestamp (about 1677-09-22 .. 2262-04-11)
-_MIN_SECONDS = int(pd.Timestamp.min.timestamp()) + 1
-_MAX_SECONDS = int(pd.Timestamp.max.timestamp()) - 1
-
-
-def _to_utc(seconds: pd.Series) -> pd.Series:
-    """Epoch seconds -> UTC timestamps; a date pandas cannot hold (git keeps up to
-    2**63 - 1 seconds) becomes NaT instead of failing the whole read.
-
-    The store keeps whole seconds (``BigInteger``), so the nanoseconds are built in
-    integer arithmetic. pandas' own ``to_datetime(unit="s")`` casts through floats under
-    ``np.errstate(over="raise")``, and one report at 300,000 commits stopped there
-    once with a ``FloatingPointError`` that did not come back in five reruns.
-    """
-    v = pd.to_numeric(seconds, errors="coerce")
-    ok = (v.notna() & (v >= _MIN_SECONDS) & (v <= _MAX_SECONDS)).to_numpy(dtype=bool)
-    ns = np.full(len(v), np.iinfo(np.int64).min, dtype=np.int64)   # NaT everywhere
-    ns[ok] = v.to_numpy()[ok].astype(np.int64) * 1_000_000_000
-    out = pd.Series(ns.view("datetime64[ns]"), index=seconds.index, name=seconds.name)
-    return out.dt.tz_localize("UTC")
-
-
 def _read(engine: Engine | Connection, stmt: Select, name: str,
           order: list[str] | None = None) -> pd.DataFrame:
     """Run ``stmt`` and shape the rows as the tidy table ``name``.
@@ -99,140 +60,26 @@ def _read(engine: Engine | Connection, stmt: Select, name: str,
     the order the ``ORDER BY`` gave.
     """
     if isinstance(engine, Connection):
-        df = _frame(engine, stmt)
+        df = fetch_frame(engine, stmt)
     else:
         with engine.connect() as conn:
-            df = _frame(conn, stmt)
+            df = fetch_frame(conn, stmt)
     return _read_frame(df, name, order)
 
 
 def _read_frame(df: pd.DataFrame, name: str, order: list[str] | None = None) -> pd.DataFrame:
     """Rows fetched for the tidy table ``name`` in its shape (see :func:`_read`)."""
     if order:
-        df = df.take(_row_order(df, order)).reset_index(drop=True)
+        df = df.take(row_order(df, order)).reset_index(drop=True)
     cols = COLUMNS[name]
     df = df.reindex(columns=cols)
-    _share_equal_values(df, _REPEATED_TEXT.get(name, ()))
+    share_equal_values(df, _REPEATED_TEXT.get(name, ()))
     for c in cols:
         if c in _DATE_COLUMNS:
-            df[c] = _to_utc(df[c])
+            df[c] = to_utc(df[c])
         elif c in _BOOL_COLUMNS:
             df[c] = df[c].astype("boolean")
     return df
-
-
-def _sort_key(col: pd.Series) -> np.ndarray:
-    """One column of a row order as an array ``numpy.lexsort`` orders as SQLite's
-    BINARY collation would: numbers as they are, text by code point. ASCII text
-    without NUL characters is compared as bytes (a million hashes in a fifth of a
-    second; numpy's byte strings drop trailing NULs, hence that condition); other
-    text through its sorted distinct values (seconds at that size)."""
-    values = col.to_numpy()
-    if values.dtype != object:
-        return values
-    items = values.tolist()
-    try:
-        joined = "".join(items)             # raises unless every value is text
-    except TypeError:
-        joined = "\x00"
-    if joined.isascii() and "\x00" not in joined:
-        return np.array(items, dtype="S")
-    codes, uniques = factorize(values)
-    # Python's own sort of the distinct values (pandas' sorted factorize goes through
-    # numpy text, which drops trailing NULs too)
-    rank = np.empty(len(uniques), dtype=np.int64)
-    rank[sorted(range(len(uniques)), key=list(uniques).__getitem__)] = np.arange(len(uniques))
-    return rank[codes]
-
-
-def _row_order(df: pd.DataFrame, order: list[str]) -> np.ndarray:
-    """Positions that sort ``df`` by the ``order`` columns (the first most significant;
-    ties keep the fetched order, as the stable sort did)."""
-    return np.lexsort([_sort_key(df[c]) for c in reversed(order)])
-
-
-#: rows converted at a time on SQLite: the driver's tuples of one chunk are freed before
-#: the next is fetched (all at once, they were about half the peak of reading the
-#: commits at a million commits)
-FETCH_ROWS = 100_000
-
-
-def _frame(conn: Connection, stmt: Select) -> pd.DataFrame:
-    """The rows of ``stmt`` as a DataFrame. On SQLite the tuples come straight from the
-    driver's cursor (SQLAlchemy's row objects cost a third of the read at kernel scale),
-    :data:`FETCH_ROWS` at a time, and the chunks' columns are joined as one read would
-    have typed them (:func:`_join_chunks`); booleans arrive as 0/1, which :func:`_read`
-    turns into the same ``boolean`` column. Other databases go through
-    ``pandas.read_sql``."""
-    if conn.dialect.name != "sqlite":
-        return pd.read_sql(stmt, conn)
-    result = conn.execute(stmt)
-    parts = []
-    try:
-        cursor = result.cursor
-        columns = [d[0] for d in cursor.description]
-        while True:
-            rows = cursor.fetchmany(FETCH_ROWS)
-            if not rows and parts:
-                break
-            parts.append(pd.DataFrame.from_records(rows, columns=columns, coerce_float=True))
-            if not rows:
-                break
-    finally:
-        result.close()
-    return _join_chunks(parts, columns)
-
-
-def _join_chunks(parts: list[pd.DataFrame], columns: list[str]) -> pd.DataFrame:
-    """The chunks of one read as one frame, each column typed as
-    ``DataFrame.from_records(coerce_float=True)`` types it over all rows: integers
-    (int64), integers or reals with NULLs (float64, NaN), text or mixed (object),
-    only NULLs (object None). A chunk sees only its own rows, so a column can come
-    as int64 in one chunk, float64 in another and all-None object in a third."""
-    if len(parts) == 1:
-        return parts[0]
-    out = {}
-    for c in columns:
-        cols = [p[c] for p in parts]
-        kinds = {col.dtype for col in cols}
-        if len(kinds) == 1:
-            out[c] = np.concatenate([col.to_numpy() for col in cols])
-        elif all(col.dtype.kind in "iuf" or (col.dtype == object and col.isna().all())
-                 for col in cols):
-            out[c] = np.concatenate([col.to_numpy(dtype=float, na_value=np.nan)
-                                     for col in cols])
-        else:
-            out[c] = np.concatenate([col.astype(object).to_numpy() for col in cols])
-    return pd.DataFrame(out, columns=columns)
-
-
-def _fetch_by_ids(engine: Engine | Connection, stmt: Select, repo_id: Any, repo: str | None,
-                  *, people: bool = False) -> tuple[pd.DataFrame, pd.DataFrame | None]:
-    """The rows of ``stmt`` (which selects ``repo_id`` first) for repository ``repo``
-    (None: all), filtered by id, with the repository's name put in a leading ``repo``
-    column from one read of the ``repository`` table; with ``people``, the ``person``
-    table too, for the caller's lookups. All reads in one snapshot, so every id is found.
-    """
-    r, p = s.repository, s.person
-    repos = select(r.c.repo_id, r.c.name)
-    if repo is not None:
-        wanted = select(r.c.repo_id).where(r.c.name == repo).scalar_subquery()
-        stmt = stmt.where(repo_id == wanted)
-        repos = repos.where(r.c.repo_id == wanted)
-    queries = [stmt, repos] + ([select(p.c.person_id, p.c.name, p.c.email)] if people else [])
-
-    def fetch(conn: Connection) -> list[pd.DataFrame]:
-        return [_frame(conn, q) for q in queries]
-
-    if isinstance(engine, Connection):
-        frames = fetch(engine)
-    else:
-        with snapshot(engine) as conn:
-            frames = fetch(conn)
-    df, repo_rows = frames[0], frames[1]
-    df.insert(0, "repo", _as_text(repo_rows["name"])[
-        _positions(repo_rows["repo_id"], df.pop("repo_id"))])
-    return df, (frames[2] if people else None)
 
 
 def commits(engine: Engine, repo: str | None = None) -> pd.DataFrame:
@@ -268,10 +115,10 @@ def commits(engine: Engine, repo: str | None = None) -> pd.DataFrame:
         .outerjoin(rv, rv.c.commit_id == g.c.commit_id)
         .where(g.c.run_id.in_(_complete_runs()))
     )
-    df, person_rows = _fetch_by_ids(engine, stmt, g.c.repo_id, repo, people=True)
-    names, emails = _as_text(person_rows["name"]), _as_text(person_rows["email"])
+    df, person_rows = fetch_by_ids(engine, stmt, g.c.repo_id, repo, people=True)
+    names, emails = as_text(person_rows["name"]), as_text(person_rows["email"])
     for role in ("author", "committer"):
-        at = _positions(person_rows["person_id"], df[f"{role}_id"])
+        at = positions(person_rows["person_id"], df[f"{role}_id"])
         df[f"{role}_name"], df[f"{role}_email"] = names[at], emails[at]
     df = _read_frame(df, "commits", order=["repo", "committer_date", "hash"])
     for col in ("n_files", "n_fix_refs", "n_resolved_fixes", "n_parents"):
@@ -315,37 +162,22 @@ def commit_subsystems(engine: Engine, repo: str | None = None) -> pd.DataFrame:
         repos = repos.where(r.c.repo_id == wanted)
 
     def fetch(conn: Connection) -> tuple[pd.DataFrame, ...]:
-        return tuple(_frame(conn, q) for q in (pairs, hashes, names, repos))
+        return tuple(fetch_frame(conn, q) for q in (pairs, hashes, names, repos))
 
     if isinstance(engine, Connection):
         ids, commit_rows, subsystem_rows, repo_rows = fetch(engine)
     else:       # the four reads from one snapshot, so every id is found
         with snapshot(engine) as conn:
             ids, commit_rows, subsystem_rows, repo_rows = fetch(conn)
-    at = _positions(commit_rows["commit_id"], ids["commit_id"])
-    repo_at = _positions(repo_rows["repo_id"], commit_rows["repo_id"])
+    at = positions(commit_rows["commit_id"], ids["commit_id"])
+    repo_at = positions(repo_rows["repo_id"], commit_rows["repo_id"])
     df = pd.DataFrame({
-        "repo": _as_text(repo_rows["name"])[repo_at][at],
-        "hash": _as_text(commit_rows["hash"])[at],
-        "subsystem": _as_text(subsystem_rows["name"])[
-            _positions(subsystem_rows["subsystem_id"], ids["subsystem_id"])],
+        "repo": as_text(repo_rows["name"])[repo_at][at],
+        "hash": as_text(commit_rows["hash"])[at],
+        "subsystem": as_text(subsystem_rows["name"])[
+            positions(subsystem_rows["subsystem_id"], ids["subsystem_id"])],
     })
     return _read_frame(df, "commit_subsystems", order=["repo", "hash", "subsystem"])
-
-
-def _positions(keys: pd.Series, wanted: pd.Series) -> np.ndarray:
-    """Where each of ``wanted`` sits in ``keys`` (unique ids); an id not there is an
-    inconsistent read, never a silent wrap-around to the last row."""
-    at = pd.Index(keys).get_indexer(wanted)
-    if len(at) and at.min() < 0:
-        raise StoreError("the store changed while it was read (an id without its row); "
-                         "read it again")
-    return at
-
-
-def _as_text(col: pd.Series) -> np.ndarray:
-    """A text column as an object array (empty stays object, never float)."""
-    return np.asarray(col.to_numpy(), dtype=object)
 
 
 def file_changes(engine: Engine, repo: str | None = None) -> pd.DataFrame:
@@ -385,13 +217,13 @@ def trailers(engine: Engine, repo: str | None = None,
     if keys is not None:
         wanted = sorted({k.lower() for k in keys} | {k.casefold() for k in keys})
         stmt = stmt.where(func.lower(t.c.key).in_(wanted))
-    df, person_rows = _fetch_by_ids(engine, stmt, g.c.repo_id, repo, people=True)
+    df, person_rows = fetch_by_ids(engine, stmt, g.c.repo_id, repo, people=True)
     # a trailer line without a person (no e-mail in its value) keeps None in both
     has = df["person_id"].notna().to_numpy()
-    at = _positions(person_rows["person_id"], df["person_id"][has].astype("int64"))
+    at = positions(person_rows["person_id"], df["person_id"][has].astype("int64"))
     for column, source in (("person_name", "name"), ("person_email", "email")):
         values = np.full(len(df), None, dtype=object)
-        values[has] = _as_text(person_rows[source])[at]
+        values[has] = as_text(person_rows[source])[at]
         df[column] = values
     return _read_frame(df, "trailers", order=["repo", "hash", "position"])
 
@@ -419,7 +251,7 @@ def fix_links(engine: Engine, repo: str | None = None) -> pd.DataFrame:
                                intro.c.run_id.in_(_complete_runs())))
         .where(g.c.run_id.in_(_complete_runs()))
     )
-    df, _ = _fetch_by_ids(engine, stmt, g.c.repo_id, repo)
+    df, _ = fetch_by_ids(engine, stmt, g.c.repo_id, repo)
     return _read_frame(df, "fix_links",
                        order=["repo", "fix_committer_date", "fix_hash", "position"])
 

@@ -7,7 +7,9 @@ import datetime as dt
 import numpy as np
 import pandas as pd
 
-from procmetrics.store.tables import _MAX_SECONDS, _MIN_SECONDS, _to_utc
+from procmetrics.store.frames import MAX_SECONDS as _MAX_SECONDS
+from procmetrics.store.frames import MIN_SECONDS as _MIN_SECONDS
+from procmetrics.store.frames import to_utc as _to_utc
 
 
 def _oracle(values: list[object]) -> pd.Series:

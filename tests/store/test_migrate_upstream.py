@@ -10,17 +10,24 @@ from procmetrics.store import SCHEMA_VERSION, open_store
 from procmetrics.store.tables import read_table
 
 
-def test_schema_1_store_gains_the_upstream_tables(tmp_path):
-    path = tmp_path / "old.sqlite"
-    open_store(str(path)).dispose()
-    con = sqlite3.connect(path)             # make it look like a schema-1 store
-    for t in ("upstream_reference", "patch_id", "backport_line"):
-        con.execute(f"DROP TABLE {t}")
-    con.execute("UPDATE pm_meta SET value = '1' WHERE key = 'schema_version'")
+def _make_older(path, version: int, *statements: str) -> None:
+    """Turn the store at ``path`` into one of schema ``version`` (the ``statements``
+    undo what came after it), and check that a read-only open refuses it."""
+    con = sqlite3.connect(path)
+    for statement in statements:
+        con.execute(statement)
+    con.execute(f"UPDATE pm_meta SET value = '{version}' WHERE key = 'schema_version'")
     con.commit()
     con.close()
     with pytest.raises(SchemaError, match="older than .* run 'procmetrics mine' on its "):
         open_store(str(path), create=False)
+
+
+def test_schema_1_store_gains_the_upstream_tables(tmp_path):
+    path = tmp_path / "old.sqlite"
+    open_store(str(path)).dispose()
+    _make_older(path, 1, *(f"DROP TABLE {t}"
+                           for t in ("upstream_reference", "patch_id", "backport_line")))
     engine = open_store(str(path))
     try:
         for name in ("upstream_references", "patch_ids", "backport_lines"):
@@ -112,13 +119,9 @@ def test_schema_5_store_gains_each_commits_sums(tmp_path, git_history, line_coun
     assert stored == want and len(want) == 5
     assert (0, None, None) in {r[1:] for r in want}          # the empty commit
     assert any(r[2] is not None for r in want) == line_counts
-    for column in ("n_files", "lines_added", "lines_deleted"):
-        con.execute(f"ALTER TABLE git_commit DROP COLUMN {column}")
-    con.execute("UPDATE pm_meta SET value = '5' WHERE key = 'schema_version'")
-    con.commit()
     con.close()
-    with pytest.raises(SchemaError, match="older than .* run 'procmetrics mine' on its "):
-        open_store(str(path), create=False)
+    _make_older(path, 5, *(f"ALTER TABLE git_commit DROP COLUMN {column}"
+                           for column in ("n_files", "lines_added", "lines_deleted")))
     open_store(str(path)).dispose()
     con = sqlite3.connect(path)
     assert con.execute("SELECT hash, n_files, lines_added, lines_deleted FROM git_commit "

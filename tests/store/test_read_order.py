@@ -1,4 +1,4 @@
-"""The readers sort fetched rows in numpy (``tables._row_order``) instead of an SQL
+"""The readers sort fetched rows in numpy (``frames.row_order``) instead of an SQL
 ``ORDER BY``; the oracle is SQLite's own ``ORDER BY`` over the same rows (BINARY
 collation: text by its UTF-8 bytes, which is code-point order), ties kept in insertion
 order as a stable sort keeps them. Text mixes ASCII (the fast byte path), other
@@ -13,7 +13,7 @@ import pandas as pd
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from procmetrics.store import tables as T
+from procmetrics.store import frames as F
 
 TEXT = st.one_of(
     st.text(alphabet="0123456789abcdef", max_size=6),
@@ -37,16 +37,16 @@ def test_row_order_is_sqlites_order_by(rows, ascii_only) -> None:
         rows = [(a.encode("ascii", "ignore").decode().replace("\x00", ""), b,
                  c.encode("ascii", "ignore").decode().replace("\x00", "")) for a, b, c in rows]
     df = pd.DataFrame(rows, columns=["a", "b", "c"]).astype({"a": object, "c": object})
-    got = T._row_order(df, ["a", "b", "c"]) if len(df) else np.array([], dtype=int)
+    got = F.row_order(df, ["a", "b", "c"]) if len(df) else np.array([], dtype=int)
     assert list(got) == _sqlite_order(rows)
 
 
 def test_hashes_take_the_byte_path_and_nul_endings_do_not() -> None:
     hashes = pd.Series(["ab12", "ab1", "0f"], dtype=object)
-    assert T._sort_key(hashes).dtype.kind == "S"
-    assert T._sort_key(pd.Series(["a\x00", "a"], dtype=object)).dtype.kind == "i"
-    assert T._sort_key(pd.Series(["é", "e"], dtype=object)).dtype.kind == "i"
-    assert list(T._row_order(pd.DataFrame({"x": ["a\x00", "a"]}, dtype=object), ["x"])) \
+    assert F.sort_key(hashes).dtype.kind == "S"
+    assert F.sort_key(pd.Series(["a\x00", "a"], dtype=object)).dtype.kind == "i"
+    assert F.sort_key(pd.Series(["é", "e"], dtype=object)).dtype.kind == "i"
+    assert list(F.row_order(pd.DataFrame({"x": ["a\x00", "a"]}, dtype=object), ["x"])) \
         == [1, 0]
 
 
@@ -56,7 +56,7 @@ def test_shared_values_are_equal_and_missing_values_stay() -> None:
               "".join(["y1", "y2"])]
     df = pd.DataFrame({"v": pd.Series(values, dtype=object)})
     assert df["v"][0] is not df["v"][4]
-    T._share_equal_values(df, ["v"])
+    F.share_equal_values(df, ["v"])
     got = df["v"].tolist()
     assert got[0] == "x1x2" and got[2] == "y1y2" and got[1] is None and got[3] != got[3]
     assert got[0] is got[4] and got[2] is got[5]
@@ -82,7 +82,7 @@ def test_pandas_alone_would_merge_them() -> None:
     compares whole strings now and the guard could go)."""
     assert len(pd.factorize(np.array(["", "\x00"], dtype=object))[1]) == 1
     df = pd.DataFrame({"v": pd.Series(["", "\x00", "a\x00b", "a"], dtype=object)})
-    T._share_equal_values(df, ["v"])
+    F.share_equal_values(df, ["v"])
     assert df["v"].tolist() == ["", "\x00", "a\x00b", "a"]
 
 
@@ -109,7 +109,7 @@ def test_chunked_reads_type_columns_as_one_read(data, chunk) -> None:
     parts = [pd.DataFrame.from_records(rows[i:i + chunk], columns=columns, coerce_float=True)
              for i in range(0, max(n, 1), chunk)]
     want = pd.DataFrame.from_records(rows, columns=columns, coerce_float=True)
-    got = T._join_chunks(parts, columns)
+    got = F.join_chunks(parts, columns)
     pd.testing.assert_frame_equal(got, want, check_exact=True, check_index_type=False)
     for c in columns:
         assert [type(v) for v in got[c]] == [type(v) for v in want[c]], c

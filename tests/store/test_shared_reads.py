@@ -15,6 +15,7 @@ from sqlalchemy import text
 from procmetrics.errors import StoreError
 from procmetrics.mine import MineOptions, mine_repository
 from procmetrics.store import open_store
+from procmetrics.store import frames as F
 from procmetrics.store import tables as T
 from tests.mine.test_multi_repo import three_repos  # noqa: F401 - fixture
 from tests.pg_support import any_store_url  # noqa: F401 - fixture
@@ -68,9 +69,9 @@ def test_shared_strings_change_no_value(store, monkeypatch) -> None:
 
 def test_an_id_without_its_row_is_a_store_error() -> None:
     with pytest.raises(StoreError, match="changed while it was read"):
-        T._positions(pd.Series([1, 2, 3]), pd.Series([2, 4]))
-    assert list(T._positions(pd.Series([5, 7]), pd.Series([7, 7, 5]))) == [1, 1, 0]
-    assert len(T._positions(pd.Series([5]), pd.Series([], dtype="int64"))) == 0
+        F.positions(pd.Series([1, 2, 3]), pd.Series([2, 4]))
+    assert list(F.positions(pd.Series([5, 7]), pd.Series([7, 7, 5]))) == [1, 1, 0]
+    assert len(F.positions(pd.Series([5]), pd.Series([], dtype="int64"))) == 0
 
 
 # The commits and trailers as a plain SQL join over the text columns, sorted by the
