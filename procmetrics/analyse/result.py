@@ -110,10 +110,7 @@ def _plain(obj: Any) -> Any:
         return {f.name: _plain(getattr(obj, f.name)) for f in fields(obj)
                 if f.metadata.get("json", True)}
     if isinstance(obj, pd.DataFrame):
-        return [
-            {str(k): _plain(v) for k, v in row.items()}
-            for row in obj.to_dict(orient="records")
-        ]
+        return _plain_rows(obj)
     if isinstance(obj, pd.Series):
         return [_plain(v) for v in obj.tolist()]
     if isinstance(obj, dict):
@@ -132,6 +129,37 @@ def _plain(obj: Any) -> Any:
     if obj is pd.NA or obj is pd.NaT:
         return None
     return obj
+
+
+def _plain_rows(df: pd.DataFrame) -> list[dict[str, Any]]:
+    """A DataFrame as a list of row dicts, the values as :func:`_plain` makes them.
+
+    Converted a column at a time: numbers and booleans of numpy columns through
+    ``tolist`` (Python's own int, float and bool; NaN and infinities then None), other
+    columns value by value through :func:`_plain`. A cell at a time, the rows of a
+    lifetime-curves table at a million commits took twenty seconds. The rows equal the
+    per-cell conversion of ``to_dict(orient="records")`` (the test keeps that as its
+    reference)."""
+    keys = [str(k) for k in df.columns]
+    if len(set(keys)) != len(keys):       # duplicate names: one key each, as to_dict keeps
+        return [{str(k): _plain(v) for k, v in row.items()}
+                for row in df.to_dict(orient="records")]
+    columns = []
+    for i in range(df.shape[1]):
+        col = df.iloc[:, i]
+        kind = col.dtype.kind if isinstance(col.dtype, np.dtype) else "x"
+        if kind in "iub":
+            columns.append(col.to_numpy().tolist())
+        elif kind == "f":
+            values = col.to_numpy()
+            bad = ~np.isfinite(values)
+            cells = values.tolist()
+            for j in np.flatnonzero(bad).tolist():
+                cells[j] = None
+            columns.append(cells)
+        else:
+            columns.append([_plain(v) for v in col.tolist()])
+    return [dict(zip(keys, cells)) for cells in zip(*columns)]   # no columns: no rows
 
 
 to_plain = _plain

@@ -25,20 +25,22 @@ analysis of the heuristic defects, all labelled ``heuristic``),
 """
 from __future__ import annotations
 
-import json
 from pathlib import Path
 from typing import Any
 
 from procmetrics.errors import OutputPathError
+from procmetrics.report.jsontext import indented
 from procmetrics.textsafe import neutralise_frame
 
 DATE_FORMAT = "%Y-%m-%dT%H:%M:%SZ"
 
 
 def write_json(path: Path, obj: Any) -> Path:
-    """Deterministic JSON (sorted keys, no NaN); an unwritable path is an OutputPathError."""
+    """Deterministic JSON (sorted keys, no NaN), the text ``json.dumps(obj, indent=2,
+    sort_keys=True, allow_nan=False)`` writes (:func:`procmetrics.report.jsontext.indented`);
+    an unwritable path is an OutputPathError."""
     try:
-        path.write_text(json.dumps(obj, indent=2, sort_keys=True, allow_nan=False) + "\n")
+        path.write_text(indented(obj, ensure_ascii=True) + "\n")
     except OSError as exc:
         raise OutputPathError(f"cannot write {path}: {exc.strerror or exc}") from exc
     return path

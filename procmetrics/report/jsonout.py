@@ -17,6 +17,7 @@ import numpy as np
 import pandas as pd
 
 from procmetrics.analyse.result import to_plain
+from procmetrics.report.jsontext import indented
 from procmetrics.report.model import Report
 
 FORMAT = "procmetrics-report/1"
@@ -55,61 +56,10 @@ def dumps(obj: Any) -> str:
     """Deterministic JSON text (sorted keys, two-space indent, trailing newline).
 
     The text of ``json.dumps(canonical(obj), sort_keys=True, indent=2,
-    ensure_ascii=False, allow_nan=False)``, written by :func:`_encode` (the standard
-    library's encoder runs in Python when it indents, a chain of generators per
-    nesting level: a third of the JSON step at kernel scale)."""
-    out: list[str] = []
-    _encode(canonical(obj), "\n", out)
-    out.append("\n")
-    return "".join(out)
-
-
-_str = json.encoder.encode_basestring     # ensure_ascii=False: the C function
-
-
-def _key(k: Any) -> str:
-    if not isinstance(k, str):
-        raise TypeError(f"keys must be str after canonical(), not {type(k).__name__}")
-    return _str(k)
-
-
-def _container(brackets: str, items: list[tuple[str, Any]], nl: str, out: list[str]) -> None:
-    """A list (items with empty prefixes) or an object (prefix: the key and ``": "``)."""
-    if not items:
-        out.append(brackets)
-        return
-    inner = sep = nl + "  "
-    out.append(brackets[0])
-    for prefix, v in items:
-        out.append(sep + prefix)
-        sep = "," + inner
-        _encode(v, inner, out)
-    out.append(nl + brackets[1])
-
-
-def _encode(o: Any, nl: str, out: list[str]) -> None:
-    """Append the indented JSON text of the canonical value ``o``; ``nl`` is the newline
-    and indent of its own level (the standard encoder's rules, in its order of checks)."""
-    if isinstance(o, str):
-        out.append(_str(o))
-    elif o is None:
-        out.append("null")
-    elif o is True:
-        out.append("true")
-    elif o is False:
-        out.append("false")
-    elif isinstance(o, int):
-        out.append(int.__repr__(o))
-    elif isinstance(o, float):
-        if o != o or o in (math.inf, -math.inf):
-            raise ValueError(f"Out of range float values are not JSON compliant: {o!r}")
-        out.append(float.__repr__(o))
-    elif isinstance(o, (list, tuple)):
-        _container("[]", [("", v) for v in o], nl, out)
-    elif isinstance(o, dict):
-        _container("{}", [(_key(k) + ": ", v) for k, v in sorted(o.items())], nl, out)
-    else:
-        raise TypeError(f"Object of type {o.__class__.__name__} is not JSON serializable")
+    ensure_ascii=False, allow_nan=False)``, written by
+    :func:`procmetrics.report.jsontext.indented` (the standard library's encoder runs
+    in Python when it indents: a third of the JSON step at kernel scale)."""
+    return indented(canonical(obj), ensure_ascii=False) + "\n"
 
 
 def report_dict(report: Report, csv_names: dict[str, str]) -> dict[str, Any]:

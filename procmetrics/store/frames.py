@@ -7,7 +7,7 @@ made UTC timestamps. See DEVELOPERS.md, "Reading the store"; the tests are
 """
 from __future__ import annotations
 
-from typing import Any, Iterable
+from typing import Any, Iterable, Iterator
 
 import numpy as np
 import pandas as pd
@@ -121,6 +121,24 @@ def fetch_frame(conn: Connection, stmt: Select) -> pd.DataFrame:
     finally:
         result.close()
     return join_chunks(parts, columns)
+
+
+def fetch_rows(conn: Connection, stmt: Select) -> Iterator[list[tuple[Any, ...]]]:
+    """The rows of ``stmt`` as lists of plain tuples, at most :data:`FETCH_ROWS` at a
+    time, for a caller that reduces each chunk to arrays before the next is fetched
+    (no DataFrame: pandas' typing of a chunk's columns is work such a caller does not
+    need). On SQLite the tuples come straight from the driver's cursor."""
+    result = conn.execute(stmt)
+    try:
+        cursor = result.cursor if conn.dialect.name == "sqlite" else None
+        while True:
+            rows = (cursor.fetchmany(FETCH_ROWS) if cursor is not None
+                    else [tuple(row) for row in result.fetchmany(FETCH_ROWS)])
+            if not rows:
+                break
+            yield rows
+    finally:
+        result.close()
 
 
 def join_chunks(parts: list[pd.DataFrame], columns: list[str]) -> pd.DataFrame:

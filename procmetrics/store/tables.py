@@ -8,6 +8,7 @@ Dates are timezone-aware UTC ``Timestamp``; the original offset is kept in a
 """
 from __future__ import annotations
 
+from operator import itemgetter
 from typing import Any, Callable, Iterable
 
 import numpy as np
@@ -18,8 +19,9 @@ from sqlalchemy.sql import Select
 
 from procmetrics.errors import StoreError
 from procmetrics.store import schema as s
-from procmetrics.store.frames import (as_text, fetch_by_ids, fetch_frame, positions,
-                                      row_order, share_equal_values, to_utc)
+from procmetrics.distinct import ExactIndex
+from procmetrics.store.frames import (as_text, fetch_by_ids, fetch_frame, fetch_rows,
+                                      positions, row_order, share_equal_values, to_utc)
 from procmetrics.store.readsql import (  # noqa: F401 - re-exported: the readers' names
     COLUMNS, _complete_runs, _repo_filter, snapshot)
 
@@ -131,42 +133,45 @@ def commits(engine: Engine, repo: str | None = None) -> pd.DataFrame:
 def commit_subsystems(engine: Engine, repo: str | None = None) -> pd.DataFrame:
     """One row per (commit, subsystem) the commit touched.
 
-    The distinct (commit, subsystem) pairs are found on integer ids (a ``DISTINCT``
-    over the text columns sorted every touched path's row, ten times slower at
-    200,000 commits) and fetched as ids; the hash, repository and subsystem name of
-    each pair are then looked up from one read of the visible commits and one of the
-    subsystems. A kernel history has about four pairs per commit: fetched as text,
-    each pair's hash, repository and name were strings of their own (3.8 million
-    rows at a million commits); looked up, the pairs of one commit share its strings.
+    The file rows are fetched as bare (commit id, path) tuples and joined here: each
+    commit id to the visible commits (one read of them, which also gives each pair's
+    hash and repository), each distinct path of a chunk to a dict of its repository's
+    mapped paths (``path_subsystem``, tens of thousands of paths for a kernel), and the
+    distinct (commit, subsystem) id pairs found in numpy. The same join in SQL made SQLite
+    look every file row's commit and path up in an index, and took 14.5 s at a million
+    commits. The subsystem names are looked up from one read of the subsystems; the
+    pairs of one commit share its strings.
     """
     fc, ps, sub, r = s.file_change, s.path_subsystem, s.subsystem, s.repository
-    inner = s.commit.alias("inner_commit")
-    pairs = (
-        select(fc.c.commit_id.label("commit_id"), ps.c.subsystem_id.label("subsystem_id"))
-        .distinct()
-        .select_from(fc)
-        .join(inner, inner.c.commit_id == fc.c.commit_id)
-        .join(ps, and_(ps.c.repo_id == inner.c.repo_id, ps.c.path == fc.c.path))
-        .where(inner.c.run_id.in_(_complete_runs()))
-    )
     g = s.commit
-    hashes = (select(g.c.commit_id, g.c.hash, g.c.repo_id)
-              .where(g.c.run_id.in_(_complete_runs())))
+    files = select(fc.c.commit_id, fc.c.path)
+    mapped = select(ps.c.repo_id, ps.c.path, ps.c.subsystem_id)
+    visible = (select(g.c.commit_id, g.c.hash, g.c.repo_id)
+               .where(g.c.run_id.in_(_complete_runs())))
     names = select(sub.c.subsystem_id, sub.c.name)
     repos = select(r.c.repo_id, r.c.name)
     if repo is not None:
         wanted = select(r.c.repo_id).where(r.c.name == repo).scalar_subquery()
-        pairs = pairs.where(inner.c.repo_id == wanted)
-        hashes = hashes.where(g.c.repo_id == wanted)
+        mapped = mapped.where(ps.c.repo_id == wanted)
+        visible = visible.where(g.c.repo_id == wanted)
         names = names.where(sub.c.repo_id == wanted)
         repos = repos.where(r.c.repo_id == wanted)
 
-    def fetch(conn: Connection) -> tuple[pd.DataFrame, ...]:
-        return tuple(fetch_frame(conn, q) for q in (pairs, hashes, names, repos))
+    def fetch(conn: Connection) -> tuple[Any, ...]:
+        commit_rows, paths, subsystem_rows, repo_rows = (
+            fetch_frame(conn, q) for q in (visible, mapped, names, repos))
+        wanted_files = files
+        if repo is not None and conn.execute(
+                select(func.count()).select_from(r)).scalar_one() > 1:
+            # other repositories' file rows stay in the database
+            wanted_files = files.where(fc.c.commit_id.in_(
+                select(g.c.commit_id).where(g.c.repo_id == wanted)))
+        pairs = _subsystem_pairs(fetch_rows(conn, wanted_files), commit_rows, paths)
+        return pairs, commit_rows, subsystem_rows, repo_rows
 
     if isinstance(engine, Connection):
         ids, commit_rows, subsystem_rows, repo_rows = fetch(engine)
-    else:       # the four reads from one snapshot, so every id is found
+    else:       # the reads from one snapshot, so every id is found
         with snapshot(engine) as conn:
             ids, commit_rows, subsystem_rows, repo_rows = fetch(conn)
     at = positions(commit_rows["commit_id"], ids["commit_id"])
@@ -178,6 +183,84 @@ def commit_subsystems(engine: Engine, repo: str | None = None) -> pd.DataFrame:
             positions(subsystem_rows["subsystem_id"], ids["subsystem_id"])],
     })
     return _read_frame(df, "commit_subsystems", order=["repo", "hash", "subsystem"])
+
+
+def _subsystem_pairs(files: Iterable[list[tuple[Any, Any]]], commits: pd.DataFrame,
+                     mapped: pd.DataFrame) -> pd.DataFrame:
+    """The distinct (commit_id, subsystem_id) pairs of the file rows ``files`` (chunks of
+    (commit_id, path) tuples) whose commit is one of ``commits`` (commit_id, repo_id: the
+    visible commits) and whose (repo_id, path) is a row of ``mapped`` (repo_id, path,
+    subsystem_id): the rows of ``SELECT DISTINCT fc.commit_id, ps.subsystem_id`` over the
+    join of the three on commit, repository and path (text compared exactly, as SQLite's
+    BINARY collation and Python's ``==`` both do)."""
+    # (no drop_duplicates: pandas' string hash table takes "fw" and "fw\x00" for one
+    # value; a repeated row only repeats pairs, which the final distinct removes)
+    # each distinct (repo, path) gets a code; its subsystems sit at offsets[code]...
+    keys = list(zip(mapped["repo_id"].tolist(), mapped["path"].tolist()))
+    code_of: dict[tuple[Any, Any], int] = {}
+    codes = np.fromiter((code_of.setdefault(k, len(code_of)) for k in keys), np.int64,
+                        len(keys))
+    by_code = np.argsort(codes, kind="stable")
+    subsystem_ids = mapped["subsystem_id"].to_numpy(dtype=np.int64)[by_code]
+    counts = np.bincount(codes, minlength=len(code_of))
+    offsets = np.concatenate([[0], np.cumsum(counts)])
+    per_repo: dict[Any, tuple[list[Any], list[int]]] = {}
+    for (repo_id, path), code in code_of.items():
+        paths_codes = per_repo.setdefault(repo_id, ([], []))
+        paths_codes[0].append(path)
+        paths_codes[1].append(code)
+    lookups = {repo_id: (ExactIndex(np.asarray(p, dtype=object)),
+                         np.asarray(c, dtype=np.int64))
+               for repo_id, (p, c) in per_repo.items()}
+    commit_index = pd.Index(commits["commit_id"].to_numpy(dtype=np.int64))
+    commit_repo = commits["repo_id"].to_numpy()
+    found: list[tuple[np.ndarray, np.ndarray]] = []
+    first, second = itemgetter(0), itemgetter(1)
+    for rows in files:
+        if not rows or not lookups:
+            continue
+        ids = np.fromiter(map(first, rows), np.int64, len(rows))
+        at = commit_index.get_indexer(ids)
+        seen = at >= 0                        # a hidden run's or another repository's commit
+        commit_ids = ids[seen]
+        repo_ids = commit_repo[at[seen]]
+        paths = np.fromiter(map(second, rows), object, len(rows))[seen]
+        file_codes = np.full(len(commit_ids), -1, dtype=np.int64)
+        for repo_id in pd.unique(repo_ids):
+            if repo_id not in lookups:
+                continue
+            repo_paths, repo_codes = lookups[repo_id]
+            mine = np.flatnonzero(repo_ids == repo_id)
+            where = repo_paths.get_indexer(paths[mine])
+            file_codes[mine] = np.where(where >= 0, repo_codes[where], -1)
+        hit = file_codes >= 0
+        commit_ids, file_codes = commit_ids[hit], file_codes[hit]
+        n_subs = counts[file_codes]
+        # one row per (file row, subsystem of its path)
+        starts = np.repeat(offsets[file_codes], n_subs)
+        within = np.arange(len(starts)) - np.repeat(np.cumsum(n_subs) - n_subs, n_subs)
+        found.append((np.repeat(commit_ids, n_subs), subsystem_ids[starts + within]))
+    commit_ids, subsystem_ids = _distinct_pairs(
+        np.concatenate([c for c, _ in found] or [np.empty(0, np.int64)]),
+        np.concatenate([s for _, s in found] or [np.empty(0, np.int64)]))
+    return pd.DataFrame({"commit_id": commit_ids, "subsystem_id": subsystem_ids})
+
+
+def _distinct_pairs(commit_ids: np.ndarray, subsystem_ids: np.ndarray
+                    ) -> tuple[np.ndarray, np.ndarray]:
+    """The distinct (commit id, subsystem id) pairs, sorted: through one int64 key (the
+    commit id in the high bits) when both ids fit, else through a structured array."""
+    if not len(commit_ids):
+        return commit_ids, subsystem_ids
+    if (commit_ids.min() >= 0 and commit_ids.max() < 2 ** 31
+            and subsystem_ids.min() >= 0 and subsystem_ids.max() < 2 ** 32):
+        keys = np.sort((commit_ids << 32) | subsystem_ids)
+        keys = keys[np.concatenate([[True], keys[1:] != keys[:-1]])]
+        return keys >> 32, keys & 0xFFFFFFFF
+    pairs = np.empty(len(commit_ids), dtype=[("c", np.int64), ("s", np.int64)])
+    pairs["c"], pairs["s"] = commit_ids, subsystem_ids
+    pairs = np.unique(pairs)
+    return pairs["c"], pairs["s"]
 
 
 def file_changes(engine: Engine, repo: str | None = None) -> pd.DataFrame:

@@ -75,3 +75,34 @@ def test_empty_containers_and_refusals():
     assert dumps([[], {}, ()]) == oracle([[], {}, ()])
     with pytest.raises(TypeError):
         dumps({"x": object()})
+
+
+@pytest.mark.parametrize("seed", range(40))
+def test_command_files_write_the_standard_text(seed, tmp_path):
+    """``lifetimes.json`` and ``growth.json`` (ASCII escapes, no rounding): the text of
+    ``json.dumps(obj, indent=2, sort_keys=True, allow_nan=False)`` itself."""
+    from procmetrics.analyse.result import to_plain
+    from procmetrics.report.command_outputs import write_json
+
+    rng = random.Random(1000 + seed)
+    doc = to_plain({"root": _value(rng, 0), "rows": [_value(rng, 3) for _ in range(5)]})
+    try:
+        want = json.dumps(doc, indent=2, sort_keys=True, allow_nan=False) + "\n"
+    except ValueError:          # a NaN the oracle refuses: so must the writer
+        with pytest.raises(ValueError):
+            write_json(tmp_path / "x.json", doc)
+        return
+    assert write_json(tmp_path / "x.json", doc).read_text() == want
+
+
+def test_flat_rows_at_every_depth_match_the_standard_text():
+    """Rows of scalars (the C-encoded case) nested at several levels, with lists of
+    scalars, empty rows and text that needs escapes."""
+    rows = [{"a": 1, "b": None, "c": "tab\t\u00e9", "d": 1.5, "e": True}, {}, {"only": []}]
+    doc = {"x": rows, "y": [[1, 2.5, "s", None, False], [], [[{"z": rows}]]]}
+    for ascii_only in (True, False):
+        from procmetrics.report.jsontext import indented
+        assert indented(doc, ensure_ascii=ascii_only) == json.dumps(
+            doc, indent=2, sort_keys=True, allow_nan=False, ensure_ascii=ascii_only)
+    with pytest.raises(ValueError):
+        indented({"row": {"v": float("nan")}}, ensure_ascii=True)
