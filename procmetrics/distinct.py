@@ -46,30 +46,3 @@ def factorize(values: Any) -> tuple[np.ndarray, np.ndarray]:
             firsts.append(v)
         codes[i] = at
     return codes, np.asarray(firsts, dtype=object).reshape(len(firsts))
-
-
-class ExactIndex:
-    """Distinct values to look others up in: ``get_indexer(values)`` is where each value
-    sits in ``keys``, -1 where it is not there, as ``pandas.Index(keys).get_indexer``
-    gives it, exactly (a dict when a text value of either holds a NUL, which pandas'
-    hash table would match to its prefix). Built once, looked up many times."""
-
-    def __init__(self, keys: Any) -> None:
-        k = keys.to_numpy() if isinstance(keys, (pd.Series, pd.Index)) else np.asarray(
-            keys, dtype=object)
-        self._index = pd.Index(k)
-        if not self._index.is_unique:
-            raise ValueError("ExactIndex needs distinct keys")
-        self._nul = k.dtype == object and _has_nul(k.tolist())
-        self._dict: dict[Any, int] | None = None
-        self._keys = k
-
-    def get_indexer(self, values: Any) -> np.ndarray:
-        v = values.to_numpy() if isinstance(values, (pd.Series, pd.Index)) else np.asarray(
-            values, dtype=object)
-        if not (self._nul or (v.dtype == object and _has_nul(v.tolist()))):
-            return self._index.get_indexer(v)
-        if self._dict is None:
-            self._dict = {key: i for i, key in enumerate(self._keys.tolist())}
-        at = self._dict
-        return np.array([at.get(x, -1) for x in v.tolist()], dtype=np.int64)

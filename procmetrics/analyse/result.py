@@ -13,7 +13,7 @@ from __future__ import annotations
 import math
 import warnings
 from dataclasses import dataclass, field, fields, is_dataclass
-from typing import Any, Literal
+from typing import Any, Callable, Literal
 
 import numpy as np
 import pandas as pd
@@ -104,19 +104,20 @@ def caveat(code: str, message: str, severity: Severity = "warn", *,
     return cv
 
 
-def _plain(obj: Any) -> Any:
-    """Convert dataclasses, numpy and pandas values into JSON-ready Python values."""
+def _plain(obj: Any, floats: Callable[[float], float] | None = None) -> Any:
+    """Convert dataclasses, numpy and pandas values into JSON-ready Python values;
+    ``floats`` (optional) maps every finite float (the report's rounding)."""
     if is_dataclass(obj) and not isinstance(obj, type):
-        return {f.name: _plain(getattr(obj, f.name)) for f in fields(obj)
+        return {f.name: _plain(getattr(obj, f.name), floats) for f in fields(obj)
                 if f.metadata.get("json", True)}
     if isinstance(obj, pd.DataFrame):
-        return _plain_rows(obj)
+        return _plain_rows(obj, floats)
     if isinstance(obj, pd.Series):
-        return [_plain(v) for v in obj.tolist()]
+        return [_plain(v, floats) for v in obj.tolist()]
     if isinstance(obj, dict):
-        return {str(k): _plain(v) for k, v in obj.items()}
+        return {str(k): _plain(v, floats) for k, v in obj.items()}
     if isinstance(obj, (list, tuple)):
-        return [_plain(v) for v in obj]
+        return [_plain(v, floats) for v in obj]
     if isinstance(obj, (pd.Timestamp,)):
         return None if pd.isna(obj) else obj.isoformat()
     if isinstance(obj, (np.bool_, bool)):
@@ -125,24 +126,28 @@ def _plain(obj: Any) -> Any:
         return int(obj)
     if isinstance(obj, (float, np.floating)):
         x = float(obj)
-        return None if math.isnan(x) or math.isinf(x) else x
+        if math.isnan(x) or math.isinf(x):
+            return None
+        return x if floats is None else floats(x)
     if obj is pd.NA or obj is pd.NaT:
         return None
     return obj
 
 
-def _plain_rows(df: pd.DataFrame) -> list[dict[str, Any]]:
+def _plain_rows(df: pd.DataFrame, floats: Callable[[float], float] | None = None
+                ) -> list[dict[str, Any]]:
     """A DataFrame as a list of row dicts, the values as :func:`_plain` makes them.
 
     Converted a column at a time: numbers and booleans of numpy columns through
-    ``tolist`` (Python's own int, float and bool; NaN and infinities then None), other
-    columns value by value through :func:`_plain`. A cell at a time, the rows of a
-    lifetime-curves table at a million commits took twenty seconds. The rows equal the
-    per-cell conversion of ``to_dict(orient="records")`` (the test keeps that as its
-    reference)."""
+    ``tolist`` (Python's own int, float and bool; NaN and infinities then None), UTC
+    and naive times of whole seconds through numpy's ISO text (:func:`iso_seconds`),
+    text as it is, other values one by one through :func:`_plain`. A cell at a time,
+    the rows of a lifetime-curves table at a million commits took twenty seconds. The
+    rows equal the per-cell conversion of ``to_dict(orient="records")`` (the test keeps
+    that as its reference)."""
     keys = [str(k) for k in df.columns]
     if len(set(keys)) != len(keys):       # duplicate names: one key each, as to_dict keeps
-        return [{str(k): _plain(v) for k, v in row.items()}
+        return [{str(k): _plain(v, floats) for k, v in row.items()}
                 for row in df.to_dict(orient="records")]
     columns = []
     for i in range(df.shape[1]):
@@ -150,19 +155,48 @@ def _plain_rows(df: pd.DataFrame) -> list[dict[str, Any]]:
         kind = col.dtype.kind if isinstance(col.dtype, np.dtype) else "x"
         if kind in "iub":
             columns.append(col.to_numpy().tolist())
-        elif kind == "f":
+            continue
+        if kind == "f":
             values = col.to_numpy()
-            bad = ~np.isfinite(values)
             cells = values.tolist()
-            for j in np.flatnonzero(bad).tolist():
+            if floats is not None:
+                cells = [floats(x) for x in cells]     # NaN and infinities: set below
+            for j in np.flatnonzero(~np.isfinite(values)).tolist():
                 cells[j] = None
             columns.append(cells)
-        else:
-            columns.append([_plain(v) for v in col.tolist()])
+            continue
+        text = iso_seconds(col)
+        if text is not None:
+            columns.append(text)
+            continue
+        columns.append([v if type(v) is str else _plain(v, floats) for v in col.tolist()])
     return [dict(zip(keys, cells)) for cells in zip(*columns)]   # no columns: no rows
 
 
-to_plain = _plain
+def iso_seconds(col: pd.Series) -> list[str | None] | None:
+    """``Timestamp.isoformat()`` of every value of a UTC or naive time column of whole
+    seconds (None for NaT), in numpy: ``datetime_as_string`` to the second, plus
+    ``+00:00`` for UTC, is then the same text (``isoformat`` adds digits only for a
+    sub-second part). None for any other column."""
+    dt = col.dtype
+    utc = isinstance(dt, pd.DatetimeTZDtype) and str(dt.tz) == "UTC" and dt.unit == "ns"
+    if not (utc or (isinstance(dt, np.dtype) and dt == np.dtype("datetime64[ns]"))):
+        return None
+    ns = col.array.asi8
+    na = col.isna().to_numpy()
+    if (ns[~na] % 1_000_000_000).any():
+        return None
+    naive = col.dt.tz_localize(None) if utc else col
+    text = np.datetime_as_string(naive.to_numpy(), unit="s").astype(object)
+    if utc:
+        text = text + "+00:00"
+    text[na] = None
+    return text.tolist()
+
+
+def to_plain(obj: Any, floats: Callable[[float], float] | None = None) -> Any:
+    """JSON-ready Python values (see :func:`_plain`); ``floats`` maps every finite float."""
+    return _plain(obj, floats)
 
 __all__ = ["Diagnostic", "Caveat", "Estimate", "caveat", "to_plain", "CAVEAT_CODES",
            "Verdict", "Severity", "field"]

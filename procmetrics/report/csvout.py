@@ -17,6 +17,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from procmetrics.analyse.result import iso_seconds
 from procmetrics.report.model import Report
 from procmetrics.textsafe import csv_text_cell
 
@@ -50,6 +51,19 @@ def _float_cell(x: float) -> str:
     return format(x, ".10g")
 
 
+def _each_distinct(keys: np.ndarray, values: np.ndarray, cell: Any) -> list[str]:
+    """``[cell(v) for v in values]``, formatting each distinct value once when values
+    repeat (``keys``: exact codes of the values, e.g. a float's bits): the per-commit
+    columns behind an ECDF hold a million values of a few thousand kinds."""
+    codes, first = pd.factorize(keys)
+    if len(first) * 4 > len(values):
+        return [cell(v) for v in values.tolist()]
+    at = np.empty(len(first), dtype=np.int64)
+    at[codes] = np.arange(len(codes))       # a row of each code (all hold the same value)
+    cells = np.array([cell(v) for v in values[at].tolist()], dtype=object)
+    return cells[codes].tolist()
+
+
 def _column_cells(col: pd.Series, raw: bool) -> list[str]:
     """:func:`_cell` of every value of one column; plain numpy booleans, integers and
     floats take a path without the per-value type dispatch (same text)."""
@@ -57,9 +71,12 @@ def _column_cells(col: pd.Series, raw: bool) -> list[str]:
     if dt == np.bool_:
         return np.where(col.to_numpy(), "true", "false").tolist()
     if isinstance(dt, np.dtype) and dt.kind in "iu":
-        return [str(v) for v in col.to_numpy().tolist()]
+        values = col.to_numpy()
+        return _each_distinct(values, values, str)
     if isinstance(dt, np.dtype) and dt.kind == "f":
-        return [_float_cell(v) for v in col.to_numpy(dtype=float).tolist()]
+        values = np.ascontiguousarray(col.to_numpy(dtype=float))
+        # distinct bit patterns, so that -0.0 ("-0") stays apart from 0.0 ("0")
+        return _each_distinct(values.view(np.int64), values, _float_cell)
     if dt == object and pd.api.types.infer_dtype(col, skipna=True) in ("string", "empty"):
         # all text: csv_text_cell (the one formula rule) without the per-value type
         # dispatch of _cell; missing values of any kind empty
@@ -71,9 +88,9 @@ def _column_cells(col: pd.Series, raw: bool) -> list[str]:
         if isinstance(dt, pd.BooleanDtype):
             return ["" if v is None else ("true" if v else "false") for v in vals]
         return ["" if v is None else str(v) for v in vals]
-    utc_seconds = _utc_whole_seconds(col)
-    if utc_seconds is not None:
-        return utc_seconds
+    seconds = iso_seconds(col)          # UTC or naive times of whole seconds, in numpy
+    if seconds is not None:
+        return ["" if v is None else v for v in seconds]
     if isinstance(dt, pd.DatetimeTZDtype) or (isinstance(dt, np.dtype) and dt.kind == "M"):
         # times: each distinct value formatted once (missing values become code -1, an
         # empty cell)
@@ -81,23 +98,6 @@ def _column_cells(col: pd.Series, raw: bool) -> list[str]:
         cells = np.array([_cell(u, raw) for u in uniques] + [""], dtype=object)
         return cells[codes].tolist()
     return [_cell(v, raw) for v in col.astype(object)]
-
-
-def _utc_whole_seconds(col: pd.Series) -> list[str] | None:
-    """``Timestamp.isoformat`` of a UTC time column without sub-second parts, in numpy:
-    ``datetime_as_string`` to the second plus ``+00:00`` is then the same text
-    (``isoformat`` adds digits only for a sub-second part). None for other columns."""
-    dt = col.dtype
-    if not (isinstance(dt, pd.DatetimeTZDtype) and str(dt.tz) == "UTC"):
-        return None
-    ns = col.array.asi8
-    na = col.isna().to_numpy()
-    if (ns[~na] % 1_000_000_000).any():
-        return None
-    text = np.char.add(np.datetime_as_string(col.dt.tz_localize(None).to_numpy(), unit="s"),
-                       "+00:00").astype(object)
-    text[na] = ""
-    return text.tolist()
 
 
 def frame_to_csv(df: pd.DataFrame, *, raw: bool = False) -> str:

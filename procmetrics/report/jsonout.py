@@ -8,13 +8,9 @@ time or local path (those belong to the manifest).
 from __future__ import annotations
 
 import json
-import math
 from importlib import resources
 from pathlib import Path
 from typing import Any
-
-import numpy as np
-import pandas as pd
 
 from procmetrics.analyse.result import to_plain
 from procmetrics.report.jsontext import indented
@@ -25,31 +21,15 @@ SIGNIFICANT_DIGITS = 10
 
 
 def canonical(value: Any) -> Any:
-    """JSON-ready value with floats rounded to :data:`SIGNIFICANT_DIGITS`.
+    """JSON-ready value with floats rounded to :data:`SIGNIFICANT_DIGITS`: ``to_plain``
+    with the rounding applied to each float as it is converted (one walk of the tree;
+    a second walk over a million cells took seconds)."""
+    return to_plain(value, _round)
 
-    ``to_plain`` converts the whole tree once (it recurses itself); converting again
-    at every level made the cost grow with the depth times the size."""
-    return _rounded(to_plain(value))
 
-
-def _rounded(value: Any) -> Any:
-    if isinstance(value, dict):
-        return {str(k): _rounded(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [_rounded(v) for v in value]
-    if isinstance(value, (float, np.floating)):
-        x = float(value)
-        if math.isnan(x) or math.isinf(x):
-            return None
-        r = float(f"{x:.{SIGNIFICANT_DIGITS}g}")
-        return 0.0 if r == 0 else r
-    if isinstance(value, pd.Timestamp):
-        return None if pd.isna(value) else value.isoformat()
-    if isinstance(value, (np.integer,)):
-        return int(value)
-    if isinstance(value, (np.bool_,)):
-        return bool(value)
-    return value
+def _round(x: float) -> float:
+    r = float(f"{x:.{SIGNIFICANT_DIGITS}g}")
+    return 0.0 if r == 0 else r
 
 
 def dumps(obj: Any) -> str:

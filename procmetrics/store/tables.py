@@ -19,7 +19,6 @@ from sqlalchemy.sql import Select
 
 from procmetrics.errors import StoreError
 from procmetrics.store import schema as s
-from procmetrics.distinct import ExactIndex
 from procmetrics.store.frames import (as_text, fetch_by_ids, fetch_frame, fetch_rows,
                                       positions, row_order, share_equal_values, to_utc)
 from procmetrics.store.readsql import (  # noqa: F401 - re-exported: the readers' names
@@ -135,7 +134,7 @@ def commit_subsystems(engine: Engine, repo: str | None = None) -> pd.DataFrame:
 
     The file rows are fetched as bare (commit id, path) tuples and joined here: each
     commit id to the visible commits (one read of them, which also gives each pair's
-    hash and repository), each distinct path of a chunk to a dict of its repository's
+    hash and repository), each path to an index of its repository's
     mapped paths (``path_subsystem``, tens of thousands of paths for a kernel), and the
     distinct (commit, subsystem) id pairs found in numpy. The same join in SQL made SQLite
     look every file row's commit and path up in an index, and took 14.5 s at a million
@@ -209,8 +208,9 @@ def _subsystem_pairs(files: Iterable[list[tuple[Any, Any]]], commits: pd.DataFra
         paths_codes = per_repo.setdefault(repo_id, ([], []))
         paths_codes[0].append(path)
         paths_codes[1].append(code)
-    lookups = {repo_id: (ExactIndex(np.asarray(p, dtype=object)),
-                         np.asarray(c, dtype=np.int64))
+    # pandas' Index looks text up with Python's own equality (unlike its factorize:
+    # tests/store/test_read_order.py pins both)
+    lookups = {repo_id: (pd.Index(np.asarray(p, dtype=object)), np.asarray(c, dtype=np.int64))
                for repo_id, (p, c) in per_repo.items()}
     commit_index = pd.Index(commits["commit_id"].to_numpy(dtype=np.int64))
     commit_repo = commits["repo_id"].to_numpy()

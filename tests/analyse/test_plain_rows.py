@@ -41,6 +41,9 @@ def frame(n: int, seed: int) -> pd.DataFrame:
         "B": pd.array([None if x == 2 else bool(x) for x in rng.integers(0, 3, n)], "boolean"),
         "when": when,
         "naive": when.dt.tz_localize(None),
+        "subsecond": when + pd.to_timedelta(rng.integers(0, 2, n) * 250, unit="ms"),
+        "berlin": when.dt.tz_convert("Europe/Berlin"),
+        "seconds_unit": when.astype("datetime64[s, UTC]"),
         "obj": [[None, "x", 1, 2.5, np.int64(3), np.nan, pd.NaT][k]
                 for k in rng.integers(0, 7, n)],
         "cat": pd.Categorical(rng.choice(["a", "b"], n)),

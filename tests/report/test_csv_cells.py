@@ -84,9 +84,9 @@ def test_numpy_paths_for_utc_seconds_and_nullable_columns_write_the_cell_by_cell
         "flag": pd.array(np.where(np.arange(500) % 4 == 0, None, secs % 2 == 0),
                          dtype="boolean"),
     })
-    assert csvout._utc_whole_seconds(df["utc"]) is not None
-    assert csvout._utc_whole_seconds(df["utc_sub"]) is None
-    assert csvout._utc_whole_seconds(df["utc"].dt.tz_convert("Europe/Berlin")) is None
+    assert csvout.iso_seconds(df["utc"]) is not None
+    assert csvout.iso_seconds(df["utc_sub"]) is None
+    assert csvout.iso_seconds(df["utc"].dt.tz_convert("Europe/Berlin")) is None
     for raw in (False, True):
         assert csvout.frame_to_csv(df, raw=raw) == cell_by_cell(df, raw)
     rows = list(csv.reader(io.StringIO(csvout.frame_to_csv(df))))[1:]
@@ -107,3 +107,21 @@ def test_file_written_in_chunks_is_the_cell_by_cell_file(tmp_path, chunk):
             csvout.write_frame_csv(case, path, raw=raw, chunk=chunk)
             text = path.read_bytes().decode("utf-8")
             assert text == cell_by_cell(case, raw) == csvout.frame_to_csv(case, raw=raw)
+
+
+@pytest.mark.parametrize("n", [3, 50, 2000])
+def test_repeating_numbers_are_formatted_once_each_with_the_same_text(n):
+    """Numeric columns whose values repeat (the per-commit columns behind an ECDF) take
+    the once-per-distinct-value path: the file is still the cell-by-cell one, with -0.0
+    apart from 0.0, NaN and infinities in place, and integers of every width."""
+    rng = np.random.default_rng(n)
+    pool = np.array([0.0, -0.0, 1.5, 1 / 3, np.nan, np.inf, -np.inf, 1e-300, 2527079.0])
+    df = pd.DataFrame({
+        "f": pool[rng.integers(0, len(pool), n)],
+        "f32": pool[rng.integers(0, len(pool), n)].astype(np.float32),
+        "i": rng.integers(-3, 3, n),
+        "u": rng.integers(0, 3, n).astype(np.uint64) + np.uint64(2 ** 63),
+        "distinct": rng.normal(size=n),
+    })
+    for raw in (False, True):
+        assert csvout.frame_to_csv(df, raw=raw) == cell_by_cell(df, raw)

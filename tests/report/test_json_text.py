@@ -106,3 +106,36 @@ def test_flat_rows_at_every_depth_match_the_standard_text():
             doc, indent=2, sort_keys=True, allow_nan=False, ensure_ascii=ascii_only)
     with pytest.raises(ValueError):
         indented({"row": {"v": float("nan")}}, ensure_ascii=True)
+
+
+def _rounded_walk(value):
+    """The report's rounding as a second walk over ``to_plain``'s output (its earlier
+    form), kept as the reference for ``canonical``'s one walk."""
+    import math
+
+    if isinstance(value, dict):
+        return {str(k): _rounded_walk(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_rounded_walk(v) for v in value]
+    if isinstance(value, float):
+        if math.isnan(value) or math.isinf(value):
+            return None
+        r = float(f"{value:.10g}")
+        return 0.0 if r == 0 else r
+    return value
+
+
+@pytest.mark.parametrize("seed", range(40))
+def test_canonical_rounds_as_a_walk_over_plain_values(seed):
+    from procmetrics.analyse.result import to_plain
+
+    rng = random.Random(2000 + seed)
+    n = rng.randrange(0, 30)
+    df = pd.DataFrame({"x": [rng.choice([rng.uniform(-1e9, 1e9), 1 / 3, -0.0, 1e-320,
+                                         float("nan"), float("inf")]) for _ in range(n)],
+                       "when": pd.to_datetime([rng.choice([None, "2019-01-24 10:00:01",
+                                                           "2020-02-29 00:00:00.5"])
+                                               for _ in range(n)], utc=True, format="mixed"),
+                       "t": [rng.choice(["a", None, 2.5, np.float32(0.1)]) for _ in range(n)]})
+    doc = {"root": _value(rng, 0), "rows": df}
+    assert canonical(doc) == _rounded_walk(to_plain(doc))

@@ -77,6 +77,18 @@ def test_factorize_keeps_values_that_differ_after_a_nul(values) -> None:
     assert list(codes) == [-1 if v is None else firsts[v] for v in values]
 
 
+@settings(max_examples=200, deadline=None)
+@given(st.lists(TEXT, max_size=20, unique=True), st.lists(TEXT, max_size=30))
+def test_index_lookups_are_exact(keys, values) -> None:
+    """``pandas.Index.get_indexer`` on text (what ``tables.commit_subsystems`` looks paths
+    up with) compares with Python's own equality, NUL characters included, unlike
+    ``pandas.factorize``. Oracle: a Python dict of the keys' positions."""
+    at = {k: i for i, k in enumerate(keys)}
+    index = pd.Index(np.asarray(keys, dtype=object))
+    assert index.get_indexer(np.asarray(values, dtype=object)).tolist() == [
+        at.get(v, -1) for v in values]
+
+
 def test_pandas_alone_would_merge_them() -> None:
     """Why :mod:`procmetrics.distinct` exists (pandas 2.x; if this ever fails, pandas
     compares whole strings now and the guard could go)."""

@@ -171,12 +171,12 @@ class _Rows(NamedTuple):
 
 @memoised()
 def _defect_rows(fix_links: pd.DataFrame, basis: Basis, commits: pd.DataFrame | None,
-                 commit_subsystems: pd.DataFrame | None, trailers: pd.DataFrame | None,
+                 commit_subsystems: pd.DataFrame | None,
                  tag_containment: pd.DataFrame | None, end_date: Any,
-                 period_cuts: Sequence[Any] | None, period_freq: str,
-                 review_keys: Sequence[str]) -> _Rows:
-    """The defect rows of :func:`build_defects` before the link-era rule: they do not
-    depend on it, so a report's tables under several rules share one computation."""
+                 period_cuts: Sequence[Any] | None, period_freq: str) -> _Rows:
+    """The defect rows of :func:`build_defects` before the link-era rule and without the
+    review flag (:func:`_reviewed_introducers`): they depend on neither, so a report's
+    tables under several rules, with trailers or without, share one computation."""
     clock = "author" if basis == "author" else "committer"
     status = fix_links["status"].fillna("unknown").astype(str)
     link_counts = {str(k): int(v) for k, v in status.value_counts().sort_index().items()}
@@ -241,7 +241,7 @@ def _defect_rows(fix_links: pd.DataFrame, basis: Basis, commits: pd.DataFrame | 
         d["window"] = (ends - d["intro_date"]).dt.total_seconds() / 86400.0
         d["negative"] = d["lifetime"] < 0
 
-    subs = pd.Series(dtype=object)
+    subs: dict[tuple[Any, Any], list[str]] = {}
     if commit_subsystems is not None and len(commit_subsystems):
         # only the introducers' rows (a few per cent of the commits at kernel scale)
         wanted = commit_subsystems["hash"].isin(d["introducer_hash"])
@@ -250,19 +250,16 @@ def _defect_rows(fix_links: pd.DataFrame, basis: Basis, commits: pd.DataFrame | 
         cs = (cs.assign(subsystem=cs["subsystem"].map(str))
               .drop_duplicates(["repo", "hash", "subsystem"])
               .sort_values(["repo", "hash", "subsystem"], kind="mergesort"))
-        subs = cs.groupby(["repo", "hash"])["subsystem"].agg(";".join)
+        # grouped in a dict (a pandas groupby and a lookup per defect in its MultiIndex
+        # took ten seconds at a million commits)
+        for r, h, name in zip(cs["repo"].tolist(), cs["hash"].tolist(),
+                              cs["subsystem"].tolist()):
+            subs.setdefault((r, h), []).append(name)
     keys = list(zip(d["repo"], d["introducer_hash"]))
-    d["subsystems"] = [subs.get(k, "") if len(subs) else "" for k in keys]
+    d["subsystems"] = [";".join(subs[k]) if k in subs else "" for k in keys]
     d["subsystem"] = [NONE if not s else (MULTIPLE if ";" in s else s) for s in d["subsystems"]]
     d["period"] = _periods(d["intro_date"], period_cuts, period_freq) if len(d) else []
-
-    if trailers is not None:
-        rk = {k.lower() for k in review_keys}
-        rev = trailers[trailers["key"].astype(str).str.lower().isin(rk)]
-        reviewed = set(zip(rev["repo"], rev["hash"]))
-        d["reviewed_introducer"] = pd.array([k in reviewed for k in keys], dtype="boolean")
-    else:
-        d["reviewed_introducer"] = pd.array([pd.NA] * len(d), dtype="boolean")
+    d["reviewed_introducer"] = pd.array([pd.NA] * len(d), dtype="boolean")
     if commits is not None and len(commits):
         # only the introducers' rows are looked up (a tenth of the commits, or less)
         c = commits[commits["hash"].isin(d["introducer_hash"]).to_numpy(bool)]
@@ -280,6 +277,16 @@ def _defect_rows(fix_links: pd.DataFrame, basis: Basis, commits: pd.DataFrame | 
         d["intro_files"] = pd.array([pd.NA] * len(d), dtype="Int64")
     return _Rows(d, links, status, link_counts, n_missing, missing_rows, n_follow,
                  first_by_repo, tau)
+
+
+@memoised()
+def _reviewed_introducers(trailers: pd.DataFrame, review_keys: tuple[str, ...]
+                          ) -> set[tuple[Any, Any]]:
+    """The (repo, hash) of every commit with a trailer line whose key is one of
+    ``review_keys`` (case-blind)."""
+    rk = {k.lower() for k in review_keys}
+    rev = trailers[trailers["key"].astype(str).str.lower().isin(rk)]
+    return set(zip(rev["repo"], rev["hash"]))
 
 
 @memoised()
@@ -343,8 +350,12 @@ def build_defects(
                                "(procmetrics.mine.ancestry.tag_containment)")
     clock = "author" if basis == "author" else "committer"
     d, links, status, link_counts, n_missing, missing_rows, n_follow, first_by_repo, tau = \
-        _defect_rows(fix_links, basis, commits, commit_subsystems, trailers, tag_containment,
-                     end_date, period_cuts, period_freq, review_keys)
+        _defect_rows(fix_links, basis, commits, commit_subsystems, tag_containment,
+                     end_date, period_cuts, period_freq)
+    if trailers is not None:
+        reviewed = _reviewed_introducers(trailers, tuple(review_keys))
+        d["reviewed_introducer"] = pd.array(
+            [k in reviewed for k in zip(d["repo"], d["introducer_hash"])], dtype="boolean")
     era_rule = ""
     era_info: Any = None
     if isinstance(links_from, str) and links_from in ("first_link", "settled"):
