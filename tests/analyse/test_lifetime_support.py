@@ -277,6 +277,32 @@ def test_bootstrap_replicates_without_sorting_equal_the_sorting_estimate() -> No
                                   equal_nan=True)
 
 
+def test_quantiles_read_without_cutting_the_counts_equal_the_sorting_estimate() -> None:
+    """``first_reaching`` (the quantile bootstrap's replicate, read off counts over every
+    distinct lifetime of the sample) gives, for each target, the first distinct drawn
+    lifetime where the Lynden-Bell estimate of the sorted resample reaches it (oracle:
+    ``_lynden_bell`` of the drawn pairs and a plain search), value for value, on ties,
+    zero lifetimes, windows equal to lifetimes and targets at 0, 1 and beyond."""
+    import numpy as np
+
+    from procmetrics.analyse.lifetimes import estimators as est
+
+    rng = np.random.default_rng(20261203)
+    targets = [0.0, 0.25 - 1e-12, 0.5 - 1e-12, 0.9 - 1e-12, 1.0 - 1e-12, 1.5]
+    for _ in range(80):
+        n = int(rng.integers(1, 300))
+        L = np.round(rng.exponential(40.0, n), int(rng.integers(0, 3)))
+        W = L + np.round(rng.exponential(90.0, n) * (rng.random(n) > 0.2), 1)
+        resample = est._LyndenBellResampler(L, W)
+        for _ in range(4):
+            i = rng.integers(0, n, n)
+            grid = np.unique(L[i])
+            F = est._lynden_bell(L[i], W[i], grid)[0]
+            want = [grid[np.flatnonzero(F >= t)[0]] if (F >= t).any() else np.nan
+                    for t in targets]
+            assert np.array_equal(resample.first_reaching(i, targets), want, equal_nan=True)
+
+
 def test_pointwise_band_without_the_replicate_matrix_equals_numpy_quantile() -> None:
     """The band kept from the few extreme values per column is numpy's
     ``quantile(boot, [a, 1 - a], axis=0)`` of the whole matrix (oracle), for small and
