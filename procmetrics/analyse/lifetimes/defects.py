@@ -172,11 +172,11 @@ class _Rows(NamedTuple):
 @memoised()
 def _defect_rows(fix_links: pd.DataFrame, basis: Basis, commits: pd.DataFrame | None,
                  commit_subsystems: pd.DataFrame | None,
-                 tag_containment: pd.DataFrame | None, end_date: Any,
-                 period_cuts: Sequence[Any] | None, period_freq: str) -> _Rows:
-    """The defect rows of :func:`build_defects` before the link-era rule and without the
-    review flag (:func:`_reviewed_introducers`): they depend on neither, so a report's
-    tables under several rules, with trailers or without, share one computation."""
+                 tag_containment: pd.DataFrame | None, end_date: Any) -> _Rows:
+    """The defect rows of :func:`build_defects` before the link-era rule, without the
+    review flag (:func:`_reviewed_introducers`) and the period: they depend on none of
+    these, so a report's tables under several rules, with trailers or without, with
+    period cuts or without, share one computation."""
     clock = "author" if basis == "author" else "committer"
     status = fix_links["status"].fillna("unknown").astype(str)
     link_counts = {str(k): int(v) for k, v in status.value_counts().sort_index().items()}
@@ -258,7 +258,7 @@ def _defect_rows(fix_links: pd.DataFrame, basis: Basis, commits: pd.DataFrame | 
     keys = list(zip(d["repo"], d["introducer_hash"]))
     d["subsystems"] = [";".join(subs[k]) if k in subs else "" for k in keys]
     d["subsystem"] = [NONE if not s else (MULTIPLE if ";" in s else s) for s in d["subsystems"]]
-    d["period"] = _periods(d["intro_date"], period_cuts, period_freq) if len(d) else []
+    d["period"] = ""                  # build_defects sets it (it depends on the cuts)
     d["reviewed_introducer"] = pd.array([pd.NA] * len(d), dtype="boolean")
     if commits is not None and len(commits):
         # only the introducers' rows are looked up (a tenth of the commits, or less)
@@ -279,11 +279,11 @@ def _defect_rows(fix_links: pd.DataFrame, basis: Basis, commits: pd.DataFrame | 
                  first_by_repo, tau)
 
 
-@memoised()
 def _reviewed_introducers(trailers: pd.DataFrame, review_keys: tuple[str, ...]
                           ) -> set[tuple[Any, Any]]:
     """The (repo, hash) of every commit with a trailer line whose key is one of
-    ``review_keys`` (case-blind)."""
+    ``review_keys`` (case-blind). Not memoised: a kept result is handed out as a deep
+    copy, and copying a set of a million pairs took longer than building it."""
     rk = {k.lower() for k in review_keys}
     rev = trailers[trailers["key"].astype(str).str.lower().isin(rk)]
     return set(zip(rev["repo"], rev["hash"]))
@@ -351,7 +351,8 @@ def build_defects(
     clock = "author" if basis == "author" else "committer"
     d, links, status, link_counts, n_missing, missing_rows, n_follow, first_by_repo, tau = \
         _defect_rows(fix_links, basis, commits, commit_subsystems, tag_containment,
-                     end_date, period_cuts, period_freq)
+                     end_date)
+    d["period"] = _periods(d["intro_date"], period_cuts, period_freq) if len(d) else []
     if trailers is not None:
         reviewed = _reviewed_introducers(trailers, tuple(review_keys))
         d["reviewed_introducer"] = pd.array(
