@@ -254,27 +254,19 @@ def test_bootstrap_replicates_without_sorting_equal_the_sorting_estimate() -> No
 
     from procmetrics.analyse.lifetimes import estimators as est
 
-    rng = np.random.default_rng(20261202)
-    for _ in range(60):
-        n = int(rng.integers(1, 200))
-        L = np.round(rng.exponential(40.0, n), int(rng.integers(0, 2)))
-        W = L + np.round(rng.exponential(90.0, n) * (rng.random(n) > 0.2), 1)
-        resample = est._LyndenBellResampler(L, W)
-        for _ in range(4):
-            i = rng.integers(0, n, n)
-            grid = np.unique(L[i])
-            F, g = resample(i)
-            assert np.array_equal(g, grid)
-            assert np.array_equal(F, est._lynden_bell(L[i], W[i], grid)[0], equal_nan=True)
-            full = np.unique(L)
-            assert np.array_equal(resample(i, full)[0],
-                                  est._lynden_bell(L[i], W[i], full)[0], equal_nan=True)
-            # the sample's own values as the grid: a running count replaces the search
-            own, g = resample(i, resample.values)
-            assert g is resample.values and np.array_equal(own, resample(i, full)[0],
-                                                           equal_nan=True)
-            assert np.array_equal(own, est._lynden_bell(L[i], W[i], full)[0],
-                                  equal_nan=True)
+    for L, W, resample, i in _resample_cases(20261202, 60, 200, 2):
+        grid = np.unique(L[i])
+        F, g = resample(i)
+        assert np.array_equal(g, grid)
+        assert np.array_equal(F, est._lynden_bell(L[i], W[i], grid)[0], equal_nan=True)
+        full = np.unique(L)
+        assert np.array_equal(resample(i, full)[0],
+                              est._lynden_bell(L[i], W[i], full)[0], equal_nan=True)
+        # the sample's own values as the grid: a running count replaces the search
+        own, g = resample(i, resample.values)
+        assert g is resample.values and np.array_equal(own, resample(i, full)[0],
+                                                       equal_nan=True)
+        assert np.array_equal(own, est._lynden_bell(L[i], W[i], full)[0], equal_nan=True)
 
 
 def test_quantiles_read_without_cutting_the_counts_equal_the_sorting_estimate() -> None:
@@ -287,20 +279,31 @@ def test_quantiles_read_without_cutting_the_counts_equal_the_sorting_estimate() 
 
     from procmetrics.analyse.lifetimes import estimators as est
 
-    rng = np.random.default_rng(20261203)
     targets = [0.0, 0.25 - 1e-12, 0.5 - 1e-12, 0.9 - 1e-12, 1.0 - 1e-12, 1.5]
-    for _ in range(80):
-        n = int(rng.integers(1, 300))
-        L = np.round(rng.exponential(40.0, n), int(rng.integers(0, 3)))
+    for L, W, resample, i in _resample_cases(20261203, 80, 300, 3):
+        grid = np.unique(L[i])
+        F = est._lynden_bell(L[i], W[i], grid)[0]
+        want = [grid[np.flatnonzero(F >= t)[0]] if (F >= t).any() else np.nan
+                for t in targets]
+        assert np.array_equal(resample.first_reaching(i, targets), want, equal_nan=True)
+
+
+def _resample_cases(seed: int, samples: int, max_n: int, max_decimals: int):
+    """Seeded (lifetimes, windows, resampler, drawn indices): ``samples`` samples of up to
+    ``max_n`` lifetimes rounded to 0..``max_decimals - 1`` decimals (ties), some windows
+    equal to their lifetimes, four resamples each."""
+    import numpy as np
+
+    from procmetrics.analyse.lifetimes import estimators as est
+
+    rng = np.random.default_rng(seed)
+    for _ in range(samples):
+        n = int(rng.integers(1, max_n))
+        L = np.round(rng.exponential(40.0, n), int(rng.integers(0, max_decimals)))
         W = L + np.round(rng.exponential(90.0, n) * (rng.random(n) > 0.2), 1)
         resample = est._LyndenBellResampler(L, W)
         for _ in range(4):
-            i = rng.integers(0, n, n)
-            grid = np.unique(L[i])
-            F = est._lynden_bell(L[i], W[i], grid)[0]
-            want = [grid[np.flatnonzero(F >= t)[0]] if (F >= t).any() else np.nan
-                    for t in targets]
-            assert np.array_equal(resample.first_reaching(i, targets), want, equal_nan=True)
+            yield L, W, resample, rng.integers(0, n, n)
 
 
 def test_pointwise_band_without_the_replicate_matrix_equals_numpy_quantile() -> None:
