@@ -198,5 +198,6 @@ def to_plain(obj: Any, floats: Callable[[float], float] | None = None) -> Any:
     """JSON-ready Python values (see :func:`_plain`); ``floats`` maps every finite float."""
     return _plain(obj, floats)
 
+
 __all__ = ["Diagnostic", "Caveat", "Estimate", "caveat", "to_plain", "CAVEAT_CODES",
            "Verdict", "Severity", "field"]

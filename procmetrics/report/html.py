@@ -111,23 +111,24 @@ def render_html(report: Report, *, csv_names: dict[str, str], prepared: str) -> 
     # with its row count (the defect ledger: over 100,000 rows at kernel scale)
     shown = {k: t for k, t in report.tables.items() if not t.csv_only}
     n_rows = {k: len(t.data) for k, t in report.tables.items()}
+    records = {k: t.data.reindex(columns=[c for c, _ in t.columns])
+               .astype(object).to_dict(orient="records") for k, t in shown.items()}
     rows = {k: [{c: fmt_value(c, v, c in t.percent_columns) for c, v in r.items()}
-                for r in t.data.reindex(columns=[c for c, _ in t.columns])
-                .astype(object).to_dict(orient="records")]
+                for r in records[k]]
             for k, t in shown.items()}
     numeric = {k: _numeric(t) for k, t in report.tables.items()}
     url = report.options.commit_url
     links = {k: [{c: (commit_link(url, str(v)) if c in HASH_COLUMNS and isinstance(v, str)
                       else None) for c, v in r.items()}
-                 for r in t.data.reindex(columns=[c for c, _ in t.columns])
-                 .astype(object).to_dict(orient="records")]
-             for k, t in shown.items()}
+                 for r in records[k]]
+             for k in shown}
     head = report.scope.get("head_hash") or ""
     return env.get_template("report.html.j2").render(
         report=report, scope=report.scope, csp=csp_for(css, running), css=Markup(css),
         running_css=Markup(running), meta=meta, control=meta.control_rows(),
         version=__version__, prepared=meta.date or prepared, images=images, widths=widths,
-        csv_names=csv_names, rows=rows, n_rows=n_rows, links=links, numeric=numeric, describe=describe,
+        csv_names=csv_names, rows=rows, n_rows=n_rows, links=links, numeric=numeric,
+        describe=describe,
         evidence_line=evidence_line, summary=summary_rows(report.claims),
         head_link=commit_link(url, head), warned=warned_diagnostics,
         caution=CAUTION, robustness_text=robustness_text)

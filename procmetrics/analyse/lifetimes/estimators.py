@@ -259,7 +259,6 @@ class _LyndenBellResampler:
         g = s if grid is None else grid
         return _lb_from_counts(s, d_all[keep], R_all[keep], g)[0], g
 
-
     def first_reaching(self, i: np.ndarray, targets: list[float]) -> np.ndarray:
         """For each target ``t``, the smallest of the resample's distinct lifetimes where
         its F* (on its own distinct lifetimes, as :meth:`__call__` gives it) is at least
