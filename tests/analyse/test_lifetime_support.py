@@ -288,6 +288,32 @@ def test_quantiles_read_without_cutting_the_counts_equal_the_sorting_estimate() 
         assert np.array_equal(resample.first_reaching(i, targets), want, equal_nan=True)
 
 
+def test_quantile_replicates_at_targets_on_the_curve_and_in_lifetime_order() -> None:
+    """``first_reaching`` at targets equal to values of the resample's own F* and one
+    float either side (where the search on log F* must hand over to ``exp`` exactly), for
+    a sample given in lifetime order (as the quantile bootstrap sorts it) and the same
+    sample shuffled. Oracle: ``_lynden_bell`` of the drawn pairs and a plain search."""
+    import numpy as np
+
+    from procmetrics.analyse.lifetimes import estimators as est
+
+    rng = np.random.default_rng(20261204)
+    for L, W, _, i in _resample_cases(20261204, 40, 400, 3):
+        for order in (np.lexsort((W, L)), rng.permutation(len(L))):
+            Lo, Wo = L[order], W[order]
+            resample = est._LyndenBellResampler(Lo, Wo)
+            grid = np.unique(Lo[i])
+            F = est._lynden_bell(Lo[i], Wo[i], grid)[0]
+            on_curve = F[rng.integers(0, len(F), 3)]
+            targets = [float(x) for v in on_curve
+                       for x in (np.nextafter(v, -1.0), v, np.nextafter(v, 2.0))]
+            want = [grid[np.flatnonzero(F >= t)[0]] if (F >= t).any() else np.nan
+                    for t in targets]
+            got = resample.first_reaching(i, targets)
+            assert np.array_equal(got, want, equal_nan=True)
+            assert np.array_equal(resample(i)[0], F, equal_nan=True)
+
+
 def _resample_cases(seed: int, samples: int, max_n: int, max_decimals: int):
     """Seeded (lifetimes, windows, resampler, drawn indices): ``samples`` samples of up to
     ``max_n`` lifetimes rounded to 0..``max_decimals - 1`` decimals (ties), some windows
