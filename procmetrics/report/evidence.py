@@ -22,6 +22,7 @@ import numpy as np
 import pandas as pd
 
 from procmetrics.errors import ProcmetricsError
+from procmetrics.store.frames import sort_key
 
 SHARE_KINDS = ("rose_after", "fell_after", "review_coverage_rose", "at_least", "at_most")
 TREND_KINDS = ("declining", "rising", "fix_ratio_declining")
@@ -81,7 +82,8 @@ def joined_by_key(text: pd.Series, key: pd.Series, sep: str) -> pd.Series:
     sorted order (missing keys dropped), each key's texts in their order, joined."""
     keep = key.notna().to_numpy(bool)
     k, v = key.to_numpy(object)[keep], text.to_numpy(object)[keep]
-    order = np.argsort(k, kind="stable")          # a stable sort keeps each key's order
+    # a stable sort keeps each key's order; keys by code point (sort_key), not as objects
+    order = np.argsort(sort_key(pd.Series(k)), kind="stable")
     k, v = k[order], v[order]
     starts = np.flatnonzero(np.r_[True, k[1:] != k[:-1]]) if len(k) else np.array([], int)
     ends = np.r_[starts[1:], len(k)]
@@ -338,34 +340,56 @@ def commit_ledger(commits: pd.DataFrame, trailers: pd.DataFrame, fix_links: pd.D
     """Every commit of the store with what each headline figure counted it as.
 
     ``flags`` is :func:`procmetrics.analyse.measures.metrics.commit_flags` of the commits.
+
+    Each commit's flags row is found once (one hash lookup, shared by every flag column;
+    a commit without one, such as a merge, gets missing values, as ``Series.map`` gives
+    them), and the rows are ordered by date and hash with :func:`numpy.lexsort` over
+    typed keys (dates as integers, missing last; hashes by code point): at a million
+    commits the per-column ``map``, the ``Timestamp`` objects of the dates and pandas'
+    sort over text cost most of the ledger.
     """
     from procmetrics.analyse.measures.vocabulary import DEFAULT_REVIEW_KEYS
 
     c = commits.drop_duplicates(subset=["hash"])
-    merge = c["is_merge"].astype("boolean").fillna(False).astype(bool)
+    merge = c["is_merge"].astype("boolean").fillna(False).to_numpy(bool)
     files = pd.to_numeric(c["n_files"], errors="coerce")
-    out = pd.DataFrame({"hash": c["hash"].to_numpy(), "date": c["committer_date"].to_numpy(),
-                        "merge": merge.to_numpy(), "files_changed": files.to_numpy()})
-    f = flags.drop_duplicates(subset=["hash"]).set_index("hash")
-    out["in_share_denominators"] = out["hash"].isin(f.index[f["date"].notna()])
-    reason = pd.Series("", index=out.index, dtype=object)
-    reason[out["merge"]] = "merge commit (the measures count non-merge commits)"
-    reason[(reason == "") & ~out["in_share_denominators"]] = "no committer date"
-    out["excluded_because"] = reason.to_numpy()
-    for col in ("reviewed", "independent", "n_reviewers", "fix", "fix_ref", "churn"):
-        out[col] = out["hash"].map(f[col]) if col in f.columns else pd.NA
-    out = out.rename(columns={"fix": "fix_resolved", "fix_ref": "any_fixes_reference",
-                              "churn": "lines_changed"})
-    out["line_count_note"] = [
-        "" if m or pd.notna(lc) else
-        "no file changed (empty commit): left out of lines-changed figures" if fc == 0 else
-        "no line count (binary files only, or line counts not mined): left out of "
-        "lines-changed figures"
-        for m, lc, fc in zip(out["merge"], out["lines_changed"], out["files_changed"].fillna(-1))]
+    hashes = c["hash"].to_numpy(object)
+    out = pd.DataFrame({"hash": hashes, "date": c["committer_date"].reset_index(drop=True),
+                        "merge": merge, "files_changed": files.to_numpy()})
+    f = flags.drop_duplicates(subset=["hash"])
+    at = pd.Index(f["hash"].to_numpy(object)).get_indexer(hashes)
+    found = at >= 0
+    has_date = f["date"].notna().to_numpy(bool)
+    in_share = np.zeros(len(out), dtype=bool)
+    in_share[found] = has_date[at[found]]
+    out["in_share_denominators"] = in_share
+    reason = np.full(len(out), "", dtype=object)
+    reason[merge] = "merge commit (the measures count non-merge commits)"
+    reason[~merge & ~out["in_share_denominators"].to_numpy()] = "no committer date"
+    out["excluded_because"] = reason
+    for col, name in (("reviewed", "reviewed"), ("independent", "independent"),
+                      ("n_reviewers", "n_reviewers"), ("fix", "fix_resolved"),
+                      ("fix_ref", "any_fixes_reference"), ("churn", "lines_changed")):
+        # Series.map's missing value and dtype for rows without flags (bool -> object,
+        # int -> float; all float NaN when there are no flags at all)
+        out[name] = (pd.NA if col not in f.columns else np.full(len(out), np.nan) if not len(f)
+                     else pd.api.extensions.take(f[col].to_numpy(), at, allow_fill=True))
+    no_lines = out["lines_changed"].isna().to_numpy(bool) & ~merge
+    empty = out["files_changed"].fillna(-1).to_numpy() == 0
+    note = np.full(len(out), "", dtype=object)
+    note[no_lines & empty] = ("no file changed (empty commit): left out of lines-changed "
+                              "figures")
+    note[no_lines & ~empty] = ("no line count (binary files only, or line counts not "
+                               "mined): left out of lines-changed figures")
+    out["line_count_note"] = note
     out["review_trailers"] = out["hash"].map(review_trailers(trailers, DEFAULT_REVIEW_KEYS)
                                              ).fillna("")
     out["fixes_references"] = out["hash"].map(fix_references(fix_links)).fillna("")
-    return out.sort_values(["date", "hash"], kind="mergesort").reset_index(drop=True)
+    date = out["date"]
+    missing = date.isna().to_numpy(bool)
+    seconds = np.where(missing, 0, date.array.asi8)
+    order = np.lexsort((sort_key(out["hash"]), seconds, missing))
+    return out.take(order).reset_index(drop=True)
 
 
 def denominator_note(n: int | None, ledger: pd.DataFrame, *, lines: bool = False,

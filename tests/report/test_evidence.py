@@ -141,3 +141,56 @@ def test_lifetime_step_rows_count_only_its_local_window():
     assert v.n and pack.counted == v.n and pack.reproduces_n
     reasons = pack.files["defects.csv"]["exclusion_reason"]
     assert (reasons == "introduced more than 1 years from the date").sum() > 100
+
+
+def test_commit_ledger_lookups_and_order_are_pandas_map_and_sort():
+    """The ledger finds each commit's flags by one shared lookup and orders rows with
+    ``numpy.lexsort``; oracle: pandas' ``Series.map`` of each flag column and
+    ``sort_values(["date", "hash"])`` (missing dates last) on the same rows. Covers
+    merges without flags, a commit without a date, repeated dates, a duplicated hash,
+    non-ASCII hash text and an empty flags table."""
+    import numpy as np
+    import pandas as pd
+
+    from procmetrics.report.evidence import commit_ledger
+
+    rng = np.random.default_rng(20261204)
+    n = 300
+    hashes = [f"{rng.integers(0, 16 ** 6):06x}{i:04d}" for i in range(n)]
+    hashes[5], hashes[9] = "zé-önly", "z\u00e9"
+    dates = pd.Series(pd.to_datetime(rng.integers(0, 40, n) * 86400, unit="s", utc=True))
+    dates[[3, 17]] = pd.NaT
+    commits = pd.DataFrame({
+        "hash": hashes + [hashes[0]], "committer_date": pd.concat([dates, dates[:1]]).values,
+        "is_merge": pd.array(list(rng.random(n) < 0.1) + [False], dtype="boolean"),
+        "n_files": list(rng.integers(0, 3, n)) + [1]})
+    kept = ~commits["is_merge"].to_numpy(bool)
+    flags = pd.DataFrame({
+        "hash": commits["hash"][kept], "date": commits["committer_date"][kept],
+        "reviewed": rng.random(kept.sum()) < 0.5, "independent": rng.random(kept.sum()) < 0.3,
+        "n_reviewers": rng.integers(0, 3, kept.sum()), "fix": rng.random(kept.sum()) < 0.2,
+        "fix_ref": rng.random(kept.sum()) < 0.25,
+        "churn": np.where(rng.random(kept.sum()) < 0.2, np.nan, rng.integers(0, 50, kept.sum()))})
+    trailers = pd.DataFrame({"hash": [hashes[1], hashes[1], hashes[5]],
+                             "key": ["Reviewed-by", "Acked-by", "Reviewed-by"],
+                             "value": ["Ada <a@x>", "Bo <b@x>", "Cy <c@x>"]})
+    fix_links = pd.DataFrame({"fix_hash": [hashes[2]], "ref_hash": ["abcdef123456"],
+                              "status": ["resolved"]})
+    for fl in (flags, flags.iloc[:0]):
+        got = commit_ledger(commits, trailers, fix_links, fl)
+        c = commits.drop_duplicates(subset=["hash"]).reset_index(drop=True)
+        f = fl.drop_duplicates(subset=["hash"]).set_index("hash")
+        assert got["hash"].tolist() == (c.assign(date=c["committer_date"])
+                                        .sort_values(["date", "hash"], kind="mergesort")
+                                        ["hash"].tolist())
+        by_hash = got.set_index("hash")
+        for col, name in (("reviewed", "reviewed"), ("n_reviewers", "n_reviewers"),
+                          ("fix", "fix_resolved"), ("churn", "lines_changed")):
+            want = c["hash"].map(f[col])
+            pd.testing.assert_series_equal(by_hash[name].reindex(c["hash"]).reset_index(drop=True),
+                                           want.rename(name), check_names=False)
+        assert by_hash.loc[hashes[1], "review_trailers"] == "Reviewed-by: Ada <a@x>; Acked-by: Bo <b@x>"
+        assert by_hash.loc[hashes[2], "fixes_references"] == "abcdef123456 resolved"
+        merged = by_hash["merge"]
+        assert (by_hash.loc[merged, "excluded_because"]
+                == "merge commit (the measures count non-merge commits)").all()
