@@ -77,12 +77,21 @@ def _column_cells(col: pd.Series, raw: bool) -> list[str]:
         values = np.ascontiguousarray(col.to_numpy(dtype=float))
         # distinct bit patterns, so that -0.0 ("-0") stays apart from 0.0 ("0")
         return _each_distinct(values.view(np.int64), values, _float_cell)
-    if dt == object and pd.api.types.infer_dtype(col, skipna=True) in ("string", "empty"):
+    kind = pd.api.types.infer_dtype(col, skipna=True) if dt == object else None
+    if kind in ("string", "empty"):
         # all text: csv_text_cell (the one formula rule) without the per-value type
         # dispatch of _cell; missing values of any kind empty
         vals = col.to_numpy(object)
         missing = pd.isna(vals).tolist()
         return ["" if m else csv_text_cell(v, raw=raw) for v, m in zip(vals.tolist(), missing)]
+    if kind == "boolean":
+        # Python or numpy booleans with missing values (a flag looked up where some rows
+        # have none): "true", "false" or empty, as _cell writes them
+        vals = col.to_numpy(object)
+        missing = pd.isna(vals)
+        truth = np.zeros(len(vals), dtype=bool)
+        truth[~missing] = vals[~missing].astype(bool)
+        return np.where(missing, "", np.where(truth, "true", "false")).astype(object).tolist()
     if isinstance(dt, (pd.Int64Dtype, pd.Int32Dtype, pd.UInt64Dtype, pd.BooleanDtype)):
         vals = col.to_numpy(dtype=object, na_value=None).tolist()
         if isinstance(dt, pd.BooleanDtype):

@@ -39,6 +39,8 @@ def frame() -> pd.DataFrame:
         "zones": [pd.Timestamp("2020-01-01T01:00:00+01:00"), pd.Timestamp("2020-01-01T00:00:00Z"),
                   None, "t", 3, pd.NaT, np.nan, pd.Timestamp("2020-01-01"), "t"],
         "none": [None] * 9,
+        # flags looked up where some rows have none: Python and numpy booleans, missing
+        "flag": [True, np.nan, False, np.True_, None, pd.NA, np.False_, True, False],
     })
 
 
