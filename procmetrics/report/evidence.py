@@ -144,7 +144,8 @@ def _shares(pack: ClaimPack, claim: Any, cctx: Any) -> None:
             f = f[f["date"] < before]
     rows = _commit_rows(f, cctx, metric, DEFAULT_REVIEW_KEYS)
     if split is not None:
-        rows.insert(3, "side", ["after" if d >= split else "before" for d in f["date"]])
+        rows.insert(3, "side", np.where((f["date"] >= split).to_numpy(bool), "after",
+                                        "before").astype(object))
     pack.add("commits.csv", rows, f"the {len(rows):,} commits in the {metric.replace('_', ' ')}"
              " denominator; in_numerator marks those counted in the share, with the "
              "trailers or Fixes: references that made them so")

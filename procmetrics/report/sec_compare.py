@@ -3,6 +3,7 @@ from __future__ import annotations
 
 from typing import Any
 
+import numpy as np
 import pandas as pd
 
 from procmetrics.report import flags as fl
@@ -134,8 +135,8 @@ def _distributions(ctx: BuildContext, s: Any, pc: Any) -> None:
     if not pc.distributions:
         return
     f = ctx.commit_flags(MetricConfig(period=ctx.options.period))
-    side = pd.Series(["after" if d >= ctx.policy_date else "before" for d in f["date"]],
-                     index=f.index)
+    side = pd.Series(np.where((f["date"] >= ctx.policy_date).to_numpy(bool), "after",
+                              "before"), index=f.index, dtype=object)
     cols = {"lines changed per commit": "churn", "reviewers per commit": "n_reviewers"}
     for c in pc.distributions:
         col = cols.get(c.quantity)
