@@ -91,7 +91,8 @@ def _column_cells(col: pd.Series, raw: bool) -> list[str]:
         missing = pd.isna(vals)
         truth = np.zeros(len(vals), dtype=bool)
         truth[~missing] = vals[~missing].astype(bool)
-        return np.where(missing, "", np.where(truth, "true", "false")).astype(object).tolist()
+        words = np.array(["false", "true", ""], dtype=object)
+        return words[np.where(missing, 2, truth.astype(np.intp))].tolist()
     if isinstance(dt, (pd.Int64Dtype, pd.Int32Dtype, pd.UInt64Dtype, pd.BooleanDtype)):
         vals = col.to_numpy(dtype=object, na_value=None).tolist()
         if isinstance(dt, pd.BooleanDtype):

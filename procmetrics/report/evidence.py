@@ -77,6 +77,14 @@ def fix_references(fix_links: pd.DataFrame) -> pd.Series:
     return joined_by_key(text, fix_links["fix_hash"], "; ")
 
 
+def before_after(dates: pd.Series, at: Any) -> np.ndarray:
+    """"after" for dates on or after ``at``, else "before" (missing dates too), as an
+    object array holding the two strings themselves: numpy text, or a string assigned
+    through a mask, becomes a new string per row (60 MB at a million commits)."""
+    return np.array(["before", "after"], dtype=object)[(dates >= at).to_numpy(bool)
+                                                         .astype(np.intp)]
+
+
 def joined_by_key(text: pd.Series, key: pd.Series, sep: str) -> pd.Series:
     """``text.groupby(key).agg(sep.join)`` without a Python call per group: keys in
     sorted order (missing keys dropped), each key's texts in their order, joined."""
@@ -144,8 +152,7 @@ def _shares(pack: ClaimPack, claim: Any, cctx: Any) -> None:
             f = f[f["date"] < before]
     rows = _commit_rows(f, cctx, metric, DEFAULT_REVIEW_KEYS)
     if split is not None:
-        rows.insert(3, "side", np.where((f["date"] >= split).to_numpy(bool), "after",
-                                        "before").astype(object))
+        rows.insert(3, "side", before_after(f["date"], split))
     pack.add("commits.csv", rows, f"the {len(rows):,} commits in the {metric.replace('_', ' ')}"
              " denominator; in_numerator marks those counted in the share, with the "
              "trailers or Fixes: references that made them so")
@@ -364,10 +371,10 @@ def commit_ledger(commits: pd.DataFrame, trailers: pd.DataFrame, fix_links: pd.D
     in_share = np.zeros(len(out), dtype=bool)
     in_share[found] = has_date[at[found]]
     out["in_share_denominators"] = in_share
-    reason = np.full(len(out), "", dtype=object)
-    reason[merge] = "merge commit (the measures count non-merge commits)"
-    reason[~merge & ~out["in_share_denominators"].to_numpy()] = "no committer date"
-    out["excluded_because"] = reason
+    # texts picked by code from one object array: each row holds a shared string
+    reasons = np.array(["", "merge commit (the measures count non-merge commits)",
+                        "no committer date"], dtype=object)
+    out["excluded_because"] = reasons[np.where(merge, 1, np.where(in_share, 0, 2))]
     for col, name in (("reviewed", "reviewed"), ("independent", "independent"),
                       ("n_reviewers", "n_reviewers"), ("fix", "fix_resolved"),
                       ("fix_ref", "any_fixes_reference"), ("churn", "lines_changed")):
@@ -377,20 +384,19 @@ def commit_ledger(commits: pd.DataFrame, trailers: pd.DataFrame, fix_links: pd.D
                      else pd.api.extensions.take(f[col].to_numpy(), at, allow_fill=True))
     no_lines = out["lines_changed"].isna().to_numpy(bool) & ~merge
     empty = out["files_changed"].fillna(-1).to_numpy() == 0
-    note = np.full(len(out), "", dtype=object)
-    note[no_lines & empty] = ("no file changed (empty commit): left out of lines-changed "
-                              "figures")
-    note[no_lines & ~empty] = ("no line count (binary files only, or line counts not "
-                               "mined): left out of lines-changed figures")
-    out["line_count_note"] = note
+    notes = np.array(["", "no file changed (empty commit): left out of lines-changed figures",
+                      "no line count (binary files only, or line counts not mined): left out "
+                      "of lines-changed figures"], dtype=object)
+    out["line_count_note"] = notes[np.where(no_lines, np.where(empty, 1, 2), 0)]
     out["review_trailers"] = out["hash"].map(review_trailers(trailers, DEFAULT_REVIEW_KEYS)
                                              ).fillna("")
     out["fixes_references"] = out["hash"].map(fix_references(fix_links)).fillna("")
     date = out["date"]
     missing = date.isna().to_numpy(bool)
     seconds = np.where(missing, 0, date.array.asi8)
-    order = np.lexsort((sort_key(out["hash"]), seconds, missing))
-    return out.take(order).reset_index(drop=True)
+    out = out.take(np.lexsort((sort_key(out["hash"]), seconds, missing)))
+    out.index = pd.RangeIndex(len(out))     # not reset_index: that copies every column again
+    return out
 
 
 def denominator_note(n: int | None, ledger: pd.DataFrame, *, lines: bool = False,

@@ -3,12 +3,12 @@ from __future__ import annotations
 
 from typing import Any
 
-import numpy as np
 import pandas as pd
 
 from procmetrics.report import flags as fl
 from procmetrics.report import plots
 from procmetrics.report.context import BuildContext, date_text
+from procmetrics.report.evidence import before_after
 from procmetrics.report.model import Figure, Table
 from procmetrics.report.sec_process import KINDS, SERIES
 
@@ -135,8 +135,7 @@ def _distributions(ctx: BuildContext, s: Any, pc: Any) -> None:
     if not pc.distributions:
         return
     f = ctx.commit_flags(MetricConfig(period=ctx.options.period))
-    side = pd.Series(np.where((f["date"] >= ctx.policy_date).to_numpy(bool), "after",
-                              "before"), index=f.index, dtype=object)
+    side = pd.Series(before_after(f["date"], ctx.policy_date), index=f.index, dtype=object)
     cols = {"lines changed per commit": "churn", "reviewers per commit": "n_reviewers"}
     for c in pc.distributions:
         col = cols.get(c.quantity)

@@ -187,10 +187,29 @@ def test_commit_ledger_lookups_and_order_are_pandas_map_and_sort():
         for col, name in (("reviewed", "reviewed"), ("n_reviewers", "n_reviewers"),
                           ("fix", "fix_resolved"), ("churn", "lines_changed")):
             want = c["hash"].map(f[col])
-            pd.testing.assert_series_equal(by_hash[name].reindex(c["hash"]).reset_index(drop=True),
-                                           want.rename(name), check_names=False)
-        assert by_hash.loc[hashes[1], "review_trailers"] == "Reviewed-by: Ada <a@x>; Acked-by: Bo <b@x>"
+            got_col = by_hash[name].reindex(c["hash"]).reset_index(drop=True)
+            pd.testing.assert_series_equal(got_col, want.rename(name), check_names=False)
+        assert (by_hash.loc[hashes[1], "review_trailers"]
+                == "Reviewed-by: Ada <a@x>; Acked-by: Bo <b@x>")
         assert by_hash.loc[hashes[2], "fixes_references"] == "abcdef123456 resolved"
         merged = by_hash["merge"]
         assert (by_hash.loc[merged, "excluded_because"]
                 == "merge commit (the measures count non-merge commits)").all()
+
+
+def test_before_after_sides_are_the_per_date_comparison():
+    """``before_after`` (the report's distribution sides and the claims' evidence rows)
+    against a Python comparison per date, missing dates "before"; its two strings are
+    shared, not one per row."""
+    import numpy as np
+    import pandas as pd
+
+    from procmetrics.report.evidence import before_after
+
+    rng = np.random.default_rng(7)
+    dates = pd.Series(pd.to_datetime(rng.integers(0, 100, 500) * 86400, unit="s", utc=True))
+    dates[[0, 10]] = pd.NaT
+    at = pd.Timestamp(50 * 86400, unit="s", tz="UTC")
+    got = before_after(dates, at)
+    assert got.tolist() == ["after" if d >= at else "before" for d in dates]
+    assert len({id(v) for v in got}) == 2
