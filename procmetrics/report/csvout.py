@@ -19,7 +19,7 @@ import pandas as pd
 
 from procmetrics.analyse.result import iso_seconds
 from procmetrics.report.model import Report
-from procmetrics.textsafe import csv_text_cell
+from procmetrics.textsafe import FORMULA_STARTS, csv_text_cell
 
 _KEY = re.compile(r"^[a-z0-9][a-z0-9-]*$")
 
@@ -79,11 +79,19 @@ def _column_cells(col: pd.Series, raw: bool) -> list[str]:
         return _each_distinct(values.view(np.int64), values, _float_cell)
     kind = pd.api.types.infer_dtype(col, skipna=True) if dt == object else None
     if kind in ("string", "empty"):
-        # all text: csv_text_cell (the one formula rule) without the per-value type
-        # dispatch of _cell; missing values of any kind empty
+        # all text: csv_text_cell (the one formula rule) applied only where it changes the
+        # text, found by each value's first character in numpy (hashes, names and notes
+        # rarely start like a formula); missing values of any kind empty
         vals = col.to_numpy(object)
-        missing = pd.isna(vals).tolist()
-        return ["" if m else csv_text_cell(v, raw=raw) for v, m in zip(vals.tolist(), missing)]
+        missing = pd.isna(vals)
+        cells = vals.copy()
+        cells[missing] = ""
+        if not raw:
+            present = np.flatnonzero(~missing)
+            firsts = vals[present].astype("U1")      # "" for empty text
+            for i in present[np.isin(firsts, FORMULA_STARTS)].tolist():
+                cells[i] = csv_text_cell(vals[i])
+        return cells.tolist()
     if kind == "boolean":
         # Python or numpy booleans with missing values (a flag looked up where some rows
         # have none): "true", "false" or empty, as _cell writes them
