@@ -10,12 +10,13 @@ from procmetrics.analyse.lifetimes.analysis import analyse_lifetimes
 from procmetrics.analyse.lifetimes.defects import build_defects, defect_ledger
 from procmetrics.analyse.lifetimes.double import efron_petrosian, log_likelihood
 from procmetrics.analyse.lifetimes.estimators import (
-    _lynden_bell, curve_quantile, quantile_estimates, truncated_product_limit,
+    curve_quantile, quantile_estimates, truncated_product_limit,
 )
 from procmetrics.analyse.lifetimes.horizon import (
     HORIZON_GRID, choose_horizon, figure_text, headline_figures, wilson_interval,
 )
 from procmetrics.analyse.lifetimes.linkera import settled_link_start
+from procmetrics.analyse.lifetimes.lyndenbell import _lynden_bell
 from procmetrics.analyse.lifetimes.quantiles import reverse_at_risk
 from procmetrics.analyse.lifetimes.sensitivity import link_era_sensitivity
 from tests.analyse.lifetime_sim import simulate
@@ -252,7 +253,7 @@ def test_bootstrap_replicates_without_sorting_equal_the_sorting_estimate() -> No
     window) pairs is the oracle, on ties, zero lifetimes and windows equal to lifetimes."""
     import numpy as np
 
-    from procmetrics.analyse.lifetimes import estimators as est
+    from procmetrics.analyse.lifetimes import lyndenbell as est
 
     for L, W, resample, i in _resample_cases(20261202, 60, 200, 2):
         grid = np.unique(L[i])
@@ -277,7 +278,7 @@ def test_quantiles_read_without_cutting_the_counts_equal_the_sorting_estimate() 
     zero lifetimes, windows equal to lifetimes and targets at 0, 1 and beyond."""
     import numpy as np
 
-    from procmetrics.analyse.lifetimes import estimators as est
+    from procmetrics.analyse.lifetimes import lyndenbell as est
 
     targets = [0.0, 0.25 - 1e-12, 0.5 - 1e-12, 0.9 - 1e-12, 1.0 - 1e-12, 1.5]
     for L, W, resample, i in _resample_cases(20261203, 80, 300, 3):
@@ -295,7 +296,7 @@ def test_quantile_replicates_at_targets_on_the_curve_and_in_lifetime_order() -> 
     sample shuffled. Oracle: ``_lynden_bell`` of the drawn pairs and a plain search."""
     import numpy as np
 
-    from procmetrics.analyse.lifetimes import estimators as est
+    from procmetrics.analyse.lifetimes import lyndenbell as est
 
     rng = np.random.default_rng(20261204)
     for L, W, _, i in _resample_cases(20261204, 40, 400, 3):
@@ -320,7 +321,7 @@ def _resample_cases(seed: int, samples: int, max_n: int, max_decimals: int):
     equal to their lifetimes, four resamples each."""
     import numpy as np
 
-    from procmetrics.analyse.lifetimes import estimators as est
+    from procmetrics.analyse.lifetimes import lyndenbell as est
 
     rng = np.random.default_rng(seed)
     for _ in range(samples):
@@ -338,7 +339,7 @@ def test_pointwise_band_without_the_replicate_matrix_equals_numpy_quantile() -> 
     large resample counts, ties, several levels and block sizes."""
     import numpy as np
 
-    from procmetrics.analyse.lifetimes.estimators import pointwise_band
+    from procmetrics.analyse.lifetimes.lyndenbell import pointwise_band
 
     rng = np.random.default_rng(20261202)
     for n_boot in (1, 2, 3, 50, 199, 2000):
@@ -359,7 +360,7 @@ def test_pointwise_band_on_a_wide_grid_merges_fewer_replicates_and_equals_numpy(
     of the whole matrix, and the final quantile runs in blocks of grid points."""
     import numpy as np
 
-    from procmetrics.analyse.lifetimes import estimators as est
+    from procmetrics.analyse.lifetimes import lyndenbell as est
 
     rng = np.random.default_rng(20261203)
     n_boot, width, a = 60, 150_000, 0.025
