@@ -101,13 +101,11 @@ class _LyndenBellResampler:
     """:func:`_lynden_bell` of bootstrap resamples ``(L[i], W[i])`` without sorting each.
 
     Every drawn lifetime is one of the sample's distinct lifetimes ``values``, so a
-    resample needs only counts over those: ``d`` (draws per distinct lifetime) is a
-    ``bincount`` of the draws' lifetime codes, ``#{L <= values[j]}`` its running sum,
-    and ``#{W < values[j]}`` the running sum of a ``bincount`` of the draws' window
-    codes (the first distinct lifetime above each window). These are the integers
-    :func:`_lynden_bell` finds by sorting the drawn pairs, so the replicate is the
-    same number for number, from one count of the ``n`` draws per observation
-    (:meth:`_counts`) instead of a sort.
+    resample needs only counts over those: ``d`` (draws per distinct lifetime),
+    ``#{L <= values[j]}`` (its running sum) and ``#{W < values[j]}`` among the draws.
+    :meth:`_counts` reads all three off one count of the draws per observation. These
+    are the integers :func:`_lynden_bell` finds by sorting the drawn pairs, so the
+    replicate is the same number for number, without a sort.
     """
 
     def __init__(self, L: np.ndarray, W: np.ndarray) -> None:
